@@ -1,0 +1,36 @@
+"""The one error family for problems a user can cause.
+
+The CLI catches :class:`SpotcheckError` only and prints its message as one
+``error:`` line on stderr with exit code 2.  A mismatch between a file and the
+engine is a *result*, never an exception.
+"""
+
+from __future__ import annotations
+
+
+class SpotcheckError(Exception):
+    """Base class for every error caused by the user's input or request."""
+
+
+class UsageError(SpotcheckError, ValueError):
+    """A request that cannot be served: unknown constant, impossible position..."""
+
+
+class FormulaError(SpotcheckError, ValueError):
+    """A formula definition that is malformed or does not converge."""
+
+
+class DigitFileError(SpotcheckError, ValueError):
+    """A digit file that cannot be read as digits (garbage, empty, wrong base...)."""
+
+
+class FileAccessError(SpotcheckError, OSError):
+    """A path that cannot be opened: missing, a directory, unreadable."""
+
+
+class CertificationError(SpotcheckError, RuntimeError):
+    """The engine could not certify the requested digits within its limits.
+
+    Raised instead of ever returning a digit that the error bound does not
+    settle.
+    """
