@@ -2,17 +2,18 @@
 
 from __future__ import annotations
 
+import math
 import operator
 from dataclasses import asdict, dataclass
 from typing import Any
 
 from spotcheck.engine import backend
-from spotcheck.engine.evaluate import Progress, extract_hex
+from spotcheck.engine.evaluate import Progress, extract_hex, value_bounds
 from spotcheck.engine.series import series_of
-from spotcheck.errors import UsageError
+from spotcheck.errors import CertificationError, UsageError
 from spotcheck.formulas import Formula, get_constant
 
-__all__ = ["DigitResult", "extract", "hex_digits", "MAX_COUNT", "check_request"]
+__all__ = ["DigitResult", "extract", "hex_digits", "leading_digits", "MAX_COUNT", "check_request"]
 
 # A request for more digits than this is refused as a usage error: each window
 # of about 100 digits costs a full head sum, so larger counts belong to a full
@@ -113,3 +114,34 @@ def hex_digits(constant: str | Formula, position: int, count: int = 16, *, formu
     '243F6A88'
     """
     return extract(constant, position, count, formula=formula).digits
+
+
+def leading_digits(constant: str | Formula, base: int, count: int) -> tuple[str, str]:
+    """``(integer_part, digits)``: the certified first ``count`` digits after the point.
+
+    Works in base 16 or 10 from an exact evaluation of the whole series, so it
+    also gives the integer part, which digit extraction does not.
+
+    >>> leading_digits("pi", 10, 10)
+    ('3', '1415926535')
+    """
+    if base not in (10, 16):
+        raise UsageError(f"base must be 10 or 16, got {base}")
+    if not 1 <= count <= 2000:
+        raise UsageError("leading_digits serves 1 to 2000 digits")
+    _, f = resolve_formula(constant)
+    series = series_of(f)
+    bits = int(count * math.log2(base)) + 32
+    while True:
+        lo, hi = value_bounds(series, bits)
+        # floor(C * base^count) from both ends; equal means certified.
+        a = (lo * base**count) >> bits
+        b = (hi * base**count) >> bits
+        if a == b:
+            sign = "-" if a < 0 else ""
+            whole, frac = divmod(abs(a), base**count)
+            digits = format(frac, "X") if base == 16 else str(frac)
+            return sign + (format(whole, "X") if base == 16 else str(whole)), digits.zfill(count)
+        if bits > 64 * count + 4096:
+            raise CertificationError(f"could not certify {count} leading digits")
+        bits += 64

@@ -144,30 +144,43 @@ def head_fixed(
     return value, terms
 
 
-def tail_fixed(series: Series, d: int, bits: int) -> tuple[int, int, int]:
-    """Tail sum at bit offset ``d``: ``(value, terms, remainder_bound)`` in ulps of ``2^-bits``."""
-    big_d = d - series.shift
-    k = series.head_length(d)
-    # Stop once 2^(P - (e k - D)) * 2 sum|c| / q is below one ulp.
+def _sum_from(series: Series, big_d: int, k: int, bits: int) -> tuple[int, int, int]:
+    """Exact-rational sum of every term from ``k`` on, in ulps of ``2^-bits``, not reduced.
+
+    Returns ``(value, terms, remainder_bound)``: each term is floored, and the
+    terms not summed are at most ``remainder_bound`` ulps in absolute value.
+    """
+    # Stop once 2^(bits - (e k - D)) * 2 sum|c| / q is below one ulp.
     stop_excess = bits + series.abs_coefficient_sum.bit_length() + 2
     value, terms = 0, 0
     pairs = list(zip(series.js, series.cs))
     while series.e * k - big_d < stop_excess:
-        excess = series.e * k - big_d  # > 0 in the tail
+        up = bits - (series.e * k - big_d)  # the term is c * 2^up / N ulps
         sign = -1 if (series.alternating and k & 1) else 1
         for j, c in pairs:
             n = series.modulus(k, j)
-            value += (sign * c << bits) // (n << excess) if bits >= excess else (sign * c) // (n << (excess - bits))
+            value += (sign * c << up) // n if up >= 0 else (sign * c) // (n << -up)
             terms += 1
         k += 1
-    excess = series.e * k - big_d
-    num = 2 * series.abs_coefficient_sum
-    # R = ceil(num * 2^(bits - excess) / q)
-    if bits >= excess:
-        rem = -(-(num << (bits - excess)) // series.q)
-    else:
-        rem = -(-num // (series.q << (excess - bits)))
+    up = bits - (series.e * k - big_d)
+    num = 2 * series.abs_coefficient_sum  # geometric ratio <= 1/2 and N >= q
+    rem = -(-(num << up) // series.q) if up >= 0 else -(-num // (series.q << -up))
     return value, terms, rem
+
+
+def tail_fixed(series: Series, d: int, bits: int) -> tuple[int, int, int]:
+    """Tail sum at bit offset ``d``: ``(value, terms, remainder_bound)`` in ulps of ``2^-bits``."""
+    return _sum_from(series, d - series.shift, series.head_length(d), bits)
+
+
+def value_bounds(series: Series, bits: int) -> tuple[int, int]:
+    """``(lo, hi)`` with ``lo <= C * 2^bits <= hi``: the whole constant, integer part included.
+
+    Sums every term as an exact small fraction, so it is only for modest
+    ``bits`` (leading digits, integer part, detection).
+    """
+    value, terms, rem = _sum_from(series, -series.shift, 0, bits)
+    return value - rem, value + terms + rem
 
 
 def frac_interval(
