@@ -74,9 +74,7 @@ class Formula:
         return f"{scale}P({self.s}, {self.base}, {self.m}, ({coeffs}))"
 
 
-def validate_formula_shape(
-    s: object, base: object, m: object, coefficients: object, scale: object
-) -> None:
+def validate_formula_shape(s: object, base: object, m: object, coefficients: object, scale: object) -> None:
     """Raise :class:`FormulaError` unless the pieces form a convergent BBP-type series."""
     for name, value in (("s", s), ("b", base), ("m", m)):
         if not isinstance(value, int) or isinstance(value, bool):
@@ -90,7 +88,9 @@ def validate_formula_shape(
     if mag < 2 or mag & (mag - 1):
         if mag in (0, 1):
             raise FormulaError(f"base b = {base} does not make the series converge; use +-2^e with e >= 1")
-        raise FormulaError(f"base b = {base} is not a power of two (+-2^e); binary digit extraction needs one")
+        raise FormulaError(
+            f"base b = {base} is not a power of two (+-2^e); binary digit extraction needs one"
+        )
     if not isinstance(coefficients, tuple):
         raise FormulaError("coefficients must be a sequence of integers")
     if len(coefficients) != m:
@@ -193,8 +193,7 @@ PI_SQUARED_64 = Formula(
     m=6,
     coefficients=(16, -24, -8, -6, 1, 0),
     scale=Fraction(9, 8),
-    source=_BBP_1997
-    + "; used by D. H. Bailey, J. M. Borwein, A. Mattingly, G. Wightwick, 'The computation "
+    source=_BBP_1997 + "; used by D. H. Bailey, J. M. Borwein, A. Mattingly, G. Wightwick, 'The computation "
     "of previously inaccessible digits of pi^2 and Catalan's constant', Notices AMS 60 (2013) 844-854",
 )
 
@@ -216,8 +215,30 @@ CATALAN = Formula(
     base=4096,
     m=24,
     coefficients=(
-        3072, -3072, -23040, 12288, -768, 9216, 0, 10368, 2496, -192, 0, 768,
-        -48, 0, 360, 648, 12, 168, 0, 48, -39, 0, 0, 0,
+        3072,
+        -3072,
+        -23040,
+        12288,
+        -768,
+        9216,
+        0,
+        10368,
+        2496,
+        -192,
+        0,
+        768,
+        -48,
+        0,
+        360,
+        648,
+        12,
+        168,
+        0,
+        48,
+        -39,
+        0,
+        0,
+        0,
     ),
     scale=Fraction(1, 1024),
     source=_BROADHURST_1998,
@@ -230,13 +251,34 @@ ZETA3 = Formula(
     base=4096,
     m=24,
     coefficients=(
-        2048, -11264, -1024, 11776, -512, 4096, 256, 3456, 128, -704, -64, -128,
-        -32, -176, 16, 216, 8, 64, -4, 46, -2, -11, 1, 0,
+        2048,
+        -11264,
+        -1024,
+        11776,
+        -512,
+        4096,
+        256,
+        3456,
+        128,
+        -704,
+        -64,
+        -128,
+        -32,
+        -176,
+        16,
+        216,
+        8,
+        64,
+        -4,
+        46,
+        -2,
+        -11,
+        1,
+        0,
     ),
     scale=Fraction(1, 672),
     source=(
-        _BROADHURST_1998
-        + " (proves binary BBP-type formulas for zeta(3)); this coefficient vector was "
+        _BROADHURST_1998 + " (proves binary BBP-type formulas for zeta(3)); this coefficient vector was "
         "found by an integer-relation search and is verified numerically in the tests"
     ),
 )

@@ -229,12 +229,15 @@ def window_digits(
     *,
     workers: int = 1,
     progress: Progress | None = None,
+    words: int | None = None,
 ) -> tuple[str, Interval]:
     """Exactly ``count`` certified hex digits of ``frac(2^d C)``, from one window.
 
-    Evaluates with more fractional bits until the digits are certified.
+    Starts at ``words`` 64-bit words (default: enough for ``count`` digits and
+    the error bound) and evaluates with one more word until the digits are
+    certified.
     """
-    words = words_for(series, d, count)
+    words = words or words_for(series, d, count)
     while True:
         interval = frac_interval(series, d, words, workers=workers, progress=progress)
         digits = certified_hex_prefix(interval, count)

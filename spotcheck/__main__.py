@@ -1,0 +1,3 @@
+from spotcheck.cli import main
+
+main()

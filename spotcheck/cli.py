@@ -1,0 +1,170 @@
+"""Layer 5b: the command line.  Each command parses, makes one library call, renders.
+
+Every error a user can cause ends as one ``error:`` line on stderr and exit
+code 2; a certified mismatch is exit code 1; all-match is 0.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+from pathlib import Path
+from typing import Annotated, Any
+
+import typer
+
+from spotcheck import __version__
+from spotcheck.errors import SpotcheckError
+
+app = typer.Typer(
+    add_completion=False,
+    no_args_is_help=True,
+    help="Spot-check digit files of mathematical constants with certified digit extraction.",
+)
+
+EXIT_OK, EXIT_MISMATCH, EXIT_BAD_INPUT = 0, 1, 2
+
+FormulaFileOpt = Annotated[
+    list[Path] | None,
+    typer.Option("--formula-file", help="TOML file defining extra constants (repeatable)."),
+]
+JsonOpt = Annotated[
+    bool, typer.Option("--json", help="Print one JSON object instead of the terminal report.")
+]
+QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", help="Print as little as possible (no progress).")]
+WorkersOpt = Annotated[
+    int | None,
+    typer.Option("--workers", "-w", min=1, help="Threads for the head sum (default: all cores)."),
+]
+
+
+def _load_formula_files(paths: list[Path] | None) -> None:
+    if paths:
+        from spotcheck.formula_file import register_formula_file
+
+        for p in paths:
+            register_formula_file(p)
+
+
+def _workers(n: int | None) -> int:
+    return n if n is not None else (os.cpu_count() or 1)
+
+
+def _version_callback(value: bool) -> None:
+    if value:
+        from spotcheck.engine import backend
+
+        print(f"spotcheck {__version__}")
+        print(f"head-sum kernel: {backend.BACKEND_NOTE}")
+        raise typer.Exit(0)
+
+
+@app.callback()
+def _root(
+    version: Annotated[
+        bool,
+        typer.Option("--version", callback=_version_callback, is_eager=True, help="Show version and kernel."),
+    ] = False,
+) -> None:
+    """Spot-check digit files of mathematical constants with certified digit extraction."""
+
+
+@app.command()
+def digits(
+    constant: Annotated[str, typer.Argument(help="Constant name (see `spotcheck constants`).")],
+    at: Annotated[
+        int, typer.Option("--at", help="Position of the first digit (1 = first after the point).")
+    ] = 1,
+    count: Annotated[int, typer.Option("--count", "-n", help="Number of hex digits.")] = 16,
+    formula: Annotated[
+        str | None, typer.Option("--formula", help="Formula key (default: the fastest).")
+    ] = None,
+    cross_check: Annotated[
+        bool,
+        typer.Option("--cross-check", help="Evaluate every formula of the constant; exit 1 if any disagree."),
+    ] = False,
+    formula_file: FormulaFileOpt = None,
+    workers: WorkersOpt = None,
+    as_json: JsonOpt = False,
+    quiet: QuietOpt = False,
+) -> None:
+    """Print certified hexadecimal digits of CONSTANT from position --at."""
+    from spotcheck.engine.api import check_request, extract
+    from spotcheck.formulas import get_constant
+    from spotcheck.report.console import progress_bar
+    from spotcheck.report.digits import show_digits
+
+    _load_formula_files(formula_file)
+    check_request(at, count)
+    const = get_constant(constant)
+    keys = [f.key for f in const.formulas] if cross_check else [const.formula(formula).key]
+    if cross_check and len(keys) < 2:
+        raise typer.BadParameter(
+            f"{const.name} has only one formula; nothing to cross-check", param_hint="--cross-check"
+        )
+    results = []
+    for key in keys:
+        with progress_bar(f"{const.name} [{key}] head sum", enabled=not (quiet or as_json)) as cb:
+            results.append(
+                extract(const.name, at, count, formula=key, workers=_workers(workers), progress=cb)
+            )
+    main_result = results[0]
+    if formula is not None:
+        main_result = next(r for r in results if r.formula == const.formula(formula).key)
+    show_digits(main_result, results if cross_check else None, as_json=as_json, quiet=quiet)
+    if cross_check and any(r.digits != main_result.digits for r in results):
+        raise typer.Exit(EXIT_MISMATCH)
+
+
+@app.command()
+def constants(formula_file: FormulaFileOpt = None, as_json: JsonOpt = False) -> None:
+    """List the constants and formulas available, with their published sources."""
+    from spotcheck.formulas import all_constants
+    from spotcheck.report.digits import show_constants
+
+    _load_formula_files(formula_file)
+    show_constants(all_constants(), as_json=as_json)
+
+
+def _warn_if_no_kernel() -> None:
+    from spotcheck.engine import backend
+
+    if backend.BACKEND != "c" and "SPOTCHECK_PURE" not in os.environ:
+        from spotcheck.report.console import warning_line
+
+        warning_line(f"running on the slow path: {backend.BACKEND_NOTE}")
+
+
+def run(argv: list[str] | None = None) -> int:
+    """Run the CLI on ``argv`` and return the exit code (no ``sys.exit``)."""
+    from spotcheck.report.console import error_line
+
+    command = typer.main.get_command(app)
+    args = list(sys.argv[1:] if argv is None else argv)
+    if args and args[0] in ("digits", "verify", "locate", "scan"):
+        _warn_if_no_kernel()
+    try:
+        rv: Any = command.main(args=args, prog_name="spotcheck", standalone_mode=False)
+    except SpotcheckError as exc:
+        error_line(str(exc))
+        return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        error_line("interrupted")
+        return 130
+    except Exception as exc:  # typer/click usage errors carry exit_code and format_message
+        if hasattr(exc, "format_message") and hasattr(exc, "exit_code"):
+            error_line(exc.format_message())
+            return EXIT_BAD_INPUT
+        if type(exc).__name__ == "Abort":
+            error_line("aborted")
+            return 130
+        raise
+    return rv if isinstance(rv, int) else EXIT_OK
+
+
+def main() -> None:
+    sys.exit(run())
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,95 @@
+"""Shared terminal plumbing: consoles, styles, a lazily shown progress bar."""
+
+from __future__ import annotations
+
+import json
+import sys
+import time
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from typing import Any
+
+# Named styles, the only place colours are chosen.
+STYLE_OK = "bold green"
+STYLE_BAD = "bold red"
+STYLE_WARN = "yellow"
+STYLE_DIM = "dim"
+STYLE_DIGITS = "bold cyan"
+
+# A progress bar appears only for work that has run this long (seconds).
+PROGRESS_DELAY = 1.0
+
+
+def stdout_console() -> Any:
+    from rich.console import Console
+
+    return Console(highlight=False, soft_wrap=True)
+
+
+def stderr_console() -> Any:
+    from rich.console import Console
+
+    return Console(stderr=True, highlight=False, soft_wrap=True)
+
+
+def emit_json(payload: dict[str, Any]) -> None:
+    sys.stdout.write(json.dumps(payload, indent=2, sort_keys=False) + "\n")
+
+
+def error_line(message: str) -> None:
+    """The one-line error every user mistake gets (exit code 2 is the caller's)."""
+    sys.stderr.write(f"error: {message}\n")
+
+
+def warning_line(message: str) -> None:
+    sys.stderr.write(f"warning: {message}\n")
+
+
+ProgressCallback = Callable[[int, int], None]
+
+
+@contextmanager
+def progress_bar(description: str, *, enabled: bool = True) -> Iterator[ProgressCallback | None]:
+    """Yield a ``callback(done, total)`` that draws a bar on stderr once work is slow.
+
+    The bar is started only after :data:`PROGRESS_DELAY` seconds, so quick calls
+    print nothing.  Yields ``None`` when disabled.
+    """
+    if not enabled:
+        yield None
+        return
+    state: dict[str, Any] = {"bar": None, "task": None, "t0": time.monotonic()}
+
+    def callback(done: int, total: int) -> None:
+        if state["bar"] is None:
+            if time.monotonic() - state["t0"] < PROGRESS_DELAY:
+                return
+            from rich.progress import (
+                BarColumn,
+                MofNCompleteColumn,
+                Progress,
+                TextColumn,
+                TimeElapsedColumn,
+                TimeRemainingColumn,
+            )
+
+            bar = Progress(
+                TextColumn("{task.description}"),
+                BarColumn(),
+                MofNCompleteColumn(),
+                TimeElapsedColumn(),
+                TextColumn("eta"),
+                TimeRemainingColumn(),
+                console=stderr_console(),
+                transient=True,
+            )
+            bar.start()
+            state["bar"] = bar
+            state["task"] = bar.add_task(description, total=total)
+        state["bar"].update(state["task"], completed=done, total=total)
+
+    try:
+        yield callback
+    finally:
+        if state["bar"] is not None:
+            state["bar"].stop()

@@ -1,0 +1,98 @@
+"""Rendering of `spotcheck digits` and `spotcheck constants`."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from spotcheck.engine.api import DigitResult
+from spotcheck.formulas import Constant
+from spotcheck.report.console import STYLE_BAD, STYLE_DIGITS, STYLE_DIM, STYLE_OK, emit_json, stdout_console
+
+
+def group(digits: str, size: int = 8) -> str:
+    return " ".join(digits[i : i + size] for i in range(0, len(digits), size))
+
+
+def digits_payload(result: DigitResult, cross: list[DigitResult] | None) -> dict[str, Any]:
+    out = result.to_dict()
+    if cross is not None:
+        out["cross_check"] = {
+            "agree": all(r.digits == result.digits for r in cross),
+            "formulas": {r.formula: r.digits for r in cross},
+        }
+    return out
+
+
+def show_digits(result: DigitResult, cross: list[DigitResult] | None, *, as_json: bool, quiet: bool) -> None:
+    if as_json:
+        emit_json(digits_payload(result, cross))
+        return
+    if quiet:
+        print(result.digits)
+        return
+    con = stdout_console()
+    con.print(result.digits, style=STYLE_DIGITS)
+    con.print(
+        f"{result.constant}, hex digits {result.position}..{result.position + result.count - 1} "
+        f"(digit 1 is the first after the point)",
+        style=STYLE_DIM,
+    )
+    con.print(
+        f"formula {result.formula}: {result.formula_notation}; certified by an interval of width "
+        f"2^{result.width_log2:.1f} at {result.fraction_bits} fractional bits; "
+        f"{result.terms:,} terms in {result.seconds:.3f} s ({result.backend} kernel)",
+        style=STYLE_DIM,
+    )
+    if cross is not None:
+        agree = all(r.digits == result.digits for r in cross)
+        names = ", ".join(r.formula for r in cross)
+        if agree:
+            con.print(f"cross-check: formulas {names} agree", style=STYLE_OK)
+        else:
+            con.print("cross-check FAILED: the formulas disagree", style=STYLE_BAD)
+            for r in cross:
+                con.print(f"  {r.formula:>10}  {group(r.digits)}")
+
+
+def constants_payload(constants: list[Constant]) -> dict[str, Any]:
+    return {
+        "constants": [
+            {
+                "name": c.name,
+                "title": c.title,
+                "origin": c.origin,
+                "aliases": list(c.aliases),
+                "default_formula": c.formula().key,
+                "formulas": [
+                    {
+                        "key": f.key,
+                        "notation": f.notation(),
+                        "terms_per_bit": round(f.cost_per_bit, 4),
+                        "source": f.source,
+                    }
+                    for f in c.formulas
+                ],
+            }
+            for c in constants
+        ]
+    }
+
+
+def show_constants(constants: list[Constant], *, as_json: bool) -> None:
+    if as_json:
+        emit_json(constants_payload(constants))
+        return
+    from rich.table import Table
+
+    table = Table(title="Constants with BBP-type formulas", show_lines=True)
+    table.add_column("name", style="bold")
+    table.add_column("formula")
+    table.add_column("P-notation")
+    table.add_column("source")
+    for c in constants:
+        default = c.formula().key
+        for f in c.formulas:
+            label = f"{f.key} (default)" if f.key == default and len(c.formulas) > 1 else f.key
+            origin = "" if c.origin == "built-in" else f"\n[{STYLE_DIM}]{c.origin}[/]"
+            table.add_row(c.name + origin, label, f.notation(), f.source)
+    stdout_console().print(table)
