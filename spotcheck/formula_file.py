@@ -59,6 +59,7 @@ MAX_E = 1024  # largest e in |b| = 2^e
 MAX_SCALE_EXPONENT = 4096  # largest |n| in a scale written with 2^n
 MAX_LEADING_DIGITS = 256  # longest leading_digits string (hex digits after the point)
 AGREEMENT_DIGITS = 32  # hex digits every formula of one constant must share
+SIGN_BITS = 256  # fixed-point bits of the first evaluation, which settles the sign
 # -----------------------------------------------------------------------------
 
 _CONSTANT_KEYS = {"name", "title", "aliases", "source", "leading_digits", "formula"}
@@ -295,18 +296,28 @@ def _formula(entry: dict[str, Any], index: int, default_source: str | None, wher
 
 def _check_value(formulas: list[Formula], where: str) -> tuple[str, str]:
     """The constant's integer part and leading hex digits; every formula must agree."""
-    from spotcheck.engine.api import leading_digits  # the engine evaluates; imported when needed
+    # The engine evaluates; imported when needed so that loading this module stays cheap.
+    from spotcheck.engine.api import leading_digits
+    from spotcheck.engine.evaluate import value_bounds
+    from spotcheck.engine.series import series_of
 
     first: tuple[str, str] | None = None
     for f in formulas:
+        # One cheap certified evaluation first: a series whose value is zero (or
+        # too close to it) would otherwise send the leading-digit search through
+        # every precision it tries.
+        lo, hi = value_bounds(series_of(f), SIGN_BITS)
+        if hi < 0:
+            raise FormulaError(f"{where}: formula {f.key!r} sums to a negative value; negate the scale")
+        if lo <= 0:
+            raise FormulaError(
+                f"{where}: formula {f.key!r} sums to zero "
+                f"(or to less than 2^-{SIGN_BITS - (hi - lo).bit_length()} in absolute value)"
+            )
         try:
             value = leading_digits(f, 16, AGREEMENT_DIGITS)
-        except SpotcheckError:
-            raise FormulaError(
-                f"{where}: formula {f.key!r}: the series could not be evaluated (is it zero?)"
-            ) from None
-        if value[0].startswith("-"):
-            raise FormulaError(f"{where}: formula {f.key!r} sums to a negative value; negate the scale")
+        except SpotcheckError as exc:
+            raise FormulaError(f"{where}: formula {f.key!r}: {exc}") from None
         if first is None:
             first = value
         elif value != first:
