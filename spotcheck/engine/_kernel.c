@@ -1,0 +1,592 @@
+/*
+ * spotcheck.engine._kernel: the head sum of a BBP-type series in C.
+ *
+ * The compiled twin of spotcheck/engine/head_py.py (head_sum_py): same
+ * signature, same result, bit for bit.  For k0 <= k < k1 and each pair
+ * (j, c) it adds
+ *
+ *     floor(2^P * frac(sigma^k * c * 2^(D - e*k) / N)),   N = q * (m*k + j)^s,
+ *
+ * with P = 64 * words and sigma = -1 when the series alternates and k is odd,
+ * and returns (value mod 2^P, number of terms).
+ *
+ * How one term is computed.  Split N = 2^v * n with n odd and let E = D - e*k.
+ * When E >= v, c * 2^E mod N = 2^v * (c * 2^(E-v) mod n), so the term is the
+ * P-bit fraction of r / n with r = c * 2^(E-v) mod n.  With R = 2^64 and
+ * r_i = r * R^(i-1) mod n, the i-th 64-bit word of that fraction is
+ * floor(r_i * R / n), and since r_i * R = word * n + r_(i+1) exactly,
+ *
+ *     word_i = -r_(i+1) * n^-1 mod 2^64,   r_i = hi(word_i * n) + (r_(i+1) != 0).
+ *
+ * So one Montgomery exponentiation gives the last remainder
+ * r_(W+1) = c * 2^(E - v + 64W) mod n, and each word costs two multiplications,
+ * walking down from the least significant word.  The rare terms with E < v
+ * (the last few k before the tail) and exponents that would overflow 64 bits
+ * take a plain bit-by-bit path (slow_term).
+ *
+ * Several terms are kept in flight at once ("lanes") so that the multiplier
+ * stays busy while each term's chain of dependent squarings waits.
+ *
+ * Limits (checked in parse_job, and by spotcheck/engine/backend.py before the
+ * call): every N < 2^63, 0 <= D < 2^64, |c| < 2^62, 1 <= words <= 16,
+ * D - e*(k1-1) >= 0, k0 >= 0, s <= 64.
+ */
+#define PY_SSIZE_T_CLEAN
+#include <Python.h>
+#include <stdint.h>
+#include <string.h>
+
+/* ---- tuning ------------------------------------------------------------ */
+#define MAX_WORDS 16        /* at most 64 * 16 fractional bits per term */
+#define MAX_LANES 8         /* widest interleave built */
+#define BEST_LANES 8        /* interleave of the shipped head_sum (see benchmarks/kernel.py) */
+#define BEST_STEP STEP_FUSED
+/* ------------------------------------------------------------------------ */
+
+#define MODULUS_LIMIT ((uint64_t)1 << 63)
+#define COEFF_LIMIT ((int64_t)1 << 62)
+
+#if defined(__GNUC__) || defined(__clang__)
+#define ALWAYS_INLINE static inline __attribute__((always_inline))
+#else
+#define ALWAYS_INLINE static inline
+#endif
+
+#if defined(__SIZEOF_INT128__) && !defined(SPOTCHECK_NO_INT128)
+#define KERNEL_ARITH "int128"
+/* (hi, lo) = a * b. */
+ALWAYS_INLINE void mul_wide(uint64_t a, uint64_t b, uint64_t *hi, uint64_t *lo)
+{
+    unsigned __int128 p = (unsigned __int128)a * b;
+    *hi = (uint64_t)(p >> 64);
+    *lo = (uint64_t)p;
+}
+#else
+#define KERNEL_ARITH "portable"
+/* (hi, lo) = a * b from four 32x32-bit products. */
+ALWAYS_INLINE void mul_wide(uint64_t a, uint64_t b, uint64_t *hi, uint64_t *lo)
+{
+    uint64_t a0 = a & 0xffffffffu, a1 = a >> 32, b0 = b & 0xffffffffu, b1 = b >> 32;
+    uint64_t p00 = a0 * b0, p01 = a0 * b1, p10 = a1 * b0, p11 = a1 * b1;
+    uint64_t mid = (p00 >> 32) + (p01 & 0xffffffffu) + (p10 & 0xffffffffu);
+    *lo = (mid << 32) | (p00 & 0xffffffffu);
+    *hi = p11 + (p01 >> 32) + (p10 >> 32) + (mid >> 32);
+}
+#endif
+
+ALWAYS_INLINE uint64_t mul_hi(uint64_t a, uint64_t b)
+{
+    uint64_t hi, lo;
+    mul_wide(a, b, &hi, &lo);
+    return hi;
+}
+
+/* n^-1 mod 2^64 for odd n: 5 correct bits, then Newton steps 10, 20, 40, 80. */
+ALWAYS_INLINE uint64_t inverse64(uint64_t n)
+{
+    uint64_t x = (3 * n) ^ 2;
+    x *= 2 - n * x;
+    x *= 2 - n * x;
+    x *= 2 - n * x;
+    x *= 2 - n * x;
+    return x;
+}
+
+/* Montgomery reduction: (hi*2^64 + lo) * 2^-64 mod n, for odd n < 2^63,
+ * ninv = n^-1 mod 2^64 and hi < n (the input is below n * 2^64).
+ * Result in [0, n). */
+ALWAYS_INLINE uint64_t redc(uint64_t hi, uint64_t lo, uint64_t n, uint64_t ninv)
+{
+    uint64_t mh = mul_hi(lo * ninv, n); /* lo(m*n) == lo, so no borrow below */
+    uint64_t t = hi - mh;
+    return hi < mh ? t + n : t;
+}
+
+/* a * b * 2^-64 mod n for a, b < n < 2^63. */
+ALWAYS_INLINE uint64_t mont_mul(uint64_t a, uint64_t b, uint64_t n, uint64_t ninv)
+{
+    uint64_t hi, lo;
+    mul_wide(a, b, &hi, &lo);
+    return redc(hi, lo, n, ninv);
+}
+
+/* 2a mod n for a < n < 2^63. */
+ALWAYS_INLINE uint64_t dbl_mod(uint64_t a, uint64_t n)
+{
+    uint64_t t = a + a;
+    return t >= n ? t - n : t;
+}
+
+/* 2^64 mod n for odd n < 2^63 (the Montgomery form of 1).  A double
+ * reciprocal gives the quotient to within one when it is below 2^52, i.e.
+ * n > 2^12; smaller n use the integer divider. */
+ALWAYS_INLINE uint64_t mont_one(uint64_t n)
+{
+    if (n < 8192)
+        return (0 - n) % n;
+    uint64_t qe = (uint64_t)(18446744073709551616.0 / (double)n);
+    int64_t r = (int64_t)(0 - qe * n); /* 2^64 - qe*n, within one n of the truth */
+    if (r < 0)
+        r += (int64_t)n;
+    else if ((uint64_t)r >= n)
+        r -= (int64_t)n;
+    return (uint64_t)r;
+}
+
+ALWAYS_INLINE int bit_length(uint64_t x)
+{
+#if defined(__GNUC__) || defined(__clang__)
+    return x ? 64 - __builtin_clzll(x) : 0;
+#else
+    int b = 0;
+    while (x) {
+        b++;
+        x >>= 1;
+    }
+    return b;
+#endif
+}
+
+ALWAYS_INLINE int trailing_zeros(uint64_t x) /* x != 0 */
+{
+#if defined(__GNUC__) || defined(__clang__)
+    return __builtin_ctzll(x);
+#else
+    int v = 0;
+    while (!(x & 1)) {
+        v++;
+        x >>= 1;
+    }
+    return v;
+#endif
+}
+
+/* c mod n in [0, n) for |c| < 2^62, n >= 1. */
+ALWAYS_INLINE uint64_t coeff_mod(int64_t c, uint64_t n)
+{
+    if (c >= 0)
+        return (uint64_t)c < n ? (uint64_t)c : (uint64_t)c % n;
+    uint64_t a = (uint64_t)(-c);
+    a = a < n ? a : a % n;
+    return a ? n - a : 0;
+}
+
+/* acc += w * 2^(64*idx) mod 2^(64*words). */
+static void acc_add_at(uint64_t *acc, int words, int idx, uint64_t w)
+{
+    for (; idx < words && w; idx++) {
+        acc[idx] += w;
+        w = acc[idx] < w;
+    }
+}
+
+/* How the exponentiation multiplies by 2 for a set exponent bit. */
+enum step { STEP_FUSED = 0, STEP_ADD = 1, STEP_MUL = 2 };
+
+typedef struct {
+    uint64_t D, k0, k1, m, q;
+    unsigned s, e;
+    int alternating, words;
+    Py_ssize_t npairs;
+    uint64_t *js;
+    int64_t *cs;
+} job_t;
+
+/* One term the slow way (E < v, or E - v + 64*words beyond 64 bits):
+ * r = c * 2^E mod N by doubling, then floor(r * 2^P / N) bit by bit.
+ * Used only when E < 64, or through exp_big for huge exponents. */
+static void slow_term(uint64_t N, uint64_t E, int64_t c, int words, uint64_t *acc)
+{
+    uint64_t r = coeff_mod(c, N);
+    for (uint64_t i = 0; i < E; i++)
+        r = dbl_mod(r, N);
+    for (int idx = words - 1; idx >= 0; idx--) {
+        uint64_t w = 0;
+        for (int b = 0; b < 64; b++) {
+            r <<= 1; /* r < N < 2^63 */
+            w <<= 1;
+            if (r >= N) {
+                r -= N;
+                w |= 1;
+            }
+        }
+        acc_add_at(acc, words, idx, w);
+    }
+}
+
+/* Montgomery form of 2^f mod odd n, one term at a time (rare paths only). */
+static uint64_t mont_pow2(uint64_t f, uint64_t n, uint64_t ninv, uint64_t one)
+{
+    uint64_t x = one;
+    for (int b = bit_length(f) - 1; b >= 0; b--) {
+        x = mont_mul(x, x, n, ninv);
+        if ((f >> b) & 1)
+            x = dbl_mod(x, n);
+    }
+    return x;
+}
+
+/* Add the words of frac(r / n) where r_(W+1) = top (see the header). */
+ALWAYS_INLINE void add_fraction(uint64_t top, uint64_t n, uint64_t ninv, int words, uint64_t *acc)
+{
+    uint64_t r = top, carry = 0;
+    for (int idx = 0; idx < words; idx++) {
+        uint64_t w = 0 - r * ninv;
+        r = mul_hi(w, n) + (r != 0);
+        uint64_t t = acc[idx] + w;
+        uint64_t c1 = t < w;
+        t += carry;
+        carry = c1 | (t < carry);
+        acc[idx] = t;
+    }
+}
+
+/* A term whose exponent E - v + 64*words does not fit in 64 bits. */
+static void big_exponent_term(uint64_t n, uint64_t ep, int64_t c, int words, uint64_t *acc)
+{
+    uint64_t ninv = inverse64(n), one = mont_one(n);
+    uint64_t x = mont_pow2(ep, n, ninv, one);
+    x = mont_mul(x, mont_pow2(64 * (uint64_t)words, n, ninv, one), n, ninv);
+    add_fraction(mont_mul(x, coeff_mod(c, n), n, ninv), n, ninv, words, acc);
+}
+
+/* L terms at once: moduli n (odd), exponents f = E - v + 64*words, residues
+ * cm = c mod n.  Left-to-right binary exponentiation of 2 in Montgomery form. */
+ALWAYS_INLINE void run_lanes(const int L, const int step, const uint64_t *n, const uint64_t *f,
+                             const uint64_t *cm, int words, uint64_t *acc)
+{
+    uint64_t ninv[MAX_LANES], one[MAX_LANES], two[MAX_LANES], x[MAX_LANES], fmax = 0;
+    for (int l = 0; l < L; l++) {
+        ninv[l] = inverse64(n[l]);
+        x[l] = one[l] = mont_one(n[l]);
+        two[l] = dbl_mod(one[l], n[l]);
+        fmax |= f[l];
+    }
+    int top = bit_length(fmax) - 1; /* fmax >= 64 */
+    for (int l = 0; l < L; l++)
+        if ((f[l] >> top) & 1)
+            x[l] = two[l];
+    for (int b = top - 1; b >= 0; b--) {
+        for (int l = 0; l < L; l++) {
+            uint64_t bit = (f[l] >> b) & 1, hi, lo;
+            if (step == STEP_FUSED) {
+                /* x * 2x < n 2^64 because x < n < 2^63: double before reducing. */
+                mul_wide(x[l], x[l] + (x[l] & (0 - bit)), &hi, &lo);
+                x[l] = redc(hi, lo, n[l], ninv[l]);
+                continue;
+            }
+            mul_wide(x[l], x[l], &hi, &lo);
+            if (step == STEP_ADD) {
+                uint64_t y = redc(hi, lo, n[l], ninv[l]);
+                uint64_t z = dbl_mod(y, n[l]);
+                x[l] = bit ? z : y;
+            } else { /* always multiply, by the Montgomery form of 2 or of 1 */
+                uint64_t y = redc(hi, lo, n[l], ninv[l]);
+                x[l] = mont_mul(y, bit ? two[l] : one[l], n[l], ninv[l]);
+            }
+        }
+    }
+    for (int l = 0; l < L; l++)
+        add_fraction(mont_mul(x[l], cm[l], n[l], ninv[l]), n[l], ninv[l], words, acc);
+}
+
+/* Walk the terms of the job, L at a time. */
+ALWAYS_INLINE void run_job(const job_t *jb, uint64_t *acc, const int L, const int step)
+{
+    uint64_t n[MAX_LANES], f[MAX_LANES], cm[MAX_LANES];
+    const uint64_t extra = 64 * (uint64_t)jb->words;
+    int fill = 0;
+    for (uint64_t k = jb->k0; k < jb->k1; k++) {
+        uint64_t E = jb->D - jb->e * k;
+        int negate = jb->alternating && (k & 1);
+        uint64_t mk = jb->m * k;
+        for (Py_ssize_t p = 0; p < jb->npairs; p++) {
+            uint64_t base = mk + jb->js[p], N = jb->q;
+            for (unsigned i = 0; i < jb->s; i++)
+                N *= base; /* below 2^63: checked in parse_job */
+            int v = trailing_zeros(N);
+            uint64_t odd = N >> v;
+            int64_t c = negate ? -jb->cs[p] : jb->cs[p];
+            if (E < (uint64_t)v) {
+                slow_term(N, E, c, jb->words, acc);
+                continue;
+            }
+            if (E - v > UINT64_MAX - extra) {
+                big_exponent_term(odd, E - v, c, jb->words, acc);
+                continue;
+            }
+            n[fill] = odd;
+            f[fill] = E - v + extra;
+            cm[fill] = coeff_mod(c, odd);
+            if (++fill == L) {
+                run_lanes(L, step, n, f, cm, jb->words, acc);
+                fill = 0;
+            }
+        }
+    }
+    for (int l = fill; l < L && fill; l++) { /* pad with n = 1: contributes 0 */
+        n[l] = 1;
+        f[l] = extra;
+        cm[l] = 0;
+    }
+    if (fill)
+        run_lanes(L, step, n, f, cm, jb->words, acc);
+}
+
+static void run_1_fused(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 1, STEP_FUSED); }
+static void run_4_fused(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 4, STEP_FUSED); }
+static void run_8_fused(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 8, STEP_FUSED); }
+static void run_4_add(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 4, STEP_ADD); }
+static void run_8_add(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 8, STEP_ADD); }
+static void run_4_mul(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 4, STEP_MUL); }
+static void run_8_mul(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 8, STEP_MUL); }
+
+typedef void (*runner_t)(const job_t *, uint64_t *);
+
+static runner_t pick_runner(long lanes, long step)
+{
+    if (lanes == 1 && step == STEP_FUSED)
+        return run_1_fused;
+    if (lanes == 4)
+        return step == STEP_FUSED ? run_4_fused : step == STEP_ADD ? run_4_add : step == STEP_MUL ? run_4_mul : NULL;
+    if (lanes == 8)
+        return step == STEP_FUSED ? run_8_fused : step == STEP_ADD ? run_8_add : step == STEP_MUL ? run_8_mul : NULL;
+    return NULL;
+}
+
+/* ---- Python glue ------------------------------------------------------- */
+
+/* A non-negative integer below 2^64 (OverflowError otherwise). */
+static int as_u64(PyObject *obj, const char *what, uint64_t *out)
+{
+    PyObject *i = PyNumber_Index(obj);
+    if (i == NULL)
+        return -1;
+    unsigned long long v = PyLong_AsUnsignedLongLong(i);
+    Py_DECREF(i);
+    if (v == (unsigned long long)-1 && PyErr_Occurred()) {
+        if (PyErr_ExceptionMatches(PyExc_OverflowError)) {
+            PyErr_Clear();
+            PyErr_Format(PyExc_OverflowError, "%s must be in 0 .. 2^64 - 1 for the compiled kernel", what);
+        }
+        return -1;
+    }
+    *out = (uint64_t)v;
+    return 0;
+}
+
+/* Fill jb from the 11 head_sum arguments; check every limit of the kernel. */
+static int parse_job(PyObject *const *a, job_t *jb)
+{
+    uint64_t s, e, words;
+    int alt;
+    memset(jb, 0, sizeof *jb);
+    if (as_u64(a[0], "D", &jb->D) || as_u64(a[1], "k0", &jb->k0) || as_u64(a[2], "k1", &jb->k1) ||
+        as_u64(a[3], "m", &jb->m) || as_u64(a[4], "s", &s) || as_u64(a[5], "e", &e) ||
+        as_u64(a[6], "q", &jb->q) || as_u64(a[10], "words", &words))
+        return -1;
+    if ((alt = PyObject_IsTrue(a[7])) < 0)
+        return -1;
+    jb->alternating = alt;
+    if (words < 1 || words > MAX_WORDS) {
+        PyErr_Format(PyExc_ValueError, "words must be in 1 .. %d", MAX_WORDS);
+        return -1;
+    }
+    jb->words = (int)words;
+    if (s > 63 || e > 0xffffffffu) {
+        PyErr_SetString(PyExc_OverflowError, "s or e too large for the compiled kernel");
+        return -1;
+    }
+    jb->s = (unsigned)s;
+    jb->e = (unsigned)e;
+    if (jb->q < 1) {
+        PyErr_SetString(PyExc_ValueError, "q must be at least 1");
+        return -1;
+    }
+    uint64_t klast = jb->k1 - 1; /* k1 > k0 >= 0 here */
+    if (jb->e && klast > jb->D / jb->e) {
+        PyErr_SetString(PyExc_ValueError, "head range reaches a negative exponent");
+        return -1;
+    }
+
+    PyObject *js = PySequence_Fast(a[8], "js must be a sequence");
+    if (js == NULL)
+        return -1;
+    PyObject *cs = PySequence_Fast(a[9], "cs must be a sequence");
+    if (cs == NULL) {
+        Py_DECREF(js);
+        return -1;
+    }
+    int rc = -1;
+    Py_ssize_t np = PySequence_Fast_GET_SIZE(js);
+    if (np != PySequence_Fast_GET_SIZE(cs)) {
+        PyErr_SetString(PyExc_ValueError, "js and cs must have the same length");
+        goto done;
+    }
+    jb->npairs = np;
+    jb->js = PyMem_Malloc((size_t)(np ? np : 1) * sizeof(uint64_t));
+    jb->cs = PyMem_Malloc((size_t)(np ? np : 1) * sizeof(int64_t));
+    if (jb->js == NULL || jb->cs == NULL) {
+        PyErr_NoMemory();
+        goto done;
+    }
+    uint64_t jmin = UINT64_MAX, jmax = 0;
+    for (Py_ssize_t p = 0; p < np; p++) {
+        if (as_u64(PySequence_Fast_GET_ITEM(js, p), "j", &jb->js[p]))
+            goto done;
+        jmin = jb->js[p] < jmin ? jb->js[p] : jmin;
+        jmax = jb->js[p] > jmax ? jb->js[p] : jmax;
+        int overflow = 0;
+        long long c = PyLong_AsLongLongAndOverflow(PySequence_Fast_GET_ITEM(cs, p), &overflow);
+        if (c == -1 && PyErr_Occurred())
+            goto done;
+        if (overflow || c >= COEFF_LIMIT || c <= -COEFF_LIMIT) {
+            PyErr_SetString(PyExc_OverflowError, "|c| must be below 2^62 for the compiled kernel");
+            goto done;
+        }
+        jb->cs[p] = (int64_t)c;
+    }
+    if (np) {
+        /* The moduli grow with k and j: check the largest and the smallest. */
+        const uint64_t lim = MODULUS_LIMIT;
+        uint64_t big = jb->q;
+        int over = jb->m && klast > (lim - 1 - jmax) / jb->m;
+        uint64_t base = over ? 0 : jb->m * klast + jmax;
+        for (unsigned i = 0; i < jb->s && !over; i++) {
+            over = base && big > (lim - 1) / base;
+            big *= base;
+        }
+        if (over || big >= lim) {
+            PyErr_SetString(PyExc_OverflowError, "a modulus q*(m*k+j)^s reaches 2^63");
+            goto done;
+        }
+        if (jb->s && jb->m * jb->k0 + jmin == 0) {
+            PyErr_SetString(PyExc_ValueError, "a modulus q*(m*k+j)^s is zero");
+            goto done;
+        }
+    }
+    rc = 0;
+done:
+    Py_DECREF(js);
+    Py_DECREF(cs);
+    return rc;
+}
+
+static void free_job(job_t *jb)
+{
+    PyMem_Free(jb->js);
+    PyMem_Free(jb->cs);
+}
+
+/* (value, terms) with value = acc as a little-endian integer. */
+static PyObject *build_result(const uint64_t *acc, int words, PyObject *k0, PyObject *k1, Py_ssize_t npairs)
+{
+    PyObject *value = PyLong_FromUnsignedLongLong(acc[words - 1]);
+    PyObject *shift = PyLong_FromLong(64);
+    for (int idx = words - 2; idx >= 0 && value && shift; idx--) {
+        PyObject *t = PyNumber_Lshift(value, shift), *w = PyLong_FromUnsignedLongLong(acc[idx]);
+        Py_DECREF(value);
+        value = (t && w) ? PyNumber_Or(t, w) : NULL;
+        Py_XDECREF(t);
+        Py_XDECREF(w);
+    }
+    Py_XDECREF(shift);
+    PyObject *span = value ? PyNumber_Subtract(k1, k0) : NULL;
+    PyObject *np = span ? PyLong_FromSsize_t(npairs) : NULL;
+    PyObject *terms = np ? PyNumber_Multiply(span, np) : NULL;
+    Py_XDECREF(span);
+    Py_XDECREF(np);
+    if (terms == NULL) {
+        Py_XDECREF(value);
+        return NULL;
+    }
+    PyObject *out = PyTuple_Pack(2, value, terms);
+    Py_DECREF(value);
+    Py_DECREF(terms);
+    return out;
+}
+
+static PyObject *head_sum_common(PyObject *const *args, runner_t run)
+{
+    int empty = PyObject_RichCompareBool(args[2], args[1], Py_LE);
+    if (empty < 0)
+        return NULL;
+    if (empty) /* like the twin: an empty range is (0, 0) whatever the rest */
+        return Py_BuildValue("(ii)", 0, 0);
+    job_t jb;
+    uint64_t acc[MAX_WORDS] = {0};
+    if (parse_job(args, &jb)) {
+        free_job(&jb);
+        return NULL;
+    }
+    Py_BEGIN_ALLOW_THREADS
+    run(&jb, acc);
+    Py_END_ALLOW_THREADS
+    free_job(&jb);
+    return build_result(acc, jb.words, args[1], args[2], jb.npairs);
+}
+
+/* Error bound: each term is floored once and the sum is exact mod 2^P, so
+ * the exact head sum (mod 2^P, in units of 2^-P) lies in [value, value + terms);
+ * spotcheck/engine/evaluate.py relies on this. */
+static PyObject *head_sum(PyObject *self, PyObject *const *args, Py_ssize_t nargs)
+{
+    (void)self;
+    if (nargs != 11) {
+        PyErr_Format(PyExc_TypeError, "head_sum takes 11 arguments (%zd given)", nargs);
+        return NULL;
+    }
+    return head_sum_common(args, pick_runner(BEST_LANES, BEST_STEP));
+}
+
+/* head_sum with a chosen interleave (1, 4, 8) and doubling step (0 fused,
+ * 1 add, 2 multiply): for benchmarks/kernel.py and the tests. */
+static PyObject *head_sum_variant(PyObject *self, PyObject *const *args, Py_ssize_t nargs)
+{
+    (void)self;
+    if (nargs != 13) {
+        PyErr_Format(PyExc_TypeError, "_head_sum_variant takes 13 arguments (%zd given)", nargs);
+        return NULL;
+    }
+    long lanes = PyLong_AsLong(args[11]), step = PyLong_AsLong(args[12]);
+    if (PyErr_Occurred())
+        return NULL;
+    runner_t run = pick_runner(lanes, step);
+    if (run == NULL) {
+        PyErr_SetString(PyExc_ValueError, "no such kernel variant");
+        return NULL;
+    }
+    return head_sum_common(args, run);
+}
+
+static PyMethodDef kernel_methods[] = {
+    {"head_sum", (PyCFunction)(void (*)(void))head_sum, METH_FASTCALL,
+     "head_sum(D, k0, k1, m, s, e, q, alternating, js, cs, words) -> (value, terms)\n\n"
+     "The compiled twin of spotcheck.engine.head_py.head_sum_py (same result).\n"
+     "The exact sum lies in [value, value + terms) units of 2^-(64*words), mod 1."},
+    {"_head_sum_variant", (PyCFunction)(void (*)(void))head_sum_variant, METH_FASTCALL,
+     "head_sum(..., lanes, step) with a chosen interleave and doubling step (benchmarks)."},
+    {NULL, NULL, 0, NULL},
+};
+
+static struct PyModuleDef kernel_module = {
+    PyModuleDef_HEAD_INIT, "spotcheck.engine._kernel", "Compiled head-sum kernel of spotcheck (see _kernel.c).",
+    -1, kernel_methods, NULL, NULL, NULL, NULL,
+};
+
+PyMODINIT_FUNC PyInit__kernel(void)
+{
+    PyObject *mod = PyModule_Create(&kernel_module);
+    if (mod == NULL)
+        return NULL;
+    PyObject *limit = PyLong_FromUnsignedLongLong(MODULUS_LIMIT);
+    if (PyModule_AddStringConstant(mod, "ARITHMETIC", KERNEL_ARITH) ||
+        PyModule_AddIntConstant(mod, "MAX_WORDS", MAX_WORDS) ||
+        PyModule_AddIntConstant(mod, "LANES", BEST_LANES) || PyModule_AddIntConstant(mod, "STEP", BEST_STEP) ||
+        limit == NULL || PyModule_AddObject(mod, "MAX_MODULUS", limit)) {
+        Py_XDECREF(limit);
+        Py_DECREF(mod);
+        return NULL;
+    }
+    return mod;
+}
