@@ -1,0 +1,30 @@
+"""Layer 3: digit files as people have them.
+
+Open a file of digits of a constant read-only, find the digits whatever the
+layout, and read any window of them without loading the file:
+
+* text in base 16 (either case) or 10, with an optional integer part and radix
+  point (``3.``), spaces/tabs between groups, any line length, ``#`` comment
+  or short free-text header lines, and optional position labels at the start
+  or end of lines (checked against the real count; a label that disagrees is a
+  :class:`Finding`);
+* packed binary hex (two digits per byte, high nibble first);
+* gzip, bzip2 or xz around either, recognised by magic bytes.
+
+:func:`open_digit_file` runs one streaming pass (validation, count, labels,
+random-access structure) in bounded memory; afterwards ``read(position,
+count)`` is O(1) arithmetic for a regular layout and a sparse-index lookup
+plus at most ``INDEX_STEP`` bytes of parsing for any other.  Compressed
+content has no random access without a pass: reads move forward through the
+decompressor and a read before the current point restarts it from the start,
+so read positions in increasing order (``iter_chunks`` does).
+
+Positions follow the package convention: digit 1 is the first after the point.
+"""
+
+from __future__ import annotations
+
+from spotcheck.digitfile.model import Finding, InspectResult, Layout
+from spotcheck.digitfile.reader import DigitFile, inspect_file, open_digit_file
+
+__all__ = ["open_digit_file", "DigitFile", "inspect_file", "InspectResult", "Layout", "Finding"]

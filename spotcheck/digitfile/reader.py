@@ -1,0 +1,410 @@
+"""Open a digit file, run the pass once, then read digits at any position.
+
+>>> import gzip, os, tempfile
+>>> d = tempfile.mkdtemp()
+>>> path = os.path.join(d, "pi.txt")
+>>> with open(path, "w") as f:
+...     _ = f.write("3.243F6A8885 A308D31319\\n8A2E037073 44A4093822\\n")
+>>> with open_digit_file(path) as df:
+...     (df.base, df.integer_part, df.count, df.constant, df.read(1, 8))
+(16, '3', 40, 'pi', '243F6A88')
+"""
+
+from __future__ import annotations
+
+import bisect
+import operator
+import os
+import re
+from collections.abc import Iterator
+from types import TracebackType
+
+from spotcheck.digitfile.charsets import LABEL_END, LABEL_START, TO_UPPER, WS, strip_labels
+from spotcheck.digitfile.detect import HEAD_BYTES, PACKED_SUFFIXES, Plan, detect_text, looks_binary
+from spotcheck.digitfile.guess import explicit_constant, guess_constant
+from spotcheck.digitfile.model import Finding, InspectResult, Layout
+from spotcheck.digitfile.scan import CHUNK_BYTES, INDEX_STEP, Progress, ScanResult, scan_text
+from spotcheck.digitfile.source import ByteSource, open_source
+from spotcheck.errors import DigitFileError, UsageError
+
+__all__ = ["DigitFile", "open_digit_file", "inspect_file", "EDGE_DIGITS"]
+
+EDGE_DIGITS = 64  # first and last digits shown by inspect
+_COMPRESSION_SUFFIXES = (".gz", ".gzip", ".bz2", ".xz")
+
+
+class DigitFile:
+    """A digit file opened read-only, after its one pass.  Use :func:`open_digit_file`."""
+
+    path: str
+    size_bytes: int
+    compression: str | None
+    base: int
+    base_how: str
+    count: int
+    integer_part: str | None
+    layout: Layout
+    constant: str | None
+    constant_how: str
+    findings: list[Finding]
+
+    def __init__(self) -> None:  # filled in by open_digit_file
+        self._src: ByteSource | None = None
+        self._plan: Plan | None = None
+        self._scan: ScanResult | None = None
+        self._packed = False
+
+    # -- reading -------------------------------------------------------------
+    def read(self, position: int, count: int) -> str:
+        """Digits ``position .. position+count-1`` (digit 1 is the first after the point).
+
+        Upper-case for hex; clipped at the end of the file (empty past it).
+        """
+        p, n = _check_window(position, count)
+        if p > self.count or n == 0:
+            return ""
+        n = min(n, self.count - p + 1)
+        src = self._source()
+        src.check_unchanged()
+        if self._packed:
+            b0, b1 = (p - 1) // 2, (p + n - 2) // 2 + 1
+            raw = src.read_at(b0, b1 - b0).hex().upper()
+            out = raw[(p - 1) % 2 :][:n]
+        else:
+            out = self._read_text(src, p, n)
+        if len(out) != n:
+            raise DigitFileError(f"{self.path}: expected {n} digits at position {p}, found {len(out)}; was it changed?")
+        return out
+
+    def iter_chunks(self, chunk_digits: int = 1 << 20, start: int = 1) -> Iterator[tuple[int, str]]:
+        """Stream ``(position of first digit, digits)`` from ``start`` to the end, in order."""
+        size = operator.index(chunk_digits)
+        if size < 1:
+            raise UsageError(f"chunk_digits must be at least 1, got {size}")
+        p, _ = _check_window(start, 1)
+        while p <= self.count:
+            digits = self.read(p, size)
+            yield p, digits
+            p += len(digits)
+
+    def locate(self, position: int) -> tuple[int, int | None]:
+        """``(byte offset, line)`` of a digit; offsets count decompressed bytes, line is None for packed files."""
+        p, _ = _check_window(position, 1)
+        if p > self.count:
+            raise UsageError(f"position {p} is past the last digit ({self.count})")
+        plan, scan = self._plan, self._scan
+        if self._packed or plan is None or scan is None:
+            return (p - 1) // 2, None
+        d1 = len(plan.seg_digits)
+        if p <= d1:
+            return plan.seg_cols[p - 1], plan.first_line_no
+        if scan.regular and scan.unit is not None:
+            u, r = divmod(p - d1 - 1, scan.unit_digits)
+            col = scan.unit_cols[r]
+            line = plan.first_line_no + (1 if plan.seg_end > plan.digits_offset else 0)
+            line += u * scan.unit.count(b"\n") + scan.unit[:col].count(b"\n")
+            return scan.region_start + u * len(scan.unit) + col, line
+        i = bisect.bisect_right(scan.index_pos, p) - 1
+        off, pos, line = scan.index_off[i], scan.index_pos[i], scan.index_line[i]
+        data = self._source().read_at(off, 4 * INDEX_STEP + 4 * (p - pos))
+        mask = bytearray(data)
+        rx = LABEL_START if plan.labels == "start" else LABEL_END if plan.labels == "end" else None
+        if rx is not None:
+            for m in rx.finditer(data):
+                mask[m.start() : m.end()] = b" " * (m.end() - m.start())
+        digits = b"0123456789ABCDEFabcdef" if self.base == 16 else b"0123456789"
+        for i, c in enumerate(mask):
+            if c in digits:
+                if pos == p:
+                    return off + i, line + data.count(b"\n", 0, i)
+                pos += 1
+        raise DigitFileError(f"{self.path}: could not locate position {p}; was the file changed?")
+
+    def _read_text(self, src: ByteSource, p: int, n: int) -> str:
+        plan, scan = self._plan, self._scan
+        assert plan is not None and scan is not None
+        d1 = len(plan.seg_digits)
+        parts: list[bytes] = []
+        if p <= d1:
+            parts.append(plan.seg_digits[p - 1 : p - 1 + n])
+        q = max(p, d1 + 1)
+        last = p + n - 1
+        if last >= q:
+            if scan.regular and scan.unit is not None:
+                a, b = self._offset_regular(q), self._offset_regular(last) + 1
+                parts.append(src.read_at(a, b - a).translate(None, WS))
+            else:
+                parts.append(self._read_indexed(src, q, last - q + 1))
+        out = b"".join(parts).decode("ascii")
+        return out.upper() if self.base == 16 else out
+
+    def _offset_regular(self, p: int) -> int:
+        plan, scan = self._plan, self._scan
+        assert plan is not None and scan is not None and scan.unit is not None
+        u, r = divmod(p - len(plan.seg_digits) - 1, scan.unit_digits)
+        return scan.region_start + u * len(scan.unit) + scan.unit_cols[r]
+
+    def _read_indexed(self, src: ByteSource, p: int, n: int) -> bytes:
+        plan, scan = self._plan, self._scan
+        assert plan is not None and scan is not None
+        i = bisect.bisect_right(scan.index_pos, p) - 1
+        if i < 0:
+            return b""
+        off, skip = scan.index_off[i], p - scan.index_pos[i]
+        need, have = skip + n, 0
+        got: list[bytes] = []
+        while have < need:
+            ask = max(2 * INDEX_STEP, 2 * (need - have) + 1024)
+            data = src.read_at(off, ask)
+            if not data:
+                break
+            if plan.labels is not None and len(data) == ask:
+                cut = data.rfind(b"\n") + 1
+                data = data[:cut] if cut else data
+            digits = strip_labels(data, plan.labels).translate(None, WS)
+            got.append(digits)
+            have += len(digits)
+            off += len(data)
+        return b"".join(got)[skip : skip + n]
+
+    # -- life cycle ------------------------------------------------------------
+    def _source(self) -> ByteSource:
+        if self._src is None:
+            raise UsageError(f"{self.path} is closed")
+        return self._src
+
+    def close(self) -> None:
+        if self._src is not None:
+            self._src.close()
+            self._src = None
+
+    def __enter__(self) -> DigitFile:
+        return self
+
+    def __exit__(
+        self, exc_type: type[BaseException] | None, exc: BaseException | None, tb: TracebackType | None
+    ) -> None:
+        self.close()
+
+    def __repr__(self) -> str:
+        return f"DigitFile({self.path!r}, base={self.base}, count={self.count}, constant={self.constant!r})"
+
+    def inspect(self) -> InspectResult:
+        """The summary ``spotcheck inspect`` shows."""
+        return InspectResult(
+            path=self.path,
+            size_bytes=self.size_bytes,
+            compression=self.compression,
+            base=self.base,
+            base_how=self.base_how,
+            constant=self.constant,
+            constant_how=self.constant_how,
+            integer_part=self.integer_part,
+            count=self.count,
+            layout=self.layout,
+            first_digits=self.read(1, EDGE_DIGITS),
+            last_digits=self.read(max(1, self.count - EDGE_DIGITS + 1), EDGE_DIGITS),
+            findings=list(self.findings),
+        )
+
+
+def _check_window(position: object, count: object) -> tuple[int, int]:
+    try:
+        p = operator.index(position)  # type: ignore[arg-type]
+        n = operator.index(count)  # type: ignore[arg-type]
+    except TypeError:
+        raise UsageError(f"position and count must be integers, got {position!r} and {count!r}") from None
+    if p < 1:
+        raise UsageError(f"position must be at least 1 (digit 1 is the first after the point), got {p}")
+    if n < 0:
+        raise UsageError(f"count must not be negative, got {n}")
+    return p, n
+
+
+def _bare_name(path: str) -> str:
+    name = os.path.basename(path).lower()
+    for suffix in _COMPRESSION_SUFFIXES:
+        if name.endswith(suffix):
+            return name[: -len(suffix)]
+    return name
+
+
+def open_digit_file(
+    path: str | os.PathLike[str],
+    base: int | None = None,
+    constant: str | None = None,
+    *,
+    packed: bool | None = None,
+    strict_labels: bool = False,
+    progress: Progress | None = None,
+) -> DigitFile:
+    """Open a digit file read-only, detect its layout and run the one pass over it.
+
+    ``base`` (10 or 16) overrides detection; ``constant`` overrides the guess.
+    ``packed`` forces (True) or forbids (False) reading the file as packed hex;
+    by default binary content is packed hex when its name ends in ``.bin`` or
+    ``.hexbin`` or its first bytes are those of a known constant.
+    ``strict_labels`` turns the first disagreeing position label into a
+    :class:`DigitFileError` instead of a finding.  ``progress(done, total)`` is
+    called after each chunk of the pass.
+    """
+    if base is not None and base not in (10, 16):
+        raise UsageError(f"base must be 10 or 16, got {base!r}")
+    src = open_source(path)
+    try:
+        return _open(src, base, constant, packed, strict_labels, progress)
+    except BaseException:
+        src.close()
+        raise
+
+
+def _open(
+    src: ByteSource,
+    base: int | None,
+    constant: str | None,
+    packed: bool | None,
+    strict_labels: bool,
+    progress: Progress | None,
+) -> DigitFile:
+    name = os.path.basename(src.path)
+    head = src.read_at(0, HEAD_BYTES)
+    eof = len(head) < HEAD_BYTES
+    if not head:
+        what = f"its {src.compression} content is empty" if src.compression else "the file is empty"
+        raise DigitFileError(f"{name}: {what}")
+    df = DigitFile()
+    df.path, df.size_bytes, df.compression = src.path, src.size_bytes, src.compression
+    df._src = src
+    binary = looks_binary(head)
+    if packed is None and binary:
+        packed = _bare_name(src.path).endswith(PACKED_SUFFIXES) or _known_packed(head)
+        if not packed:
+            raise DigitFileError(
+                f"{name}: binary content: not digit text, not gzip/bzip2/xz, and not packed hex digits "
+                "of a known constant (to read it as packed hex, name it *.bin or ask for packed)"
+            )
+    if packed:
+        return _open_packed(df, src, head, base, constant, progress)
+    plan = detect_text(head, eof, src.path, base)
+    if plan.base is None:
+        plan.base, plan.base_how = _resolve_base(plan)
+    assert plan.base is not None
+    scan = scan_text(src, plan, plan.base, strict_labels=strict_labels, progress=progress)
+    src.check_unchanged()
+    df._plan, df._scan = plan, scan
+    df.base, df.base_how, df.count, df.integer_part = plan.base, plan.base_how, scan.count, plan.integer_part
+    if df.count == 0:
+        raise DigitFileError(f"{name}: no digits after the radix point")
+    df.findings = list(scan.findings)
+    df.layout = _text_layout(src, plan, scan)
+    _decide_constant(df, plan.head_digits.decode("ascii"), constant)
+    return df
+
+
+def _known_packed(head: bytes) -> bool:
+    digits = head[:32].hex().upper()
+    name, _, matched = guess_constant(digits, None, 16, len(digits))
+    return name is not None
+
+
+def _resolve_base(plan: Plan) -> tuple[int, str]:
+    head = plan.head_digits.decode("ascii")
+    for b in (10, 16):
+        name, _, _ = guess_constant(head, plan.integer_part, b, len(head))
+        if name is not None:
+            return b, f"decided by the constant: the digits match {name} in base {b}"
+    return 10, f"assumed decimal: no letter A-F among the {plan.sample_digits} digits"
+
+
+def _decide_constant(df: DigitFile, head: str, constant: str | None) -> None:
+    if constant is not None:
+        name, how, matched, agrees = explicit_constant(constant, head, df.integer_part, df.base, df.count)
+        df.constant, df.constant_how = name, how
+        if not agrees:
+            df.findings.append(
+                Finding(
+                    "constant-mismatch",
+                    f"the file's leading digits do not match {name} in base {df.base}: "
+                    f"only the first {matched} agree",
+                    position=matched + 1,
+                )
+            )
+        return
+    df.constant, df.constant_how, _ = guess_constant(head, df.integer_part, df.base, df.count)
+
+
+def _groups(unit: bytes) -> tuple[int | None, int | None]:
+    """(digits per line, group size) read off one unit of character classes."""
+    body = unit.rstrip(WS)
+    groups = [len(g) for g in re.split(rb"[ \t]+", body.strip()) if g]
+    width = sum(groups) if unit.endswith(b"\n") else None
+    group = None
+    if len(groups) > 1 and len(set(groups[:-1])) == 1 and groups[-1] <= groups[0]:
+        group = groups[0]
+    elif not unit.endswith(b"\n") and len(groups) == 1 and unit != body:
+        group = groups[0]
+    return width, group
+
+
+def _text_layout(src: ByteSource, plan: Plan, scan: ScanResult) -> Layout:
+    width = group = line_bytes = None
+    if scan.regular and scan.unit is not None:
+        width, group = _groups(scan.unit)
+        line_bytes = len(scan.unit) if width is not None else None
+    elif plan.labels is not None:
+        line = src.read_at(plan.seg_end, 64 << 10)
+        line = line[: line.find(b"\n") + 1] if b"\n" in line else line
+        body = strip_labels(line, plan.labels).strip(b" \t") or line
+        from spotcheck.digitfile.charsets import class_table
+
+        width, group = _groups(body.translate(class_table(plan.base or 16)))
+    return Layout(
+        kind="text",
+        line_width=width,
+        line_bytes=line_bytes,
+        group_size=group,
+        labels=plan.labels,
+        label_meaning=scan.label_meaning,
+        header_lines=plan.header_lines,
+        digits_offset=plan.digits_offset,
+        newline=plan.newline,
+        letter_case=plan.letter_case,
+        access="regular" if scan.regular else "indexed",
+        index_entries=len(scan.index_pos),
+    )
+
+
+def _open_packed(
+    df: DigitFile, src: ByteSource, head: bytes, base: int | None, constant: str | None, progress: Progress | None
+) -> DigitFile:
+    name = os.path.basename(src.path)
+    if base == 10:
+        raise DigitFileError(f"{name}: packed binary holds hex digits, but base 10 was requested")
+    df._packed = True
+    if src.compression is None:
+        size = src.size_bytes
+    else:
+        size = 0
+        while data := src.read_at(size, CHUNK_BYTES):
+            size += len(data)
+            if progress:
+                progress(size, None)
+    src.check_unchanged()
+    df.base, df.base_how = 16, "packed binary: two hex digits per byte"
+    df.count, df.integer_part, df.findings = 2 * size, None, []
+    df.layout = Layout(kind="packed", access="regular")
+    _decide_constant(df, head[:32].hex().upper(), constant)
+    return df
+
+
+def inspect_file(
+    path: str | os.PathLike[str],
+    base: int | None = None,
+    constant: str | None = None,
+    *,
+    packed: bool | None = None,
+    progress: Progress | None = None,
+) -> InspectResult:
+    """Open, pass over and summarise a digit file (what ``spotcheck inspect`` prints)."""
+    with open_digit_file(path, base, constant, packed=packed, progress=progress) as df:
+        return df.inspect()

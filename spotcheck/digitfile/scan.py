@@ -1,0 +1,344 @@
+"""The one streaming pass over a text digit file.
+
+The pass validates every byte, counts the digits, checks position labels and
+builds what random access needs, in bounded memory (one chunk of
+``CHUNK_BYTES`` at a time, read with ``pread`` or from the decompressor).
+
+Three loops, fastest first:
+
+* **regular**: the file repeats one unit (a line, or a group of a file without
+  line breaks).  A whole chunk is checked with one ``bytes.translate`` into
+  character classes and one comparison with the unit repeated; nothing else is
+  needed, and position -> byte offset is arithmetic afterwards;
+* **indexed**: any other unlabelled layout.  A chunk is validated with one
+  ``translate(None, allowed)``; every ``INDEX_STEP`` bytes the digits are
+  counted and a sparse index entry (position, byte offset, line) is kept;
+* **labelled**: lines with position labels are walked line by line (labels
+  must be read one by one to be checked), with index entries at line starts.
+
+The first unit that breaks the regular pattern moves the pass to the indexed
+loop; index entries for the part already seen are filled in by arithmetic.
+"""
+
+from __future__ import annotations
+
+import os
+from array import array
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+from spotcheck.digitfile.charsets import (
+    HEX_LETTERS,
+    LABEL_END,
+    LABEL_START,
+    WS,
+    allowed_set,
+    class_table,
+    digit_set,
+    strip_labels,
+)
+from spotcheck.digitfile.detect import Plan
+from spotcheck.digitfile.model import Finding
+from spotcheck.digitfile.source import ByteSource
+from spotcheck.errors import DigitFileError
+
+__all__ = ["ScanResult", "scan_text", "line_of", "Progress", "CHUNK_BYTES", "INDEX_STEP"]
+
+# --- tuning -----------------------------------------------------------------
+CHUNK_BYTES = 8 << 20  # bytes examined per step of the pass
+INDEX_STEP = 64 << 10  # bytes between sparse index entries (a window read parses at most this much)
+TAIL_DIGITS = 64  # last digits kept for inspect
+MAX_FINDINGS = 20  # findings of one kind kept in full; the rest are counted
+LABEL_VOTES = 4  # labels used to decide what labels count
+
+Progress = Callable[[int, int | None], None]
+"""``progress(done_bytes, total_bytes_or_None)``; total is None while a
+compressed file's content size is unknown."""
+
+
+@dataclass
+class ScanResult:
+    count: int
+    """Digits after the point, first line included."""
+    regular: bool
+    unit: bytes | None
+    unit_digits: int
+    unit_cols: list[int]
+    region_start: int
+    index_pos: array = field(default_factory=lambda: array("q"))
+    index_off: array = field(default_factory=lambda: array("q"))
+    index_line: array = field(default_factory=lambda: array("q"))
+    last_digits: bytes = b""
+    findings: list[Finding] = field(default_factory=list)
+    label_meaning: str | None = None
+    content_bytes: int = 0
+
+
+def line_of(src: ByteSource, offset: int) -> int:
+    """1-based line number of byte ``offset`` (counts line breaks from the start)."""
+    lines, pos = 1, 0
+    while pos < offset:
+        data = src.read_at(pos, min(CHUNK_BYTES, offset - pos))
+        if not data:
+            break
+        lines += data.count(b"\n")
+        pos += len(data)
+    return lines
+
+
+def stray_error(src: ByteSource, plan: Plan, base: int, offset: int, byte: int) -> DigitFileError:
+    name = os.path.basename(src.path)
+    line = line_of(src, offset)
+    ch = repr(chr(byte)) if 0x20 <= byte < 0x7F else f"byte 0x{byte:02X}"
+    where = f"at byte {offset} (line {line})"
+    if base == 10 and byte in HEX_LETTERS:
+        if plan.explicit_base:
+            return DigitFileError(f"{name}: {ch} {where} is not a decimal digit, but base 10 was requested")
+        return DigitFileError(
+            f"{name}: mixed bases: hex digit {ch} {where}, but the first {plan.sample_digits} digits are all decimal"
+        )
+    what = "hex" if base == 16 else "decimal"
+    return DigitFileError(f"{name}: stray character {ch} {where}: not a {what} digit, space or line break")
+
+
+class _LabelCheck:
+    """Decides what the labels count from the first few, then checks every one."""
+
+    EXPLAIN = {
+        "before": "the count of digits before this line",
+        "first": "the position of this line's first digit",
+        "through": "the count of digits up to the end of this line",
+    }
+
+    def __init__(self, where: str, strict: bool, name: str) -> None:
+        self.order = ("first", "before", "through") if where == "start" else ("through", "before", "first")
+        self.meaning: str | None = None
+        self.pending: list[tuple[int, int, int, int, int]] = []
+        self.strict = strict
+        self.name = name
+        self.findings: list[Finding] = []
+        self.mismatches = 0
+        self.missing = 0
+
+    @staticmethod
+    def expect(meaning: str, before: int, nd: int) -> int:
+        return before if meaning == "before" else before + 1 if meaning == "first" else before + nd
+
+    def feed(self, label: int, before: int, nd: int, line: int, offset: int) -> None:
+        if self.meaning is None:
+            self.pending.append((label, before, nd, line, offset))
+            if len(self.pending) >= LABEL_VOTES:
+                self.decide()
+            return
+        if label != self.expect(self.meaning, before, nd):
+            self.mismatch(label, before, nd, line, offset)
+
+    def decide(self) -> None:
+        def score(m: str) -> int:
+            return sum(lab == self.expect(m, b, n) for lab, b, n, _, _ in self.pending)
+
+        self.meaning = max(self.order, key=score)
+        pending, self.pending = self.pending, []
+        for item in pending:
+            self.feed(*item)
+
+    def mismatch(self, label: int, before: int, nd: int, line: int, offset: int) -> None:
+        assert self.meaning is not None
+        want = self.expect(self.meaning, before, nd)
+        msg = (
+            f"line {line}: label {label} disagrees with the digits: "
+            f"{self.EXPLAIN[self.meaning]} is {want}"
+        )
+        if self.strict:
+            raise DigitFileError(f"{self.name}: labels that lie: {msg}")
+        self.mismatches += 1
+        if self.mismatches <= MAX_FINDINGS:
+            pos = before + 1 if nd else None
+            self.findings.append(Finding("label-mismatch", msg, line=line, byte_offset=offset, position=pos))
+
+    def no_label(self, line: int, offset: int, before: int) -> None:
+        self.missing += 1
+        if self.missing <= MAX_FINDINGS:
+            msg = f"line {line} has no position label, unlike the lines around it"
+            self.findings.append(Finding("label-missing", msg, line=line, byte_offset=offset, position=before + 1))
+
+    def finish(self) -> list[Finding]:
+        if self.meaning is None and self.pending:
+            self.decide()
+        out = list(self.findings)
+        if self.mismatches > MAX_FINDINGS:
+            out.append(
+                Finding("label-mismatch", f"{self.mismatches} labels disagree with the digits in all; "
+                        f"the first {MAX_FINDINGS} are listed")
+            )
+        if self.missing > MAX_FINDINGS:
+            out.append(Finding("label-missing", f"{self.missing} digit lines have no label in all"))
+        return out
+
+
+def scan_text(
+    src: ByteSource, plan: Plan, base: int, *, strict_labels: bool = False, progress: Progress | None = None
+) -> ScanResult:
+    """Run the pass from ``plan.seg_end`` to the end of the content."""
+    total = src.size_bytes if src.compression is None else None
+    d1 = len(plan.seg_digits)
+    tail = plan.seg_digits[-TAIL_DIGITS:]
+    res = ScanResult(count=d1, regular=False, unit=None, unit_digits=0, unit_cols=[], region_start=plan.seg_end)
+    name = os.path.basename(src.path)
+    if plan.labels is not None:
+        return _scan_labelled(src, plan, base, res, tail, strict_labels, progress, total, name)
+    off, pos = plan.seg_end, d1
+    line = plan.first_line_no + (1 if plan.seg_end > plan.digits_offset else 0)
+    unit = plan.template
+    if unit and b"d" in unit and b"?" not in unit:
+        width = unit.count(b"d")
+        p = len(unit)
+        k = max(1, CHUNK_BYTES // p)
+        n = k * p
+        units = unit * k
+        table = class_table(base)
+        prev = b""
+        while True:
+            data = src.read_at(off, n)
+            if len(data) == n and data.translate(table) == units:
+                pos += k * width
+                off += n
+                prev = data
+                if progress:
+                    progress(off, total)
+                continue
+            if len(data) < n:
+                classes = data.translate(table)
+                body = classes.rstrip(WS)
+                if body == units[: len(body)]:
+                    full, rest = divmod(len(body), p)
+                    pos += full * width + unit[:rest].count(b"d")
+                    tail = (tail + (prev[-(2 * p + 4 * TAIL_DIGITS) :] + data).translate(None, WS))[-TAIL_DIGITS:]
+                    res.count, res.regular, res.unit, res.unit_digits = pos, True, unit, width
+                    res.unit_cols = [i for i, c in enumerate(unit) if c == ord("d")]
+                    res.last_digits, res.content_bytes = tail, off + len(data)
+                    if progress:
+                        progress(off + len(data), total)
+                    return res
+            # The pattern breaks in this chunk: index what was regular, then go on indexed.
+            units_done = (off - plan.seg_end) // p
+            step = max(1, INDEX_STEP // p)
+            nl = unit.count(b"\n")
+            for j in range(0, units_done, step):
+                res.index_pos.append(d1 + j * width + 1)
+                res.index_off.append(plan.seg_end + j * p)
+                res.index_line.append(line + j * nl)
+            line += units_done * nl
+            if prev:
+                tail = (tail + prev[-(2 * p + 4 * TAIL_DIGITS) :].translate(None, WS))[-TAIL_DIGITS:]
+            break
+    allowed = allowed_set(base)
+    while True:
+        data = src.read_at(off, CHUNK_BYTES)
+        if not data:
+            break
+        bad = data.translate(None, allowed)
+        if bad:
+            at = data.find(bad[:1])
+            raise stray_error(src, plan, base, off + at, data[at])
+        for i in range(0, len(data), INDEX_STEP):
+            blk = data[i : i + INDEX_STEP]
+            digits = blk.translate(None, WS)
+            if digits:
+                res.index_pos.append(pos + 1)
+                res.index_off.append(off + i)
+                res.index_line.append(line)
+                pos += len(digits)
+                tail = (tail + digits[-TAIL_DIGITS:])[-TAIL_DIGITS:]
+            line += blk.count(b"\n")
+        off += len(data)
+        if progress:
+            progress(off, total)
+    res.count, res.last_digits, res.content_bytes = pos, tail, off
+    return res
+
+
+def _scan_labelled(
+    src: ByteSource,
+    plan: Plan,
+    base: int,
+    res: ScanResult,
+    tail: bytes,
+    strict: bool,
+    progress: Progress | None,
+    total: int | None,
+    name: str,
+) -> ScanResult:
+    check = _LabelCheck(plan.labels or "start", strict, name)
+    d1 = len(plan.seg_digits)
+    if plan.first_label is not None:
+        check.feed(plan.first_label, 0, d1, plan.first_line_no, plan.digits_offset)
+    allowed = allowed_set(base)
+    digit_bytes = digit_set(base)
+    start = plan.labels == "start"
+    rx = LABEL_START if start else LABEL_END
+    off, pos, line = plan.seg_end, d1, plan.first_line_no + 1
+    last_index = -INDEX_STEP
+    while True:
+        data = src.read_at(off, CHUNK_BYTES)
+        if not data:
+            break
+        if len(data) == CHUNK_BYTES:
+            cut = data.rfind(b"\n") + 1
+            if cut == 0:
+                raise DigitFileError(f"{name}: a labelled line at byte {off} is longer than {CHUNK_BYTES} bytes")
+            data = data[:cut]
+        cleaned = strip_labels(data, plan.labels)
+        if cleaned.translate(None, allowed):
+            _raise_labelled_stray(src, plan, base, data, off, rx, allowed)
+        lo = 0
+        for text in data.split(b"\n"):
+            m = rx.match(text) if start else rx.search(text)
+            if m:
+                body = text[m.end() :] if start else text[: m.start()]
+            else:
+                body = text
+            nd = len(body) - len(body.translate(None, digit_bytes))
+            if m:
+                label = int((m.group().strip(b" \t:|\r")))
+                check.feed(label, pos, nd, line, off + lo)
+            elif nd:
+                check.no_label(line, off + lo, pos)
+            if nd:
+                if off + lo - last_index >= INDEX_STEP:
+                    res.index_pos.append(pos + 1)
+                    res.index_off.append(off + lo)
+                    res.index_line.append(line)
+                    last_index = off + lo
+                pos += nd
+            lo += len(text) + 1
+            line += 1
+        line -= 1  # the piece after the chunk's last line break is not a line
+        tail = (tail + cleaned.translate(None, WS)[-TAIL_DIGITS:])[-TAIL_DIGITS:]
+        off += len(data)
+        if progress:
+            progress(off, total)
+    res.findings = check.finish()
+    res.label_meaning = check.meaning
+    res.count, res.last_digits, res.content_bytes = pos, tail, off
+    return res
+
+
+def _raise_labelled_stray(
+    src: ByteSource, plan: Plan, base: int, data: bytes, off: int, rx: object, allowed: bytes
+) -> None:
+    lo = 0
+    start = plan.labels == "start"
+    for text in data.split(b"\n"):
+        m = rx.match(text) if start else rx.search(text)  # type: ignore[attr-defined]
+        b0, b1 = (m.end(), len(text)) if (m and start) else (0, m.start() if m else len(text))
+        body = text[b0:b1]
+        bad = body.translate(None, allowed)
+        if not bad and m is None:
+            bad = b""
+        if bad:
+            at = lo + b0 + body.find(bad[:1])
+            raise stray_error(src, plan, base, off + at, data[at])
+        # label text outside the body is valid by construction
+        lo += len(text) + 1
+    raise DigitFileError(f"{os.path.basename(src.path)}: unreadable labelled lines near byte {off}")

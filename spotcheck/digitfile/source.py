@@ -1,0 +1,198 @@
+"""Read-only byte access to a digit file, plain or compressed.
+
+A :class:`PlainSource` reads with ``os.pread`` on a read-only descriptor, so
+any byte range costs one system call and memory stays bounded by the request.
+
+A :class:`CompressedSource` streams gzip, bzip2 or xz content (recognised by
+magic bytes, not by name).  Offsets are offsets in the *decompressed* content.
+There is no random access without a pass: a read at or after the current
+decompressor position continues forward (skipping what lies between), and a
+read before it restarts decompression from the beginning of the file.  Callers
+that read many windows should therefore read them in increasing order; the
+reader's ``iter_chunks`` does.  (We keep no decompressor checkpoints.)
+
+Both sources remember the file's size and modification time when opened and
+raise :class:`DigitFileError` when either has changed, so a file that is still
+being written is reported instead of read half-way.
+"""
+
+from __future__ import annotations
+
+import bz2
+import errno
+import gzip
+import lzma
+import os
+import stat
+import zlib
+from typing import IO, Protocol
+
+from spotcheck.errors import DigitFileError, FileAccessError
+
+__all__ = ["ByteSource", "PlainSource", "CompressedSource", "open_source", "detect_compression"]
+
+# Bytes skipped per read when a compressed stream moves forward.
+SKIP_BYTES = 4 << 20
+
+_MAGIC = (
+    (b"\x1f\x8b", "gzip"),
+    (b"BZh", "bzip2"),
+    (b"\xfd7zXZ\x00", "xz"),
+)
+_OPENERS = {"gzip": gzip.GzipFile, "bzip2": bz2.BZ2File, "xz": lzma.LZMAFile}
+
+
+class ByteSource(Protocol):
+    path: str
+    size_bytes: int
+    compression: str | None
+
+    def read_at(self, offset: int, n: int) -> bytes: ...
+    def check_unchanged(self) -> None: ...
+    def close(self) -> None: ...
+
+
+def detect_compression(magic: bytes) -> str | None:
+    """``"gzip"``, ``"bzip2"``, ``"xz"`` or None, from the first bytes of a file."""
+    for prefix, name in _MAGIC:
+        if magic.startswith(prefix):
+            return name
+    return None
+
+
+def _stat_checked(path: str) -> os.stat_result:
+    try:
+        st = os.stat(path)
+    except FileNotFoundError:
+        raise FileAccessError(errno.ENOENT, f"no such file: {path}") from None
+    except PermissionError:
+        raise FileAccessError(errno.EACCES, f"permission denied: {path}") from None
+    except OSError as exc:
+        raise FileAccessError(exc.errno, f"cannot open {path}: {exc.strerror}") from None
+    if stat.S_ISDIR(st.st_mode):
+        raise FileAccessError(errno.EISDIR, f"{path} is a directory, not a digit file")
+    if not stat.S_ISREG(st.st_mode):
+        raise FileAccessError(errno.EINVAL, f"{path} is not a regular file")
+    return st
+
+
+class PlainSource:
+    """Uncompressed file read through ``os.pread``."""
+
+    compression: str | None = None
+
+    def __init__(self, path: str, fd: int, st: os.stat_result) -> None:
+        self.path = path
+        self._fd = fd
+        self.size_bytes = st.st_size
+        self._mtime = st.st_mtime_ns
+
+    def read_at(self, offset: int, n: int) -> bytes:
+        if offset >= self.size_bytes or n <= 0:
+            return b""
+        n = min(n, self.size_bytes - offset)
+        try:
+            return os.pread(self._fd, n, offset)
+        except OSError as exc:
+            raise FileAccessError(exc.errno, f"cannot read {self.path}: {exc.strerror}") from None
+
+    def check_unchanged(self) -> None:
+        _check_same(self.path, os.fstat(self._fd), self.size_bytes, self._mtime)
+
+    def close(self) -> None:
+        if self._fd >= 0:
+            os.close(self._fd)
+            self._fd = -1
+
+
+class CompressedSource:
+    """gzip/bzip2/xz content, streamed; offsets count decompressed bytes."""
+
+    def __init__(self, path: str, fd: int, st: os.stat_result, compression: str) -> None:
+        self.path = path
+        self.compression = compression
+        self.size_bytes = st.st_size
+        self._mtime = st.st_mtime_ns
+        self._fd = fd
+        self._raw: IO[bytes] | None = None
+        self._stream: IO[bytes] | None = None
+        self._pos = 0
+        self.restarts = 0
+
+    def _restart(self) -> None:
+        self._close_stream()
+        self._raw = os.fdopen(os.dup(self._fd), "rb")
+        self._raw.seek(0)
+        self._stream = _OPENERS[self.compression](fileobj=self._raw, mode="rb")  # type: ignore[operator]
+        self._pos = 0
+        self.restarts += 1
+
+    def _read(self, n: int) -> bytes:
+        assert self._stream is not None
+        try:
+            data = self._stream.read(n)
+        except EOFError:
+            raise DigitFileError(
+                f"{self.path}: the {self.compression} stream is truncated (it ends before its end marker)"
+            ) from None
+        except (OSError, zlib.error, lzma.LZMAError, ValueError) as exc:
+            raise DigitFileError(f"{self.path}: corrupt {self.compression} data ({exc})") from None
+        self._pos += len(data)
+        return data
+
+    def read_at(self, offset: int, n: int) -> bytes:
+        if n <= 0:
+            return b""
+        if self._stream is None or offset < self._pos:
+            self._restart()
+        while self._pos < offset:
+            if not self._read(min(SKIP_BYTES, offset - self._pos)):
+                return b""
+        return self._read(n)
+
+    def check_unchanged(self) -> None:
+        _check_same(self.path, os.fstat(self._fd), self.size_bytes, self._mtime)
+
+    def _close_stream(self) -> None:
+        if self._stream is not None:
+            self._stream.close()
+            self._stream = None
+        if self._raw is not None:
+            self._raw.close()
+            self._raw = None
+
+    def close(self) -> None:
+        self._close_stream()
+        if self._fd >= 0:
+            os.close(self._fd)
+            self._fd = -1
+
+
+def _check_same(path: str, st: os.stat_result, size: int, mtime: int) -> None:
+    if st.st_size != size or st.st_mtime_ns != mtime:
+        raise DigitFileError(
+            f"{path} changed while being read (size {size} -> {st.st_size} bytes); "
+            "is it still being written? Try again once it is complete"
+        )
+
+
+def open_source(path: str | os.PathLike[str]) -> ByteSource:
+    """Open ``path`` read-only and pick the plain or decompressing source."""
+    p = os.fspath(path)
+    st = _stat_checked(p)
+    try:
+        fd = os.open(p, os.O_RDONLY | getattr(os, "O_CLOEXEC", 0))
+    except PermissionError:
+        raise FileAccessError(errno.EACCES, f"permission denied: {p}") from None
+    except OSError as exc:
+        raise FileAccessError(exc.errno, f"cannot open {p}: {exc.strerror}") from None
+    try:
+        st = os.fstat(fd)
+        magic = os.pread(fd, 8, 0)
+    except OSError as exc:
+        os.close(fd)
+        raise FileAccessError(exc.errno, f"cannot read {p}: {exc.strerror}") from None
+    kind = detect_compression(magic)
+    if kind is None:
+        return PlainSource(p, fd, st)
+    return CompressedSource(p, fd, st, kind)
