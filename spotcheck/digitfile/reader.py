@@ -346,9 +346,26 @@ def _groups(unit: bytes) -> tuple[int | None, int | None]:
     return width, group
 
 
+def _runs(cols: list[int]) -> list[int]:
+    """Lengths of the runs of adjacent byte offsets (digit groups)."""
+    runs: list[int] = []
+    prev = -2
+    for c in cols:
+        if c == prev + 1:
+            runs[-1] += 1
+        else:
+            runs.append(1)
+        prev = c
+    return runs
+
+
 def _text_layout(src: ByteSource, plan: Plan, scan: ScanResult) -> Layout:
     width = group = line_bytes = None
-    if scan.regular and scan.unit is not None:
+    if scan.count == len(plan.seg_digits):  # one line holds every digit
+        runs = _runs(plan.seg_cols)
+        if len(runs) > 1 and len(set(runs[:-1])) == 1 and runs[-1] <= runs[0]:
+            group = runs[0]
+    elif scan.regular and scan.unit is not None:
         width, group = _groups(scan.unit)
         line_bytes = len(scan.unit) if width is not None else None
     elif plan.labels is not None:

@@ -25,6 +25,7 @@ import lzma
 import os
 import stat
 import zlib
+from collections.abc import Callable
 from typing import IO, Protocol
 
 from spotcheck.errors import DigitFileError, FileAccessError
@@ -39,7 +40,11 @@ _MAGIC = (
     (b"BZh", "bzip2"),
     (b"\xfd7zXZ\x00", "xz"),
 )
-_OPENERS = {"gzip": gzip.GzipFile, "bzip2": bz2.BZ2File, "xz": lzma.LZMAFile}
+_OPENERS: dict[str, Callable[[IO[bytes]], IO[bytes]]] = {
+    "gzip": lambda raw: gzip.GzipFile(fileobj=raw, mode="rb"),
+    "bzip2": lambda raw: bz2.BZ2File(raw, mode="rb"),
+    "xz": lambda raw: lzma.LZMAFile(raw, mode="rb"),
+}
 
 
 class ByteSource(Protocol):
@@ -123,7 +128,7 @@ class CompressedSource:
         self._close_stream()
         self._raw = os.fdopen(os.dup(self._fd), "rb")
         self._raw.seek(0)
-        self._stream = _OPENERS[self.compression](fileobj=self._raw, mode="rb")  # type: ignore[operator]
+        self._stream = _OPENERS[self.compression](self._raw)
         self._pos = 0
         self.restarts += 1
 
