@@ -192,6 +192,14 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None) -> Plan:
     if not sample:
         raise DigitFileError(f"{name}: no digits after the radix point")
     has_letters = bool(sample.translate(None, DEC))
+    if has_letters and base != 10:
+        plain = len(sample) - len(sample.lstrip(DEC))
+        if plain >= MIN_HEX_EVIDENCE:
+            at = digits_offset + _first_of(head[digits_offset:], HEX_LETTERS)
+            raise DigitFileError(
+                f"{name}: mixed bases: hex digit {chr(head[at])!r} at byte {at} (line {_line_of(head, at)}), "
+                f"but the {plain} digits before it are all decimal"
+            )
     base_how: str
     if base is not None:
         if base not in (10, 16):
