@@ -40,7 +40,7 @@
 #define MAX_WORDS 16        /* at most 64 * 16 fractional bits per term */
 #define MAX_LANES 8         /* widest interleave built */
 #define BEST_LANES 8        /* interleave of the shipped head_sum (see benchmarks/kernel.py) */
-#define BEST_STEP STEP_FUSED
+#define BEST_STEP STEP_NARROW
 /* ------------------------------------------------------------------------ */
 
 #define MODULUS_LIMIT ((uint64_t)1 << 63)
@@ -124,13 +124,35 @@ ALWAYS_INLINE uint64_t mont_one(uint64_t n)
 {
     if (n < 8192)
         return (0 - n) % n;
-    uint64_t qe = (uint64_t)(18446744073709551616.0 / (double)n);
+    uint64_t qe = (uint64_t)(int64_t)(18446744073709551616.0 / (double)n); /* < 2^51 */
     int64_t r = (int64_t)(0 - qe * n); /* 2^64 - qe*n, within one n of the truth */
     if (r < 0)
         r += (int64_t)n;
     else if ((uint64_t)r >= n)
         r -= (int64_t)n;
     return (uint64_t)r;
+}
+
+/* 2^32 mod n for odd n < 2^31; the double quotient is within one. */
+ALWAYS_INLINE uint64_t mont_one32(uint64_t n)
+{
+    uint64_t qe = (uint64_t)(int64_t)(4294967296.0 / (double)n); /* <= 2^32 */
+    int64_t r = (int64_t)(((uint64_t)1 << 32) - qe * n);
+    if (r < 0)
+        r += (int64_t)n;
+    else if ((uint64_t)r >= n)
+        r -= (int64_t)n;
+    return (uint64_t)r;
+}
+
+/* 32-bit Montgomery reduction: t * 2^-32 mod n for odd n < 2^31,
+ * 0 <= t < n 2^32, ninv32 = n^-1 mod 2^32.  The result is in (-n, n) and left
+ * there: the squarings below only need |x| < n.  Three 64-bit products per
+ * squaring instead of two 128-bit ones and one 64-bit. */
+ALWAYS_INLINE int64_t redc32(int64_t t, int64_t n, uint32_t ninv32)
+{
+    uint32_t m = (uint32_t)t * ninv32;
+    return (t - (int64_t)m * n) >> 32; /* exact: the low half is zero */
 }
 
 ALWAYS_INLINE int bit_length(uint64_t x)
@@ -181,7 +203,12 @@ static void acc_add_at(uint64_t *acc, int words, int idx, uint64_t w)
 }
 
 /* How the exponentiation multiplies by 2 for a set exponent bit. */
-enum step { STEP_FUSED = 0, STEP_ADD = 1, STEP_MUL = 2 };
+enum step {
+    STEP_FUSED = 0,  /* square x * 2x, one reduction */
+    STEP_ADD = 1,    /* square, then add and conditionally subtract */
+    STEP_MUL = 2,    /* square, then always multiply by 2 or 1 (no use of the base) */
+    STEP_NARROW = 3, /* STEP_FUSED, in 32-bit Montgomery form when all moduli < 2^31 */
+};
 
 typedef struct {
     uint64_t D, k0, k1, m, q;
@@ -255,21 +282,51 @@ static void big_exponent_term(uint64_t n, uint64_t ep, int64_t c, int words, uin
 ALWAYS_INLINE void run_lanes(const int L, const int step, const uint64_t *n, const uint64_t *f,
                              const uint64_t *cm, int words, uint64_t *acc)
 {
-    uint64_t ninv[MAX_LANES], one[MAX_LANES], two[MAX_LANES], x[MAX_LANES], fmax = 0;
+    uint64_t ninv[MAX_LANES], one[MAX_LANES], two[MAX_LANES], x[MAX_LANES], fmax = 0, nor = 0;
     for (int l = 0; l < L; l++) {
         ninv[l] = inverse64(n[l]);
+        nor |= n[l];
+        fmax |= f[l]; /* same top bit as the largest f */
+        if (step == STEP_NARROW)
+            continue;
         x[l] = one[l] = mont_one(n[l]);
         two[l] = dbl_mod(one[l], n[l]);
-        fmax |= f[l];
     }
     int top = bit_length(fmax) - 1; /* fmax >= 64 */
-    for (int l = 0; l < L; l++)
+    if (step == STEP_NARROW && (nor >> 31) == 0) {
+        int64_t y[MAX_LANES], sn[MAX_LANES];
+        for (int l = 0; l < L; l++) {
+            y[l] = (int64_t)mont_one32(n[l]);
+            sn[l] = (int64_t)n[l];
+            if ((f[l] >> top) & 1)
+                y[l] = (int64_t)dbl_mod((uint64_t)y[l], n[l]);
+        }
+        for (int b = top - 1; b >= 0; b--) {
+            for (int l = 0; l < L; l++) {
+                /* |y| < n < 2^31, so 0 <= y * 2y < n 2^32: double before reducing */
+                int64_t mask = 0 - (int64_t)((f[l] >> b) & 1);
+                y[l] = redc32(y[l] * (y[l] + (y[l] & mask)), sn[l], (uint32_t)ninv[l]);
+            }
+        }
+        /* y = 2^(f + 32) mod n, so redc32(y * cm) = c 2^f mod n */
+        for (int l = 0; l < L; l++) {
+            int64_t r = redc32((y[l] < 0 ? y[l] + sn[l] : y[l]) * (int64_t)cm[l], sn[l], (uint32_t)ninv[l]);
+            add_fraction((uint64_t)(r < 0 ? r + sn[l] : r), n[l], ninv[l], words, acc);
+        }
+        return;
+    }
+    for (int l = 0; l < L; l++) {
+        if (step == STEP_NARROW) { /* some modulus is too wide for 32 bits */
+            x[l] = one[l] = mont_one(n[l]);
+            two[l] = dbl_mod(one[l], n[l]);
+        }
         if ((f[l] >> top) & 1)
             x[l] = two[l];
+    }
     for (int b = top - 1; b >= 0; b--) {
         for (int l = 0; l < L; l++) {
             uint64_t bit = (f[l] >> b) & 1, hi, lo;
-            if (step == STEP_FUSED) {
+            if (step == STEP_FUSED || step == STEP_NARROW) {
                 /* x * 2x < n 2^64 because x < n < 2^63: double before reducing. */
                 mul_wide(x[l], x[l] + (x[l] & (0 - bit)), &hi, &lo);
                 x[l] = redc(hi, lo, n[l], ninv[l]);
@@ -340,6 +397,8 @@ static void run_4_add(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 4, STEP
 static void run_8_add(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 8, STEP_ADD); }
 static void run_4_mul(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 4, STEP_MUL); }
 static void run_8_mul(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 8, STEP_MUL); }
+static void run_4_narrow(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 4, STEP_NARROW); }
+static void run_8_narrow(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 8, STEP_NARROW); }
 
 typedef void (*runner_t)(const job_t *, uint64_t *);
 
@@ -347,10 +406,14 @@ static runner_t pick_runner(long lanes, long step)
 {
     if (lanes == 1 && step == STEP_FUSED)
         return run_1_fused;
+    static const runner_t four[] = {run_4_fused, run_4_add, run_4_mul, run_4_narrow};
+    static const runner_t eight[] = {run_8_fused, run_8_add, run_8_mul, run_8_narrow};
+    if (step < 0 || step > STEP_NARROW)
+        return NULL;
     if (lanes == 4)
-        return step == STEP_FUSED ? run_4_fused : step == STEP_ADD ? run_4_add : step == STEP_MUL ? run_4_mul : NULL;
+        return four[step];
     if (lanes == 8)
-        return step == STEP_FUSED ? run_8_fused : step == STEP_ADD ? run_8_add : step == STEP_MUL ? run_8_mul : NULL;
+        return eight[step];
     return NULL;
 }
 

@@ -1,0 +1,219 @@
+"""The compiled head-sum kernel against its pure-Python twin.
+
+Contract: ``spotcheck.engine.head_py.head_sum_py`` is the reference; the C
+kernel (``spotcheck.engine._kernel.head_sum``) must return exactly the same
+``(value, terms)`` for every argument inside its limits, and refuse arguments
+outside them with ValueError or OverflowError.
+"""
+
+from __future__ import annotations
+
+import threading
+
+import pytest
+from hypothesis import example, given, settings
+from hypothesis import strategies as st
+
+from spotcheck.engine import backend
+from spotcheck.engine.head_py import head_sum_py
+from spotcheck.engine.series import Series, series_of
+from spotcheck.formulas import BUILTIN_CONSTANTS
+
+_kernel = pytest.importorskip("spotcheck.engine._kernel", reason="compiled kernel not built")
+
+SERIES = [series_of(f) for c in BUILTIN_CONSTANTS.values() for f in c.formulas]
+SERIES_IDS = [f"{c.name}-{f.key}" for c in BUILTIN_CONSTANTS.values() for f in c.formulas]
+PI_BBP = series_of(BUILTIN_CONSTANTS["pi"].formula("bbp"))
+
+# Every interleave / doubling variant built into the extension (lanes, step).
+VARIANTS = [(1, 0), (4, 0), (8, 0), (4, 1), (8, 1), (4, 2), (8, 2), (4, 3), (8, 3)]
+
+LIMIT = 1 << 63
+
+
+def series_args(series: Series, big_d: int, k0: int, k1: int, words: int) -> tuple:
+    return (big_d, k0, k1, series.m, series.s, series.e, series.q, series.alternating, series.js, series.cs, words)
+
+
+def assert_same(args: tuple) -> None:
+    assert _kernel.head_sum(*args) == head_sum_py(*args)
+
+
+def integer_root(x: int, s: int) -> int:
+    """floor(x ** (1/s)) for x >= 0, s >= 1."""
+    r = int(round(x ** (1.0 / s)))
+    while r**s > x:
+        r -= 1
+    while (r + 1) ** s <= x:
+        r += 1
+    return r
+
+
+# --- the built-in formulas ---------------------------------------------------
+
+
+@st.composite
+def builtin_calls(draw: st.DrawFn) -> tuple:
+    series = draw(st.sampled_from(SERIES))
+    big_d = draw(st.one_of(st.integers(0, 300), st.integers(0, 10**9), st.integers(0, 2**45)))
+    head = big_d // series.e + 1
+    k1 = draw(st.integers(1, head))
+    k0 = draw(st.integers(max(0, k1 - 48), k1 - 1))
+    words = draw(st.integers(1, 16))
+    return series_args(series, big_d, k0, k1, words)
+
+
+@settings(max_examples=150, deadline=None)
+@given(builtin_calls())
+# position 1 of pi (D = 0, the first term only)
+@example(series_args(PI_BBP, 0, 0, 1, 2))
+# the end of the head, where D - e*k is smaller than the moduli's power of two
+@example(series_args(PI_BBP, 4 * 10**6 - 4, 10**6 - 40, 10**6, 2))
+@example(series_args(PI_BBP, 4 * 10**7 + 1, 10**7 - 3, 10**7 + 1, 16))
+def test_builtin_series_match_twin(args: tuple) -> None:
+    assert_same(args)
+
+
+@pytest.mark.parametrize("series", SERIES, ids=SERIES_IDS)
+def test_every_builtin_series_whole_head(series: Series) -> None:
+    """A whole head at a small offset, every variant: moduli from q upwards, E down to 0."""
+    big_d = 600
+    args = series_args(series, big_d, 0, series.head_length(big_d + series.shift), 3)
+    want = head_sum_py(*args)
+    assert want[1] > 0
+    for lanes, step in VARIANTS:
+        assert _kernel._head_sum_variant(*args, lanes, step) == want
+
+
+@settings(max_examples=60, deadline=None)
+@given(builtin_calls(), st.sampled_from(VARIANTS))
+def test_variants_match_twin(args: tuple, variant: tuple[int, int]) -> None:
+    assert _kernel._head_sum_variant(*args, *variant) == head_sum_py(*args)
+
+
+# --- chosen moduli: near 2^31 (the 32-bit path's edge), 2^32 and 2^63 ---------
+
+
+@st.composite
+def moduli_calls(draw: st.DrawFn) -> tuple:
+    """Arguments whose largest modulus q (m k + j)^s lands just below a target."""
+    target = draw(st.sampled_from([1 << 31, 1 << 32, 1 << 62, LIMIT]))
+    s = draw(st.integers(1, 3))
+    q = draw(st.sampled_from([1, 3, 21, 255, 1 << 10]) | st.integers(1, 1 << 12))
+    m = draw(st.integers(1, 40))
+    npairs = draw(st.integers(1, 6))
+    # odd offsets, even offsets, and powers of two (moduli rich in factors 2)
+    js = draw(
+        st.lists(
+            st.integers(1, 2 * m) | st.builds(lambda a: 1 << a, st.integers(0, 6)),
+            min_size=npairs,
+            max_size=npairs,
+        )
+    )
+    coefficient = st.integers(-(1 << 62) + 1, (1 << 62) - 1) | st.integers(-600, 600)
+    cs = draw(st.lists(coefficient, min_size=npairs, max_size=npairs))
+    base_top = integer_root((target - 1) // q, s)  # q * base^s < target
+    k1 = max(1, (base_top - max(js)) // m + 1 - draw(st.integers(0, 3)))
+    k0 = max(0, k1 - draw(st.integers(1, 24)))
+    e = draw(st.integers(0, min(12, (2**64 - 1) // max(1, k1 - 1))))
+    big_d = draw(st.integers(e * (k1 - 1), e * (k1 - 1) + 200) | st.integers(e * (k1 - 1), 2**64 - 1))
+    words = draw(st.integers(1, 16))
+    alternating = draw(st.booleans())
+    return (big_d, k0, k1, m, s, e, q, alternating, js, cs, words)
+
+
+@settings(max_examples=200, deadline=None)
+@given(moduli_calls())
+# N = 2^63 - 1, the largest modulus allowed (odd), at k = 2^63 - 3 (odd: negated)
+@example((2**64 - 1, 2**63 - 3, 2**63 - 2, 1, 1, 0, 1, True, [2], [-(2**62) + 1], 16))
+# even moduli 2^62 (odd part 1) and 3 * 2^61, with D above and below their power of two
+@example((70, 0, 1, 1, 1, 1, 1, False, [1 << 62, 3 << 61], [5, -7], 4))
+@example((61, 0, 1, 1, 1, 1, 1, False, [1 << 62, 3 << 61], [5, -7], 4))
+# moduli 2^31 - 1 and 2^31 + 1 in one batch (both sides of the 32-bit path)
+@example((12345, 0, 1, 1, 1, 0, 1, False, [2**31 - 1, 2**31 + 1, 3, 2**31 - 3], [1, -1, 2, 3], 2))
+@example((2**40 + 7, 0, 1, 1, 1, 0, 1, False, [2**31 - 1, 2**31 - 3, 2**30 + 1] * 3, [-1, 5, 7] * 3, 3))
+def test_chosen_moduli_match_twin(args: tuple) -> None:
+    n_max = max(args[6] * (args[3] * (args[2] - 1) + j) ** args[4] for j in args[8])
+    assert n_max < LIMIT
+    assert_same(args)
+
+
+@settings(max_examples=100, deadline=None)
+@given(
+    st.integers(0, 2**64 - 1),
+    st.lists(st.integers(1, 2**63 - 1), min_size=1, max_size=12),
+    st.lists(st.integers(-(2**62) + 1, 2**62 - 1), min_size=12, max_size=12),
+    st.integers(1, 16),
+    st.booleans(),
+)
+def test_single_terms_any_modulus(big_d: int, moduli: list[int], cs: list[int], words: int, alt: bool) -> None:
+    """k = 0 with m = 0, s = 1, e = 0: the moduli are exactly the j's, any size, odd or even."""
+    args = (big_d, 0, 1, 0, 1, 0, 1, alt, moduli, cs[: len(moduli)], words)
+    assert_same(args)
+
+
+def test_empty_range() -> None:
+    assert _kernel.head_sum(100, 5, 5, 8, 1, 4, 1, False, (1,), (4,), 2) == (0, 0)
+    assert _kernel.head_sum(100, 7, 3, 8, 1, 4, 1, False, (1,), (4,), 2) == (0, 0)
+
+
+def test_threads_give_the_same_sums() -> None:
+    """The kernel releases the GIL; concurrent calls must not disturb each other."""
+    calls = [series_args(PI_BBP, 4 * 10**5, k, k + 4000, 2) for k in range(0, 40000, 4000)]
+    want = [head_sum_py(*a) for a in calls]
+    got: dict[int, tuple[int, int]] = {}
+
+    def work(i: int) -> None:
+        got[i] = _kernel.head_sum(*calls[i])
+
+    threads = [threading.Thread(target=work, args=(i,)) for i in range(len(calls))]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    assert [got[i] for i in range(len(calls))] == want
+
+
+# --- limits --------------------------------------------------------------------
+
+
+def test_limits_match_backend() -> None:
+    assert _kernel.MAX_WORDS == backend.KERNEL_MAX_WORDS
+    assert _kernel.MAX_MODULUS == backend.KERNEL_MAX_MODULUS
+
+
+@pytest.mark.parametrize(
+    "args, error",
+    [
+        ((10, 0, 1, 0, 1, 0, 1, False, [2**63], [1], 2), OverflowError),  # N = 2^63
+        ((10, 0, 1, 1, 3, 0, 1, False, [2**21], [1], 2), OverflowError),  # N = 2^63 via s = 3
+        ((10, 0, 1, 0, 1, 0, 3, False, [2**62], [1], 2), OverflowError),  # q * 2^62
+        ((10, 0, 2**62, 4, 1, 0, 1, False, [1], [1], 2), OverflowError),  # m k + j beyond 2^63
+        ((2**64, 0, 1, 8, 1, 4, 1, False, [1], [1], 2), OverflowError),  # D
+        ((-1, 0, 1, 8, 1, 4, 1, False, [1], [1], 2), OverflowError),  # D < 0
+        ((10, 0, 1, 8, 1, 4, 1, False, [1], [2**62], 2), OverflowError),  # |c|
+        ((10, 0, 1, 8, 1, 4, 1, False, [1], [-(2**62)], 2), OverflowError),
+        ((10, 0, 1, 8, 1, 4, 1, False, [1], [1], 0), ValueError),  # words
+        ((10, 0, 1, 8, 1, 4, 1, False, [1], [1], 17), ValueError),
+        ((10, 0, 4, 8, 1, 4, 1, False, [1], [1], 2), ValueError),  # D - e (k1 - 1) < 0
+        ((10, 0, 1, 8, 1, 4, 0, False, [1], [1], 2), ValueError),  # q = 0
+        ((10, 0, 1, 8, 1, 4, 1, False, [0], [1], 2), ValueError),  # N = 0
+        ((10, 0, 1, 8, 1, 4, 1, False, [1, 2], [1], 2), ValueError),  # lengths differ
+        ((10, 0, 1, 8, 1, 4, 1, False, [1], [1.5], 2), TypeError),
+    ],
+)
+def test_limits_are_enforced(args: tuple, error: type[Exception]) -> None:
+    with pytest.raises(error):
+        _kernel.head_sum(*args)
+
+
+def test_limit_edges_are_accepted() -> None:
+    """Just inside every limit: the kernel answers, and agrees with the twin."""
+    assert_same((2**64 - 1, 0, 1, 0, 1, 0, 1, False, [2**63 - 1], [2**62 - 1], 16))
+    assert_same((2**64 - 1, 0, 1, 0, 1, 0, 1, False, [2**62], [-(2**62) + 1], 1))
+    assert_same((40, 0, 11, 8, 1, 4, 1, True, [1, 4, 5, 6], [4, -2, -1, -1], 2))  # E = 0 at k = 10
+
+
+def test_unknown_variant_is_refused() -> None:
+    with pytest.raises(ValueError):
+        _kernel._head_sum_variant(10, 0, 1, 8, 1, 4, 1, False, [1], [1], 2, 3, 0)
