@@ -126,6 +126,214 @@ def constants(formula_file: FormulaFileOpt = None, as_json: JsonOpt = False) -> 
     show_constants(all_constants(), as_json=as_json)
 
 
+FileArg = Annotated[Path, typer.Argument(help="Digit file (plain, gzip, bzip2 or xz; hex or decimal).")]
+ConstantOpt = Annotated[
+    str | None,
+    typer.Option("--constant", "-c", help="Constant of the file (default: guessed from its digits)."),
+]
+BaseOpt = Annotated[
+    int | None, typer.Option("--base", help="Base of the file's digits, 10 or 16 (default: detected).")
+]
+FormulaOpt = Annotated[
+    str | None, typer.Option("--formula", help="Formula key for the engine (default: the fastest).")
+]
+WindowOpt = Annotated[int, typer.Option("--window", help="Digits compared per check.")]
+LimitOpt = Annotated[int | None, typer.Option("--limit", help="Check only the first N digits of the file.")]
+ReferenceOpt = Annotated[
+    str,
+    typer.Option(
+        "--reference", help="Full-computation library for scans: arb (python-flint) or mpfr (gmpy2)."
+    ),
+]
+
+
+def _base(base: int | None) -> int | None:
+    if base not in (None, 10, 16):
+        raise typer.BadParameter(f"base must be 10 or 16, got {base}", param_hint="--base")
+    return base
+
+
+def _repeat(command: str, path: Path, **options: Any) -> str:
+    import shlex
+
+    parts = ["spotcheck", command, shlex.quote(str(path))]
+    for name, value in options.items():
+        flag = "--" + name.replace("_", "-")
+        if value is None or value is False:
+            continue
+        if value is True:
+            parts.append(flag)
+        elif isinstance(value, list | tuple):
+            for v in value:
+                parts += [flag, shlex.quote(str(v))]
+        else:
+            parts += [flag, shlex.quote(str(value))]
+    return " ".join(parts)
+
+
+def _finish(result: Any, repeat: str, as_json: bool, quiet: bool) -> None:
+    from spotcheck.report.checks import show_result
+
+    show_result(result, repeat, as_json=as_json, quiet=quiet)
+    code = result.exit_code
+    if code == EXIT_OK and result.interrupted:
+        code = 130
+    raise typer.Exit(code)
+
+
+@app.command()
+def verify(
+    file: FileArg,
+    samples: Annotated[int, typer.Option("--samples", "-s", help="Random windows to check.")] = 8,
+    seed: Annotated[
+        int | None, typer.Option("--seed", help="Seed for the random windows (printed either way).")
+    ] = None,
+    at: Annotated[
+        list[int] | None, typer.Option("--at", help="Also check the window at this position (repeatable).")
+    ] = None,
+    budget: Annotated[
+        float | None, typer.Option("--budget", help="Keep drawing random windows for this many seconds.")
+    ] = None,
+    window: WindowOpt = 16,
+    constant: ConstantOpt = None,
+    base: BaseOpt = None,
+    formula: FormulaOpt = None,
+    limit: LimitOpt = None,
+    formula_file: FormulaFileOpt = None,
+    workers: WorkersOpt = None,
+    as_json: JsonOpt = False,
+    quiet: QuietOpt = False,
+) -> None:
+    """Check the tail, the head, random windows and named positions of FILE against certified digits."""
+    import secrets
+
+    from spotcheck.checks import verify_file
+    from spotcheck.report.console import progress_bar
+
+    _load_formula_files(formula_file)
+    seed = secrets.randbits(32) if seed is None else seed
+    with progress_bar("verify", enabled=not (quiet or as_json)) as cb:
+        result = verify_file(
+            str(file),
+            base=_base(base),
+            constant=constant,
+            formula=formula,
+            samples=samples,
+            seed=seed,
+            at=at or (),
+            window=window,
+            budget=budget,
+            workers=_workers(workers),
+            limit=limit,
+            progress=cb,
+        )
+    repeat = _repeat(
+        "verify",
+        file,
+        samples=samples,
+        seed=seed,
+        at=at,
+        window=window,
+        constant=constant,
+        base=base,
+        formula=formula,
+        limit=limit,
+        formula_file=formula_file,
+    )
+    _finish(result, repeat, as_json, quiet)
+
+
+@app.command()
+def locate(
+    file: FileArg,
+    budget: Annotated[
+        float, typer.Option("--budget", help="Seconds a full comparison may take when the tail matches.")
+    ] = 180.0,
+    reference: ReferenceOpt = "arb",
+    window: WindowOpt = 16,
+    constant: ConstantOpt = None,
+    base: BaseOpt = None,
+    formula: FormulaOpt = None,
+    limit: LimitOpt = None,
+    formula_file: FormulaFileOpt = None,
+    workers: WorkersOpt = None,
+    as_json: JsonOpt = False,
+    quiet: QuietOpt = False,
+) -> None:
+    """Find the first wrong digit of FILE (1-based position), with expected and found digits."""
+    from spotcheck.checks import locate_file
+    from spotcheck.report.console import progress_bar
+
+    _load_formula_files(formula_file)
+    with progress_bar("locate", enabled=not (quiet or as_json)) as cb:
+        result = locate_file(
+            str(file),
+            base=_base(base),
+            constant=constant,
+            formula=formula,
+            window=window,
+            budget=budget,
+            reference=reference,
+            workers=_workers(workers),
+            limit=limit,
+            progress=cb,
+        )
+    repeat = _repeat(
+        "locate",
+        file,
+        budget=budget,
+        reference=reference,
+        window=window,
+        constant=constant,
+        base=base,
+        formula=formula,
+        limit=limit,
+        formula_file=formula_file,
+    )
+    _finish(result, repeat, as_json, quiet)
+
+
+@app.command()
+def scan(
+    file: FileArg,
+    reference: ReferenceOpt = "arb",
+    constant: ConstantOpt = None,
+    base: BaseOpt = None,
+    limit: LimitOpt = None,
+    as_json: JsonOpt = False,
+    quiet: QuietOpt = False,
+) -> None:
+    """Compare every digit of FILE with an independent full computation."""
+    from spotcheck.checks import scan_file
+    from spotcheck.report.console import progress_bar
+
+    with progress_bar("scan", enabled=not (quiet or as_json)) as cb:
+        result = scan_file(
+            str(file), base=_base(base), constant=constant, reference=reference, limit=limit, progress=cb
+        )
+    repeat = _repeat("scan", file, reference=reference, constant=constant, base=base, limit=limit)
+    _finish(result, repeat, as_json, quiet)
+
+
+@app.command()
+def inspect(
+    file: FileArg,
+    constant: ConstantOpt = None,
+    base: BaseOpt = None,
+    formula_file: FormulaFileOpt = None,
+    as_json: JsonOpt = False,
+) -> None:
+    """Show what spotcheck detects in FILE: base, constant, layout, digit count, compression."""
+    from spotcheck.digitfile import inspect_file
+    from spotcheck.report.checks import show_inspect
+    from spotcheck.report.console import progress_bar
+
+    _load_formula_files(formula_file)
+    with progress_bar("reading", enabled=not as_json) as cb:
+        result = inspect_file(str(file), base=_base(base), constant=constant, progress=cb)
+    show_inspect(result, as_json=as_json)
+
+
 def _warn_if_no_kernel() -> None:
     from spotcheck.engine import backend
 
@@ -146,7 +354,7 @@ def run(argv: list[str] | None = None) -> int:
     try:
         rv: Any = command.main(args=args, prog_name="spotcheck", standalone_mode=False)
     except SpotcheckError as exc:
-        error_line(str(exc))
+        error_line(exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc))
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         error_line("interrupted")

@@ -34,5 +34,5 @@ def pi_decimal(n: int) -> str:
     """The first ``n`` decimal digits of pi after the point (gmpy2/MPFR)."""
     bits = int(n * 3.33) + GUARD_BITS
     with gmpy2.context(precision=bits + 8):
-        v = int(gmpy2.floor(gmpy2.const_pi() * gmpy2.mpz(10) ** n))
-    return str(v)[1:]
+        v = gmpy2.mpz(gmpy2.floor(gmpy2.const_pi() * gmpy2.mpz(10) ** n))
+    return v.digits(10)[1:]

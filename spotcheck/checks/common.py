@@ -1,0 +1,124 @@
+"""What every check needs: the file opened, the constant settled, an engine oracle."""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+from spotcheck.digitfile import DigitFile, open_digit_file
+from spotcheck.engine.api import extract, leading_digits
+from spotcheck.errors import UsageError
+from spotcheck.formulas import get_constant
+
+from .results import FileFacts, WindowCheck
+
+Progress = Callable[[int, int], None]
+
+# --- tuning -----------------------------------------------------------------
+DEFAULT_WINDOW = 16  # digits compared per check
+MAX_WINDOW = 64
+# ---------------------------------------------------------------------------
+
+
+def open_checked(
+    path: str, *, base: int | None, constant: str | None, formula: str | None, limit: int | None = None
+) -> tuple[DigitFile, FileFacts]:
+    """Open a digit file and settle the constant, or raise :class:`UsageError`.
+
+    ``limit`` restricts every check to the first ``limit`` digits.
+    """
+    if limit is not None and limit < 1:
+        raise UsageError(f"limit must be at least 1, got {limit}")
+    df = open_digit_file(path, base=base, constant=constant)
+    if df.constant is None:
+        df.close()
+        raise UsageError(f"{path}: {df.constant_how}")
+    if df.count < 1:
+        df.close()
+        raise UsageError(f"{path}: no digits after the point")
+    const = get_constant(df.constant)
+    facts = FileFacts(
+        path=str(path),
+        size_bytes=df.size_bytes,
+        base=df.base,
+        count=df.count,
+        checked=min(df.count, limit) if limit else df.count,
+        constant=const.name,
+        constant_how=df.constant_how,
+        formula=const.formula(formula).key,
+        compression=df.compression,
+        integer_part=df.integer_part,
+    )
+    return df, facts
+
+
+def integer_part_check(facts: FileFacts) -> WindowCheck | None:
+    """Compare the file's integer part (if it has one) with the constant's."""
+    if facts.integer_part is None:
+        return None
+    expected, _ = leading_digits(facts.constant, facts.base, 1)
+    found = facts.integer_part.upper().lstrip("0") or "0"
+    return WindowCheck(
+        kind="integer-part",
+        position=0,
+        expected=expected,
+        found=facts.integer_part,
+        match=found == expected,
+        note="digits before the point",
+        base=facts.base,
+    )
+
+
+def first_difference(expected: str, found: str, position: int) -> int | None:
+    for i, (a, b) in enumerate(zip(expected, found)):
+        if a != b:
+            return position + i
+    if len(found) < len(expected):
+        return position + len(found)
+    return None
+
+
+@dataclass
+class HexOracle:
+    """Certified hex digits from the engine, with a count of evaluations."""
+
+    constant: str
+    formula: str
+    workers: int = 1
+    evaluations: int = 0
+    engine_seconds: float = 0.0
+    _cache: dict[tuple[int, int], str] = field(default_factory=dict)
+
+    def digits(self, position: int, count: int) -> str:
+        key = (position, count)
+        if key not in self._cache:
+            t0 = time.perf_counter()
+            r = extract(self.constant, position, count, formula=self.formula, workers=self.workers)
+            self.engine_seconds += time.perf_counter() - t0
+            self.evaluations += 1
+            self._cache[key] = r.digits
+        return self._cache[key]
+
+    def compare(self, df: DigitFile, kind: str, position: int, count: int, note: str = "") -> WindowCheck:
+        count = min(count, df.count - position + 1)
+        if count < 1:
+            raise ValueError(f"window at {position} lies outside the file")
+        expected = self.digits(position, count)
+        found = df.read(position, count)
+        diff = first_difference(expected, found, position)
+        return WindowCheck(
+            kind=kind,
+            position=position,
+            expected=expected,
+            found=found,
+            match=diff is None,
+            first_difference=diff,
+            note=note,
+        )
+
+
+def clamp_window(window: int, count: int) -> int:
+    if not 1 <= window <= MAX_WINDOW:
+        raise UsageError(f"window must be between 1 and {MAX_WINDOW} digits, got {window}")
+    return min(window, count)

@@ -1,0 +1,161 @@
+"""Independent full computations of a constant for ``scan``: python-flint's Arb or gmpy2's MPFR.
+
+Neither uses a BBP-type formula, so a scan checks a file against a method that
+shares nothing with the digit-extraction engine.  Only certified digits are
+returned: Arb gives a ball, and the floor of ``x * base^n`` is taken only when
+the whole ball agrees on it; MPFR values are correctly rounded (within a few
+ulps for compound expressions), and the floor is taken only when ``x +- 8 ulp``
+agree.  When they do not, the precision grows and the computation repeats.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import time
+from collections.abc import Callable
+from functools import lru_cache
+
+from spotcheck.errors import UsageError
+
+__all__ = ["REFERENCES", "reference_digits", "estimate_reference", "available_memory"]
+
+REFERENCES = ("arb", "mpfr")
+
+# --- tuning -----------------------------------------------------------------
+GUARD_BITS = 64
+# Peak bytes per bit of working precision (several full-size temporaries):
+# an estimate from measurements on this project's machines, rounded up.
+BYTES_PER_BIT = 2.0
+# Bits used to time a small run before predicting a large one.
+CALIBRATION_BITS = 1 << 18
+# Share of available memory a scan may plan to use.
+MEMORY_SHARE = 0.7
+# ---------------------------------------------------------------------------
+
+
+def _arb_value(name: str) -> Callable[[], object]:
+    from flint import arb
+
+    table: dict[str, Callable[[], object]] = {
+        "pi": arb.pi,
+        "log2": arb.const_log2,
+        "log3": lambda: arb(3).log(),
+        "pi-squared": lambda: arb.pi() ** 2,
+        "catalan": arb.const_catalan,
+        "zeta3": lambda: arb(3).zeta(),
+        "arctan-half": lambda: (arb(1) / 2).atan(),
+    }
+    return table[name]
+
+
+def _mpfr_value(name: str) -> Callable[[], object]:
+    import gmpy2
+
+    table: dict[str, Callable[[], object]] = {
+        "pi": gmpy2.const_pi,
+        "log2": gmpy2.const_log2,
+        "log3": lambda: gmpy2.log(3),
+        "pi-squared": lambda: gmpy2.const_pi() ** 2,
+        "catalan": gmpy2.const_catalan,
+        "zeta3": lambda: gmpy2.zeta(3),
+        "arctan-half": lambda: gmpy2.atan(gmpy2.mpfr(1) / 2),
+    }
+    return table[name]
+
+
+def supported(constant: str) -> bool:
+    return constant in ("pi", "log2", "log3", "pi-squared", "catalan", "zeta3", "arctan-half")
+
+
+def _floor_scaled_arb(name: str, base: int, n: int, bits: int) -> int | None:
+    from flint import arb, ctx
+
+    old = ctx.prec
+    ctx.prec = bits
+    try:
+        x = _arb_value(name)()
+        y = (x * arb(base) ** n).floor()  # type: ignore[operator]
+        v = y.unique_fmpz()
+        return None if v is None else int(v)
+    finally:
+        ctx.prec = old
+
+
+def _floor_scaled_mpfr(name: str, base: int, n: int, bits: int) -> int | None:
+    import gmpy2
+
+    with gmpy2.context(precision=bits):
+        x = _mpfr_value(name)()
+        man, exp = x.as_mantissa_exp()  # type: ignore[attr-defined]
+    scale = gmpy2.mpz(base) ** n
+    lo, hi = (man - 8) * scale, (man + 8) * scale
+    if exp >= 0:
+        a, b = lo << exp, hi << exp
+    else:
+        a, b = lo >> -exp, hi >> -exp
+    return int(a) if a == b else None
+
+
+def reference_digits(constant: str, base: int, n: int, reference: str = "arb") -> tuple[str, str]:
+    """``(integer_part, digits)``: the first ``n`` certified digits after the point."""
+    if reference not in REFERENCES:
+        raise UsageError(f"unknown reference {reference!r} (choose from {', '.join(REFERENCES)})")
+    if not supported(constant):
+        raise UsageError(f"no independent full computation is available for {constant!r}")
+    bits = int(n * math.log2(base)) + GUARD_BITS
+    floor_scaled = _floor_scaled_arb if reference == "arb" else _floor_scaled_mpfr
+    while True:
+        v = floor_scaled(constant, base, n, bits)
+        if v is not None:
+            break
+        bits += 64
+    whole, frac = divmod(v, base**n)
+    if base == 16:
+        return format(whole, "X"), format(frac, "X").zfill(n)
+    import gmpy2  # Python's int -> str is quadratic and capped at 4,300 digits
+
+    return str(whole), gmpy2.mpz(frac).digits(10).zfill(n)
+
+
+@lru_cache(maxsize=32)
+def _calibrate(constant: str, reference: str) -> float:
+    """Seconds for one run at :data:`CALIBRATION_BITS`."""
+    floor_scaled = _floor_scaled_arb if reference == "arb" else _floor_scaled_mpfr
+    t0 = time.perf_counter()
+    floor_scaled(constant, 16, CALIBRATION_BITS // 4 - 16, CALIBRATION_BITS)
+    return max(time.perf_counter() - t0, 1e-4)
+
+
+def estimate_reference(constant: str, base: int, n: int, reference: str = "arb") -> tuple[float, int]:
+    """``(seconds, bytes)`` predicted for :func:`reference_digits`: a small timed run, scaled.
+
+    Time grows like ``b log(b)^2`` in the bit count ``b`` (fast multiplication
+    inside binary splitting); memory like :data:`BYTES_PER_BIT` per bit plus
+    the digit strings.
+    """
+    bits = int(n * math.log2(base)) + GUARD_BITS
+    t0 = _calibrate(constant, reference)
+    ratio = max(bits / CALIBRATION_BITS, 1.0)
+    seconds = t0 * ratio * (math.log2(max(bits, 2)) / math.log2(CALIBRATION_BITS)) ** 2
+    memory = int(BYTES_PER_BIT * bits) + 4 * n
+    return seconds, memory
+
+
+def available_memory() -> int:
+    """Bytes of memory available now (MemAvailable), or total physical memory."""
+    try:
+        with open("/proc/meminfo", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except OSError:
+        pass
+    try:
+        return os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    except (ValueError, OSError, AttributeError):
+        return 1 << 32
+
+
+def memory_budget() -> int:
+    return int(MEMORY_SHARE * available_memory())

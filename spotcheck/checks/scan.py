@@ -1,0 +1,165 @@
+"""``scan``: every digit of a file against an independent full computation."""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Iterator
+
+from spotcheck.digitfile import DigitFile
+from spotcheck.errors import UsageError
+
+from .common import Progress, integer_part_check, open_checked
+from .reference import REFERENCES, estimate_reference, memory_budget, reference_digits
+from .results import FileFacts, MismatchRun, ScanResult, WindowCheck
+
+__all__ = ["scan_file", "scan_open", "estimate_scan", "diff_runs", "merge_runs"]
+
+# --- tuning -----------------------------------------------------------------
+CHUNK_DIGITS = 1 << 20  # digits compared per step
+MERGE_GAP = 8  # coincidental matches inside a wrong stretch that are merged over
+MAX_RUNS_REPORTED = 100
+RUN_SAMPLE = 16  # expected/found digits kept per run
+# ---------------------------------------------------------------------------
+
+
+def estimate_scan(facts: FileFacts, reference: str = "arb") -> tuple[float, int]:
+    """``(seconds, bytes)`` a full scan of this file is expected to need."""
+    seconds, memory = estimate_reference(facts.constant, facts.base, facts.checked, reference)
+    # Reading and comparing: about 1 s per 50 M digits on a slow disk, and the
+    # file's digits held one chunk at a time.
+    return seconds + facts.checked / 50e6, memory + 2 * CHUNK_DIGITS
+
+
+def _differences(a: str, b: str, offset: int) -> Iterator[int]:
+    """Positions (``offset`` + index) where ``a`` and ``b`` differ; fast when they mostly agree."""
+    if a == b:
+        return
+    if len(a) <= 64:
+        for i, (x, y) in enumerate(zip(a, b)):
+            if x != y:
+                yield offset + i
+        return
+    half = len(a) // 2
+    yield from _differences(a[:half], b[:half], offset)
+    yield from _differences(a[half:], b[half:], offset + half)
+
+
+def diff_runs(expected: str, found: str, start: int) -> list[tuple[int, int]]:
+    """Maximal runs ``(first, last)`` of differing positions; ``start`` is the position of index 0."""
+    runs: list[tuple[int, int]] = []
+    for p in _differences(expected, found, start):
+        if runs and runs[-1][1] == p - 1:
+            runs[-1] = (runs[-1][0], p)
+        else:
+            runs.append((p, p))
+    return runs
+
+
+def merge_runs(runs: list[tuple[int, int, int]], gap: int = MERGE_GAP) -> list[tuple[int, int, int]]:
+    """Merge ``(first, last, wrong)`` runs across short gaps inside a long wrong stretch.
+
+    Two runs merge when the matching digits between them number at most
+    ``gap`` and fewer than the wrong digits of the longer of the two: in a
+    stretch of wrong digits about one in sixteen matches by chance, while two
+    separate single-digit flaws stay separate.
+    """
+    out: list[tuple[int, int, int]] = []
+    for first, last, wrong in runs:
+        if out:
+            pf, pl, pw = out[-1]
+            between = first - pl - 1
+            if between <= gap and between < max(pw, wrong):
+                out[-1] = (pf, last, pw + wrong)
+                continue
+        out.append((first, last, wrong))
+    return out
+
+
+def scan_open(
+    df: DigitFile,
+    facts: FileFacts,
+    *,
+    reference: str = "arb",
+    progress: Progress | None = None,
+    stop_at_first: bool = False,
+) -> ScanResult:
+    """Scan an already opened file (``locate`` reuses this)."""
+    if reference not in REFERENCES:
+        raise UsageError(f"unknown reference {reference!r} (choose from {', '.join(REFERENCES)})")
+    t0 = time.perf_counter()
+    seconds, memory = estimate_scan(facts, reference)
+    budget = memory_budget()
+    if memory > budget:
+        raise UsageError(
+            f"a full scan of {facts.checked:,} digits needs about {memory / 2**30:.1f} GiB of memory "
+            f"(available: {budget / 2**30:.1f} GiB); use `spotcheck verify` or `spotcheck locate` instead"
+        )
+    checks: list[WindowCheck] = []
+    ip = integer_part_check(facts)
+    if ip is not None:
+        checks.append(ip)
+    if progress:
+        progress(0, facts.checked)
+    _, ref = reference_digits(facts.constant, facts.base, facts.checked, reference)
+    raw: list[tuple[int, int, int]] = []
+    compared = 0
+    interrupted = False
+    try:
+        for pos, chunk in df.iter_chunks(CHUNK_DIGITS):
+            if pos > facts.checked:
+                break
+            chunk = chunk[: facts.checked - pos + 1]
+            expected = ref[pos - 1 : pos - 1 + len(chunk)]
+            for first, last in diff_runs(expected, chunk, pos):
+                if raw and raw[-1][1] == first - 1:  # a run across a chunk boundary
+                    raw[-1] = (raw[-1][0], last, raw[-1][2] + last - first + 1)
+                else:
+                    raw.append((first, last, last - first + 1))
+            compared = pos - 1 + len(chunk)
+            if progress:
+                progress(compared, facts.checked)
+            if stop_at_first and raw:
+                break
+    except KeyboardInterrupt:
+        interrupted = True
+    merged = merge_runs(raw)
+    runs = [
+        MismatchRun(
+            start=first,
+            length=last - first + 1,
+            wrong=wrong,
+            expected=ref[first - 1 : first - 1 + min(RUN_SAMPLE, last - first + 1)],
+            found=df.read(first, min(RUN_SAMPLE, last - first + 1)),
+        )
+        for first, last, wrong in merged[:MAX_RUNS_REPORTED]
+    ]
+    return ScanResult(
+        file=facts,
+        checks=checks,
+        method=f"full comparison with {reference}",
+        seconds=time.perf_counter() - t0,
+        evaluations=1,
+        interrupted=interrupted,
+        reference=reference,
+        digits_compared=compared,
+        wrong_digits=sum(w for _, _, w in raw),
+        runs=runs,
+        runs_total=len(merged),
+    )
+
+
+def scan_file(
+    path: str,
+    *,
+    base: int | None = None,
+    constant: str | None = None,
+    reference: str = "arb",
+    limit: int | None = None,
+    progress: Progress | None = None,
+) -> ScanResult:
+    """Compare every digit of the file with a full computation (Arb by default, or MPFR)."""
+    df, facts = open_checked(path, base=base, constant=constant, formula=None, limit=limit)
+    try:
+        return scan_open(df, facts, reference=reference, progress=progress)
+    finally:
+        df.close()

@@ -1,0 +1,253 @@
+"""Rendering of verify, locate, scan and inspect results: rich for people, JSON for pipelines."""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from spotcheck.checks.results import LocateResult, ScanResult, VerifyResult, WindowCheck
+from spotcheck.digitfile import InspectResult
+from spotcheck.report.console import (
+    STYLE_BAD,
+    STYLE_DIM,
+    STYLE_OK,
+    STYLE_WARN,
+    emit_json,
+    stdout_console,
+)
+
+CheckResult = VerifyResult | LocateResult | ScanResult
+
+# Characters of the one-line file map.
+MAP_UNCHECKED = "·"
+MAP_MATCH = "■"
+MAP_MISMATCH = "✗"
+MAP_DAMAGE = "━"
+MAP_FIRST = "▲"
+MAX_TABLE_ROWS = 40
+
+
+def result_payload(result: CheckResult, repeat: str) -> dict[str, Any]:
+    out = result.to_dict()
+    out["repeat"] = repeat
+    return out
+
+
+def _verdict_line(result: CheckResult) -> tuple[str, str]:
+    f = result.file
+    what = f"{f.constant} in base {f.base}, {f.checked:,} digits"
+    if f.checked != f.count:
+        what += f" of {f.count:,}"
+    if result.verdict == "mismatch":
+        if isinstance(result, LocateResult) and result.first_mismatch is not None:
+            return f"MISMATCH  first wrong digit at position {result.first_mismatch:,} ({what})", STYLE_BAD
+        if isinstance(result, ScanResult):
+            return (
+                f"MISMATCH  {result.wrong_digits:,} wrong digits in {result.runs_total:,} runs ({what})",
+                STYLE_BAD,
+            )
+        wrong = sum(not c.match for c in result.checks)
+        return f"MISMATCH  {wrong} of {len(result.checks)} checks differ ({what})", STYLE_BAD
+    if result.verdict == "incomplete":
+        return f"INCOMPLETE  interrupted; nothing wrong found so far ({what})", STYLE_WARN
+    if isinstance(result, ScanResult):
+        return f"MATCH  every one of {result.digits_compared:,} digits agrees ({what})", STYLE_OK
+    if isinstance(result, LocateResult):
+        return f"NO WRONG DIGIT FOUND  ({what})", STYLE_OK
+    return f"MATCH  all {len(result.checks)} checks agree with certified digits ({what})", STYLE_OK
+
+
+def file_map(result: CheckResult, width: int) -> tuple[str, list[tuple[int, int, str]]]:
+    """The file drawn as ``width`` cells: which parts were checked, matched, or are damaged.
+
+    Returns the line and ``(start, end, style)`` spans for colouring.
+    """
+    n = max(result.file.checked, 1)
+    cells = [MAP_UNCHECKED] * width
+    styles = [STYLE_DIM] * width
+
+    def cell(position: int) -> int:
+        return min(width - 1, max(0, (position - 1) * width // n))
+
+    damage_from: int | None = None
+    damage_to = n
+    if isinstance(result, LocateResult) and result.first_mismatch is not None:
+        damage_from = result.first_mismatch
+        if result.rest != "wrong":
+            damage_to = damage_from
+    if damage_from is not None:
+        for i in range(cell(damage_from), cell(damage_to) + 1):
+            cells[i], styles[i] = MAP_DAMAGE, STYLE_BAD
+    if isinstance(result, ScanResult):
+        if result.digits_compared:
+            for i in range(cell(1), cell(result.digits_compared) + 1):
+                cells[i], styles[i] = MAP_MATCH, STYLE_OK
+        for run in result.runs:
+            for i in range(cell(run.start), cell(run.start + run.length - 1) + 1):
+                cells[i], styles[i] = MAP_MISMATCH, STYLE_BAD
+    for c in result.checks:
+        if c.position < 1:
+            continue
+        # A hex window of a decimal file sits at about position * log10(16) in decimal digits.
+        i = cell(
+            c.position
+            if c.base == result.file.base
+            else round(c.position * math.log(c.base, result.file.base))
+        )
+        if not c.match:
+            cells[i], styles[i] = MAP_MISMATCH, STYLE_BAD
+        elif cells[i] != MAP_MISMATCH:
+            cells[i], styles[i] = MAP_MATCH, STYLE_OK
+    if damage_from is not None:
+        cells[cell(damage_from)], styles[cell(damage_from)] = MAP_FIRST, STYLE_BAD
+    spans: list[tuple[int, int, str]] = []
+    for i, st in enumerate(styles):
+        if spans and spans[-1][2] == st and spans[-1][1] == i:
+            spans[-1] = (spans[-1][0], i + 1, st)
+        else:
+            spans.append((i, i + 1, st))
+    return "".join(cells), spans
+
+
+def _meaning(result: CheckResult) -> list[str]:
+    lines: list[str] = []
+    if isinstance(result, VerifyResult):
+        w = result.window
+        if result.file.base == 10:
+            lines.append(
+                "Radix conversion: the whole decimal value was converted to hexadecimal; the hex digits it "
+                "determines were compared with certified engine digits, and the last decimal digits were "
+                "recomputed exactly."
+            )
+        tail = next((c for c in result.checks if c.kind == "tail"), None)
+        if tail is not None and tail.match:
+            lines.append(
+                f"Persistent-error model: the matching tail rules out any error before it that stayed wrong "
+                f"to the end (chance of an accidental match {result.false_match_chance:.1e}, 16^-{w})."
+            )
+        if result.scattered_bound is not None:
+            lines.append(
+                f"Scattered-damage model: {result.random_windows} clean random windows bound the damaged "
+                f"fraction below {result.scattered_bound:.2%} at 95% confidence."
+            )
+    elif isinstance(result, LocateResult):
+        lines.append(result.explanation[0].upper() + result.explanation[1:] + ".")
+        if result.first_mismatch is not None and result.expected:
+            lines.append(f"expected from {result.first_mismatch:,}: {result.expected}")
+            lines.append(f"found    from {result.first_mismatch:,}: {result.found}")
+    elif isinstance(result, ScanResult):
+        lines.append(f"Compared with an independent full computation ({result.reference}).")
+        if result.runs_total > len(result.runs):
+            lines.append(f"Showing the first {len(result.runs)} of {result.runs_total:,} runs.")
+    return lines
+
+
+def _row_result(c: WindowCheck) -> str:
+    if c.match:
+        return f"[{STYLE_OK}]match[/]"
+    return (
+        f"[{STYLE_BAD}]differs at {c.first_difference:,}[/]"
+        if c.first_difference
+        else f"[{STYLE_BAD}]differs[/]"
+    )
+
+
+def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool) -> None:
+    if as_json:
+        emit_json(result_payload(result, repeat))
+        return
+    if quiet:
+        return
+    from rich.table import Table
+    from rich.text import Text
+
+    con = stdout_console()
+    line, style = _verdict_line(result)
+    con.print(line, style=style)
+    f = result.file
+    con.print(
+        f"{f.path}: {f.size_bytes:,} bytes{', ' + f.compression if f.compression else ''}; "
+        f"constant {f.constant} ({f.constant_how}); method: {result.method}",
+        style=STYLE_DIM,
+    )
+    if isinstance(result, ScanResult) and result.runs:
+        table = Table(show_edge=False)
+        for col in ("start", "length", "wrong", "expected", "found"):
+            table.add_column(col)
+        for r in result.runs[:MAX_TABLE_ROWS]:
+            table.add_row(f"{r.start:,}", f"{r.length:,}", f"{r.wrong:,}", r.expected, r.found)
+        con.print(table)
+    elif result.checks:
+        table = Table(show_edge=False)
+        for col in ("check", "base", "position", "expected", "found", "result"):
+            table.add_column(col)
+        shown = result.checks
+        if len(shown) > MAX_TABLE_ROWS:
+            bad = [c for c in shown if not c.match]
+            shown = (bad + [c for c in shown if c.match])[:MAX_TABLE_ROWS]
+        for c in shown:
+            table.add_row(c.kind, str(c.base), f"{c.position:,}", c.expected, c.found, _row_result(c))
+        con.print(table)
+        if len(shown) < len(result.checks):
+            con.print(f"({len(result.checks) - len(shown)} more matching checks not shown)", style=STYLE_DIM)
+    width = max(20, min(con.width, 200) - 2)
+    cells, spans = file_map(result, width)
+    text = Text(cells)
+    for a, b, st in spans:
+        text.stylize(st, a, b)
+    con.print(
+        Text("1", style=STYLE_DIM)
+        + Text(" " * (width - 1 - len(f"{f.checked:,}")))
+        + Text(f"{f.checked:,}", style=STYLE_DIM)
+    )
+    con.print(text)
+    con.print(
+        f"{MAP_MATCH} checked, matches   {MAP_MISMATCH} differs   {MAP_DAMAGE} wrong   "
+        f"{MAP_FIRST} first wrong digit   {MAP_UNCHECKED} not checked",
+        style=STYLE_DIM,
+    )
+    for m in _meaning(result):
+        con.print(m)
+    con.print(f"{result.evaluations} evaluations in {result.seconds:.2f} s", style=STYLE_DIM)
+    con.print(f"repeat: {repeat}", style=STYLE_DIM)
+
+
+def show_inspect(result: InspectResult, *, as_json: bool) -> None:
+    if as_json:
+        emit_json(result.to_dict())
+        return
+    from rich.table import Table
+
+    lay = result.layout
+    layout_bits = [lay.kind]
+    if lay.line_width:
+        layout_bits.append(f"{lay.line_width} digits per line")
+    if lay.group_size:
+        layout_bits.append(f"groups of {lay.group_size}")
+    if lay.labels:
+        layout_bits.append(f"position labels at line {lay.labels}")
+    if lay.header_lines:
+        layout_bits.append(f"{lay.header_lines} header lines")
+    layout_bits.append(f"{lay.access} access")
+    table = Table(show_header=False, show_edge=False)
+    table.add_column(style="bold")
+    table.add_column()
+    rows = [
+        ("file", result.path),
+        ("size", f"{result.size_bytes:,} bytes"),
+        ("compression", result.compression or "none"),
+        ("base", f"{result.base} ({result.base_how})"),
+        ("constant", f"{result.constant or 'unknown'} ({result.constant_how})"),
+        ("integer part", result.integer_part if result.integer_part is not None else "none"),
+        ("digits after the point", f"{result.count:,}"),
+        ("layout", ", ".join(layout_bits)),
+        ("first digits", result.first_digits),
+        ("last digits", result.last_digits),
+    ]
+    for k, v in rows:
+        table.add_row(k, v)
+    con = stdout_console()
+    con.print(table)
+    for finding in result.findings:
+        where = f" (line {finding.line})" if finding.line else ""
+        con.print(f"finding: {finding.message}{where}", style=STYLE_WARN)
