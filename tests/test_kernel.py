@@ -32,7 +32,19 @@ LIMIT = 1 << 63
 
 
 def series_args(series: Series, big_d: int, k0: int, k1: int, words: int) -> tuple:
-    return (big_d, k0, k1, series.m, series.s, series.e, series.q, series.alternating, series.js, series.cs, words)
+    return (
+        big_d,
+        k0,
+        k1,
+        series.m,
+        series.s,
+        series.e,
+        series.q,
+        series.alternating,
+        series.js,
+        series.cs,
+        words,
+    )
 
 
 def assert_same(args: tuple) -> None:
@@ -146,7 +158,9 @@ def test_chosen_moduli_match_twin(args: tuple) -> None:
     st.integers(1, 16),
     st.booleans(),
 )
-def test_single_terms_any_modulus(big_d: int, moduli: list[int], cs: list[int], words: int, alt: bool) -> None:
+def test_single_terms_any_modulus(
+    big_d: int, moduli: list[int], cs: list[int], words: int, alt: bool
+) -> None:
     """k = 0 with m = 0, s = 1, e = 0: the moduli are exactly the j's, any size, odd or even."""
     args = (big_d, 0, 1, 0, 1, 0, 1, alt, moduli, cs[: len(moduli)], words)
     assert_same(args)
