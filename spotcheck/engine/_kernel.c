@@ -152,7 +152,7 @@ ALWAYS_INLINE uint64_t mont_one32(uint64_t n)
 ALWAYS_INLINE int64_t redc32(int64_t t, int64_t n, uint32_t ninv32)
 {
     uint32_t m = (uint32_t)t * ninv32;
-    return (t - (int64_t)m * n) >> 32; /* exact: the low half is zero */
+    return (t - (int64_t)m * n) >> 32; /* exact (low half zero); arithmetic shift */
 }
 
 ALWAYS_INLINE int bit_length(uint64_t x)
@@ -277,8 +277,29 @@ static void big_exponent_term(uint64_t n, uint64_t ep, int64_t c, int words, uin
     add_fraction(mont_mul(x, coeff_mod(c, n), n, ninv), n, ninv, words, acc);
 }
 
+/* acc += the words of frac(r_l / n_l) for L terms, where r_l = top[l] is the
+ * last remainder r_(W+1) (see the header).  Word by word from the least
+ * significant, the L terms' words summed in a register with a carry count. */
+ALWAYS_INLINE void add_fractions(const int L, uint64_t *top, const uint64_t *n, const uint64_t *ninv, int words,
+                                 uint64_t *acc)
+{
+    uint64_t carry = 0;
+    for (int idx = 0; idx < words; idx++) {
+        uint64_t sum = acc[idx] + carry, count = sum < carry;
+        for (int l = 0; l < L; l++) {
+            uint64_t w = 0 - top[l] * ninv[l];
+            top[l] = mul_hi(w, n[l]) + (top[l] != 0);
+            sum += w;
+            count += sum < w;
+        }
+        acc[idx] = sum;
+        carry = count; /* at most L + 1; dropped past the top word (mod 2^P) */
+    }
+}
+
 /* L terms at once: moduli n (odd), exponents f = E - v + 64*words, residues
- * cm = c mod n.  Left-to-right binary exponentiation of 2 in Montgomery form. */
+ * cm = c mod n.  Left-to-right binary exponentiation of 2 in Montgomery form;
+ * the result r_(W+1) = c 2^f mod n of each term goes to add_fractions. */
 ALWAYS_INLINE void run_lanes(const int L, const int step, const uint64_t *n, const uint64_t *f,
                              const uint64_t *cm, int words, uint64_t *acc)
 {
@@ -286,40 +307,44 @@ ALWAYS_INLINE void run_lanes(const int L, const int step, const uint64_t *n, con
     for (int l = 0; l < L; l++) {
         ninv[l] = inverse64(n[l]);
         nor |= n[l];
-        fmax |= f[l]; /* same top bit as the largest f */
-        if (step == STEP_NARROW)
-            continue;
-        x[l] = one[l] = mont_one(n[l]);
-        two[l] = dbl_mod(one[l], n[l]);
+        fmax = f[l] > fmax ? f[l] : fmax;
     }
     int top = bit_length(fmax) - 1; /* fmax >= 64 */
     if (step == STEP_NARROW && (nor >> 31) == 0) {
+        /* All n < 2^31.  One exponent g = max f for all lanes, so the bit
+         * test is shared; lane l's c 2^f = (c 2^g) 2^-(g - f) is recovered
+         * at the end, which needs g - f < 32. */
         int64_t y[MAX_LANES], sn[MAX_LANES];
+        int shared = 1;
         for (int l = 0; l < L; l++) {
-            y[l] = (int64_t)mont_one32(n[l]);
+            shared &= fmax - f[l] < 32;
             sn[l] = (int64_t)n[l];
-            if ((f[l] >> top) & 1)
+            y[l] = (int64_t)mont_one32(n[l]);
+            if ((fmax >> top) & 1)
                 y[l] = (int64_t)dbl_mod((uint64_t)y[l], n[l]);
         }
-        for (int b = top - 1; b >= 0; b--) {
-            for (int l = 0; l < L; l++) {
-                /* |y| < n < 2^31, so 0 <= y * 2y < n 2^32: double before reducing */
-                int64_t mask = 0 - (int64_t)((f[l] >> b) & 1);
-                y[l] = redc32(y[l] * (y[l] + (y[l] & mask)), sn[l], (uint32_t)ninv[l]);
+        if (shared) {
+            for (int b = top - 1; b >= 0; b--) {
+                int bit = (int)((fmax >> b) & 1);
+                for (int l = 0; l < L; l++) /* |y| < n < 2^31: 0 <= y (2y) < n 2^32 */
+                    y[l] = redc32(y[l] * (int64_t)((uint64_t)y[l] << bit), sn[l], (uint32_t)ninv[l]);
             }
+            for (int l = 0; l < L; l++) {
+                /* y = 2^(g + 32) mod n, so redc32(y cm) = c 2^g mod n */
+                int64_t r = redc32((y[l] < 0 ? y[l] + sn[l] : y[l]) * (int64_t)cm[l], sn[l], (uint32_t)ninv[l]);
+                uint64_t u = (uint64_t)(r < 0 ? r + sn[l] : r), t = fmax - f[l];
+                /* u 2^-t mod n = (u + m n) / 2^t with m = -u n^-1 mod 2^t; below 2n < 2^32 */
+                uint64_t m = (0 - u * ninv[l]) & (((uint64_t)1 << t) - 1);
+                u = (u + m * n[l]) >> t;
+                x[l] = u >= n[l] ? u - n[l] : u;
+            }
+            add_fractions(L, x, n, ninv, words, acc);
+            return;
         }
-        /* y = 2^(f + 32) mod n, so redc32(y * cm) = c 2^f mod n */
-        for (int l = 0; l < L; l++) {
-            int64_t r = redc32((y[l] < 0 ? y[l] + sn[l] : y[l]) * (int64_t)cm[l], sn[l], (uint32_t)ninv[l]);
-            add_fraction((uint64_t)(r < 0 ? r + sn[l] : r), n[l], ninv[l], words, acc);
-        }
-        return;
     }
     for (int l = 0; l < L; l++) {
-        if (step == STEP_NARROW) { /* some modulus is too wide for 32 bits */
-            x[l] = one[l] = mont_one(n[l]);
-            two[l] = dbl_mod(one[l], n[l]);
-        }
+        x[l] = one[l] = mont_one(n[l]);
+        two[l] = dbl_mod(one[l], n[l]);
         if ((f[l] >> top) & 1)
             x[l] = two[l];
     }
@@ -344,7 +369,8 @@ ALWAYS_INLINE void run_lanes(const int L, const int step, const uint64_t *n, con
         }
     }
     for (int l = 0; l < L; l++)
-        add_fraction(mont_mul(x[l], cm[l], n[l], ninv[l]), n[l], ninv[l], words, acc);
+        x[l] = mont_mul(x[l], cm[l], n[l], ninv[l]);
+    add_fractions(L, x, n, ninv, words, acc);
 }
 
 /* Walk the terms of the job, L at a time. */
@@ -383,7 +409,7 @@ ALWAYS_INLINE void run_job(const job_t *jb, uint64_t *acc, const int L, const in
     }
     for (int l = fill; l < L && fill; l++) { /* pad with n = 1: contributes 0 */
         n[l] = 1;
-        f[l] = extra;
+        f[l] = f[fill - 1];
         cm[l] = 0;
     }
     if (fill)
