@@ -15,6 +15,7 @@ __all__ = [
     "LABEL_START",
     "LABEL_END",
     "strip_labels",
+    "split_labels",
     "TO_UPPER",
 ]
 
@@ -28,8 +29,8 @@ TO_UPPER = bytes.maketrans(b"abcdef", b"ABCDEF")
 
 # A label is a decimal number set off from the digits by ':' or '|'.
 _SEP = rb"[ \t]*[:|][ \t]*"
-LABEL_START = re.compile(rb"^[ \t]*\d+" + _SEP, re.M)
-LABEL_END = re.compile(_SEP + rb"\d+[ \t]*(?=\r?$)", re.M)
+LABEL_START = re.compile(rb"^[ \t]*(\d+)" + _SEP, re.M)
+LABEL_END = re.compile(_SEP + rb"(\d+)[ \t]*(?=\r?$)", re.M)
 
 
 def digit_set(base: int) -> bytes:
@@ -51,11 +52,29 @@ def class_table(base: int) -> bytes:
     return bytes(table)
 
 
+# Whole-chunk twins of the two patterns.  Python's re engine scans fast for a
+# literal or a character-set prefix but tries ``^`` (multi-line) at every byte,
+# so the start pattern begins with the line break itself (the chunk gets one
+# prepended) and the end pattern with its separator; the blanks the end pattern
+# leaves before the separator are deleted with all other whitespace anyway.
+_START_BULK = re.compile(rb"\n[ \t]*(\d+)" + _SEP)
+_END_BULK = re.compile(rb"[:|][ \t]*(\d+)[ \t]*(?=\r?$)", re.M)
+
+
 def strip_labels(data: bytes, labels: str | None) -> bytes:
     """``data`` without its position labels (``data`` must start at a line start
     for start labels)."""
     if labels == "start":
-        return LABEL_START.sub(b"", data)
+        return _START_BULK.sub(b"\n", b"\n" + data)[1:]
     if labels == "end":
-        return LABEL_END.sub(b"", data)
+        return _END_BULK.sub(b"", data)
     return data
+
+
+def split_labels(data: bytes, labels: str) -> tuple[bytes, list[bytes]]:
+    """``(data without labels, the label numbers in order)`` in one regex pass."""
+    if labels == "start":
+        parts = _START_BULK.split(b"\n" + data)
+        return b"\n".join(parts[0::2])[1:], parts[1::2]
+    parts = _END_BULK.split(data)
+    return b"".join(parts[0::2]), parts[1::2]

@@ -24,6 +24,7 @@ from __future__ import annotations
 
 import os
 from array import array
+from itertools import accumulate
 from collections.abc import Callable
 from dataclasses import dataclass, field
 
@@ -35,6 +36,7 @@ from spotcheck.digitfile.charsets import (
     allowed_set,
     class_table,
     digit_set,
+    split_labels,
     strip_labels,
 )
 from spotcheck.digitfile.detect import Plan
@@ -288,32 +290,46 @@ def _scan_labelled(
             if cut == 0:
                 raise DigitFileError(f"{name}: a labelled line at byte {off} is longer than {CHUNK_BYTES} bytes")
             data = data[:cut]
-        cleaned = strip_labels(data, plan.labels)
+        cleaned, found = split_labels(data, plan.labels or "start")
         if cleaned.translate(None, allowed):
             _raise_labelled_stray(src, plan, base, data, off, rx, allowed)
-        lo = 0
-        for text in data.split(b"\n"):
-            m = rx.match(text) if start else rx.search(text)
-            if m:
-                body = text[m.end() :] if start else text[: m.start()]
+        fast = (
+            _labelled_chunk_fast(data, cleaned, found, off, pos, line, check.meaning, res)
+            if check.meaning
+            else None
+        )
+        if fast is not None:
+            pos, line = fast
+            last_index = res.index_off[-1] if res.index_off else last_index
+        else:
+            lo, decided = 0, check.meaning
+            for text in data.split(b"\n"):
+                m = rx.match(text) if start else rx.search(text)
+                if m:
+                    body = text[m.end() :] if start else text[: m.start()]
+                else:
+                    body = text
+                nd = len(body) - len(body.translate(None, digit_bytes))
+                if m:
+                    check.feed(int(m.group(1)), pos, nd, line, off + lo)
+                elif nd:
+                    check.no_label(line, off + lo, pos)
+                if nd:
+                    if off + lo - last_index >= INDEX_STEP:
+                        res.index_pos.append(pos + 1)
+                        res.index_off.append(off + lo)
+                        res.index_line.append(line)
+                        last_index = off + lo
+                    pos += nd
+                lo += len(text) + 1
+                line += 1
+                if decided is None and check.meaning is not None and lo < len(data):
+                    break  # the labels' meaning is known: the rest of the chunk can go fast
             else:
-                body = text
-            nd = len(body) - len(body.translate(None, digit_bytes))
-            if m:
-                label = int((m.group().strip(b" \t:|\r")))
-                check.feed(label, pos, nd, line, off + lo)
-            elif nd:
-                check.no_label(line, off + lo, pos)
-            if nd:
-                if off + lo - last_index >= INDEX_STEP:
-                    res.index_pos.append(pos + 1)
-                    res.index_off.append(off + lo)
-                    res.index_line.append(line)
-                    last_index = off + lo
-                pos += nd
-            lo += len(text) + 1
-            line += 1
-        line -= 1  # the piece after the chunk's last line break is not a line
+                line -= 1  # the piece after the chunk's last line break is not a line
+            if lo < len(data):
+                data = data[:lo]
+                cleaned = strip_labels(data, plan.labels)
         tail = (tail + cleaned.translate(None, WS)[-TAIL_DIGITS:])[-TAIL_DIGITS:]
         off += len(data)
         if progress:
@@ -322,6 +338,43 @@ def _scan_labelled(
     res.label_meaning = check.meaning
     res.count, res.last_digits, res.content_bytes = pos, tail, off
     return res
+
+
+def _labelled_chunk_fast(
+    data: bytes, cleaned: bytes, found: list[bytes], off: int, pos: int, line: int, meaning: str, res: ScanResult
+) -> tuple[int, int] | None:
+    """Check a chunk whose every line carries a label, with list-level operations only.
+
+    Returns the new ``(position count, line)``, or None when the chunk needs
+    the line-by-line loop (a line without label, or a label that disagrees:
+    that loop records the findings).
+    """
+    pieces = cleaned.translate(None, b" \t\r").split(b"\n")
+    raw = data.split(b"\n")
+    if data.endswith(b"\n"):
+        pieces.pop()
+        raw.pop()
+    if len(found) != len(pieces) or len(raw) != len(pieces) or not pieces:
+        return None
+    ends = list(accumulate(map(len, pieces), initial=pos))
+    if meaning == "before":
+        expected = ends[:-1]
+    elif meaning == "first":
+        expected = [e + 1 for e in ends[:-1]]
+    else:
+        expected = ends[1:]
+    if list(map(int, found)) != expected:
+        return None
+    n = len(pieces)
+    step = max(1, n * INDEX_STEP // max(1, len(data)))
+    start = off
+    for k in range(0, n, step):
+        if ends[k + 1] > ends[k]:
+            res.index_pos.append(ends[k] + 1)
+            res.index_off.append(start)
+            res.index_line.append(line + k)
+        start += sum(map(len, raw[k : k + step])) + len(raw[k : k + step])
+    return ends[-1], line + n
 
 
 def _raise_labelled_stray(
