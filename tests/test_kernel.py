@@ -61,6 +61,12 @@ def integer_root(x: int, s: int) -> int:
     return r
 
 
+def kernel_k_limit(series: Series) -> int:
+    """First k whose largest modulus reaches 2^63."""
+    root = integer_root((LIMIT - 1) // series.q, series.s)  # q * base^s < 2^63 iff base <= root
+    return (root - max(series.js)) // series.m + 1
+
+
 # --- the built-in formulas ---------------------------------------------------
 
 
@@ -68,7 +74,7 @@ def integer_root(x: int, s: int) -> int:
 def builtin_calls(draw: st.DrawFn) -> tuple:
     series = draw(st.sampled_from(SERIES))
     big_d = draw(st.one_of(st.integers(0, 300), st.integers(0, 10**9), st.integers(0, 2**45)))
-    head = big_d // series.e + 1
+    head = min(big_d // series.e + 1, kernel_k_limit(series))
     k1 = draw(st.integers(1, head))
     k0 = draw(st.integers(max(0, k1 - 48), k1 - 1))
     words = draw(st.integers(1, 16))
@@ -95,6 +101,18 @@ def test_every_builtin_series_whole_head(series: Series) -> None:
     assert want[1] > 0
     for lanes, step in VARIANTS:
         assert _kernel._head_sum_variant(*args, lanes, step) == want
+
+
+@pytest.mark.parametrize("series", SERIES, ids=SERIES_IDS)
+def test_every_builtin_series_at_the_modulus_limit(series: Series) -> None:
+    """The last k whose moduli stay below 2^63 runs; one more k is refused."""
+    k_limit = kernel_k_limit(series)
+    if backend.BACKEND == "c":
+        assert backend.kernel_k_limit(series) == k_limit
+    big_d = series.e * k_limit + 1000
+    assert_same(series_args(series, big_d, k_limit - 3, k_limit, 2))
+    with pytest.raises(OverflowError):
+        _kernel.head_sum(*series_args(series, big_d, k_limit - 3, k_limit + 1, 2))
 
 
 @settings(max_examples=60, deadline=None)
