@@ -126,12 +126,24 @@ def measure(path: str) -> None:
         read_ms = (time.perf_counter() - t1) / 200 * 1000
     peak = peak_rss()
     content = df.size_bytes
-    print(json.dumps({"seconds": seconds, "digits": n, "access": access, "bytes": content,
-                      "peak": peak, "read_ms": read_ms}))
+    print(
+        json.dumps(
+            {
+                "seconds": seconds,
+                "digits": n,
+                "access": access,
+                "bytes": content,
+                "peak": peak,
+                "read_ms": read_ms,
+            }
+        )
+    )
 
 
 def run_child(path: str) -> dict[str, float]:
-    out = subprocess.run([sys.executable, __file__, "--measure", path], check=True, capture_output=True, text=True)
+    out = subprocess.run(
+        [sys.executable, __file__, "--measure", path], check=True, capture_output=True, text=True
+    )
     return json.loads(out.stdout)
 
 

@@ -141,7 +141,9 @@ COMPRESSORS = {"gzip": gzip.compress, "bzip2": bz2.compress, "xz": lzma.compress
 
 def _cases() -> list[tuple[str, int, str]]:
     cases = [(name, base, "") for name in TEXT_BUILDERS for base in (16, 10)]
-    cases += [(name, 16, comp) for name in ("header_groups", "labels_end", "irregular") for comp in COMPRESSORS]
+    cases += [
+        (name, 16, comp) for name in ("header_groups", "labels_end", "irregular") for comp in COMPRESSORS
+    ]
     cases += [("point_lines", 10, "gzip")]
     return cases
 
@@ -160,7 +162,9 @@ def small_steps():
 
 
 @pytest.fixture(scope="module")
-def files(tmp_path_factory: pytest.TempPathFactory) -> dict[tuple[str, int, str], tuple[Path, str, str | None]]:
+def files(
+    tmp_path_factory: pytest.TempPathFactory,
+) -> dict[tuple[str, int, str], tuple[Path, str, str | None]]:
     root = tmp_path_factory.mktemp("layouts")
     out = {}
     for name, base, comp in CASES:
@@ -224,9 +228,21 @@ def test_single_digit_and_locate(key, files, opened, p):
 
 def test_layout_facts(opened):
     lay = opened[("header_groups", 16, "")].layout
-    assert (lay.kind, lay.line_width, lay.group_size, lay.header_lines, lay.access) == ("text", 100, 10, 3, "regular")
+    assert (lay.kind, lay.line_width, lay.group_size, lay.header_lines, lay.access) == (
+        "text",
+        100,
+        10,
+        3,
+        "regular",
+    )
     lay = opened[("preamble_crlf_lower", 16, "")].layout
-    assert (lay.newline, lay.letter_case, lay.line_width, lay.group_size, lay.header_lines) == ("\r\n", "lower", 50, 5, 2)
+    assert (lay.newline, lay.letter_case, lay.line_width, lay.group_size, lay.header_lines) == (
+        "\r\n",
+        "lower",
+        50,
+        5,
+        2,
+    )
     lay = opened[("labels_start", 10, "")].layout
     assert (lay.labels, lay.label_meaning, lay.line_width, lay.access) == ("start", "before", 50, "indexed")
     assert opened[("labels_start_unpadded", 16, "")].layout.label_meaning == "first"
@@ -242,9 +258,13 @@ def test_layout_facts(opened):
 @pytest.mark.parametrize("key", [("irregular", 16, "xz"), ("labels_start", 16, ""), ("point_lines", 10, "")])
 def test_iter_chunks_streams_everything(key, files, opened):
     _, truth, _ = files[key]
-    got = list(opened[key].iter_chunks(chunk_digits=777, start=5))
+    df = opened[key]
+    df.read(1, 10)  # stand at the start
+    restarts = getattr(df._src, "restarts", 0)
+    got = list(df.iter_chunks(chunk_digits=777, start=5))
     assert got[0][0] == 5 and got[1][0] == 5 + 777
     assert "".join(d for _, d in got) == truth[4:]
+    assert getattr(df._src, "restarts", 0) - restarts <= 1  # streamed, not re-decompressed per chunk
 
 
 # --- packed binary hex --------------------------------------------------------

@@ -16,7 +16,6 @@ __all__ = [
     "LABEL_END",
     "strip_labels",
     "split_labels",
-    "TO_UPPER",
 ]
 
 DEC = b"0123456789"
@@ -24,8 +23,6 @@ HEX = b"0123456789ABCDEFabcdef"
 HEX_LETTERS = b"ABCDEFabcdef"
 WS = b" \t\r\n"
 """Whitespace allowed between digits: spaces and tabs group, CR/LF end lines."""
-
-TO_UPPER = bytes.maketrans(b"abcdef", b"ABCDEF")
 
 # A label is a decimal number set off from the digits by ':' or '|'.
 _SEP = rb"[ \t]*[:|][ \t]*"

@@ -123,7 +123,9 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None) -> Plan:
     """
     name = os.path.basename(path)
     if not head.strip():
-        raise DigitFileError(f"{name}: the file is empty" if not head else f"{name}: the file holds only whitespace")
+        raise DigitFileError(
+            f"{name}: the file is empty" if not head else f"{name}: the file holds only whitespace"
+        )
     start = 3 if head.startswith(b"\xef\xbb\xbf") else 0  # UTF-8 byte-order mark
     complete = head if eof else head[: head.rfind(b"\n") + 1]
     # Split into lines with their offsets.
@@ -181,11 +183,17 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None) -> Plan:
         seg = head[digits_offset:body_end]
     else:
         if labels is not None:
-            raise DigitFileError(f"{name}: labelled lines longer than {MAX_FIRST_LINE} bytes are not supported")
+            raise DigitFileError(
+                f"{name}: labelled lines longer than {MAX_FIRST_LINE} bytes are not supported"
+            )
         seg_end = digits_offset
         seg = b""
     # Digits sample for the base decision and the constant guess.
-    region = head[digits_offset:] if (eof or labels is None) else head[digits_offset : max(len(complete), digits_offset)]
+    region = (
+        head[digits_offset:]
+        if (eof or labels is None)
+        else head[digits_offset : max(len(complete), digits_offset)]
+    )
     cleaned = strip_labels(region, labels).translate(None, WS)
     m = re.compile(rb"[0-9A-Fa-f]*").match(cleaned)
     sample = m.group() if m else b""
@@ -263,7 +271,9 @@ def _first_of(data: bytes, chars: bytes) -> int:
     return min((i for i in (data.find(bytes([c])) for c in chars) if i >= 0), default=0)
 
 
-def _template(head: bytes, seg_end: int, digits_offset: int, eof: bool, base: int, newline: str | None) -> bytes:
+def _template(
+    head: bytes, seg_end: int, digits_offset: int, eof: bool, base: int, newline: str | None
+) -> bytes:
     """Classes of the repeating unit that the rest of the file should follow."""
     table = class_table(base)
     if seg_end > digits_offset:

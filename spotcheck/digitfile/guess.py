@@ -43,9 +43,7 @@ def compare_with(name: str, base: int, head: str, integer_part: str | None) -> t
     return _common(head.upper(), ref), integer_part is None or integer_part == ip
 
 
-def guess_constant(
-    head: str, integer_part: str | None, base: int, count: int
-) -> tuple[str | None, str, int]:
+def guess_constant(head: str, integer_part: str | None, base: int, count: int) -> tuple[str | None, str, int]:
     """``(name or None, sentence saying how, digits that matched)``."""
     head = head.upper()
     need = min(MIN_MATCH, count, len(head))
@@ -59,10 +57,14 @@ def guess_constant(
             best = (matched, name)
     if best is None:
         shown = head[:16] + ("..." if len(head) > 16 else "")
-        return None, (
-            f"no known constant starts with the file's leading digits {shown} in base {base}; "
-            "name the constant explicitly to check this file"
-        ), 0
+        return (
+            None,
+            (
+                f"no known constant starts with the file's leading digits {shown} in base {base}; "
+                "name the constant explicitly to check this file"
+            ),
+            0,
+        )
     matched, name = best
     return name, _how(name, head, integer_part, matched, count, "guessed"), matched
 
@@ -71,7 +73,11 @@ def _how(name: str, head: str, integer_part: str | None, matched: int, count: in
     shown = head[:matched][:16] + ("..." if matched > 16 else "")
     ip = f"integer part {integer_part} and " if integer_part is not None else ""
     if matched == len(head):
-        what = f"all {matched} digits of the file" if matched == count else f"the first {matched} digits after the point"
+        what = (
+            f"all {matched} digits of the file"
+            if matched == count
+            else f"the first {matched} digits after the point"
+        )
     else:
         what = f"the first {matched} of its {len(head)} leading digits (digit {matched + 1} differs)"
     return f"{verb} {name}: {ip}{what} ({shown}) match its certified leading digits"

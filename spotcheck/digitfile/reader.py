@@ -19,7 +19,7 @@ import re
 from collections.abc import Iterator
 from types import TracebackType
 
-from spotcheck.digitfile.charsets import LABEL_END, LABEL_START, TO_UPPER, WS, strip_labels
+from spotcheck.digitfile.charsets import LABEL_END, LABEL_START, WS, strip_labels
 from spotcheck.digitfile.detect import HEAD_BYTES, PACKED_SUFFIXES, Plan, detect_text, looks_binary
 from spotcheck.digitfile.guess import explicit_constant, guess_constant
 from spotcheck.digitfile.model import Finding, InspectResult, Layout
@@ -53,6 +53,8 @@ class DigitFile:
         self._plan: Plan | None = None
         self._scan: ScanResult | None = None
         self._packed = False
+        self._first = ""  # leading and trailing digits seen by the pass (inspect needs no re-read)
+        self._last = ""
 
     # -- reading -------------------------------------------------------------
     def read(self, position: int, count: int) -> str:
@@ -73,7 +75,9 @@ class DigitFile:
         else:
             out = self._read_text(src, p, n)
         if len(out) != n:
-            raise DigitFileError(f"{self.path}: expected {n} digits at position {p}, found {len(out)}; was it changed?")
+            raise DigitFileError(
+                f"{self.path}: expected {n} digits at position {p}, found {len(out)}; was it changed?"
+            )
         return out
 
     def iter_chunks(self, chunk_digits: int = 1 << 20, start: int = 1) -> Iterator[tuple[int, str]]:
@@ -202,8 +206,9 @@ class DigitFile:
             integer_part=self.integer_part,
             count=self.count,
             layout=self.layout,
-            first_digits=self.read(1, EDGE_DIGITS),
-            last_digits=self.read(max(1, self.count - EDGE_DIGITS + 1), EDGE_DIGITS),
+            first_digits=self._first[:EDGE_DIGITS] or self.read(1, EDGE_DIGITS),
+            last_digits=self._last[-EDGE_DIGITS:]
+            or self.read(max(1, self.count - EDGE_DIGITS + 1), EDGE_DIGITS),
             findings=list(self.findings),
         )
 
@@ -292,6 +297,8 @@ def _open(
     scan = scan_text(src, plan, plan.base, strict_labels=strict_labels, progress=progress)
     src.check_unchanged()
     df._plan, df._scan = plan, scan
+    df._first = plan.head_digits.decode("ascii").upper()
+    df._last = scan.last_digits.decode("ascii").upper()
     df.base, df.base_how, df.count, df.integer_part = plan.base, plan.base_how, scan.count, plan.integer_part
     if df.count == 0:
         raise DigitFileError(f"{name}: no digits after the radix point")
@@ -392,7 +399,12 @@ def _text_layout(src: ByteSource, plan: Plan, scan: ScanResult) -> Layout:
 
 
 def _open_packed(
-    df: DigitFile, src: ByteSource, head: bytes, base: int | None, constant: str | None, progress: Progress | None
+    df: DigitFile,
+    src: ByteSource,
+    head: bytes,
+    base: int | None,
+    constant: str | None,
+    progress: Progress | None,
 ) -> DigitFile:
     name = os.path.basename(src.path)
     if base == 10:
@@ -401,14 +413,17 @@ def _open_packed(
     if src.compression is None:
         size = src.size_bytes
     else:
-        size = 0
+        size, tail = 0, b""
         while data := src.read_at(size, CHUNK_BYTES):
             size += len(data)
+            tail = (tail + data)[-EDGE_DIGITS:]
             if progress:
                 progress(size, None)
+        df._last = tail.hex().upper()
     src.check_unchanged()
     df.base, df.base_how = 16, "packed binary: two hex digits per byte"
     df.count, df.integer_part, df.findings = 2 * size, None, []
+    df._first = head[:EDGE_DIGITS].hex().upper()
     df.layout = Layout(kind="packed", access="regular")
     _decide_constant(df, head[:32].hex().upper(), constant)
     return df

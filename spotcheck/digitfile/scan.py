@@ -24,9 +24,9 @@ from __future__ import annotations
 
 import os
 from array import array
-from itertools import accumulate
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from itertools import accumulate
 
 from spotcheck.digitfile.charsets import (
     HEX_LETTERS,
@@ -147,10 +147,7 @@ class _LabelCheck:
     def mismatch(self, label: int, before: int, nd: int, line: int, offset: int) -> None:
         assert self.meaning is not None
         want = self.expect(self.meaning, before, nd)
-        msg = (
-            f"line {line}: label {label} disagrees with the digits: "
-            f"{self.EXPLAIN[self.meaning]} is {want}"
-        )
+        msg = f"line {line}: label {label} disagrees with the digits: {self.EXPLAIN[self.meaning]} is {want}"
         if self.strict:
             raise DigitFileError(f"{self.name}: labels that lie: {msg}")
         self.mismatches += 1
@@ -162,7 +159,9 @@ class _LabelCheck:
         self.missing += 1
         if self.missing <= MAX_FINDINGS:
             msg = f"line {line} has no position label, unlike the lines around it"
-            self.findings.append(Finding("label-missing", msg, line=line, byte_offset=offset, position=before + 1))
+            self.findings.append(
+                Finding("label-missing", msg, line=line, byte_offset=offset, position=before + 1)
+            )
 
     def finish(self) -> list[Finding]:
         if self.meaning is None and self.pending:
@@ -170,8 +169,11 @@ class _LabelCheck:
         out = list(self.findings)
         if self.mismatches > MAX_FINDINGS:
             out.append(
-                Finding("label-mismatch", f"{self.mismatches} labels disagree with the digits in all; "
-                        f"the first {MAX_FINDINGS} are listed")
+                Finding(
+                    "label-mismatch",
+                    f"{self.mismatches} labels disagree with the digits in all; "
+                    f"the first {MAX_FINDINGS} are listed",
+                )
             )
         if self.missing > MAX_FINDINGS:
             out.append(Finding("label-missing", f"{self.missing} digit lines have no label in all"))
@@ -185,7 +187,9 @@ def scan_text(
     total = src.size_bytes if src.compression is None else None
     d1 = len(plan.seg_digits)
     tail = plan.seg_digits[-TAIL_DIGITS:]
-    res = ScanResult(count=d1, regular=False, unit=None, unit_digits=0, unit_cols=[], region_start=plan.seg_end)
+    res = ScanResult(
+        count=d1, regular=False, unit=None, unit_digits=0, unit_cols=[], region_start=plan.seg_end
+    )
     name = os.path.basename(src.path)
     if plan.labels is not None:
         return _scan_labelled(src, plan, base, res, tail, strict_labels, progress, total, name)
@@ -215,7 +219,9 @@ def scan_text(
                 if body == units[: len(body)]:
                     full, rest = divmod(len(body), p)
                     pos += full * width + unit[:rest].count(b"d")
-                    tail = (tail + (prev[-(2 * p + 4 * TAIL_DIGITS) :] + data).translate(None, WS))[-TAIL_DIGITS:]
+                    tail = (tail + (prev[-(2 * p + 4 * TAIL_DIGITS) :] + data).translate(None, WS))[
+                        -TAIL_DIGITS:
+                    ]
                     res.count, res.regular, res.unit, res.unit_digits = pos, True, unit, width
                     res.unit_cols = [i for i, c in enumerate(unit) if c == ord("d")]
                     res.last_digits, res.content_bytes = tail, off + len(data)
@@ -288,7 +294,9 @@ def _scan_labelled(
         if len(data) == CHUNK_BYTES:
             cut = data.rfind(b"\n") + 1
             if cut == 0:
-                raise DigitFileError(f"{name}: a labelled line at byte {off} is longer than {CHUNK_BYTES} bytes")
+                raise DigitFileError(
+                    f"{name}: a labelled line at byte {off} is longer than {CHUNK_BYTES} bytes"
+                )
             data = data[:cut]
         cleaned, found = split_labels(data, plan.labels or "start")
         if cleaned.translate(None, allowed):
@@ -341,7 +349,14 @@ def _scan_labelled(
 
 
 def _labelled_chunk_fast(
-    data: bytes, cleaned: bytes, found: list[bytes], off: int, pos: int, line: int, meaning: str, res: ScanResult
+    data: bytes,
+    cleaned: bytes,
+    found: list[bytes],
+    off: int,
+    pos: int,
+    line: int,
+    meaning: str,
+    res: ScanResult,
 ) -> tuple[int, int] | None:
     """Check a chunk whose every line carries a label, with list-level operations only.
 

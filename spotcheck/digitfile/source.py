@@ -6,8 +6,9 @@ any byte range costs one system call and memory stays bounded by the request.
 A :class:`CompressedSource` streams gzip, bzip2 or xz content (recognised by
 magic bytes, not by name).  Offsets are offsets in the *decompressed* content.
 There is no random access without a pass: a read at or after the current
-decompressor position continues forward (skipping what lies between), and a
-read before it restarts decompression from the beginning of the file.  Callers
+decompressor position continues forward (skipping what lies between), a read
+overlapping the previous window is served from it, and any other read before
+the current position restarts decompression from the beginning of the file.  Callers
 that read many windows should therefore read them in increasing order; the
 reader's ``iter_chunks`` does.  (We keep no decompressor checkpoints.)
 
@@ -21,6 +22,7 @@ from __future__ import annotations
 import bz2
 import errno
 import gzip
+import io
 import lzma
 import os
 import stat
@@ -40,7 +42,7 @@ _MAGIC = (
     (b"BZh", "bzip2"),
     (b"\xfd7zXZ\x00", "xz"),
 )
-_OPENERS: dict[str, Callable[[IO[bytes]], IO[bytes]]] = {
+_OPENERS: dict[str, Callable[[IO[bytes]], io.BufferedIOBase]] = {
     "gzip": lambda raw: gzip.GzipFile(fileobj=raw, mode="rb"),
     "bzip2": lambda raw: bz2.BZ2File(raw, mode="rb"),
     "xz": lambda raw: lzma.LZMAFile(raw, mode="rb"),
@@ -115,21 +117,24 @@ class CompressedSource:
 
     def __init__(self, path: str, fd: int, st: os.stat_result, compression: str) -> None:
         self.path = path
-        self.compression = compression
+        self.compression: str | None = compression
         self.size_bytes = st.st_size
         self._mtime = st.st_mtime_ns
         self._fd = fd
         self._raw: IO[bytes] | None = None
-        self._stream: IO[bytes] | None = None
+        self._stream: io.BufferedIOBase | None = None
         self._pos = 0
         self.restarts = 0
+        self._last: tuple[int, bytes] = (0, b"")
+        """The previous window: reads that overlap it do not restart the decompressor."""
 
     def _restart(self) -> None:
         self._close_stream()
         self._raw = os.fdopen(os.dup(self._fd), "rb")
         self._raw.seek(0)
-        self._stream = _OPENERS[self.compression](self._raw)
+        self._stream = _OPENERS[self.compression or ""](self._raw)
         self._pos = 0
+        self._last = (0, b"")
         self.restarts += 1
 
     def _read(self, n: int) -> bytes:
@@ -148,12 +153,22 @@ class CompressedSource:
     def read_at(self, offset: int, n: int) -> bytes:
         if n <= 0:
             return b""
-        if self._stream is None or offset < self._pos:
-            self._restart()
-        while self._pos < offset:
-            if not self._read(min(SKIP_BYTES, offset - self._pos)):
-                return b""
-        return self._read(n)
+        last_off, last = self._last
+        if last_off <= offset < last_off + len(last) and self._pos == last_off + len(last):
+            # Overlaps the previous window, which ends where the decompressor stands.
+            data = last[offset - last_off : offset - last_off + n]
+            if len(data) < n:
+                data += self._read(n - len(data))
+        else:
+            if self._stream is None or offset < self._pos:
+                self._restart()
+            while self._pos < offset:
+                if not self._read(min(SKIP_BYTES, offset - self._pos)):
+                    return b""
+            data = self._read(n)
+        if offset + len(data) == self._pos:
+            self._last = (offset, data)
+        return data
 
     def check_unchanged(self) -> None:
         _check_same(self.path, os.fstat(self._fd), self.size_bytes, self._mtime)
