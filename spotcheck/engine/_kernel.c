@@ -118,8 +118,10 @@ ALWAYS_INLINE uint64_t dbl_mod(uint64_t a, uint64_t n)
 }
 
 /* 2^64 mod n for odd n < 2^63 (the Montgomery form of 1).  A double
- * reciprocal gives the quotient to within one when it is below 2^52, i.e.
- * n > 2^12; smaller n use the integer divider. */
+ * reciprocal gives the quotient q to within one when it is below 2^52, i.e.
+ * n > 2^12; smaller n use the integer divider.  The signed remainder stays in
+ * range: an estimate q + 1 gives r - n >= -n, and q - 1 only happens when
+ * 2^64 / n lies within q 2^-51 of q, i.e. r is tiny and r + n < 2^63. */
 ALWAYS_INLINE uint64_t mont_one(uint64_t n)
 {
     if (n < 8192)
@@ -379,6 +381,8 @@ ALWAYS_INLINE void run_job(const job_t *jb, uint64_t *acc, const int L, const in
     uint64_t n[MAX_LANES], f[MAX_LANES], cm[MAX_LANES];
     const uint64_t extra = 64 * (uint64_t)jb->words;
     int fill = 0;
+    if (jb->npairs == 0)
+        return;
     for (uint64_t k = jb->k0; k < jb->k1; k++) {
         uint64_t E = jb->D - jb->e * k;
         int negate = jb->alternating && (k & 1);
