@@ -16,8 +16,9 @@ random-access structure) in bounded memory; afterwards ``read(position,
 count)`` is O(1) arithmetic for a regular layout and a sparse-index lookup
 plus at most ``INDEX_STEP`` bytes of parsing for any other.  Compressed
 content has no random access without a pass: reads move forward through the
-decompressor and a read before the current point restarts it from the start,
-so read positions in increasing order (``iter_chunks`` does).
+decompressor; a read before the current point resumes gzip from the nearest
+checkpoint the pass kept (every 16 MiB of content) and restarts bzip2 and xz
+from the start, so read positions in increasing order (``iter_chunks`` does).
 
 Positions follow the package convention: digit 1 is the first after the point.
 """

@@ -6,9 +6,12 @@ any byte range costs one system call and memory stays bounded by the request.
 A :class:`CompressedSource` streams gzip, bzip2 or xz content (recognised by
 magic bytes, not by name).  Offsets are offsets in the *decompressed* content.
 There is no random access without a pass: a read at or after the current
-decompressor position continues forward (skipping what lies between), a read
-overlapping the previous window is served from it, and any other read before
-the current position restarts decompression from the beginning of the file.  Callers
+decompressor position continues forward (skipping what lies between), and a
+read overlapping the previous window is served from it.  Any other read before
+the current position costs, for gzip, a resume from the nearest decompressor
+checkpoint kept by the first pass (at most ``gzipseek.CHECKPOINT_BYTES`` of
+decompression, see :mod:`spotcheck.digitfile.gzipseek`); for bzip2 and xz,
+whose decompressors cannot be copied, a restart from the beginning of the file.  Callers
 that read many windows should therefore read them in increasing order; the
 reader's ``iter_chunks`` does.  (We keep no decompressor checkpoints.)
 
@@ -27,9 +30,11 @@ import lzma
 import os
 import stat
 import zlib
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from typing import IO, Protocol
 
+from spotcheck.digitfile.gzipseek import GzipSeeker, TruncatedError
 from spotcheck.errors import DigitFileError, FileAccessError
 
 __all__ = ["ByteSource", "PlainSource", "CompressedSource", "open_source", "detect_compression"]
@@ -124,7 +129,8 @@ class CompressedSource:
         self._raw: IO[bytes] | None = None
         self._stream: io.BufferedIOBase | None = None
         self._pos = 0
-        self.restarts = 0
+        self._restarts = 0
+        self._gz = GzipSeeker(fd, self.size_bytes) if compression == "gzip" else None
         self._last: tuple[int, bytes] = (0, b"")
         """The previous window: reads that overlap it do not restart the decompressor."""
 
@@ -135,20 +141,47 @@ class CompressedSource:
         self._stream = _OPENERS[self.compression or ""](self._raw)
         self._pos = 0
         self._last = (0, b"")
-        self.restarts += 1
+        self._restarts += 1
 
-    def _read(self, n: int) -> bytes:
-        assert self._stream is not None
+    @property
+    def restarts(self) -> int:
+        """How often a read went back to the start or to a checkpoint (for tests and benchmarks)."""
+        return self._restarts + (self._gz.restores if self._gz is not None else 0)
+
+    @contextmanager
+    def _decoding(self) -> Iterator[None]:
+        """Turn the decompressors' exceptions into one-line :class:`DigitFileError`."""
         try:
-            data = self._stream.read(n)
-        except EOFError:
+            yield
+        except (EOFError, TruncatedError):
             raise DigitFileError(
                 f"{self.path}: the {self.compression} stream is truncated (it ends before its end marker)"
             ) from None
         except (OSError, zlib.error, lzma.LZMAError, ValueError) as exc:
             raise DigitFileError(f"{self.path}: corrupt {self.compression} data ({exc})") from None
+
+    def _read(self, n: int) -> bytes:
+        with self._decoding():
+            if self._gz is not None:
+                data = self._gz.read(n)
+                self._pos = self._gz.pos
+                return data
+            assert self._stream is not None
+            data = self._stream.read(n)
         self._pos += len(data)
         return data
+
+    def _seek(self, offset: int) -> None:
+        if self._gz is not None:
+            with self._decoding():
+                self._gz.seek(offset)
+            self._pos = self._gz.pos
+            return
+        if self._stream is None or offset < self._pos:
+            self._restart()
+        while self._pos < offset:
+            if not self._read(min(SKIP_BYTES, offset - self._pos)):
+                return
 
     def read_at(self, offset: int, n: int) -> bytes:
         if n <= 0:
@@ -160,11 +193,9 @@ class CompressedSource:
             if len(data) < n:
                 data += self._read(n - len(data))
         else:
-            if self._stream is None or offset < self._pos:
-                self._restart()
-            while self._pos < offset:
-                if not self._read(min(SKIP_BYTES, offset - self._pos)):
-                    return b""
+            self._seek(offset)
+            if self._pos < offset:
+                return b""
             data = self._read(n)
         if offset + len(data) == self._pos:
             self._last = (offset, data)
