@@ -373,3 +373,17 @@ class scan_module_defaults:
 
     def __exit__(self, *exc):
         self.mp.undo()
+
+
+@pytest.mark.parametrize(
+    "key", [("irregular", 16, ""), ("labels_end", 16, "gzip"), ("irregular", 16, "bzip2")]
+)
+def test_progress_counts_stored_bytes(key, files):
+    path, truth, _ = files[key]
+    calls: list[tuple[int, int]] = []
+    with open_digit_file(path, progress=lambda done, total: calls.append((done, total))) as df:
+        assert df.count == len(truth)
+    size = path.stat().st_size
+    assert calls and all(total == size for _, total in calls)
+    assert [d for d, _ in calls] == sorted(d for d, _ in calls)
+    assert calls[-1][0] <= size and calls[-1][0] >= size * 0.5

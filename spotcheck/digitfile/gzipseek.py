@@ -52,6 +52,11 @@ class GzipSeeker:
         self.pos = 0  # decompressed offset of the next byte delivered
         self._done = False
 
+    @property
+    def consumed(self) -> int:
+        """Compressed bytes read from the file so far."""
+        return self._cin
+
     def _produced(self) -> int:
         return self.pos + len(self._pending) - self._at
 

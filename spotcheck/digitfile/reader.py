@@ -418,7 +418,7 @@ def _open_packed(
             size += len(data)
             tail = (tail + data)[-EDGE_DIGITS:]
             if progress:
-                progress(size, None)
+                progress(src.stored_bytes_done(size), src.size_bytes)
         df._last = tail.hex().upper()
     src.check_unchanged()
     df.base, df.base_how = 16, "packed binary: two hex digits per byte"

@@ -53,9 +53,9 @@ TAIL_DIGITS = 64  # last digits kept for inspect
 MAX_FINDINGS = 20  # findings of one kind kept in full; the rest are counted
 LABEL_VOTES = 4  # labels used to decide what labels count
 
-Progress = Callable[[int, int | None], None]
-"""``progress(done_bytes, total_bytes_or_None)``; total is None while a
-compressed file's content size is unknown."""
+Progress = Callable[[int, int], None]
+"""``progress(done, total)`` in bytes of the file as stored: for a compressed
+file, the compressed bytes consumed so far out of the file's size."""
 
 
 @dataclass
@@ -184,7 +184,7 @@ def scan_text(
     src: ByteSource, plan: Plan, base: int, *, strict_labels: bool = False, progress: Progress | None = None
 ) -> ScanResult:
     """Run the pass from ``plan.seg_end`` to the end of the content."""
-    total = src.size_bytes if src.compression is None else None
+    total = src.size_bytes
     d1 = len(plan.seg_digits)
     tail = plan.seg_digits[-TAIL_DIGITS:]
     res = ScanResult(
@@ -211,7 +211,7 @@ def scan_text(
                 off += n
                 prev = data
                 if progress:
-                    progress(off, total)
+                    progress(src.stored_bytes_done(off), total)
                 continue
             if len(data) < n:
                 classes = data.translate(table)
@@ -226,7 +226,7 @@ def scan_text(
                     res.unit_cols = [i for i, c in enumerate(unit) if c == ord("d")]
                     res.last_digits, res.content_bytes = tail, off + len(data)
                     if progress:
-                        progress(off + len(data), total)
+                        progress(src.stored_bytes_done(off + len(data)), total)
                     return res
             # The pattern breaks in this chunk: index what was regular, then go on indexed.
             units_done = (off - plan.seg_end) // p
@@ -261,7 +261,7 @@ def scan_text(
             line += blk.count(b"\n")
         off += len(data)
         if progress:
-            progress(off, total)
+            progress(src.stored_bytes_done(off), total)
     res.count, res.last_digits, res.content_bytes = pos, tail, off
     return res
 
@@ -274,7 +274,7 @@ def _scan_labelled(
     tail: bytes,
     strict: bool,
     progress: Progress | None,
-    total: int | None,
+    total: int,
     name: str,
 ) -> ScanResult:
     check = _LabelCheck(plan.labels or "start", strict, name)
@@ -341,7 +341,7 @@ def _scan_labelled(
         tail = (tail + cleaned.translate(None, WS)[-TAIL_DIGITS:])[-TAIL_DIGITS:]
         off += len(data)
         if progress:
-            progress(off, total)
+            progress(src.stored_bytes_done(off), total)
     res.findings = check.finish()
     res.label_meaning = check.meaning
     res.count, res.last_digits, res.content_bytes = pos, tail, off

@@ -60,6 +60,7 @@ class ByteSource(Protocol):
     compression: str | None
 
     def read_at(self, offset: int, n: int) -> bytes: ...
+    def stored_bytes_done(self, offset: int) -> int: ...
     def check_unchanged(self) -> None: ...
     def close(self) -> None: ...
 
@@ -107,6 +108,10 @@ class PlainSource:
             return os.pread(self._fd, n, offset)
         except OSError as exc:
             raise FileAccessError(exc.errno, f"cannot read {self.path}: {exc.strerror}") from None
+
+    def stored_bytes_done(self, offset: int) -> int:
+        """Bytes of the file behind content ``offset`` (for progress)."""
+        return min(offset, self.size_bytes)
 
     def check_unchanged(self) -> None:
         _check_same(self.path, os.fstat(self._fd), self.size_bytes, self._mtime)
@@ -200,6 +205,14 @@ class CompressedSource:
         if offset + len(data) == self._pos:
             self._last = (offset, data)
         return data
+
+    def stored_bytes_done(self, offset: int) -> int:
+        """Compressed bytes consumed so far (for progress; ``offset`` is ignored)."""
+        if self._gz is not None:
+            done = self._gz.consumed
+        else:
+            done = self._raw.tell() if self._raw is not None and not self._raw.closed else 0
+        return min(done, self.size_bytes)
 
     def check_unchanged(self) -> None:
         _check_same(self.path, os.fstat(self._fd), self.size_bytes, self._mtime)
