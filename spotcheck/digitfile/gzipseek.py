@@ -25,6 +25,13 @@ CHECKPOINT_BYTES = 16 << 20  # decompressed bytes between checkpoints
 RAW_STEP = 256 << 10  # compressed bytes fed to zlib at a time
 OUT_STEP = 4 << 20  # most decompressed bytes produced per zlib call
 
+
+def _pread_seek(fd: int, n: int, offset: int) -> bytes:
+    os.lseek(fd, offset, os.SEEK_SET)
+    return os.read(fd, n)
+
+
+_pread = getattr(os, "pread", _pread_seek)
 _GZIP_WBITS = 16 + zlib.MAX_WBITS  # a gzip header and trailer around each member
 
 
@@ -89,7 +96,7 @@ class GzipSeeker:
         return False
 
     def _take(self) -> bytes:
-        data = os.pread(self._fd, RAW_STEP, self._cin)
+        data = _pread(self._fd, RAW_STEP, self._cin)
         self._cin += len(data)
         return data
 

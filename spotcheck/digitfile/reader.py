@@ -286,7 +286,7 @@ def _open(
         if not packed:
             raise DigitFileError(
                 f"{name}: binary content: not digit text, not gzip/bzip2/xz, and not packed hex digits "
-                "of a known constant (to read it as packed hex, name it *.bin or ask for packed)"
+                "of a known constant (name it *.bin to read it as packed hex digits)"
             )
     if packed:
         return _open_packed(df, src, head, base, constant, progress)

@@ -147,9 +147,9 @@ class _LabelCheck:
     def mismatch(self, label: int, before: int, nd: int, line: int, offset: int) -> None:
         assert self.meaning is not None
         want = self.expect(self.meaning, before, nd)
-        msg = f"line {line}: label {label} disagrees with the digits: {self.EXPLAIN[self.meaning]} is {want}"
+        msg = f"label {label} disagrees with the digits: {self.EXPLAIN[self.meaning]} is {want}"
         if self.strict:
-            raise DigitFileError(f"{self.name}: labels that lie: {msg}")
+            raise DigitFileError(f"{self.name}: labels that lie: line {line}: {msg}")
         self.mismatches += 1
         if self.mismatches <= MAX_FINDINGS:
             pos = before + 1 if nd else None
@@ -158,7 +158,7 @@ class _LabelCheck:
     def no_label(self, line: int, offset: int, before: int) -> None:
         self.missing += 1
         if self.missing <= MAX_FINDINGS:
-            msg = f"line {line} has no position label, unlike the lines around it"
+            msg = "a digit line without a position label, unlike the lines around it"
             self.findings.append(
                 Finding("label-missing", msg, line=line, byte_offset=offset, position=before + 1)
             )

@@ -65,6 +65,22 @@ class ByteSource(Protocol):
     def close(self) -> None: ...
 
 
+def _pread_seek(fd: int, n: int, offset: int) -> bytes:
+    """``os.pread`` for platforms without it (one reader per descriptor, so seek is safe)."""
+    os.lseek(fd, offset, os.SEEK_SET)
+    parts, want = [], n
+    while want > 0:
+        data = os.read(fd, want)
+        if not data:
+            break
+        parts.append(data)
+        want -= len(data)
+    return b"".join(parts)
+
+
+_pread = getattr(os, "pread", _pread_seek)
+
+
 def detect_compression(magic: bytes) -> str | None:
     """``"gzip"``, ``"bzip2"``, ``"xz"`` or None, from the first bytes of a file."""
     for prefix, name in _MAGIC:
@@ -105,7 +121,7 @@ class PlainSource:
             return b""
         n = min(n, self.size_bytes - offset)
         try:
-            return os.pread(self._fd, n, offset)
+            return _pread(self._fd, n, offset)
         except OSError as exc:
             raise FileAccessError(exc.errno, f"cannot read {self.path}: {exc.strerror}") from None
 
@@ -245,14 +261,14 @@ def open_source(path: str | os.PathLike[str]) -> ByteSource:
     p = os.fspath(path)
     st = _stat_checked(p)
     try:
-        fd = os.open(p, os.O_RDONLY | getattr(os, "O_CLOEXEC", 0))
+        fd = os.open(p, os.O_RDONLY | getattr(os, "O_CLOEXEC", 0) | getattr(os, "O_BINARY", 0))
     except PermissionError:
         raise FileAccessError(errno.EACCES, f"permission denied: {p}") from None
     except OSError as exc:
         raise FileAccessError(exc.errno, f"cannot open {p}: {exc.strerror}") from None
     try:
         st = os.fstat(fd)
-        magic = os.pread(fd, 8, 0)
+        magic = _pread(fd, 8, 0)
     except OSError as exc:
         os.close(fd)
         raise FileAccessError(exc.errno, f"cannot read {p}: {exc.strerror}") from None
