@@ -387,3 +387,14 @@ def test_progress_counts_stored_bytes(key, files):
     assert calls and all(total == size for _, total in calls)
     assert [d for d, _ in calls] == sorted(d for d, _ in calls)
     assert calls[-1][0] <= size and calls[-1][0] >= size * 0.5
+
+
+def test_sparse_lines_tail_and_reads(tmp_path):
+    # Two digits per line between wide runs of spaces: the last digits come from many lines.
+    truth = PI16[:3000]
+    text = "".join(truth[i : i + 2] + " " * 40 + "\n" for i in range(0, len(truth), 2))
+    path = tmp_path / "sparse.txt"
+    path.write_text(text)
+    result = inspect_file(path)
+    assert result.layout.access == "regular" and result.layout.line_width == 2
+    assert result.last_digits == truth[-64:] and result.first_digits == truth[:64]

@@ -204,6 +204,7 @@ def scan_text(
         units = unit * k
         table = class_table(base)
         prev = b""
+        keep = (TAIL_DIGITS // width + 2) * p  # bytes of the previous chunk that hold the last digits
         while True:
             data = src.read_at(off, n)
             if len(data) == n and data.translate(table) == units:
@@ -219,9 +220,7 @@ def scan_text(
                 if body == units[: len(body)]:
                     full, rest = divmod(len(body), p)
                     pos += full * width + unit[:rest].count(b"d")
-                    tail = (tail + (prev[-(2 * p + 4 * TAIL_DIGITS) :] + data).translate(None, WS))[
-                        -TAIL_DIGITS:
-                    ]
+                    tail = (tail + (prev[-keep:] + data).translate(None, WS))[-TAIL_DIGITS:]
                     res.count, res.regular, res.unit, res.unit_digits = pos, True, unit, width
                     res.unit_cols = [i for i, c in enumerate(unit) if c == ord("d")]
                     res.last_digits, res.content_bytes = tail, off + len(data)
@@ -238,7 +237,7 @@ def scan_text(
                 res.index_line.append(line + j * nl)
             line += units_done * nl
             if prev:
-                tail = (tail + prev[-(2 * p + 4 * TAIL_DIGITS) :].translate(None, WS))[-TAIL_DIGITS:]
+                tail = (tail + prev[-keep:].translate(None, WS))[-TAIL_DIGITS:]
             break
     allowed = allowed_set(base)
     while True:
