@@ -33,7 +33,7 @@ def open_checked(
     df = open_digit_file(path, base=base, constant=constant)
     if df.constant is None:
         df.close()
-        raise UsageError(f"{path}: {df.constant_how}")
+        raise UsageError(f"{path}: {df.constant_how} (--constant NAME; `spotcheck constants` lists them)")
     if df.count < 1:
         df.close()
         raise UsageError(f"{path}: no digits after the point")

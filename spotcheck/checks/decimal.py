@@ -340,4 +340,5 @@ def locate_decimal(
         rest=rest,
         how="prefix bisection" if first is not None else "none",
         explanation=explanation,
+        first_is_certain=first is not None,
     )

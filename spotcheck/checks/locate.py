@@ -103,53 +103,102 @@ def _locate_hex(
             how=how,
             explanation=explanation,
             scan_estimate_seconds=kw.pop("scan_estimate", None),  # type: ignore[arg-type]
+            first_is_certain=bool(kw.pop("certain", False)) and first is not None,
         )
 
     try:
         tail = step(oracle.compare(df, "tail", n - w + 1, w))
         if tail.match:
             return _tail_matches(df, facts, oracle, checks, budget, reference, result, w)
-        # A computation that went astray stays wrong: bisect between a region
-        # assumed right (digits 1..lo) and a digit known wrong (hi).
         assert tail.first_difference is not None
-        lo, hi = 0, tail.first_difference
-        while hi - lo > w:
-            a = max(lo + 1, min((lo + hi) // 2, hi - w))
-            c = step(oracle.compare(df, "bisection", a, w))
-            if c.match:
-                lo = a + w - 1
-            else:
-                assert c.first_difference is not None
-                hi = c.first_difference
-        last = step(oracle.compare(df, "bisection", lo + 1, hi - lo))
-        first = last.first_difference
-        assert first is not None
-        if first > 1:
-            a = max(1, first - w)
-            step(
-                oracle.compare(
-                    df, "confirm", a, first - a, note="the window just before the first wrong digit"
+        first: int | None = None
+        if tail.position > w:  # the head window costs one cheap evaluation
+            head = step(oracle.compare(df, "head", 1, w))
+            first = head.first_difference
+        if first is None:
+            # A computation that went astray stays wrong: bisect between a region
+            # assumed right (digits 1..lo) and a digit known wrong (hi).
+            lo, hi = 0, tail.first_difference
+            while hi - lo > w:
+                a = max(lo + 1, min((lo + hi) // 2, hi - w))
+                c = step(oracle.compare(df, "bisection", a, w))
+                if c.match:
+                    lo = a + w - 1
+                else:
+                    assert c.first_difference is not None
+                    hi = c.first_difference
+            last = step(oracle.compare(df, "bisection", lo + 1, hi - lo))
+            first = last.first_difference
+            assert first is not None
+            if first > 1:
+                a = max(1, first - w)
+                step(
+                    oracle.compare(
+                        df, "confirm", a, first - a, note="the window just before the first wrong digit"
+                    )
                 )
-            )
         for i in range(1, AFTER_SAMPLES + 1):
             p = first + 1 + (n - first - w) * i // AFTER_SAMPLES
             if first < p <= n - w + 1 and not any(c.position == p for c in checks):
                 step(oracle.compare(df, "after", p, w))
         rest = rest_after(checks)
-        confirmed = all(c.match for c in checks if c.kind == "confirm")
-        how_sure = (
-            "the window just before it matches and the digit differs"
-            if confirmed
-            else "but the window before it does NOT match: the file holds several separate errors"
+        if first <= w:
+            what = {"wrong": "; the windows checked after it are wrong too", None: ""}.get(
+                rest, f"; after it: {rest}"
+            )
+            return result(
+                first,
+                rest,
+                "head",
+                f"first wrong digit at position {first:,}, in the first window{what}",
+                certain=True,
+            )
+        windows = sum(c.kind == "bisection" for c in checks)
+        found_by = f"bisection over {windows} windows found a wrong digit at {first:,}"
+        if rest == "wrong":
+            found_by += " and the windows checked after it are wrong too"
+        elif rest == "right-again":
+            found_by += ", but the digits after it are right again (isolated damage)"
+        elif rest == "mixed":
+            found_by += ", but some windows after it are right (several separate errors)"
+        # Bisection assumes an error, once made, persists.  Where a full
+        # comparison of the digits before it is affordable, settle it.
+        seconds, _ = estimate_scan(facts, reference, upto=first - 1)
+        if first > 1 and seconds <= budget:
+            scan = scan_open(df, facts, reference=reference, stop_at_first=True, upto=first - 1)
+            if scan.runs:
+                earlier = scan.runs[0].start
+                step(oracle.compare(df, "confirm", earlier, min(w, n - earlier + 1)))
+                return result(
+                    earlier,
+                    rest,
+                    "scan",
+                    f"first wrong digit at position {earlier:,}: {found_by}; a full comparison with "
+                    f"{reference} of the digits before it found this earlier one",
+                    scan_estimate=seconds,
+                    certain=True,
+                )
+            return result(
+                first,
+                rest,
+                "bisection",
+                f"first wrong digit at position {first:,}: {found_by}; the window just before it matches, "
+                f"and a full comparison with {reference} of the {first - 1:,} digits before it found no "
+                "wrong digit",
+                scan_estimate=seconds,
+                certain=True,
+            )
+        return result(
+            first,
+            rest,
+            "bisection",
+            f"first wrong digit at position {first:,} if the error persisted once made (as in a "
+            f"computation that went astray): {found_by}; the window just before it matches. Earlier "
+            f"isolated damage is not ruled out: comparing the {first - 1:,} digits before it would take "
+            f"about {seconds:.0f} s (budget {budget:.0f} s; run `spotcheck scan --limit {first - 1}`)",
+            scan_estimate=seconds,
+            certain=first == 1,
         )
-        explanation = (
-            f"first wrong digit at position {first:,} ({how_sure}); found by bisection over "
-            f"{sum(c.kind == 'bisection' for c in checks)} windows, assuming that an error, once made, "
-            "persists (as in a computation that went astray)"
-        )
-        if rest == "right-again":
-            explanation += "; the digits after it are right again, so this is isolated damage"
-        return result(first, rest, "bisection", explanation)
     except KeyboardInterrupt:
         return result(None, None, "none", "interrupted before a wrong digit was found", interrupted=True)
 
@@ -163,7 +212,9 @@ def _tail_matches(df, facts, oracle, checks, budget, reference, result, w):  # t
     head = oracle.compare(df, "head", 1, w)
     checks.append(head)
     if not head.match:
-        return result(head.first_difference, None, "bisection", f"the first window differs; {ruled_out}")
+        return result(
+            head.first_difference, None, "head", f"the first window differs; {ruled_out}", certain=True
+        )
     seconds, _ = estimate_scan(facts, reference)
     if seconds > budget:
         return result(
@@ -195,4 +246,5 @@ def _tail_matches(df, facts, oracle, checks, budget, reference, result, w):  # t
         "scan",
         f"first wrong digit at position {first:,}, found by a full comparison with {reference}; {ruled_out}",
         scan_estimate=seconds,
+        certain=True,
     )

@@ -74,6 +74,7 @@ class _Common:
 
     def _base_dict(self) -> dict[str, Any]:
         return {
+            "schema_version": 1,
             "file": asdict(self.file),
             "method": self.method,
             "checks": [asdict(c) for c in self.checks],
@@ -124,9 +125,12 @@ class LocateResult(_Common):
     rest: str | None
     """After the first wrong digit: ``wrong`` (stays wrong), ``right-again`` or ``mixed``."""
     how: str
-    """``bisection``, ``scan``, ``prefix bisection`` or ``none``."""
+    """``bisection``, ``scan``, ``head``, ``prefix bisection`` or ``none``."""
     explanation: str
     scan_estimate_seconds: float | None = None
+    first_is_certain: bool = False
+    """True when every digit before ``first_mismatch`` is known right (up to the
+    false-match chance and, for bisection, the persistent-error model)."""
 
     @property
     def verdict(self) -> str:
@@ -148,6 +152,7 @@ class LocateResult(_Common):
             how=self.how,
             explanation=self.explanation,
             scan_estimate_seconds=self.scan_estimate_seconds,
+            first_is_certain=self.first_is_certain,
         )
         return out
 

@@ -22,12 +22,13 @@ RUN_SAMPLE = 16  # expected/found digits kept per run
 # ---------------------------------------------------------------------------
 
 
-def estimate_scan(facts: FileFacts, reference: str = "arb") -> tuple[float, int]:
-    """``(seconds, bytes)`` a full scan of this file is expected to need."""
-    seconds, memory = estimate_reference(facts.constant, facts.base, facts.checked, reference)
+def estimate_scan(facts: FileFacts, reference: str = "arb", upto: int | None = None) -> tuple[float, int]:
+    """``(seconds, bytes)`` a full scan of this file (or its first ``upto`` digits) is expected to need."""
+    n = facts.checked if upto is None else min(upto, facts.checked)
+    seconds, memory = estimate_reference(facts.constant, facts.base, max(n, 1), reference)
     # Reading and comparing: about 1 s per 50 M digits on a slow disk, and the
     # file's digits held one chunk at a time.
-    return seconds + facts.checked / 50e6, memory + 2 * CHUNK_DIGITS
+    return seconds + n / 50e6, memory + 2 * CHUNK_DIGITS
 
 
 def _differences(a: str, b: str, offset: int) -> Iterator[int]:
@@ -82,16 +83,18 @@ def scan_open(
     reference: str = "arb",
     progress: Progress | None = None,
     stop_at_first: bool = False,
+    upto: int | None = None,
 ) -> ScanResult:
-    """Scan an already opened file (``locate`` reuses this)."""
+    """Scan an already opened file, or its first ``upto`` digits (``locate`` reuses this)."""
     if reference not in REFERENCES:
         raise UsageError(f"unknown reference {reference!r} (choose from {', '.join(REFERENCES)})")
     t0 = time.perf_counter()
-    seconds, memory = estimate_scan(facts, reference)
+    n = facts.checked if upto is None else min(upto, facts.checked)
+    seconds, memory = estimate_scan(facts, reference, upto=n)
     budget = memory_budget()
     if memory > budget:
         raise UsageError(
-            f"a full scan of {facts.checked:,} digits needs about {memory / 2**30:.1f} GiB of memory "
+            f"a full scan of {n:,} digits needs about {memory / 2**30:.1f} GiB of memory "
             f"(available: {budget / 2**30:.1f} GiB); use `spotcheck verify` or `spotcheck locate` instead"
         )
     checks: list[WindowCheck] = []
@@ -99,16 +102,16 @@ def scan_open(
     if ip is not None:
         checks.append(ip)
     if progress:
-        progress(0, facts.checked)
-    _, ref = reference_digits(facts.constant, facts.base, facts.checked, reference)
+        progress(0, n)
+    _, ref = reference_digits(facts.constant, facts.base, n, reference)
     raw: list[tuple[int, int, int]] = []
     compared = 0
     interrupted = False
     try:
         for pos, chunk in df.iter_chunks(CHUNK_DIGITS):
-            if pos > facts.checked:
+            if pos > n:
                 break
-            chunk = chunk[: facts.checked - pos + 1]
+            chunk = chunk[: n - pos + 1]
             expected = ref[pos - 1 : pos - 1 + len(chunk)]
             for first, last in diff_runs(expected, chunk, pos):
                 if raw and raw[-1][1] == first - 1:  # a run across a chunk boundary
@@ -117,7 +120,7 @@ def scan_open(
                     raw.append((first, last, last - first + 1))
             compared = pos - 1 + len(chunk)
             if progress:
-                progress(compared, facts.checked)
+                progress(compared, n)
             if stop_at_first and raw:
                 break
     except KeyboardInterrupt:

@@ -1,0 +1,153 @@
+"""The documented JSON schema of ``verify``, ``locate`` and ``scan`` reports (``--json``).
+
+A JSON Schema (draft 2020-12) as plain data; ``spotcheck schema`` prints it and
+the tests validate real reports against it.  Fields may be added in later
+versions; none is removed or changes meaning without a new ``schema_version``.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+SCHEMA_VERSION = 1
+
+_INT_OR_NULL = {"type": ["integer", "null"]}
+_STR_OR_NULL = {"type": ["string", "null"]}
+
+_FILE = {
+    "type": "object",
+    "required": ["path", "size_bytes", "base", "count", "checked", "constant", "formula"],
+    "properties": {
+        "path": {"type": "string"},
+        "size_bytes": {"type": "integer", "minimum": 0, "description": "file size on disk"},
+        "base": {"enum": [10, 16]},
+        "count": {"type": "integer", "minimum": 0, "description": "digits after the point"},
+        "checked": {"type": "integer", "minimum": 0, "description": "digits under check (--limit)"},
+        "constant": {"type": "string"},
+        "constant_how": {"type": "string", "description": "how the constant was decided"},
+        "formula": {"type": "string", "description": "engine formula key"},
+        "compression": _STR_OR_NULL,
+        "integer_part": _STR_OR_NULL,
+    },
+}
+
+_CHECK = {
+    "type": "object",
+    "required": ["kind", "position", "expected", "found", "match", "base"],
+    "properties": {
+        "kind": {
+            "enum": [
+                "tail",
+                "head",
+                "sample",
+                "user",
+                "integer-part",
+                "bisection",
+                "confirm",
+                "after",
+                "prefix",
+            ]
+        },
+        "position": {
+            "type": "integer",
+            "minimum": 0,
+            "description": "1-based position of the window's first digit in `base`; 0 for the integer part",
+        },
+        "expected": {"type": "string", "description": "certified digits"},
+        "found": {"type": "string", "description": "the file's digits"},
+        "match": {"type": "boolean"},
+        "first_difference": _INT_OR_NULL,
+        "note": {"type": "string"},
+        "base": {"enum": [10, 16]},
+        "prefix": {**_INT_OR_NULL, "description": "decimal digits converted, for radix-conversion checks"},
+    },
+}
+
+_COMMON_REQUIRED = [
+    "command",
+    "verdict",
+    "file",
+    "method",
+    "checks",
+    "seconds",
+    "evaluations",
+    "interrupted",
+    "repeat",
+]
+_COMMON = {
+    "command": {"enum": ["verify", "locate", "scan"]},
+    "verdict": {"enum": ["match", "mismatch", "incomplete"]},
+    "file": _FILE,
+    "method": {"type": "string"},
+    "checks": {"type": "array", "items": _CHECK},
+    "seconds": {"type": "number", "minimum": 0},
+    "evaluations": {"type": "integer", "minimum": 0},
+    "interrupted": {"type": "boolean"},
+    "repeat": {"type": "string", "description": "a command line that repeats the run"},
+}
+
+VERIFY_SCHEMA: dict[str, Any] = {
+    "type": "object",
+    "required": [*_COMMON_REQUIRED, "seed", "window", "false_match_chance", "scattered_bound"],
+    "properties": {
+        **_COMMON,
+        "command": {"const": "verify"},
+        "seed": {"type": "integer"},
+        "window": {"type": "integer", "minimum": 1},
+        "false_match_chance": {"type": "number"},
+        "tail_position": _INT_OR_NULL,
+        "scattered_bound": {"type": ["number", "null"]},
+        "random_windows": {"type": "integer", "minimum": 0},
+    },
+}
+
+LOCATE_SCHEMA: dict[str, Any] = {
+    "type": "object",
+    "required": [*_COMMON_REQUIRED, "first_mismatch", "expected", "found", "how", "explanation"],
+    "properties": {
+        **_COMMON,
+        "command": {"const": "locate"},
+        "first_mismatch": {**_INT_OR_NULL, "minimum": 1, "description": "1-based position, or null"},
+        "expected": {"type": "string"},
+        "found": {"type": "string"},
+        "rest": {"enum": ["wrong", "right-again", "mixed", None]},
+        "how": {"enum": ["bisection", "scan", "head", "prefix bisection", "none"]},
+        "first_is_certain": {"type": "boolean"},
+        "explanation": {"type": "string"},
+        "scan_estimate_seconds": {"type": ["number", "null"]},
+    },
+}
+
+_RUN = {
+    "type": "object",
+    "required": ["start", "length", "wrong", "expected", "found"],
+    "properties": {
+        "start": {"type": "integer", "minimum": 1},
+        "length": {"type": "integer", "minimum": 1},
+        "wrong": {"type": "integer", "minimum": 1},
+        "expected": {"type": "string"},
+        "found": {"type": "string"},
+    },
+}
+
+SCAN_SCHEMA: dict[str, Any] = {
+    "type": "object",
+    "required": [*_COMMON_REQUIRED, "reference", "digits_compared", "wrong_digits", "mismatch_runs"],
+    "properties": {
+        **_COMMON,
+        "command": {"const": "scan"},
+        "reference": {"enum": ["arb", "mpfr"]},
+        "digits_compared": {"type": "integer", "minimum": 0},
+        "wrong_digits": {"type": "integer", "minimum": 0},
+        "first_mismatch": _INT_OR_NULL,
+        "mismatch_runs": {"type": "array", "items": _RUN},
+        "mismatch_runs_total": {"type": "integer", "minimum": 0},
+    },
+}
+
+REPORT_SCHEMA: dict[str, Any] = {
+    "$schema": "https://json-schema.org/draft/2020-12/schema",
+    "title": "spotcheck check report",
+    "schema_version": SCHEMA_VERSION,
+    "oneOf": [VERIFY_SCHEMA, LOCATE_SCHEMA, SCAN_SCHEMA],
+}

@@ -1,0 +1,200 @@
+"""verify, locate and scan on hex digit files made from gmpy2/MPFR's pi, with damage chosen by hypothesis."""
+
+from __future__ import annotations
+
+import hashlib
+import itertools
+from pathlib import Path
+
+import pytest
+from hypothesis import example, given, settings
+from hypothesis import strategies as st
+
+from spotcheck.checks import locate_file, scan_file, verify_file
+from spotcheck.engine import backend
+from spotcheck.checks.scan import merge_runs
+from spotcheck.checks.stats import scattered_damage_bound
+from spotcheck.errors import UsageError
+
+from .reference import pi_hex
+
+N = 100_000
+EXAMPLES = 6 if backend.BACKEND == "c" else 2  # the pure path is ~20x slower per window
+HEX = "0123456789ABCDEF"
+_counter = itertools.count()
+
+
+def write_hex(directory: Path, digits: str, *, width: int = 80) -> Path:
+    path = directory / f"pi-{next(_counter)}.txt"
+    body = "\n".join(digits[i : i + width] for i in range(0, len(digits), width))
+    path.write_text("3." + body + "\n")
+    return path
+
+
+@pytest.fixture(scope="module")
+def workdir(tmp_path_factory) -> Path:
+    return tmp_path_factory.mktemp("checks")
+
+
+def truth_digits() -> str:
+    return pi_hex(N)  # reference: gmpy2/MPFR const_pi (cached)
+
+
+@pytest.fixture(scope="module")
+def truth() -> str:
+    return truth_digits()
+
+
+@pytest.fixture(scope="module")
+def clean(workdir, truth) -> Path:
+    return write_hex(workdir, truth)
+
+
+def astray(truth: str, start: int, seed: int) -> str:
+    """Every digit from ``start`` on replaced by a different one (a computation gone wrong)."""
+    shifts = [(seed * 7919 + i * 104729) % 15 + 1 for i in range(len(truth) - start + 1)]
+    tail = "".join(HEX[(int(c, 16) + s) % 16] for c, s in zip(truth[start - 1 :], shifts))
+    return truth[: start - 1] + tail
+
+
+def digest(path: Path) -> str:
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+def test_clean_file_passes_all_three(clean) -> None:
+    before = digest(clean)
+    v = verify_file(str(clean), samples=6, seed=11)
+    assert v.exit_code == 0 and v.verdict == "match"
+    assert {c.kind for c in v.checks} >= {"head", "tail", "sample", "integer-part"}
+    assert v.file.constant == "pi" and v.file.count == N
+    assert v.tail_position == N - 15
+    assert v.scattered_bound == pytest.approx(scattered_damage_bound(6))
+    loc = locate_file(str(clean), budget=600)
+    assert loc.exit_code == 0 and loc.first_mismatch is None
+    assert loc.how == "scan"  # the tail matched, so a full comparison ran within the budget
+    s = scan_file(str(clean))
+    assert s.exit_code == 0 and s.wrong_digits == 0 and s.digits_compared == N
+    assert digest(clean) == before  # read-only
+
+
+def test_same_seed_same_positions(clean) -> None:
+    a = verify_file(str(clean), samples=5, seed=123)
+    b = verify_file(str(clean), samples=5, seed=123)
+    assert [c.position for c in a.checks] == [c.position for c in b.checks]
+
+
+@settings(max_examples=EXAMPLES)
+@given(start=st.integers(1, N), seed=st.integers(0, 1000))
+@example(start=1, seed=0)
+@example(start=N, seed=1)
+@example(start=N - 20, seed=2)
+@example(start=17, seed=3)
+def test_astray_file_is_located_exactly(workdir, start, seed) -> None:
+    truth = truth_digits()
+    path = write_hex(workdir, astray(truth, start, seed))
+    # damage from digit 1 on hides the constant from detection: name it
+    v = verify_file(str(path), samples=4, seed=seed, constant="pi")
+    assert v.exit_code == 1 and v.verdict == "mismatch"
+    tail = next(c for c in v.checks if c.kind == "tail")
+    assert not tail.match
+    loc = locate_file(str(path), constant="pi")
+    assert loc.exit_code == 1
+    assert loc.first_mismatch == start
+    assert loc.how == ("head" if start <= 16 else "bisection")
+    assert loc.first_is_certain  # a full comparison of the digits before it fits the default budget
+    assert loc.found[0] != truth[start - 1] and loc.expected[0] == truth[start - 1]
+    if N - start > 64:
+        assert loc.rest == "wrong"
+    if start > 16:  # found by bisection: the window before it was compared too
+        confirm = [c for c in loc.checks if c.kind == "confirm"]
+        assert confirm and all(c.match for c in confirm)
+
+
+@st.composite
+def isolated_positions(draw) -> list[int]:
+    k = draw(st.integers(1, 5))
+    raw = draw(st.lists(st.integers(1, N), min_size=k, max_size=k, unique=True))
+    out: list[int] = []
+    for p in sorted(raw):  # keep them apart: isolated damage
+        if not out or p - out[-1] > 20:
+            out.append(p)
+    return out
+
+
+@settings(max_examples=EXAMPLES)
+@given(positions=isolated_positions(), shift=st.integers(1, 15))
+@example(positions=[1], shift=1)
+@example(positions=[N], shift=15)
+@example(positions=[500, 50_000, N - 1], shift=8)
+def test_isolated_damage_scan_lists_exact_runs(workdir, positions, shift) -> None:
+    truth = truth_digits()
+    digits = list(truth)
+    for p in positions:
+        digits[p - 1] = HEX[(int(digits[p - 1], 16) + shift) % 16]
+    path = write_hex(workdir, "".join(digits))
+    s = scan_file(str(path), constant="pi")
+    assert s.exit_code == 1
+    assert [(r.start, r.length, r.wrong) for r in s.runs] == [(p, 1, 1) for p in positions]
+    assert s.wrong_digits == len(positions)
+    for r in s.runs:
+        assert r.expected[0] == truth[r.start - 1] and r.found[0] != r.expected[0]
+    loc = locate_file(str(path), budget=600, constant="pi")
+    assert loc.first_mismatch == positions[0]
+    assert loc.first_is_certain
+    if positions[0] <= 16:
+        assert loc.how == "head"  # the first window differs
+    elif positions[-1] <= N - 16 or len(positions) > 1:
+        assert loc.how == "scan"  # isolated damage: a full comparison finds the first
+
+
+def test_scan_with_mpfr_reference(workdir, truth) -> None:
+    digits = list(truth[:20_000])
+    digits[4321] = "0" if digits[4321] != "0" else "1"
+    path = write_hex(workdir, "".join(digits))
+    s = scan_file(str(path), reference="mpfr")
+    assert [(r.start, r.length) for r in s.runs] == [(4322, 1)]
+
+
+def test_named_positions_and_budget(workdir, truth) -> None:
+    small = write_hex(workdir, truth[:3000])  # cheap windows, so the budget surely draws some
+    v = verify_file(str(small), samples=0, seed=1, at=[5, 777, 2985], budget=0.5)
+    assert [c.position for c in v.checks if c.kind == "user"] == [5, 777, 2985]
+    assert v.random_windows >= 1  # the budget drew random windows
+    assert v.exit_code == 0
+    with pytest.raises(UsageError, match="outside the file"):
+        verify_file(str(small), at=[3001])
+
+
+def test_limit_checks_a_prefix(workdir, truth) -> None:
+    path = write_hex(workdir, astray(truth, 90_001, 5))
+    assert verify_file(str(path), limit=90_000, samples=2, seed=1).exit_code == 0
+    assert verify_file(str(path), limit=90_100, samples=2, seed=1).exit_code == 1
+
+
+def test_wrong_integer_part_is_a_mismatch(workdir, truth) -> None:
+    path = workdir / "four.txt"
+    path.write_text("4." + truth[:5000] + "\n")
+    v = verify_file(str(path), samples=1, seed=1, constant="pi")
+    assert v.exit_code == 1
+    assert [c.kind for c in v.checks if not c.match] == ["integer-part"]
+
+
+def test_unknown_constant_needs_explicit_one(workdir) -> None:
+    path = workdir / "noise.txt"
+    path.write_text("0." + "0123456789ABCDEF" * 100 + "\n")
+    with pytest.raises(UsageError, match="--constant"):
+        verify_file(str(path))
+
+
+def test_merge_runs_rule() -> None:
+    # two single flaws stay apart; a long wrong stretch swallows chance matches
+    assert merge_runs([(10, 10, 1), (12, 12, 1)]) == [(10, 10, 1), (12, 12, 1)]
+    assert merge_runs([(10, 40, 31), (42, 60, 19)]) == [(10, 60, 50)]
+    assert merge_runs([(10, 40, 31), (100, 120, 21)]) == [(10, 40, 31), (100, 120, 21)]
+
+
+def test_scattered_bound_values() -> None:
+    # Clopper-Pearson with zero failures: 1 - 0.05^(1/n) (rule of three ~ 3/n for large n)
+    assert scattered_damage_bound(0) is None
+    assert scattered_damage_bound(1) == pytest.approx(0.95)
+    assert scattered_damage_bound(1000) == pytest.approx(3 / 1000, rel=0.01)
