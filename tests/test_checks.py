@@ -11,9 +11,9 @@ from hypothesis import example, given, settings
 from hypothesis import strategies as st
 
 from spotcheck.checks import locate_file, scan_file, verify_file
-from spotcheck.engine import backend
 from spotcheck.checks.scan import merge_runs
 from spotcheck.checks.stats import scattered_damage_bound
+from spotcheck.engine import backend
 from spotcheck.errors import UsageError
 
 from .reference import pi_hex
