@@ -118,13 +118,14 @@ def prefix_check(
     h = int(basis * _LOG2_10) // 4 + 2
     a = (v << (4 * h)) // p10
     b = ((v + 1) << (4 * h)) // p10
-    big_l = (4 * h - (a ^ b).bit_length()) // 4 if basis else 0
-    if basis and big_l < 1:
-        return PrefixOutcome(None, None)
+    # Hex digits the basis determines; none for a very short basis, and then
+    # the engine alone pins x from digit 1 on.
+    big_l = max(0, (4 * h - (a ^ b).bit_length()) // 4) if basis else 0
     big_a = a >> (4 * (h - big_l))
     w = min(window, big_l)
     found_hex = format(int(big_a & ((1 << (4 * w)) - 1)), "X").zfill(w) if w else ""
-    m = CONTINUATION_DIGITS + int((n - basis) * _LOG2_10 / 4) + 1
+    # Enough engine digits past the determined ones to pin x far below 10^-n.
+    m = CONTINUATION_DIGITS + max(0, math.ceil(n * _LOG2_10 / 4) - big_l)
     win: WindowCheck | None = None
     p10 = gmpy2.mpz(10) ** n
     while True:

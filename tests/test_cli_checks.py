@@ -1,0 +1,168 @@
+"""verify, locate, scan and inspect through the CLI: exit codes, reports, JSON schema, bad input."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import shlex
+from pathlib import Path
+
+import jsonschema
+import pytest
+
+from spotcheck.checks.schema import LOCATE_SCHEMA, REPORT_SCHEMA, SCAN_SCHEMA, VERIFY_SCHEMA
+from spotcheck.cli import run
+
+SAMPLES = Path(__file__).resolve().parent.parent / "samples"
+
+
+def cli(capsys, *args: str) -> tuple[int, str, str]:
+    code = run([str(a) for a in args])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def as_json(capsys, *args: str) -> tuple[int, dict]:
+    code, out, _ = cli(capsys, *args, "--json")
+    payload = json.loads(out)
+    jsonschema.validate(payload, REPORT_SCHEMA)
+    return code, payload
+
+
+def digest(path: Path) -> str:
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+def test_verify_clean_sample(capsys) -> None:
+    code, out, _ = cli(capsys, "verify", SAMPLES / "pi-hex-clean.txt", "--seed", "42")
+    assert code == 0
+    first = out.splitlines()[0]
+    assert first.startswith("MATCH") and "pi" in first and "50,000 digits" in first
+    assert "--seed 42" in out  # the repeat line names the seed
+    assert "16^-16" in out and "95% confidence" in out
+
+
+def test_verify_prints_seed_it_chose(capsys) -> None:
+    code, payload = as_json(capsys, "verify", SAMPLES / "pi-hex-clean.txt", "--samples", "3")
+    assert code == 0
+    assert f"--seed {payload['seed']}" in payload["repeat"]
+    jsonschema.validate(payload, VERIFY_SCHEMA)
+
+
+def test_repeat_command_repeats(capsys) -> None:
+    _, first = as_json(capsys, "verify", SAMPLES / "pi-hex-astray.txt", "--samples", "4")
+    args = shlex.split(first["repeat"])[1:]
+    _, again = as_json(capsys, *args)
+    assert [c["position"] for c in again["checks"]] == [c["position"] for c in first["checks"]]
+
+
+def test_astray_sample(capsys) -> None:
+    code, payload = as_json(capsys, "verify", SAMPLES / "pi-hex-astray.txt", "--seed", "1")
+    assert code == 1 and payload["verdict"] == "mismatch"
+    code, payload = as_json(capsys, "locate", SAMPLES / "pi-hex-astray.txt")
+    jsonschema.validate(payload, LOCATE_SCHEMA)
+    # samples/make_samples.py damages every digit from 37,123 on
+    assert code == 1 and payload["first_mismatch"] == 37_123 and payload["rest"] == "wrong"
+    code, out, _ = cli(capsys, "locate", SAMPLES / "pi-hex-astray.txt")
+    assert out.startswith("MISMATCH  first wrong digit at position 37,123")
+    assert "▲" in out  # the file map marks where the damage starts
+
+
+def test_taperot_sample_scan(capsys) -> None:
+    code, payload = as_json(capsys, "scan", SAMPLES / "pi-hex-taperot.txt.gz")
+    jsonschema.validate(payload, SCAN_SCHEMA)
+    assert code == 1
+    # make_samples.py changes digits 2,718, 16,180 and 31,416
+    assert [(r["start"], r["length"]) for r in payload["mismatch_runs"]] == [
+        (2718, 1),
+        (16180, 1),
+        (31416, 1),
+    ]
+    assert payload["file"]["compression"] == "gzip"
+    code, payload = as_json(capsys, "scan", SAMPLES / "pi-hex-clean.txt", "--reference", "mpfr")
+    assert code == 0 and payload["reference"] == "mpfr"
+
+
+def test_decimal_samples(capsys) -> None:
+    code, payload = as_json(capsys, "verify", SAMPLES / "pi-decimal.txt", "--seed", "3")
+    assert code == 0 and payload["method"] == "radix conversion"
+    code, payload = as_json(capsys, "locate", SAMPLES / "pi-decimal-flipped.txt")
+    assert code == 1 and payload["first_mismatch"] == 12_345  # make_samples.py flips digit 12,345
+
+
+def test_other_constants_samples(capsys) -> None:
+    code, payload = as_json(capsys, "verify", SAMPLES / "log2-hex.txt", "--seed", "1")
+    assert code == 0 and payload["file"]["constant"] == "log2"
+    code, payload = as_json(capsys, "locate", SAMPLES / "catalan-hex-damaged.txt")
+    assert code == 1 and payload["file"]["constant"] == "catalan"
+    assert payload["first_mismatch"] == 10_000  # make_samples.py damages digit 10,000
+
+
+def test_quiet_prints_nothing(capsys) -> None:
+    code, out, err = cli(capsys, "verify", SAMPLES / "pi-hex-astray.txt", "--quiet", "--seed", "1")
+    assert (code, out) == (1, "")
+
+
+@pytest.mark.parametrize("name", sorted(p.name for p in SAMPLES.iterdir() if p.suffix in (".txt", ".gz")))
+def test_inspect_every_sample(capsys, name) -> None:
+    code, out, _ = cli(capsys, "inspect", SAMPLES / name, "--json")
+    assert code == 0
+    info = json.loads(out)
+    assert info["constant"] in ("pi", "log2", "catalan")
+    assert info["count"] >= 20_000
+    code, out, _ = cli(capsys, "inspect", SAMPLES / name)
+    assert code == 0 and "digits after the point" in out
+
+
+def bad_files(tmp: Path) -> dict[str, tuple[Path, list[str], str]]:
+    (tmp / "empty.txt").write_bytes(b"")
+    (tmp / "garbage.dat").write_bytes(bytes(range(256)) * 40)
+    (tmp / "hex.txt").write_text("3.243F6A8885A308D313198A2E03707344A4093822299F31D0\n")
+    from .reference import pi_hex
+
+    rows = [pi_hex(320)[i : i + 32] for i in range(0, 320, 32)]
+    rows[6] = rows[6][:10] + "#" + rows[6][11:]  # a stray byte on line 7
+    (tmp / "stray.txt").write_text("3." + "\n".join(rows) + "\n")
+    (tmp / "dir").mkdir(exist_ok=True)
+    return {
+        "missing": (tmp / "nope.txt", [], "no such file"),
+        "directory": (tmp / "dir", [], "directory"),
+        "empty": (tmp / "empty.txt", [], "empty"),
+        "garbage": (tmp / "garbage.dat", [], ""),
+        "wrong base": (tmp / "hex.txt", ["--base", "10"], "base"),
+        "bad base value": (tmp / "hex.txt", ["--base", "8"], "base must be 10 or 16"),
+        "unknown constant": (tmp / "hex.txt", ["--constant", "tau"], "unknown constant"),
+        "stray": (tmp / "stray.txt", [], "line 7"),
+        "window": (tmp / "hex.txt", ["--window", "0"], "window"),
+    }
+
+
+@pytest.mark.parametrize("command", ["verify", "locate", "scan", "inspect"])
+@pytest.mark.parametrize(
+    "case",
+    ["missing", "directory", "empty", "garbage", "wrong base", "bad base value", "unknown constant", "stray"],
+)
+def test_bad_input_one_line_exit_2(capsys, tmp_path, command, case) -> None:
+    path, extra, needle = bad_files(tmp_path)[case]
+    before = digest(path) if path.is_file() else None
+    code, out, err = cli(capsys, command, path, *extra)
+    assert code == 2, out
+    errors = [ln for ln in err.splitlines() if ln.startswith("error:")]
+    assert len(errors) == 1 and "Traceback" not in err
+    assert needle.lower() in errors[0].lower()
+    if before is not None:
+        assert digest(path) == before
+
+
+def test_bad_window(capsys, tmp_path) -> None:
+    path, extra, needle = bad_files(tmp_path)["window"]
+    code, _, err = cli(capsys, "verify", path, *extra)
+    assert code == 2 and needle in err
+
+
+def test_scan_refuses_when_memory_is_short(capsys, monkeypatch) -> None:
+    from spotcheck.checks import scan as scan_mod
+
+    monkeypatch.setattr(scan_mod, "memory_budget", lambda: 1000)
+    code, _, err = cli(capsys, "scan", SAMPLES / "pi-hex-clean.txt")
+    assert code == 2 and "verify" in err and "GiB" in err
