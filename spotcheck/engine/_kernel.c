@@ -21,15 +21,23 @@
  * So one Montgomery exponentiation gives the last remainder
  * r_(W+1) = c * 2^(E - v + 64W) mod n, and each word costs two multiplications,
  * walking down from the least significant word.  The rare terms with E < v
- * (the last few k before the tail) and exponents that would overflow 64 bits
- * take a plain bit-by-bit path (slow_term).
+ * (the last few k before the tail) take a plain bit-by-bit path (slow_term),
+ * and exponents E - v + 64W beyond 64 bits a one-term path (big_exponent_term).
  *
  * Several terms are kept in flight at once ("lanes") so that the multiplier
- * stays busy while each term's chain of dependent squarings waits.
+ * stays busy while each term's chain of dependent squarings waits.  The base
+ * is 2, so a set exponent bit costs nothing extra: the squaring computes
+ * x * 2x instead of x * x.  When every modulus of a batch is below 2^31 the
+ * batch runs in 32-bit Montgomery form (64-bit products only) with one
+ * exponent shared by all lanes (STEP_NARROW); otherwise in 64-bit form.
  *
  * Limits (checked in parse_job, and by spotcheck/engine/backend.py before the
  * call): every N < 2^63, 0 <= D < 2^64, |c| < 2^62, 1 <= words <= 16,
- * D - e*(k1-1) >= 0, k0 >= 0, s <= 64.
+ * D - e*(k1-1) >= 0, k0 >= 0, s <= 63, e < 2^32.
+ *
+ * Portability: plain C99 plus unsigned __int128 where the compiler has it
+ * (else 32-bit halves; -DSPOTCHECK_NO_INT128 forces that path), and >> of a
+ * negative int64_t taken as an arithmetic shift (gcc, clang and MSVC do so).
  */
 #define PY_SSIZE_T_CLEAN
 #include <Python.h>
@@ -221,9 +229,8 @@ typedef struct {
     int64_t *cs;
 } job_t;
 
-/* One term the slow way (E < v, or E - v + 64*words beyond 64 bits):
- * r = c * 2^E mod N by doubling, then floor(r * 2^P / N) bit by bit.
- * Used only when E < 64, or through exp_big for huge exponents. */
+/* One term with E < v (so E < 63): r = c * 2^E mod N by doubling, then
+ * floor(r * 2^P / N) bit by bit.  Only the last few k of a head get here. */
 static void slow_term(uint64_t N, uint64_t E, int64_t c, int words, uint64_t *acc)
 {
     uint64_t r = coeff_mod(c, N);
@@ -255,30 +262,6 @@ static uint64_t mont_pow2(uint64_t f, uint64_t n, uint64_t ninv, uint64_t one)
     return x;
 }
 
-/* Add the words of frac(r / n) where r_(W+1) = top (see the header). */
-ALWAYS_INLINE void add_fraction(uint64_t top, uint64_t n, uint64_t ninv, int words, uint64_t *acc)
-{
-    uint64_t r = top, carry = 0;
-    for (int idx = 0; idx < words; idx++) {
-        uint64_t w = 0 - r * ninv;
-        r = mul_hi(w, n) + (r != 0);
-        uint64_t t = acc[idx] + w;
-        uint64_t c1 = t < w;
-        t += carry;
-        carry = c1 | (t < carry);
-        acc[idx] = t;
-    }
-}
-
-/* A term whose exponent E - v + 64*words does not fit in 64 bits. */
-static void big_exponent_term(uint64_t n, uint64_t ep, int64_t c, int words, uint64_t *acc)
-{
-    uint64_t ninv = inverse64(n), one = mont_one(n);
-    uint64_t x = mont_pow2(ep, n, ninv, one);
-    x = mont_mul(x, mont_pow2(64 * (uint64_t)words, n, ninv, one), n, ninv);
-    add_fraction(mont_mul(x, coeff_mod(c, n), n, ninv), n, ninv, words, acc);
-}
-
 /* acc += the words of frac(r_l / n_l) for L terms, where r_l = top[l] is the
  * last remainder r_(W+1) (see the header).  Word by word from the least
  * significant, the L terms' words summed in a register with a carry count. */
@@ -297,6 +280,16 @@ ALWAYS_INLINE void add_fractions(const int L, uint64_t *top, const uint64_t *n, 
         acc[idx] = sum;
         carry = count; /* at most L + 1; dropped past the top word (mod 2^P) */
     }
+}
+
+/* A term whose exponent E - v + 64*words does not fit in 64 bits. */
+static void big_exponent_term(uint64_t n, uint64_t ep, int64_t c, int words, uint64_t *acc)
+{
+    uint64_t ninv = inverse64(n), one = mont_one(n);
+    uint64_t x = mont_pow2(ep, n, ninv, one);
+    x = mont_mul(x, mont_pow2(64 * (uint64_t)words, n, ninv, one), n, ninv);
+    x = mont_mul(x, coeff_mod(c, n), n, ninv);
+    add_fractions(1, &x, &n, &ninv, words, acc);
 }
 
 /* L terms at once: moduli n (odd), exponents f = E - v + 64*words, residues
