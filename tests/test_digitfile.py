@@ -398,3 +398,11 @@ def test_sparse_lines_tail_and_reads(tmp_path):
     result = inspect_file(path)
     assert result.layout.access == "regular" and result.layout.line_width == 2
     assert result.last_digits == truth[-64:] and result.first_digits == truth[:64]
+
+
+def test_docstring_examples():
+    import doctest
+
+    from spotcheck.digitfile import reader
+
+    assert doctest.testmod(reader).failed == 0
