@@ -113,11 +113,12 @@ def prefix_check(
     """
     n = len(digits)
     basis = n if basis is None else basis
-    v = gmpy2.mpz(digits[:basis] or "0")
+    whole = gmpy2.mpz(digits)
+    v = whole if basis == n else gmpy2.mpz(digits[:basis] or "0")
     p10 = gmpy2.mpz(10) ** basis
     h = int(basis * _LOG2_10) // 4 + 2
-    a = (v << (4 * h)) // p10
-    b = ((v + 1) << (4 * h)) // p10
+    a, r = divmod(v << (4 * h), p10)  # one big division serves both ends
+    b = a + (r + (1 << (4 * h))) // p10
     # Hex digits the basis determines; none for a very short basis, and then
     # the engine alone pins x from digit 1 on.
     big_l = max(0, (4 * h - (a ^ b).bit_length()) // 4) if basis else 0
@@ -148,15 +149,20 @@ def prefix_check(
                 return PrefixOutcome(win, None)
         x = (big_a << (4 * m)) | int(engine[w:], 16)
         shift = 4 * (big_l + m)
-        t_lo, t_hi = (x * p10) >> shift, ((x + 1) * p10) >> shift
+        prod = x * p10
+        t_lo, t_hi = prod >> shift, (prod + p10) >> shift
         if t_lo == t_hi:
             break
         if m >= MAX_CONTINUATION:  # x is extraordinarily close to a decimal boundary
             return PrefixOutcome(win, None)
         m *= 2
-    expected_dec = gmpy2.mpz(t_lo).digits(10).zfill(n)
-    q = _first_decimal_difference(expected_dec, digits)
     tail_w = min(window, n)
+    if t_lo == whole:  # the common case: no decimal string of the full length needed
+        expected_dec = digits[n - tail_w :].rjust(n)
+        q = None
+    else:
+        expected_dec = gmpy2.mpz(t_lo).digits(10).zfill(n)
+        q = _first_decimal_difference(expected_dec, digits)
     start = n - tail_w + 1 if q is None else q
     end = WindowCheck(
         kind=kind,
