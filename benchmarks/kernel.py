@@ -43,6 +43,7 @@ STEPS = {
     1: "add+subtract",
     2: "multiply (no doubling trick)",
     3: "fused, 32-bit when n < 2^31",
+    4: "fused, 32-bit, SSE2 when n < 2^29",
 }
 VARIANTS = [(lanes, step) for step in STEPS for lanes in (4, 8)]
 # -------------------------------------------------------------------------------
@@ -113,12 +114,12 @@ def main() -> None:
     print(
         f"\nns per term, pi (BBP), {WORDS * 64} fractional bits, {SAMPLE_CHUNKS} x {SAMPLE_K} k sampled over the head"
     )
-    print(f"{'lanes':>5}  {'doubling step':<30}" + "".join(f"{'n = ' + power(p):>12}" for p in POSITIONS))
+    print(f"{'lanes':>5}  {'doubling step':<34}" + "".join(f"{'n = ' + power(p):>12}" for p in POSITIONS))
     for lanes, step in VARIANTS:
         row = [ns_per_term(_kernel._head_sum_variant, bbp, p, SAMPLE_K, lanes, step) for p in POSITIONS]
-        print(f"{lanes:>5}  {STEPS[step]:<30}" + "".join(f"{x:>12.1f}" for x in row))
+        print(f"{lanes:>5}  {STEPS[step]:<34}" + "".join(f"{x:>12.1f}" for x in row))
     shipped = [ns_per_term(_kernel.head_sum, bbp, p, SAMPLE_K) for p in POSITIONS]
-    print(f"{'':>5}  {'shipped head_sum':<30}" + "".join(f"{x:>12.1f}" for x in shipped))
+    print(f"{'':>5}  {'shipped head_sum':<34}" + "".join(f"{x:>12.1f}" for x in shipped))
 
     twin = ns_per_term(head_sum_py, bbp, 10**7, TWIN_K)
     print(

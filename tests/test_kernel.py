@@ -26,7 +26,7 @@ SERIES_IDS = [f"{c.name}-{f.key}" for c in BUILTIN_CONSTANTS.values() for f in c
 PI_BBP = series_of(BUILTIN_CONSTANTS["pi"].formula("bbp"))
 
 # Every interleave / doubling variant built into the extension (lanes, step).
-VARIANTS = [(1, 0), (4, 0), (8, 0), (4, 1), (8, 1), (4, 2), (8, 2), (4, 3), (8, 3)]
+VARIANTS = [(1, 0), (4, 0), (8, 0), (4, 1), (8, 1), (4, 2), (8, 2), (4, 3), (8, 3), (4, 4), (8, 4)]
 
 LIMIT = 1 << 63
 
@@ -249,3 +249,5 @@ def test_limit_edges_are_accepted() -> None:
 def test_unknown_variant_is_refused() -> None:
     with pytest.raises(ValueError):
         _kernel._head_sum_variant(10, 0, 1, 8, 1, 4, 1, False, [1], [1], 2, 3, 0)
+    with pytest.raises(ValueError):
+        _kernel._head_sum_variant(10, 0, 1, 8, 1, 4, 1, False, [1], [1], 2, 8, 5)

@@ -29,7 +29,9 @@
  * is 2, so a set exponent bit costs nothing extra: the squaring computes
  * x * 2x instead of x * x.  When every modulus of a batch is below 2^31 the
  * batch runs in 32-bit Montgomery form (64-bit products only) with one
- * exponent shared by all lanes (STEP_NARROW); otherwise in 64-bit form.
+ * exponent shared by all lanes (STEP_NARROW), and below 2^29 two lanes per
+ * SSE2 register where the target has SSE2 (STEP_SIMD; every x86-64 does);
+ * otherwise in 64-bit form.
  *
  * Limits (checked in parse_job, and by spotcheck/engine/backend.py before the
  * call): every N < 2^63, 0 <= D < 2^64, |c| < 2^62, 1 <= words <= 16,
@@ -43,12 +45,18 @@
 #include <Python.h>
 #include <stdint.h>
 #include <string.h>
+#if defined(__SSE2__) || defined(_M_X64)
+#include <emmintrin.h> /* SSE2: part of every x86-64 target */
+#define HAVE_SSE2 1
+#else
+#define HAVE_SSE2 0
+#endif
 
 /* ---- tuning ------------------------------------------------------------ */
 #define MAX_WORDS 16        /* at most 64 * 16 fractional bits per term */
 #define MAX_LANES 8         /* widest interleave built */
 #define BEST_LANES 8        /* interleave of the shipped head_sum (see benchmarks/kernel.py) */
-#define BEST_STEP STEP_NARROW
+#define BEST_STEP STEP_SIMD
 /* ------------------------------------------------------------------------ */
 
 #define MODULUS_LIMIT ((uint64_t)1 << 63)
@@ -218,6 +226,7 @@ enum step {
     STEP_ADD = 1,    /* square, then add and conditionally subtract */
     STEP_MUL = 2,    /* square, then always multiply by 2 or 1 (no use of the base) */
     STEP_NARROW = 3, /* STEP_FUSED, in 32-bit Montgomery form when all moduli < 2^31 */
+    STEP_SIMD = 4,   /* STEP_NARROW, two lanes per SSE2 register when all moduli < 2^29 */
 };
 
 typedef struct {
@@ -292,6 +301,40 @@ static void big_exponent_term(uint64_t n, uint64_t ep, int64_t c, int words, uin
     add_fractions(1, &x, &n, &ninv, words, acc);
 }
 
+/* The squarings of the 32-bit path, two lanes per SSE2 register, for odd
+ * n < 2^29: unsigned Montgomery reduction t -> (t + m n) / 2^32 with
+ * m = -t n^-1 mod 2^32, left in [0, 2n) (no correction): then y < 2n,
+ * y (2y) < 8 n^2 < n 2^32 and the next result is again below 2n.
+ * In: y in [0, n); out: y in [0, n). */
+ALWAYS_INLINE void simd_squarings(const int L, int top, uint64_t g, int64_t *y, const uint64_t *n,
+                                  const uint64_t *ninv)
+{
+#if HAVE_SSE2
+    __m128i X[MAX_LANES / 2], N[MAX_LANES / 2], NP[MAX_LANES / 2];
+    for (int h = 0; h < L / 2; h++) {
+        X[h] = _mm_set_epi64x(y[2 * h + 1], y[2 * h]);
+        N[h] = _mm_set_epi64x((int64_t)n[2 * h + 1], (int64_t)n[2 * h]);
+        NP[h] = _mm_set_epi64x((uint32_t)(0 - ninv[2 * h + 1]), (uint32_t)(0 - ninv[2 * h]));
+    }
+    for (int b = top - 1; b >= 0; b--) {
+        __m128i bit = _mm_cvtsi32_si128((int)((g >> b) & 1));
+        for (int h = 0; h < L / 2; h++) {
+            __m128i t = _mm_mul_epu32(X[h], _mm_sll_epi64(X[h], bit)); /* low 32 bits x low 32 bits */
+            __m128i m = _mm_mul_epu32(t, NP[h]);
+            X[h] = _mm_srli_epi64(_mm_add_epi64(t, _mm_mul_epu32(m, N[h])), 32);
+        }
+    }
+    for (int h = 0; h < L / 2; h++) {
+        uint64_t out[2];
+        _mm_storeu_si128((__m128i *)out, X[h]);
+        for (int i = 0; i < 2; i++)
+            y[2 * h + i] = (int64_t)(out[i] >= n[2 * h + i] ? out[i] - n[2 * h + i] : out[i]);
+    }
+#else
+    (void)L, (void)top, (void)g, (void)y, (void)n, (void)ninv;
+#endif
+}
+
 /* L terms at once: moduli n (odd), exponents f = E - v + 64*words, residues
  * cm = c mod n.  Left-to-right binary exponentiation of 2 in Montgomery form;
  * the result r_(W+1) = c 2^f mod n of each term goes to add_fractions. */
@@ -305,7 +348,7 @@ ALWAYS_INLINE void run_lanes(const int L, const int step, const uint64_t *n, con
         fmax = f[l] > fmax ? f[l] : fmax;
     }
     int top = bit_length(fmax) - 1; /* fmax >= 64 */
-    if (step == STEP_NARROW && (nor >> 31) == 0) {
+    if ((step == STEP_NARROW || step == STEP_SIMD) && (nor >> 31) == 0) {
         /* All n < 2^31.  One exponent g = max f for all lanes, so the bit
          * test is shared; lane l's c 2^f = (c 2^g) 2^-(g - f) is recovered
          * at the end, which needs g - f < 32. */
@@ -318,12 +361,16 @@ ALWAYS_INLINE void run_lanes(const int L, const int step, const uint64_t *n, con
             if ((fmax >> top) & 1)
                 y[l] = (int64_t)dbl_mod((uint64_t)y[l], n[l]);
         }
-        if (shared) {
+        if (shared && step == STEP_SIMD && HAVE_SSE2 && L % 2 == 0 && (nor >> 29) == 0)
+            simd_squarings(L, top, fmax, y, n, ninv);
+        else if (shared) {
             for (int b = top - 1; b >= 0; b--) {
                 int bit = (int)((fmax >> b) & 1);
                 for (int l = 0; l < L; l++) /* |y| < n < 2^31: 0 <= y (2y) < n 2^32 */
                     y[l] = redc32(y[l] * (int64_t)((uint64_t)y[l] << bit), sn[l], (uint32_t)ninv[l]);
             }
+        }
+        if (shared) {
             for (int l = 0; l < L; l++) {
                 /* y = 2^(g + 32) mod n, so redc32(y cm) = c 2^g mod n */
                 int64_t r = redc32((y[l] < 0 ? y[l] + sn[l] : y[l]) * (int64_t)cm[l], sn[l], (uint32_t)ninv[l]);
@@ -422,6 +469,8 @@ static void run_4_mul(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 4, STEP
 static void run_8_mul(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 8, STEP_MUL); }
 static void run_4_narrow(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 4, STEP_NARROW); }
 static void run_8_narrow(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 8, STEP_NARROW); }
+static void run_4_simd(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 4, STEP_SIMD); }
+static void run_8_simd(const job_t *jb, uint64_t *acc) { run_job(jb, acc, 8, STEP_SIMD); }
 
 typedef void (*runner_t)(const job_t *, uint64_t *);
 
@@ -429,9 +478,9 @@ static runner_t pick_runner(long lanes, long step)
 {
     if (lanes == 1 && step == STEP_FUSED)
         return run_1_fused;
-    static const runner_t four[] = {run_4_fused, run_4_add, run_4_mul, run_4_narrow};
-    static const runner_t eight[] = {run_8_fused, run_8_add, run_8_mul, run_8_narrow};
-    if (step < 0 || step > STEP_NARROW)
+    static const runner_t four[] = {run_4_fused, run_4_add, run_4_mul, run_4_narrow, run_4_simd};
+    static const runner_t eight[] = {run_8_fused, run_8_add, run_8_mul, run_8_narrow, run_8_simd};
+    if (step < 0 || step > STEP_SIMD)
         return NULL;
     if (lanes == 4)
         return four[step];
