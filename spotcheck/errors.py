@@ -34,3 +34,7 @@ class CertificationError(SpotcheckError, RuntimeError):
     Raised instead of ever returning a digit that the error bound does not
     settle.
     """
+
+
+class CheckpointError(SpotcheckError, ValueError):
+    """A checkpoint file that belongs to another request or is damaged; it is never used."""

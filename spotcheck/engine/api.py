@@ -2,18 +2,39 @@
 
 from __future__ import annotations
 
+import hashlib
+import json
 import math
 import operator
+import os
+from collections.abc import Callable
 from dataclasses import asdict, dataclass
+from pathlib import Path
 from typing import Any
 
 from spotcheck.engine import backend
+from spotcheck.engine.blocks import (
+    BlockPlan,
+    BlockProgress,
+    Checkpoint,
+    default_checkpoint_dir,
+    series_fingerprint,
+)
 from spotcheck.engine.evaluate import Progress, extract_hex, value_bounds
 from spotcheck.engine.series import series_of
 from spotcheck.errors import CertificationError, UsageError
 from spotcheck.formulas import Formula, get_constant
 
-__all__ = ["DigitResult", "extract", "hex_digits", "leading_digits", "MAX_COUNT", "check_request"]
+__all__ = [
+    "DigitResult",
+    "extract",
+    "hex_digits",
+    "leading_digits",
+    "MAX_COUNT",
+    "check_request",
+    "checkpoint_request",
+    "default_checkpoint_path",
+]
 
 # A request for more digits than this is refused as a usage error: each window
 # of about 100 digits costs a full head sum, so larger counts belong to a full
@@ -73,6 +94,35 @@ def resolve_formula(constant: str | Formula, formula: str | None = None) -> tupl
     return c.name, c.formula(formula)
 
 
+def checkpoint_request(name: str, f: Formula, position: int, count: int) -> dict[str, Any]:
+    """What a checkpoint file is keyed by: constant, formula (with its coefficients), position, count."""
+    return {
+        "constant": name,
+        "formula": f.key,
+        "notation": f.notation(),
+        "series": series_fingerprint(series_of(f)),
+        "position": position,
+        "count": count,
+    }
+
+
+def default_checkpoint_path(
+    constant: str | Formula, position: int, count: int = 16, *, formula: str | None = None
+) -> Path:
+    """The checkpoint file used for ``checkpoint=True``, under the user's cache directory.
+
+    ``$XDG_CACHE_HOME/spotcheck`` (or ``~/.cache/spotcheck``), one file per
+    request: constant, formula, position and count are in the name, and a hash
+    of the formula's coefficients keeps two formulas with the same key apart.
+    """
+    p, n = check_request(position, count)
+    name, f = resolve_formula(constant, formula)
+    key = json.dumps(checkpoint_request(name, f, p, n), sort_keys=True)
+    tag = hashlib.sha256(key.encode()).hexdigest()[:10]
+    safe = "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in f"{name}-{f.key}")
+    return default_checkpoint_dir() / f"{safe}-at{p}-n{n}-{tag}.json"
+
+
 def extract(
     constant: str | Formula,
     position: int,
@@ -81,15 +131,50 @@ def extract(
     formula: str | None = None,
     workers: int = 1,
     progress: Progress | None = None,
+    checkpoint: str | os.PathLike[str] | bool | None = None,
+    cluster: Any = None,
+    block_k: int | None = None,
+    block_progress: Callable[[BlockProgress], None] | None = None,
 ) -> DigitResult:
     """Certified hex digits of ``constant`` from ``position`` (1 = first after the point).
+
+    For deep positions: ``checkpoint`` (a path, or ``True`` for
+    :func:`default_checkpoint_path`) keeps finished head-sum blocks so an
+    interrupted run resumes where it stopped; ``cluster`` (a Dask scheduler
+    address such as ``"tcp://host:8786"`` or a ``distributed.Client``) runs
+    the blocks on a Dask cluster; ``block_k`` overrides the block size (values
+    of k per block); ``block_progress`` is called after every block with a
+    :class:`~spotcheck.engine.blocks.BlockProgress` (done, total, rate, ETA).
+    With any of these the head sum is cut into the larger blocks of
+    :func:`~spotcheck.engine.blocks.deep_block_k`.
 
     >>> extract("pi", 1, 8).digits
     '243F6A88'
     """
     p, n = check_request(position, count)
     name, f = resolve_formula(constant, formula)
-    digits, intervals, seconds = extract_hex(series_of(f), p, n, workers=workers, progress=progress)
+    series = series_of(f)
+    if block_k is not None and (isinstance(block_k, bool) or not isinstance(block_k, int) or block_k < 1):
+        raise UsageError(f"block size must be a positive integer, got {block_k!r}")
+    plan: BlockPlan | None = None
+    client, owned = None, False
+    if checkpoint not in (None, False) or cluster is not None or block_k is not None or block_progress:
+        plan = BlockPlan(block_k=block_k, on_block=block_progress)
+        if checkpoint is True:
+            checkpoint = default_checkpoint_path(constant, p, n, formula=formula)
+        if checkpoint not in (None, False):
+            assert not isinstance(checkpoint, bool)
+            plan.checkpoint = Checkpoint(checkpoint, series, checkpoint_request(name, f, p, n))
+        if cluster is not None:
+            from spotcheck.engine.cluster import connect, dask_runner
+
+            client, owned = connect(cluster)
+            plan.runner = dask_runner(client)
+    try:
+        digits, intervals, seconds = extract_hex(series, p, n, workers=workers, progress=progress, plan=plan)
+    finally:
+        if owned and client is not None:
+            client.close()
     widest = max(intervals, key=lambda iv: iv.width_log2)
     return DigitResult(
         constant=name,
@@ -105,6 +190,22 @@ def extract(
         seconds=seconds,
         backend=backend.BACKEND,
     )
+
+
+def fast_path_position(formula: Formula) -> int:
+    """Last position whose whole head sum runs on the compiled kernel (0 without one).
+
+    Beyond it, the terms whose moduli ``q (m k + j)^s`` reach 2^63 go to the
+    pure twin: still exact, but about 20 times slower per term.
+    """
+    series = series_of(formula)
+    k = backend.kernel_k_limit(series)
+    if k == 0:
+        return 0
+    # head terms k < K(d) with K(d) = (d - shift) // e + 1; all in range while K(d) <= k
+    last_d = series.e * k - 1 + series.shift
+    d_limit = min(last_d, backend.KERNEL_MAX_EXPONENT + series.shift)
+    return max(0, d_limit // 4 + 1)
 
 
 def hex_digits(constant: str | Formula, position: int, count: int = 16, *, formula: str | None = None) -> str:

@@ -25,10 +25,16 @@ from __future__ import annotations
 import math
 import time
 from collections.abc import Callable
-from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
-from spotcheck.engine import backend
+from spotcheck.engine.blocks import (
+    BlockPlan,
+    BlockRequest,
+    deep_block_k,
+    head_block,
+    sum_blocks,
+    thread_runner,
+)
 from spotcheck.engine.series import Series
 from spotcheck.errors import CertificationError
 
@@ -49,8 +55,10 @@ GUARD_BITS = 12
 WINDOW_MAX_WORDS = 8
 # Give up (CertificationError) beyond this many words for one window.
 MAX_WORDS = 64
-# Head terms per block handed to the kernel; blocks are the unit for worker
-# threads, progress callbacks and (later) checkpoints.
+# Head terms per block handed to the kernel in an ordinary run; blocks are the
+# unit for worker threads and progress callbacks.  Checkpointed and cluster
+# runs use larger blocks: blocks.DEEP_BLOCK_TERMS (2^27 terms, about 7-15 s at
+# the C kernel's 55-110 ns per term).
 BLOCK_K = 1 << 18
 # ---------------------------------------------------------------------------
 
@@ -88,26 +96,12 @@ class Interval:
         return False
 
 
+_head_block = head_block  # the old private name
+
+
 def head_blocks(k_total: int, block_k: int = BLOCK_K) -> list[tuple[int, int]]:
     """Split ``range(k_total)`` into consecutive ``(k0, k1)`` blocks."""
     return [(k, min(k + block_k, k_total)) for k in range(0, k_total, block_k)]
-
-
-def _head_block(series: Series, big_d: int, k0: int, k1: int, words: int) -> tuple[int, int]:
-    """One block's head sum, split between the compiled kernel and the twin."""
-    limit = backend.kernel_k_limit(series) if big_d <= backend.KERNEL_MAX_EXPONENT else 0
-    if words > backend.KERNEL_MAX_WORDS:
-        limit = 0
-    args = (series.m, series.s, series.e, series.q, series.alternating, series.js, series.cs)
-    value, terms = 0, 0
-    split = min(max(limit, k0), k1)
-    if split > k0:
-        v, t = backend.head_sum(big_d, k0, split, *args, words)
-        value, terms = v, t
-    if k1 > split:
-        v, t = backend.head_sum_py(big_d, split, k1, *args, words)
-        value, terms = value + v, terms + t
-    return value, terms
 
 
 def head_fixed(
@@ -117,31 +111,26 @@ def head_fixed(
     *,
     workers: int = 1,
     progress: Progress | None = None,
+    plan: BlockPlan | None = None,
 ) -> tuple[int, int]:
-    """The whole head sum at bit offset ``d``: ``(value mod 2^P, terms)``."""
-    big_d = d - series.shift
-    k_total = series.head_length(d)
-    blocks = head_blocks(k_total)
-    mask = (1 << (64 * words)) - 1
-    value, terms, done = 0, 0, 0
+    """The whole head sum at bit offset ``d``: ``(value mod 2^P, terms)``.
 
-    def run(block: tuple[int, int]) -> tuple[int, int]:
-        return _head_block(series, big_d, block[0], block[1], words)
-
-    if workers > 1 and len(blocks) > 1:
-        with ThreadPoolExecutor(max_workers=workers) as pool:
-            results = pool.map(run, blocks)
-            for (k0, k1), (v, t) in zip(blocks, results):
-                value, terms, done = (value + v) & mask, terms + t, done + (k1 - k0)
-                if progress:
-                    progress(done, k_total)
-    else:
-        for block in blocks:
-            v, t = run(block)
-            value, terms, done = (value + v) & mask, terms + t, done + (block[1] - block[0])
-            if progress:
-                progress(done, k_total)
-    return value, terms
+    Without ``plan`` the blocks are of :data:`BLOCK_K` and run on ``workers``
+    threads; a :class:`~spotcheck.engine.blocks.BlockPlan` chooses another
+    runner (a Dask cluster), a checkpoint and the block size.  Either way every
+    block result is checked before it is added.
+    """
+    if plan is None:
+        request = BlockRequest(series, d, words, BLOCK_K)
+        return sum_blocks(request, runner=thread_runner(workers), progress=progress)
+    block_k = plan.block_k or deep_block_k(series, series.head_length(d))
+    return sum_blocks(
+        BlockRequest(series, d, words, block_k),
+        runner=plan.runner or thread_runner(workers),
+        checkpoint=plan.checkpoint,
+        progress=progress,
+        on_block=plan.on_block,
+    )
 
 
 def _sum_from(series: Series, big_d: int, k: int, bits: int) -> tuple[int, int, int]:
@@ -190,12 +179,13 @@ def frac_interval(
     *,
     workers: int = 1,
     progress: Progress | None = None,
+    plan: BlockPlan | None = None,
 ) -> Interval:
     """A certified interval for ``frac(2^d * C)`` with ``64 * words`` fractional bits."""
     if d < 0:
         raise ValueError("bit offset must be >= 0")
     bits = 64 * words
-    head, n_head = head_fixed(series, d, words, workers=workers, progress=progress)
+    head, n_head = head_fixed(series, d, words, workers=workers, progress=progress, plan=plan)
     tail, n_tail, rem = tail_fixed(series, d, bits)
     base = (head + tail) % (1 << bits)
     return Interval(lo=base - rem, hi=base + n_head + n_tail + rem, bits=bits, terms=n_head + n_tail)
@@ -230,6 +220,7 @@ def window_digits(
     workers: int = 1,
     progress: Progress | None = None,
     words: int | None = None,
+    plan: BlockPlan | None = None,
 ) -> tuple[str, Interval]:
     """Exactly ``count`` certified hex digits of ``frac(2^d C)``, from one window.
 
@@ -239,7 +230,7 @@ def window_digits(
     """
     words = words or words_for(series, d, count)
     while True:
-        interval = frac_interval(series, d, words, workers=workers, progress=progress)
+        interval = frac_interval(series, d, words, workers=workers, progress=progress, plan=plan)
         digits = certified_hex_prefix(interval, count)
         if len(digits) == count:
             return digits, interval
@@ -263,6 +254,7 @@ def extract_hex(
     *,
     workers: int = 1,
     progress: Progress | None = None,
+    plan: BlockPlan | None = None,
 ) -> tuple[str, list[Interval], float]:
     """Certified hex digits ``position .. position + count - 1``; also the windows' intervals."""
     t0 = time.perf_counter()
@@ -273,7 +265,7 @@ def extract_hex(
     while remaining > 0:
         d = 4 * (p - 1)
         n = min(remaining, window_capacity(series, d))
-        digits, interval = window_digits(series, d, n, workers=workers, progress=progress)
+        digits, interval = window_digits(series, d, n, workers=workers, progress=progress, plan=plan)
         out.append(digits)
         intervals.append(interval)
         p += n
