@@ -1,0 +1,110 @@
+"""Head-sum blocks on a Dask LocalCluster on loopback (two workers)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+distributed = pytest.importorskip("distributed")
+
+from spotcheck.engine import blocks  # noqa: E402
+from spotcheck.engine.api import extract  # noqa: E402
+from spotcheck.engine.blocks import BlockRecord, compute_block  # noqa: E402
+from spotcheck.engine.cluster import connect, dask_runner  # noqa: E402
+from spotcheck.errors import CertificationError, UsageError  # noqa: E402
+
+from .reference import pi_hex  # noqa: E402
+
+POSITION = 50_000
+BLOCK_K = 256  # bellard: 20,000 values of k in 79 blocks
+EXPECTED = pi_hex(POSITION + 13)[POSITION - 1 :]  # gmpy2/MPFR, not spotcheck
+
+
+@pytest.fixture(scope="module")
+def cluster():
+    with distributed.LocalCluster(
+        n_workers=2,
+        threads_per_worker=1,
+        processes=False,
+        protocol="tcp",
+        host="127.0.0.1",
+        dashboard_address=None,
+    ) as lc:
+        yield lc
+
+
+@pytest.fixture(scope="module")
+def client(cluster):
+    with distributed.Client(cluster, set_as_default=False) as c:
+        yield c
+
+
+def test_cluster_digits_equal_single_process(cluster) -> None:
+    seen = []
+    result = extract(
+        "pi", POSITION, 14, block_k=BLOCK_K, cluster=cluster.scheduler_address, block_progress=seen.append
+    )
+    assert result.digits == EXPECTED == extract("pi", POSITION, 14).digits
+    assert seen[-1].done == seen[-1].total > 50
+
+
+def test_both_workers_took_blocks(client) -> None:
+    result = extract("pi", POSITION, 14, formula="bbp", block_k=BLOCK_K, cluster=client)
+    assert result.digits == EXPECTED
+    # Each worker ran some of the blocks (keys are named after the task function).
+    per_worker = client.run(
+        lambda dask_worker: sum(1 for k in dask_worker.state.log if "compute_block" in str(k))
+    )
+    assert len(per_worker) == 2 and all(n > 0 for n in per_worker.values())
+
+
+def test_cluster_with_checkpoint(client, tmp_path: Path) -> None:
+    path = tmp_path / "cp.json"
+    assert extract("pi", POSITION, 14, block_k=BLOCK_K, cluster=client, checkpoint=path).digits == EXPECTED
+    # The same checkpoint serves a local run: nothing is computed again.
+    progress = []
+    assert extract(
+        "pi", POSITION, 14, block_k=BLOCK_K, checkpoint=path, block_progress=progress.append
+    ).digits == (EXPECTED)
+    assert progress[-1].computed == 0 and progress[-1].resumed == progress[-1].total
+
+
+def out_of_range_block(series, d, words, k0, k1):
+    """A faulty worker: a value beyond 2^P for one block."""
+    record = compute_block(series, d, words, k0, k1)
+    if k0 == 5 * BLOCK_K:
+        return BlockRecord(record.series, d, words, k0, k1, record.value + (1 << (64 * words)), record.terms)
+    return record
+
+
+def shifted_block(series, d, words, k0, k1):
+    """A faulty worker: reports another range than it was given."""
+    record = compute_block(series, d, words, k0, k1)
+    return BlockRecord(record.series, d, words, k0 + 1, k1 + 1, record.value, record.terms)
+
+
+@pytest.mark.parametrize("task", [out_of_range_block, shifted_block])
+def test_bad_worker_result_is_rejected(client, task, monkeypatch: pytest.MonkeyPatch) -> None:
+    def runner_with_bad_task(c):
+        return dask_runner(c, compute=task)
+
+    monkeypatch.setattr("spotcheck.engine.cluster.dask_runner", runner_with_bad_task)
+    with pytest.raises(CertificationError, match="rejected"):
+        extract("pi", POSITION, 14, block_k=BLOCK_K, cluster=client)
+
+
+def test_unreachable_scheduler_is_a_usage_error(monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setattr("spotcheck.engine.cluster.CONNECT_TIMEOUT", 1)
+    with pytest.raises(UsageError, match="cannot reach"):
+        connect("tcp://127.0.0.1:9")
+
+
+def test_blocks_module_does_not_import_dask() -> None:
+    import subprocess
+    import sys
+
+    code = "import sys, spotcheck.engine.api, spotcheck.engine.blocks; print('distributed' in sys.modules)"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "False"
+    assert blocks.compute_block is compute_block
