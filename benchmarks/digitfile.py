@@ -148,9 +148,9 @@ REPEAT = 3  # passes per file; the fastest is reported (the machine may be share
 def run_child(path: str) -> dict[str, float]:
     runs = []
     for _ in range(REPEAT):
-        out = subprocess.run(
-            [sys.executable, __file__, "--measure", path], check=True, capture_output=True, text=True
-        )
+        out = subprocess.run([sys.executable, __file__, "--measure", path], capture_output=True, text=True)
+        if out.returncode != 0:
+            sys.exit(f"measuring {path} failed:\n{out.stderr}")
         runs.append(json.loads(out.stdout))
     best = min(runs, key=lambda r: r["seconds"])
     best["peak"] = max(r["peak"] for r in runs)
