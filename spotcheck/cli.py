@@ -334,6 +334,15 @@ def inspect(
     show_inspect(result, as_json=as_json)
 
 
+@app.command()
+def schema() -> None:
+    """Print the JSON schema of the --json reports of verify, locate and scan."""
+    from spotcheck.checks.schema import REPORT_SCHEMA
+    from spotcheck.report.console import emit_json
+
+    emit_json(REPORT_SCHEMA)
+
+
 def _warn_if_no_kernel() -> None:
     from spotcheck.engine import backend
 

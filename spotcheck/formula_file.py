@@ -32,6 +32,8 @@ prints.
 
 from __future__ import annotations
 
+import os
+
 import re
 import tomllib
 from collections.abc import Mapping
@@ -152,7 +154,7 @@ def register_formula_file(path: str | Path) -> list[Constant]:
     constants = load_formula_file(path)
     for c in constants:
         for other in all_constants():
-            if other.origin == c.origin:  # the same file loaded again: replaced below
+            if _same_file(other.origin, c.origin):  # the same file loaded again: replaced below
                 continue
             labels = {other.name, *other.aliases}
             clash = next((label for label in (c.name, *c.aliases) if label in labels), None)
@@ -206,6 +208,11 @@ def _power(base: str, exponent: str | None, text: str) -> Fraction:
     if b == 0 and n < 0:
         raise ValueError(f"scale {text!r} divides by zero")
     return Fraction(b) ** n
+
+
+def _same_file(a: str, b: str) -> bool:
+    """Two origins name the same file, however the path was spelled."""
+    return a == b or os.path.realpath(a) == os.path.realpath(b)
 
 
 def _constant(table: dict[str, Any], where: str, origin: str) -> Constant:

@@ -297,7 +297,7 @@ ARCTAN_HALF = Formula(
 BUILTIN_CONSTANTS: dict[str, Constant] = {
     c.name: c
     for c in (
-        Constant("pi", "pi", (PI_BBP, PI_BELLARD)),
+        Constant("pi", "ratio of a circle's circumference to its diameter", (PI_BBP, PI_BELLARD)),
         Constant("log2", "natural logarithm of 2", (LOG2,), aliases=("ln2",)),
         Constant("log3", "natural logarithm of 3", (LOG3,), aliases=("ln3",)),
         Constant("pi-squared", "pi^2", (PI_SQUARED_64, PI_SQUARED_16), aliases=("pi2",)),

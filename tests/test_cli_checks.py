@@ -166,3 +166,9 @@ def test_scan_refuses_when_memory_is_short(capsys, monkeypatch) -> None:
     monkeypatch.setattr(scan_mod, "memory_budget", lambda: 1000)
     code, _, err = cli(capsys, "scan", SAMPLES / "pi-hex-clean.txt")
     assert code == 2 and "verify" in err and "GiB" in err
+
+
+def test_schema_command_prints_the_schema(capsys) -> None:
+    code, out, _ = cli(capsys, "schema")
+    assert code == 0 and json.loads(out) == json.loads(json.dumps(REPORT_SCHEMA))
+    jsonschema.Draft202012Validator.check_schema(REPORT_SCHEMA)

@@ -193,3 +193,20 @@ def test_leading_digits_decimal() -> None:
 
     assert leading_digits("pi", 10, 500) == ("3", pi_decimal(500))
     assert leading_digits("pi", 16, 300) == ("3", pi_hex(300))
+
+
+@pytest.mark.skipif(not FAST, reason="needs the compiled kernel")
+def test_fast_path_position_is_the_kernel_boundary() -> None:
+    from spotcheck.engine.api import fast_path_position
+    from spotcheck.formulas import all_constants
+
+    for c in all_constants():
+        for f in c.formulas:
+            series = series_of(f)
+            limit = backend.kernel_k_limit(series)
+            pos = fast_path_position(f)
+            assert series.head_length(4 * (pos - 1)) <= limit
+            if pos < 10**15:  # a boundary that a deep request can reach
+                assert series.head_length(4 * (pos - 1) + 64) > limit
+                j = max(series.js)
+                assert series.modulus(limit - 1, j) < backend.KERNEL_MAX_MODULUS <= series.modulus(limit, j)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from spotcheck.engine.api import DigitResult
+from spotcheck.engine.api import DigitResult, fast_path_position
 from spotcheck.formulas import Constant
 from spotcheck.report.console import STYLE_BAD, STYLE_DIGITS, STYLE_DIM, STYLE_OK, emit_json, stdout_console
 
@@ -68,6 +68,7 @@ def constants_payload(constants: list[Constant]) -> dict[str, Any]:
                         "key": f.key,
                         "notation": f.notation(),
                         "terms_per_bit": round(f.cost_per_bit, 4),
+                        "fast_path_up_to_position": fast_path_position(f),
                         "source": f.source,
                     }
                     for f in c.formulas
@@ -82,17 +83,16 @@ def show_constants(constants: list[Constant], *, as_json: bool) -> None:
     if as_json:
         emit_json(constants_payload(constants))
         return
-    from rich.table import Table
-
-    table = Table(title="Constants with BBP-type formulas", show_lines=True)
-    table.add_column("name", style="bold")
-    table.add_column("formula")
-    table.add_column("P-notation")
-    table.add_column("source")
+    con = stdout_console()
     for c in constants:
+        origin = "" if c.origin == "built-in" else f"  [{STYLE_DIM}](from {c.origin})[/]"
+        aliases = f"  [{STYLE_DIM}]also: {', '.join(c.aliases)}[/]" if c.aliases else ""
+        con.print(f"[bold]{c.name}[/]  {c.title}{aliases}{origin}")
         default = c.formula().key
         for f in c.formulas:
             label = f"{f.key} (default)" if f.key == default and len(c.formulas) > 1 else f.key
-            origin = "" if c.origin == "built-in" else f"\n[{STYLE_DIM}]{c.origin}[/]"
-            table.add_row(c.name + origin, label, f.notation(), f.source)
-    stdout_console().print(table)
+            fast = fast_path_position(f)
+            reach = f"compiled kernel up to position {fast:.3g}" if fast else "pure Python path only"
+            con.print(f"  {label}: {f.notation()}")
+            con.print(f"    [{STYLE_DIM}]{f.cost_per_bit:.2f} terms per bit; {reach}[/]")
+            con.print(f"    [{STYLE_DIM}]source: {f.source}[/]")
