@@ -33,7 +33,6 @@ prints.
 from __future__ import annotations
 
 import os
-
 import re
 import tomllib
 from collections.abc import Mapping
