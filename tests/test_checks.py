@@ -198,3 +198,30 @@ def test_scattered_bound_values() -> None:
     assert scattered_damage_bound(0) is None
     assert scattered_damage_bound(1) == pytest.approx(0.95)
     assert scattered_damage_bound(1000) == pytest.approx(3 / 1000, rel=0.01)
+
+
+@pytest.mark.parametrize(
+    ("constant", "value"),
+    [("log2", "const_log2"), ("catalan", "const_catalan")],
+)
+def test_other_constants_damaged_files(workdir, constant, value) -> None:
+    import gmpy2
+
+    n = 30_000
+    with gmpy2.context(precision=4 * n + 128):  # reference: gmpy2/MPFR constants
+        v = gmpy2.mpz(gmpy2.floor(getattr(gmpy2, value)() * gmpy2.mpz(16) ** n))
+    digits = format(int(v) % 16**n, "X").zfill(n)
+    ip = str(int(v) // 16**n)
+    one = list(digits)
+    one[12_344] = HEX[(int(one[12_344], 16) + 3) % 16]
+    path = workdir / f"{constant}-one.txt"
+    path.write_text(ip + "." + "".join(one) + "\n")
+    loc = locate_file(str(path))
+    assert loc.file.constant == constant  # guessed from the leading digits
+    assert loc.first_mismatch == 12_345 and loc.first_is_certain
+    gone = astray(digits, 20_001, 7)
+    path = workdir / f"{constant}-astray.txt"
+    path.write_text(ip + "." + gone + "\n")
+    assert verify_file(str(path), samples=2, seed=3).exit_code == 1
+    loc = locate_file(str(path))
+    assert loc.first_mismatch == 20_001 and loc.how == "bisection" and loc.rest == "wrong"

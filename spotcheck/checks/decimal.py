@@ -49,7 +49,7 @@ MAX_CONTINUATION = 256  # give up settling the decimal end beyond this
 # Peak bytes per decimal digit converted: the digit string, the big integer
 # (0.42 bytes/digit) and the products and quotients of the conversion; an
 # estimate rounded up from the figures of benchmarks/decimal.py.
-BYTES_PER_DIGIT = 8
+BYTES_PER_DIGIT = 10
 # ---------------------------------------------------------------------------
 
 _LOG2_10 = math.log2(10)
