@@ -377,8 +377,11 @@ class Checkpoint:
             diff = sorted(
                 k for k in set(request) | set(self.request) if request.get(k) != self.request.get(k)
             )
-            theirs = ", ".join(f"{k}={request.get(k)!r}" for k in diff)
-            raise self._refuse(f"it belongs to another request ({theirs}); use another file or delete it")
+            theirs = ", ".join(f"{k} {request.get(k)!r}" for k in diff)
+            ours = ", ".join(f"{k} {self.request.get(k)!r}" for k in diff)
+            raise self._refuse(
+                f"it belongs to another request ({theirs}, not {ours}); use another file or delete it"
+            )
         for section in sections:
             self._load_section(section)
 

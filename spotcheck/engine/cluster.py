@@ -24,7 +24,7 @@ __all__ = ["connect", "dask_runner", "INSTALL_HINT", "DASK_RETRIES"]
 # Times Dask reruns a block whose worker died or whose task failed.
 DASK_RETRIES = 3
 # Seconds to wait for the scheduler when connecting to an address.
-CONNECT_TIMEOUT = 30
+CONNECT_TIMEOUT = 10
 # ---------------------------------------------------------------------------
 
 INSTALL_HINT = "a cluster needs dask.distributed: pip install 'spotcheck[cluster]'"

@@ -1,0 +1,188 @@
+"""Deep positions on one machine (issue 8): wall time, thread speed-up, projection to N cores.
+
+    python benchmarks/deep.py            # full runs at 10^8 and 10^9 (several minutes)
+    python benchmarks/deep.py --quick    # 10^9 from a sample of its blocks, extrapolated
+
+For 14 certified hex digits of pi (the default formula) at positions 10^8
+and 10^9, the head sum is cut into the blocks a checkpointed or cluster run
+uses (``blocks.deep_block_k``) and run on 1 and on 2 threads of this machine.
+A full run prints the digits and the wall time; ``--quick`` times an evenly
+spread sample of the blocks of 10^9 and extrapolates from the sampled share
+of terms, and says so.  The projection to N cores divides the one-thread
+time by N times the measured two-thread efficiency; a cluster adds Dask's
+per-task overhead (milliseconds per block of about a second or more).
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import platform
+import sys
+import time
+from collections.abc import Iterator, Sequence
+
+from spotcheck.engine import backend
+from spotcheck.engine.api import extract
+from spotcheck.engine.blocks import BlockRequest, deep_block_k, sum_blocks, thread_runner
+from spotcheck.engine.evaluate import words_for
+from spotcheck.engine.series import series_of
+from spotcheck.formulas import get_constant
+
+# --- settings ------------------------------------------------------------------
+DIGITS = 14
+POSITIONS = (10**8, 10**9)
+QUICK_SAMPLE = 16  # --quick: every 16th block of 10^9
+PROJECT_CORES = (8, 32, 128, 512)
+# Bailey, Borwein, Plouffe, Math. Comp. 66 (1997), table of hex digits of pi
+# at positions 10^8 and 10^9 (digit 1 is the first after the point); printed
+# next to ours for the reader, not asserted.
+PAPER_TABLE = {10**8: "ECB840E21926EC", 10**9: "85895585A0428B"}
+# -------------------------------------------------------------------------------
+
+
+def machine() -> str:
+    model = "unknown CPU"
+    try:
+        with open("/proc/cpuinfo") as fh:
+            for line in fh:
+                if line.startswith("model name"):
+                    model = line.split(":", 1)[1].strip()
+                    break
+    except OSError:
+        model = platform.processor() or model
+    kernel = ""
+    try:
+        from spotcheck.engine import _kernel  # type: ignore[attr-defined]
+
+        kernel = f", kernel {getattr(_kernel, 'ARITHMETIC', '?')} / {getattr(_kernel, 'LANES', '?')} lanes"
+    except ImportError:
+        pass
+    return (
+        f"{model}, {os.cpu_count()} logical CPUs, {platform.system()} {platform.machine()}, "
+        f"Python {platform.python_version()}{kernel}"
+    )
+
+
+def load() -> str:
+    """The 1-minute load average: wall times on a shared machine mean little when it is high."""
+    try:
+        return f"{os.getloadavg()[0]:.1f} on {os.cpu_count()} CPUs"
+    except OSError:  # pragma: no cover - platforms without it
+        return "unknown"
+
+
+def power(n: int) -> str:
+    return f"10^{len(str(n)) - 1}"
+
+
+def duration(seconds: float) -> str:
+    if seconds < 120:
+        return f"{seconds:.1f} s"
+    if seconds < 7200:
+        return f"{seconds / 60:.1f} min"
+    return f"{seconds / 3600:.1f} h"
+
+
+def full_run(position: int, workers: int) -> tuple[str, float, float, int]:
+    """Digits, wall seconds, CPU seconds and block count of a real extract() at ``position``."""
+    state = {"total": 0}
+
+    def on_block(p) -> None:  # type: ignore[no-untyped-def]
+        state["total"] = p.total
+        eta = f", about {duration(p.eta)} left" if p.eta is not None else ""
+        sys.stderr.write(f"\r  {power(position)}, {workers} thread(s): block {p.done}/{p.total}{eta}    ")
+
+    t0, c0 = time.perf_counter(), time.process_time()
+    result = extract("pi", position, DIGITS, workers=workers, block_progress=on_block)
+    seconds, cpu = time.perf_counter() - t0, time.process_time() - c0
+    sys.stderr.write("\r" + " " * 70 + "\r")
+    return result.digits, seconds, cpu, state["total"]
+
+
+def sampled_run(position: int, workers: int, every: int) -> tuple[float, float, int, int]:
+    """Seconds for every ``every``-th block of the head at ``position``, extrapolated to all blocks.
+
+    Returns ``(estimated_wall, estimated_cpu, sampled_blocks, all_blocks)``.
+    """
+    f = get_constant("pi").formula()
+    series = series_of(f)
+    d = 4 * (position - 1)
+    words = words_for(series, d, DIGITS)
+    request = BlockRequest(series, d, words, deep_block_k(series, series.head_length(d)))
+    all_blocks = request.blocks()
+    sample = all_blocks[every // 2 :: every]
+    sampled_k = sum(k1 - k0 for k0, k1 in sample)
+
+    def runner(req: BlockRequest, todo: Sequence[tuple[int, int]]) -> Iterator[object]:
+        return thread_runner(workers)(req, sample)  # only the sample, whatever is asked
+
+    t0, c0 = time.perf_counter(), time.process_time()
+    try:
+        sum_blocks(request, runner=runner)
+    except Exception as exc:  # only part of the blocks came back, as intended
+        if "came back" not in str(exc):
+            raise
+    seconds, cpu = time.perf_counter() - t0, time.process_time() - c0
+    scale = request.k_total / sampled_k
+    return seconds * scale, cpu * scale, len(sample), len(all_blocks)
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument(
+        "--quick", action="store_true", help=f"10^9 from every {QUICK_SAMPLE}th block, extrapolated"
+    )
+    args = parser.parse_args()
+    if backend.BACKEND != "c":
+        sys.exit("the compiled kernel is not in use; these figures are for the C kernel")
+
+    f = get_constant("pi").formula()
+    print(f"machine: {machine()}")
+    print(f"backend: {backend.BACKEND_NOTE}")
+    print(f"pi, formula {f.key}: {f.notation()}; {DIGITS} certified hex digits; blocks of deep_block_k")
+    print(f"load average at start: {load()}")
+    print()
+    cpus: dict[int, float] = {}
+    ratios: list[float] = []
+    for position in POSITIONS:
+        quick = args.quick and position >= 10**9
+        if quick:
+            t1, c1, n, total = sampled_run(position, 1, QUICK_SAMPLE)
+            t2, _, _, _ = sampled_run(position, 2, QUICK_SAMPLE)
+            how = f"estimated from {n} of {total} blocks (--quick), no digits"
+            digits = ""
+        else:
+            digits, t1, c1, total = full_run(position, 1)
+            digits2, t2, _, _ = full_run(position, 2)
+            assert digits2 == digits
+            table = PAPER_TABLE.get(position)
+            mark = (
+                "" if table is None else (" (= 1997 table)" if table == digits else f" (1997 table: {table})")
+            )
+            how = f"measured, {total} blocks, digits {digits}{mark}"
+        ratios.append(t1 / t2)
+        print(
+            f"position {power(position)}: 1 thread {duration(t1)} (CPU {duration(c1)}), "
+            f"2 threads {duration(t2)}, ratio {t1 / t2:.2f}"
+        )
+        print(f"  {how}")
+        cpus[position] = c1
+    eff = min(1.0, min(ratios) / 2)
+    print()
+    print(f"load average at end: {load()}")
+    print(f"two-thread efficiency (lowest ratio / 2): {eff:.2f}")
+    print("projected wall time on N cores: one-thread CPU time / (N x efficiency), and / N (ideal)")
+    print(f"{'N':>6}" + "".join(f"{power(p):>22}" for p in POSITIONS))
+    for n in PROJECT_CORES:
+        cells = [f"{duration(cpus[p] / (n * eff))} ({duration(cpus[p] / n)})" for p in POSITIONS]
+        print(f"{n:>6}" + "".join(f"{c:>22}" for c in cells))
+    cost_per_bit = cpus[POSITIONS[-1]] / POSITIONS[-1]
+    print(
+        f"beyond: time grows in proportion to the position, about {duration(cost_per_bit * 10**12)} "
+        "of one-thread CPU time at 10^12"
+    )
+
+
+if __name__ == "__main__":
+    main()
