@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import time
+from dataclasses import dataclass, field
 
 from spotcheck.digitfile import DigitFile
 
@@ -46,7 +47,7 @@ def locate_file(
                 workers=workers,
                 progress=progress,
             )
-        return _locate_hex(df, facts, window, budget, reference, workers, progress)
+        return _HexLocator(df, facts, window, budget, reference, workers, progress).run()
     finally:
         df.close()
 
@@ -59,192 +60,219 @@ def rest_after(checks: list[WindowCheck]) -> str | None:
     return "wrong" if wrong == len(after) else "right-again" if wrong == 0 else "mixed"
 
 
-def _locate_hex(
-    df: DigitFile,
-    facts: FileFacts,
-    window: int,
-    budget: float,
-    reference: str,
-    workers: int,
-    progress: Progress | None,
-) -> LocateResult:
-    t0 = time.perf_counter()
-    w = clamp_window(window, facts.checked)
-    oracle = HexOracle(facts.constant, facts.formula, workers=workers)
-    n = facts.checked
-    checks: list[WindowCheck] = []
-    ip = integer_part_check(facts)
-    if ip is not None:
-        checks.append(ip)
-    steps_total = max(1, (n // w).bit_length() + 2 + AFTER_SAMPLES)
+@dataclass
+class _HexLocator:
+    """One ``locate`` run on a hexadecimal file: its checks so far and how to report."""
 
-    def step(c: WindowCheck) -> WindowCheck:
-        checks.append(c)
-        if progress:
-            progress(min(len(checks), steps_total), steps_total)
+    df: DigitFile
+    facts: FileFacts
+    window: int
+    budget: float
+    reference: str
+    workers: int
+    progress: Progress | None
+    checks: list[WindowCheck] = field(default_factory=list)
+    t0: float = field(default_factory=time.perf_counter)
+    scans: int = 0
+
+    def __post_init__(self) -> None:
+        self.n = self.facts.checked
+        self.w = clamp_window(self.window, self.n)
+        self.oracle = HexOracle(self.facts.constant, self.facts.formula, workers=self.workers)
+        self.steps_total = max(1, (self.n // self.w).bit_length() + 2 + AFTER_SAMPLES)
+        ip = integer_part_check(self.facts)
+        if ip is not None:
+            self.checks.append(ip)
+
+    # -- plumbing -------------------------------------------------------------
+    def step(self, kind: str, position: int, count: int, note: str = "") -> WindowCheck:
+        c = self.oracle.compare(self.df, kind, position, count, note=note)
+        self.checks.append(c)
+        if self.progress:
+            self.progress(min(len(self.checks), self.steps_total), self.steps_total)
         return c
 
-    def result(first: int | None, rest: str | None, how: str, explanation: str, **kw: object) -> LocateResult:
+    def scan_before(self, upto: int | None) -> int | None:
+        """First wrong digit among the first ``upto`` (all when None) by a full comparison."""
+        self.scans += 1
+        scan = scan_open(self.df, self.facts, reference=self.reference, stop_at_first=True, upto=upto)
+        if scan.interrupted:
+            raise KeyboardInterrupt
+        return scan.runs[0].start if scan.runs else None
+
+    def result(
+        self,
+        first: int | None,
+        how: str,
+        explanation: str,
+        *,
+        rest: str | None = None,
+        certain: bool = False,
+        scan_estimate: float | None = None,
+        interrupted: bool = False,
+    ) -> LocateResult:
         expected = found = ""
         if first is not None:
-            span = min(w, n - first + 1)
-            expected, found = kw.pop("expected", None) or oracle.digits(first, span), df.read(first, span)  # type: ignore[assignment]
+            span = min(self.w, self.n - first + 1)
+            expected, found = self.oracle.digits(first, span), self.df.read(first, span)
         return LocateResult(
-            file=facts,
-            checks=checks,
+            file=self.facts,
+            checks=self.checks,
             method="digit extraction",
-            seconds=time.perf_counter() - t0,
-            evaluations=oracle.evaluations + int(how == "scan"),
-            interrupted=bool(kw.pop("interrupted", False)),
+            seconds=time.perf_counter() - self.t0,
+            evaluations=self.oracle.evaluations + self.scans,
+            interrupted=interrupted,
             first_mismatch=first,
             expected=expected,
             found=found,
             rest=rest,
             how=how,
             explanation=explanation,
-            scan_estimate_seconds=kw.pop("scan_estimate", None),  # type: ignore[arg-type]
-            first_is_certain=bool(kw.pop("certain", False)) and first is not None,
+            scan_estimate_seconds=scan_estimate,
+            first_is_certain=certain and first is not None,
         )
 
-    try:
-        tail = step(oracle.compare(df, "tail", n - w + 1, w))
-        if tail.match:
-            return _tail_matches(df, facts, oracle, checks, budget, reference, result, w)
-        assert tail.first_difference is not None
+    # -- the search -----------------------------------------------------------
+    def run(self) -> LocateResult:
+        try:
+            tail = self.step("tail", self.n - self.w + 1, self.w)
+            if tail.match:
+                return self.tail_matches()
+            assert tail.first_difference is not None
+            return self.tail_wrong(tail)
+        except KeyboardInterrupt:
+            return self.result(None, "none", "interrupted before a wrong digit was found", interrupted=True)
+
+    def bisect(self, hi: int) -> int:
+        """First wrong digit, given digit ``hi`` is wrong and an error, once made, persists.
+
+        Invariant: digits ``1..lo`` are taken as right, digit ``hi`` is known wrong.
+        """
+        lo, w = 0, self.w
+        while hi - lo > w:
+            a = max(lo + 1, min((lo + hi) // 2, hi - w))
+            c = self.step("bisection", a, w)
+            if c.match:
+                lo = a + w - 1
+            else:
+                assert c.first_difference is not None
+                hi = c.first_difference
+        last = self.step("bisection", lo + 1, hi - lo)
+        assert last.first_difference is not None
+        return last.first_difference
+
+    def tail_wrong(self, tail: WindowCheck) -> LocateResult:
+        w, n = self.w, self.n
         first: int | None = None
         if tail.position > w:  # the head window costs one cheap evaluation
-            head = step(oracle.compare(df, "head", 1, w))
-            first = head.first_difference
+            first = self.step("head", 1, w).first_difference
+        by_bisection = first is None
         if first is None:
-            # A computation that went astray stays wrong: bisect between a region
-            # assumed right (digits 1..lo) and a digit known wrong (hi).
-            lo, hi = 0, tail.first_difference
-            while hi - lo > w:
-                a = max(lo + 1, min((lo + hi) // 2, hi - w))
-                c = step(oracle.compare(df, "bisection", a, w))
-                if c.match:
-                    lo = a + w - 1
-                else:
-                    assert c.first_difference is not None
-                    hi = c.first_difference
-            last = step(oracle.compare(df, "bisection", lo + 1, hi - lo))
-            first = last.first_difference
-            assert first is not None
+            assert tail.first_difference is not None
+            first = self.bisect(tail.first_difference)
             if first > 1:
                 a = max(1, first - w)
-                step(
-                    oracle.compare(
-                        df, "confirm", a, first - a, note="the window just before the first wrong digit"
-                    )
-                )
+                self.step("confirm", a, first - a, note="the window just before the first wrong digit")
         for i in range(1, AFTER_SAMPLES + 1):
             p = first + 1 + (n - first - w) * i // AFTER_SAMPLES
-            if first < p <= n - w + 1 and not any(c.position == p for c in checks):
-                step(oracle.compare(df, "after", p, w))
-        rest = rest_after(checks)
-        if first <= w:
-            what = {"wrong": "; the windows checked after it are wrong too", None: ""}.get(
-                rest, f"; after it: {rest}"
-            )
-            return result(
+            if first < p <= n - w + 1 and not any(c.position == p for c in self.checks):
+                self.step("after", p, w)
+        rest = rest_after(self.checks)
+        after_text = {
+            "wrong": "the windows checked after it are wrong too",
+            "right-again": "the digits after it are right again (isolated damage)",
+            "mixed": "some windows after it are right (several separate errors)",
+            None: "",
+        }[rest]
+        if not by_bisection:
+            return self.result(
                 first,
-                rest,
                 "head",
-                f"first wrong digit at position {first:,}, in the first window{what}",
+                f"first wrong digit at position {first:,}, in the first window"
+                + (f"; {after_text}" if after_text else ""),
+                rest=rest,
                 certain=True,
             )
-        windows = sum(c.kind == "bisection" for c in checks)
-        found_by = f"bisection over {windows} windows found a wrong digit at {first:,}"
-        if rest == "wrong":
-            found_by += " and the windows checked after it are wrong too"
-        elif rest == "right-again":
-            found_by += ", but the digits after it are right again (isolated damage)"
-        elif rest == "mixed":
-            found_by += ", but some windows after it are right (several separate errors)"
+        windows = sum(c.kind == "bisection" for c in self.checks)
+        found_by = f"bisection over {windows} windows found a wrong digit at {first:,}" + (
+            f"; {after_text}" if after_text else ""
+        )
         # Bisection assumes an error, once made, persists.  Where a full
         # comparison of the digits before it is affordable, settle it.
-        seconds, _ = estimate_scan(facts, reference, upto=first - 1)
-        if first > 1 and seconds <= budget:
-            scan = scan_open(df, facts, reference=reference, stop_at_first=True, upto=first - 1)
-            if scan.runs:
-                earlier = scan.runs[0].start
-                step(oracle.compare(df, "confirm", earlier, min(w, n - earlier + 1)))
-                return result(
+        seconds, _ = estimate_scan(self.facts, self.reference, upto=first - 1)
+        if first > 1 and seconds <= self.budget:
+            earlier = self.scan_before(first - 1)
+            if earlier is not None:
+                self.step("confirm", earlier, min(w, n - earlier + 1))
+                return self.result(
                     earlier,
-                    rest,
                     "scan",
                     f"first wrong digit at position {earlier:,}: {found_by}; a full comparison with "
-                    f"{reference} of the digits before it found this earlier one",
-                    scan_estimate=seconds,
+                    f"{self.reference} of the digits before it found this earlier one",
+                    rest=rest,
                     certain=True,
+                    scan_estimate=seconds,
                 )
-            return result(
+            return self.result(
                 first,
-                rest,
                 "bisection",
                 f"first wrong digit at position {first:,}: {found_by}; the window just before it matches, "
-                f"and a full comparison with {reference} of the {first - 1:,} digits before it found no "
-                "wrong digit",
-                scan_estimate=seconds,
+                f"and a full comparison with {self.reference} of the {first - 1:,} digits before it found "
+                "no wrong digit",
+                rest=rest,
                 certain=True,
+                scan_estimate=seconds,
             )
-        return result(
+        return self.result(
             first,
-            rest,
             "bisection",
             f"first wrong digit at position {first:,} if the error persisted once made (as in a "
             f"computation that went astray): {found_by}; the window just before it matches. Earlier "
             f"isolated damage is not ruled out: comparing the {first - 1:,} digits before it would take "
-            f"about {seconds:.0f} s (budget {budget:.0f} s; run `spotcheck scan --limit {first - 1}`)",
-            scan_estimate=seconds,
+            f"about {seconds:.0f} s (budget {self.budget:.0f} s; run `spotcheck scan --limit {first - 1}`)",
+            rest=rest,
             certain=first == 1,
-        )
-    except KeyboardInterrupt:
-        return result(None, None, "none", "interrupted before a wrong digit was found", interrupted=True)
-
-
-def _tail_matches(df, facts, oracle, checks, budget, reference, result, w):  # type: ignore[no-untyped-def]
-    chance = f"16^-{w}"
-    ruled_out = (
-        f"the last {w} digits match, so no error persists to the end of the file "
-        f"(false-match chance {chance}); any damage is isolated, which bisection cannot find"
-    )
-    head = oracle.compare(df, "head", 1, w)
-    checks.append(head)
-    if not head.match:
-        return result(
-            head.first_difference, None, "head", f"the first window differs; {ruled_out}", certain=True
-        )
-    seconds, _ = estimate_scan(facts, reference)
-    if seconds > budget:
-        return result(
-            None,
-            None,
-            "none",
-            f"{ruled_out}; a full scan would take about {seconds:.0f} s, beyond the budget of "
-            f"{budget:.0f} s: run `spotcheck scan` (or raise --budget) to look for isolated damage",
             scan_estimate=seconds,
         )
-    scan = scan_open(df, facts, reference=reference, stop_at_first=True)
-    if scan.interrupted:
-        return result(None, None, "none", "interrupted during the full comparison", interrupted=True)
-    if not scan.runs:
-        return result(
-            None,
-            None,
+
+    def tail_matches(self) -> LocateResult:
+        w, n = self.w, self.n
+        ruled_out = (
+            f"the last {w} digits match, so no error persists to the end of the file "
+            f"(false-match chance 16^-{w}); any damage is isolated, which bisection cannot find"
+        )
+        head = self.step("head", 1, w)
+        if not head.match:
+            return self.result(
+                head.first_difference, "head", f"the first window differs; {ruled_out}", certain=True
+            )
+        seconds, _ = estimate_scan(self.facts, self.reference)
+        if seconds > self.budget:
+            return self.result(
+                None,
+                "none",
+                f"{ruled_out}; a full scan would take about {seconds:.0f} s, beyond the budget of "
+                f"{self.budget:.0f} s: run `spotcheck scan` (or raise --budget) to look for isolated damage",
+                scan_estimate=seconds,
+            )
+        first = self.scan_before(None)
+        if first is None:
+            return self.result(
+                None,
+                "scan",
+                f"no wrong digit: {ruled_out}, and a full comparison with {self.reference} found none",
+                scan_estimate=seconds,
+            )
+        self.step("confirm", first, min(w, n - first + 1))
+        rest = None
+        if first + w <= n - w + 1:
+            rest = "right-again" if self.step("after", first + w, w).match else "mixed"
+        return self.result(
+            first,
             "scan",
-            f"no wrong digit: {ruled_out}, and a full comparison with {reference} found none",
+            f"first wrong digit at position {first:,}, found by a full comparison with {self.reference}; "
+            f"{ruled_out}",
+            rest=rest,
+            certain=True,
             scan_estimate=seconds,
         )
-    first = scan.runs[0].start
-    after = oracle.compare(df, "after", min(first + w, facts.checked - w + 1), w)
-    checks.append(oracle.compare(df, "confirm", first, min(w, facts.checked - first + 1)))
-    checks.append(after)
-    return result(
-        first,
-        "right-again" if after.match else "mixed",
-        "scan",
-        f"first wrong digit at position {first:,}, found by a full comparison with {reference}; {ruled_out}",
-        scan_estimate=seconds,
-        certain=True,
-    )
