@@ -14,7 +14,7 @@ from typing import Annotated, Any
 import typer
 
 from spotcheck import __version__
-from spotcheck.errors import SpotcheckError
+from spotcheck.errors import DigitFileError, SpotcheckError
 
 app = typer.Typer(
     add_completion=False,
@@ -139,6 +139,12 @@ FormulaOpt = Annotated[
 ]
 WindowOpt = Annotated[int, typer.Option("--window", help="Digits compared per check.")]
 LimitOpt = Annotated[int | None, typer.Option("--limit", help="Check only the first N digits of the file.")]
+IgnoreLabelsOpt = Annotated[
+    bool,
+    typer.Option(
+        "--ignore-labels", help="Check the digits even when position labels disagree with their count."
+    ),
+]
 ReferenceOpt = Annotated[
     str,
     typer.Option(
@@ -199,6 +205,7 @@ def verify(
     base: BaseOpt = None,
     formula: FormulaOpt = None,
     limit: LimitOpt = None,
+    ignore_labels: IgnoreLabelsOpt = False,
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
     as_json: JsonOpt = False,
@@ -225,6 +232,7 @@ def verify(
             budget=budget,
             workers=_workers(workers),
             limit=limit,
+            ignore_labels=ignore_labels,
             progress=cb,
         )
     repeat = _repeat(
@@ -238,6 +246,7 @@ def verify(
         base=base,
         formula=formula,
         limit=limit,
+        ignore_labels=ignore_labels,
         formula_file=formula_file,
     )
     _finish(result, repeat, as_json, quiet)
@@ -255,6 +264,7 @@ def locate(
     base: BaseOpt = None,
     formula: FormulaOpt = None,
     limit: LimitOpt = None,
+    ignore_labels: IgnoreLabelsOpt = False,
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
     as_json: JsonOpt = False,
@@ -276,6 +286,7 @@ def locate(
             reference=reference,
             workers=_workers(workers),
             limit=limit,
+            ignore_labels=ignore_labels,
             progress=cb,
         )
     repeat = _repeat(
@@ -288,6 +299,7 @@ def locate(
         base=base,
         formula=formula,
         limit=limit,
+        ignore_labels=ignore_labels,
         formula_file=formula_file,
     )
     _finish(result, repeat, as_json, quiet)
@@ -300,6 +312,7 @@ def scan(
     constant: ConstantOpt = None,
     base: BaseOpt = None,
     limit: LimitOpt = None,
+    ignore_labels: IgnoreLabelsOpt = False,
     as_json: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
@@ -309,9 +322,23 @@ def scan(
 
     with progress_bar("scan", enabled=not (quiet or as_json)) as cb:
         result = scan_file(
-            str(file), base=_base(base), constant=constant, reference=reference, limit=limit, progress=cb
+            str(file),
+            base=_base(base),
+            constant=constant,
+            reference=reference,
+            limit=limit,
+            ignore_labels=ignore_labels,
+            progress=cb,
         )
-    repeat = _repeat("scan", file, reference=reference, constant=constant, base=base, limit=limit)
+    repeat = _repeat(
+        "scan",
+        file,
+        reference=reference,
+        constant=constant,
+        base=base,
+        limit=limit,
+        ignore_labels=ignore_labels,
+    )
     _finish(result, repeat, as_json, quiet)
 
 
@@ -332,6 +359,12 @@ def inspect(
     with progress_bar("reading", enabled=not as_json) as cb:
         result = inspect_file(str(file), base=_base(base), constant=constant, progress=cb)
     show_inspect(result, as_json=as_json)
+    lies = [f for f in result.findings if f.kind == "label-mismatch"]
+    if lies:  # the report above shows them all; labels that lie are bad input
+        where = f" (line {lies[0].line})" if lies[0].line else ""
+        raise DigitFileError(
+            f"{file}: position labels disagree with the digit count{where}: {lies[0].message}"
+        )
 
 
 @app.command()

@@ -172,3 +172,22 @@ def test_schema_command_prints_the_schema(capsys) -> None:
     code, out, _ = cli(capsys, "schema")
     assert code == 0 and json.loads(out) == json.loads(json.dumps(REPORT_SCHEMA))
     jsonschema.Draft202012Validator.check_schema(REPORT_SCHEMA)
+
+
+def test_labels_that_lie(capsys, tmp_path) -> None:
+    from .reference import pi_hex
+
+    digits = pi_hex(2000)
+    lines = [f"{digits[i : i + 50]} : {i + 50}" for i in range(0, 2000, 50)]
+    lines[10] = lines[10].replace(": 550", ": 600")  # a label that lies
+    path = tmp_path / "labelled.txt"
+    path.write_text("3.\n" + "\n".join(lines) + "\n")
+    before = digest(path)
+    for command in ("inspect", "verify", "locate", "scan"):
+        code, out, err = cli(capsys, command, path)
+        errors = [ln for ln in err.splitlines() if ln.startswith("error:")]
+        assert code == 2 and len(errors) == 1, (command, err)
+        assert "label" in errors[0] and "line 12" in errors[0]
+    code, _, _ = cli(capsys, "verify", path, "--ignore-labels", "--seed", "1")
+    assert code == 0  # the digits themselves are right
+    assert digest(path) == before

@@ -8,7 +8,7 @@ from dataclasses import dataclass, field
 
 from spotcheck.digitfile import DigitFile, open_digit_file
 from spotcheck.engine.api import extract, leading_digits
-from spotcheck.errors import UsageError
+from spotcheck.errors import DigitFileError, UsageError
 from spotcheck.formulas import get_constant
 
 from .results import FileFacts, WindowCheck
@@ -22,15 +22,28 @@ MAX_WINDOW = 64
 
 
 def open_checked(
-    path: str, *, base: int | None, constant: str | None, formula: str | None, limit: int | None = None
+    path: str,
+    *,
+    base: int | None,
+    constant: str | None,
+    formula: str | None,
+    limit: int | None = None,
+    ignore_labels: bool = False,
 ) -> tuple[DigitFile, FileFacts]:
     """Open a digit file and settle the constant, or raise :class:`UsageError`.
 
-    ``limit`` restricts every check to the first ``limit`` digits.
+    ``limit`` restricts every check to the first ``limit`` digits.  Position
+    labels that disagree with the real digit count are bad input (digits were
+    lost or gained, or the labels are wrong) unless ``ignore_labels``.
     """
     if limit is not None and limit < 1:
         raise UsageError(f"limit must be at least 1, got {limit}")
-    df = open_digit_file(path, base=base, constant=constant)
+    try:
+        df = open_digit_file(path, base=base, constant=constant, strict_labels=not ignore_labels)
+    except DigitFileError as exc:
+        if "labels that lie" in str(exc) and not ignore_labels:
+            raise DigitFileError(f"{exc} (check the digits themselves with --ignore-labels)") from None
+        raise
     if df.constant is None:
         df.close()
         raise UsageError(f"{path}: {df.constant_how} (--constant NAME; `spotcheck constants` lists them)")

@@ -30,10 +30,13 @@ def locate_file(
     reference: str = "arb",
     workers: int = 1,
     limit: int | None = None,
+    ignore_labels: bool = False,
     progress: Progress | None = None,
 ) -> LocateResult:
     """Find the first wrong digit of a digit file (1-based position), or say what was ruled out."""
-    df, facts = open_checked(path, base=base, constant=constant, formula=formula, limit=limit)
+    df, facts = open_checked(
+        path, base=base, constant=constant, formula=formula, limit=limit, ignore_labels=ignore_labels
+    )
     try:
         if facts.base == 10:
             from .decimal import locate_decimal

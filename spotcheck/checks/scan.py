@@ -158,10 +158,13 @@ def scan_file(
     constant: str | None = None,
     reference: str = "arb",
     limit: int | None = None,
+    ignore_labels: bool = False,
     progress: Progress | None = None,
 ) -> ScanResult:
     """Compare every digit of the file with a full computation (Arb by default, or MPFR)."""
-    df, facts = open_checked(path, base=base, constant=constant, formula=None, limit=limit)
+    df, facts = open_checked(
+        path, base=base, constant=constant, formula=None, limit=limit, ignore_labels=ignore_labels
+    )
     try:
         return scan_open(df, facts, reference=reference, progress=progress)
     finally:

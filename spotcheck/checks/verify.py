@@ -35,6 +35,7 @@ def verify_file(
     budget: float | None = None,
     workers: int = 1,
     limit: int | None = None,
+    ignore_labels: bool = False,
     progress: Progress | None = None,
 ) -> VerifyResult:
     """Check a digit file's tail, head, ``samples`` random windows and the positions ``at``.
@@ -48,7 +49,9 @@ def verify_file(
     if budget is not None and budget <= 0:
         raise UsageError(f"budget must be a positive number of seconds, got {budget}")
     seed = _seed(seed)
-    df, facts = open_checked(path, base=base, constant=constant, formula=formula, limit=limit)
+    df, facts = open_checked(
+        path, base=base, constant=constant, formula=formula, limit=limit, ignore_labels=ignore_labels
+    )
     try:
         for p in at:
             if not 1 <= p <= facts.checked:
