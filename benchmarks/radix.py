@@ -65,7 +65,9 @@ def main() -> None:
             if not path.exists():
                 subprocess.run([sys.executable, "-c", MAKE, str(n), str(path)], check=True)
             made = time.perf_counter() - t0
-            out = subprocess.run([sys.executable, "-c", RUN, str(path)], check=True, capture_output=True, text=True)
+            out = subprocess.run(
+                [sys.executable, "-c", RUN, str(path)], check=True, capture_output=True, text=True
+            )
             r = json.loads(out.stdout)
             print(
                 f"{n:>12,} {made:>9.1f} {r['seconds']:>11.2f} {r['peak'] / 2**20:>9.0f} "

@@ -108,8 +108,9 @@ def test_lying_label_is_shown(tmp_path, capsys):
     path.write_text("\n".join(lines) + "\n")
     before = sha(path)
     code = run(["inspect", str(path), "--json"])
-    payload = json.loads(capsys.readouterr().out)
-    assert code == 0
+    out, err = capsys.readouterr()
+    payload = json.loads(out)  # the report is printed, and labels that lie are bad input
+    assert code == 2 and "line 10" in err and err.count("error:") == 1
     [finding] = payload["findings"]
     assert finding["kind"] == "label-mismatch" and finding["line"] == 10
     assert "label 451" in finding["message"]
