@@ -312,14 +312,16 @@ CHILD = textwrap.dedent(
     """
     import sys, time
     from spotcheck.engine import blocks
-    blocks.CHECKPOINT_SECONDS = 0.0  # write after every block
+    blocks.CHECKPOINT_SECONDS = float(sys.argv[2])
     compute = blocks.compute_block
     def slow(*args):  # make the run last long enough to be interrupted
         time.sleep(0.02)
         return compute(*args)
     blocks.compute_block = slow
     from spotcheck.engine.api import extract
-    print(extract("pi", {position}, 14, block_k={block_k}, checkpoint=sys.argv[1]).digits)
+    def said(p):
+        print(p.done, flush=True)
+    print(extract("pi", {position}, 14, block_k={block_k}, checkpoint=sys.argv[1], block_progress=said).digits)
     """
 ).format(position=POSITION, block_k=BLOCK_K)
 
@@ -336,17 +338,31 @@ def recorded(path: Path) -> set[tuple[int, int, int]]:
 def test_interrupted_run_resumes_with_missing_blocks_only(
     tmp_path: Path, monkeypatch: pytest.MonkeyPatch, sig: signal.Signals
 ) -> None:
+    # SIGKILL: the child writes after every block and is killed once the file
+    # holds 10.  SIGINT: it would write only every 60 s, so the blocks in the
+    # file after Ctrl-C were written by the interrupted run on its way out.
     path = tmp_path / "cp.json"
+    interval = "0" if sig == signal.SIGKILL else "60"
     env = {**os.environ, "PYTHONPATH": str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", "")}
     child = subprocess.Popen(
-        [sys.executable, "-c", CHILD, str(path)], env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE
+        [sys.executable, "-c", CHILD, str(path), interval],
+        env=env,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
     )
     try:
-        deadline = time.monotonic() + 60
-        while len(recorded(path)) < 10:
-            assert child.poll() is None, child.communicate()
-            assert time.monotonic() < deadline, "the child recorded no blocks"
-            time.sleep(0.005)
+        assert child.stdout is not None
+        if sig == signal.SIGKILL:
+            deadline = time.monotonic() + 60
+            while len(recorded(path)) < 10:
+                assert child.poll() is None, child.communicate()
+                assert time.monotonic() < deadline, "the child recorded no blocks"
+                time.sleep(0.005)
+        else:
+            while int(child.stdout.readline() or 10**9) < 10:  # blocks done, as the child reports them
+                pass
+            assert not path.exists()  # nothing written yet
         child.send_signal(sig)
         child.wait(timeout=30)
     finally:

@@ -31,7 +31,6 @@ from spotcheck.engine.blocks import (
     BlockPlan,
     BlockRequest,
     deep_block_k,
-    head_block,
     sum_blocks,
     thread_runner,
 )
@@ -94,9 +93,6 @@ class Interval:
             elif lo <= (vv << -shift) <= hi:
                 return True
         return False
-
-
-_head_block = head_block  # the old private name
 
 
 def head_blocks(k_total: int, block_k: int = BLOCK_K) -> list[tuple[int, int]]:
