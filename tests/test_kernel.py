@@ -162,6 +162,11 @@ def moduli_calls(draw: st.DrawFn) -> tuple:
 # moduli 2^31 - 1 and 2^31 + 1 in one batch (both sides of the 32-bit path)
 @example((12345, 0, 1, 1, 1, 0, 1, False, [2**31 - 1, 2**31 + 1, 3, 2**31 - 3], [1, -1, 2, 3], 2))
 @example((2**40 + 7, 0, 1, 1, 1, 0, 1, False, [2**31 - 1, 2**31 - 3, 2**30 + 1] * 3, [-1, 5, 7] * 3, 3))
+# moduli just below 2^29 (the SSE2 path's edge), alone and mixed with 2^29 + 1
+@example(
+    (2**33 + 5, 0, 1, 1, 1, 0, 1, False, [2**29 - 1, 2**29 - 3, 2**29 - 5, 2**29 - 7] * 2, [3, -5] * 4, 2)
+)
+@example((2**33 + 5, 0, 1, 1, 1, 0, 1, False, [2**29 - 1, 2**29 + 1] * 4, [3, -5] * 4, 2))
 def test_chosen_moduli_match_twin(args: tuple) -> None:
     n_max = max(args[6] * (args[3] * (args[2] - 1) + j) ** args[4] for j in args[8])
     assert n_max < LIMIT
