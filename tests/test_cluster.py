@@ -2,13 +2,15 @@
 
 from __future__ import annotations
 
+import os
+import signal
 from pathlib import Path
 
 import pytest
 
 distributed = pytest.importorskip("distributed")
 
-from spotcheck.engine import blocks  # noqa: E402
+from spotcheck.engine import backend, blocks  # noqa: E402
 from spotcheck.engine.api import extract  # noqa: E402
 from spotcheck.engine.blocks import BlockRecord, compute_block  # noqa: E402
 from spotcheck.engine.cluster import connect, dask_runner  # noqa: E402
@@ -108,3 +110,31 @@ def test_blocks_module_does_not_import_dask() -> None:
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"
     assert blocks.compute_block is compute_block
+
+
+@pytest.mark.skipif(backend.BACKEND != "c", reason="needs blocks slow enough to lose a worker mid-run")
+def test_lost_worker_blocks_are_recomputed(monkeypatch: pytest.MonkeyPatch) -> None:
+    # Two worker processes; one is killed (SIGKILL) once a few blocks are in.
+    # Dask reruns its blocks elsewhere and the digits are still right.
+    root = str(Path(__file__).resolve().parents[1])
+    monkeypatch.setenv("PYTHONPATH", root + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    with (
+        distributed.LocalCluster(
+            n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1", dashboard_address=None
+        ) as lc,
+        distributed.Client(lc, set_as_default=False) as c,
+    ):
+        pids = list(c.run(os.getpid).values())
+        killed = []
+
+        def on_block(p) -> None:
+            if p.done == 4 and not killed:
+                os.kill(pids[0], signal.SIGKILL)
+                killed.append(pids[0])
+
+        digits = extract(
+            "pi", 10_000_000, 14, formula="bbp", block_k=1 << 18, cluster=c, block_progress=on_block
+        ).digits
+    assert killed
+    # Bailey, Borwein, Plouffe, Math. Comp. 66 (1997): hex digits of pi at 10^7.
+    assert digits == "17AF5863EFED8D"
