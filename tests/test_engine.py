@@ -59,7 +59,9 @@ def test_paper_table_position_1e6(formula) -> None:
 
 def test_convention_other_side() -> None:
     # One position later, the table's digits shift left by one.
-    assert hex_digits("pi", 1_000_001, 14).startswith(BBP_TABLE_1E6[1:])
+    later = hex_digits("pi", 1_000_001, 14)
+    assert later.startswith(BBP_TABLE_1E6[1:])
+    assert later == hex_digits("pi", 1_000_000, 15)[1:]
 
 
 @pytest.mark.slow

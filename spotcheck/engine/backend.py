@@ -40,13 +40,14 @@ if os.environ.get(_PURE_ENV, "").strip().lower() in ("1", "true", "yes", "on"):
     BACKEND_NOTE = f"pure Python/gmpy2 ({_PURE_ENV} is set)"
 else:
     try:
+        from spotcheck.engine import _kernel  # type: ignore[attr-defined]
         from spotcheck.engine._kernel import head_sum as _kernel_head_sum  # type: ignore[import-not-found,no-redef]
     except ImportError as exc:  # the extension was not built
         BACKEND = "python"
         BACKEND_NOTE = f"pure Python/gmpy2 (compiled kernel not available: {exc})"
     else:
         BACKEND = "c"
-        BACKEND_NOTE = "compiled C kernel"
+        BACKEND_NOTE = f"compiled C kernel ({_kernel.ARITHMETIC} arithmetic, {_kernel.LANES} terms in flight)"
 
 head_sum = _kernel_head_sum if _kernel_head_sum is not None else head_sum_py
 

@@ -45,7 +45,7 @@ def head_sum_py(
     bits = 64 * words
     mask = (1 << bits) - 1
     total = _mpz(0)
-    pairs = list(zip(js, cs))
+    pairs = list(zip(js, cs, strict=True))
     for k in range(k0, k1):
         exponent = big_d - e * k
         negate = alternating and (k & 1)
