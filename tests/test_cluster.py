@@ -120,7 +120,7 @@ def test_lost_worker_blocks_are_recomputed(monkeypatch: pytest.MonkeyPatch) -> N
     monkeypatch.setenv("PYTHONPATH", root + os.pathsep + os.environ.get("PYTHONPATH", ""))
     with (
         distributed.LocalCluster(
-            n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1", dashboard_address=None
+            n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1", dashboard_address=":0"
         ) as lc,
         distributed.Client(lc, set_as_default=False) as c,
     ):
