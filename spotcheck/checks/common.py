@@ -14,6 +14,7 @@ from spotcheck.formulas import get_constant
 from .results import FileFacts, WindowCheck
 
 Progress = Callable[[int, int], None]
+Plan = list[tuple[str, int]]
 
 # --- tuning -----------------------------------------------------------------
 DEFAULT_WINDOW = 16  # digits compared per check
@@ -135,3 +136,35 @@ def clamp_window(window: int, count: int) -> int:
     if not 1 <= window <= MAX_WINDOW:
         raise UsageError(f"window must be between 1 and {MAX_WINDOW} digits, got {window}")
     return min(window, count)
+
+
+def run_plan(
+    plan: Plan,
+    check: Callable[[str, int], None],
+    draw: Callable[[], int],
+    budget: float | None,
+    progress: Progress | None,
+) -> tuple[int, bool]:
+    """Run ``check(kind, where)`` for each planned check, then random draws while ``budget`` allows.
+
+    Ctrl-C stops cleanly.  Returns ``(random windows checked, interrupted)``.
+    """
+    t0 = time.perf_counter()
+    random_windows = 0
+    try:
+        for i, (kind, where) in enumerate(plan):
+            check(kind, where)
+            random_windows += kind == "sample"
+            if progress:
+                progress(i + 1, len(plan))
+        if budget is not None:
+            # Keep drawing while the next check is expected to fit.
+            per = (time.perf_counter() - t0) / max(1, len(plan))
+            while time.perf_counter() - t0 + per < budget:
+                t1 = time.perf_counter()
+                check("sample", draw())
+                random_windows += 1
+                per = max(per, time.perf_counter() - t1)
+    except KeyboardInterrupt:
+        return random_windows, True
+    return random_windows, False

@@ -36,10 +36,17 @@ from spotcheck.digitfile import DigitFile
 from spotcheck.engine.api import leading_digits
 from spotcheck.errors import UsageError
 
-from .common import DEFAULT_WINDOW, HexOracle, Progress, clamp_window, first_difference, integer_part_check
+from .common import (
+    DEFAULT_WINDOW,
+    HexOracle,
+    Progress,
+    clamp_window,
+    first_difference,
+    integer_part_check,
+    run_plan,
+)
 from .reference import memory_budget
 from .results import FileFacts, LocateResult, VerifyResult, WindowCheck
-from .stats import false_match_chance, scattered_damage_bound
 
 __all__ = ["prefix_check", "verify_decimal", "locate_decimal", "estimate_conversion_bytes"]
 
@@ -218,27 +225,12 @@ def verify_decimal(
     plan += [("user", min(n, p + w - 1)) for p in at]
     lo = min(n, 2 * w)
     plan += sorted(("sample", rng.randint(lo, n)) for _ in range(samples))
-    interrupted = False
-    random_windows = 0
 
-    def run(kind: str, length: int) -> None:
+    def check(kind: str, length: int) -> None:
         out = prefix_check(digits[:length], oracle, w, kind)
         checks.extend(c for c in (out.window, out.end) if c is not None)
 
-    try:
-        for i, (kind, length) in enumerate(plan):
-            run(kind, length)
-            random_windows += kind == "sample"
-            if progress:
-                progress(i + 1, len(plan))
-        if budget is not None:
-            per = (time.perf_counter() - t0) / len(plan)
-            while time.perf_counter() - t0 + per < budget:
-                run("sample", rng.randint(lo, n))
-                random_windows += 1
-    except KeyboardInterrupt:
-        interrupted = True
-    clean_random = random_windows if all(c.match for c in checks) else 0
+    random_windows, interrupted = run_plan(plan, check, lambda: rng.randint(lo, n), budget, progress)
     return VerifyResult(
         file=facts,
         checks=checks,
@@ -248,9 +240,7 @@ def verify_decimal(
         interrupted=interrupted,
         window=w,
         seed=seed,
-        false_match_chance=false_match_chance(w, 16),
         tail_position=n,
-        scattered_bound=scattered_damage_bound(clean_random),
         random_windows=random_windows,
     )
 

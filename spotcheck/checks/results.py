@@ -10,6 +10,8 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
+from .stats import false_match_chance, scattered_damage_bound
+
 __all__ = ["FileFacts", "WindowCheck", "VerifyResult", "LocateResult", "MismatchRun", "ScanResult"]
 
 MATCH, MISMATCH, INCOMPLETE = "match", "mismatch", "incomplete"
@@ -88,13 +90,19 @@ class _Common:
 class VerifyResult(_Common):
     window: int
     seed: int
-    false_match_chance: float
-    """Chance that a wrong window of ``window`` digits matches by accident: 16^-w (or 10^-w)."""
     tail_position: int | None
     """Where the tail check landed: a match there rules out a persistent error before it."""
-    scattered_bound: float | None
-    """95% upper bound on the damaged fraction of the file from the clean random windows."""
     random_windows: int = 0
+
+    @property
+    def false_match_chance(self) -> float:
+        """Chance that a wrong window of ``window`` hex digits matches by accident: 16^-w."""
+        return false_match_chance(self.window, 16)
+
+    @property
+    def scattered_bound(self) -> float | None:
+        """95% upper bound on the damaged fraction from the clean random windows (None if any differs)."""
+        return None if self.any_mismatch else scattered_damage_bound(self.random_windows)
 
     @property
     def verdict(self) -> str:

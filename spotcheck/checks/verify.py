@@ -9,9 +9,16 @@ from collections.abc import Sequence
 
 from spotcheck.errors import UsageError
 
-from .common import DEFAULT_WINDOW, HexOracle, Progress, clamp_window, integer_part_check, open_checked
+from .common import (
+    DEFAULT_WINDOW,
+    HexOracle,
+    Progress,
+    clamp_window,
+    integer_part_check,
+    open_checked,
+    run_plan,
+)
 from .results import VerifyResult, WindowCheck
-from .stats import false_match_chance, scattered_damage_bound
 
 __all__ = ["verify_file", "MAX_SAMPLES"]
 
@@ -88,25 +95,11 @@ def _verify_hex(df, facts, samples, seed, at, window, budget, workers, progress)
     ip = integer_part_check(facts)
     if ip is not None:
         checks.append(ip)
-    interrupted = False
-    random_windows = 0
-    try:
-        for i, (kind, p) in enumerate(plan):
-            checks.append(oracle.compare(df, kind, p, w))
-            random_windows += kind == "sample"
-            if progress:
-                progress(i + 1, len(plan))
-        if budget is not None:
-            # Draw more random windows while the next one is expected to fit.
-            per = (time.perf_counter() - t0) / max(1, len(plan))
-            while time.perf_counter() - t0 + per < budget:
-                t1 = time.perf_counter()
-                checks.append(oracle.compare(df, "sample", rng.randint(1, last_start), w, note="budget"))
-                random_windows += 1
-                per = max(per, time.perf_counter() - t1)
-    except KeyboardInterrupt:
-        interrupted = True
-    clean_random = random_windows if all(c.match for c in checks) else 0
+
+    def check(kind: str, position: int) -> None:
+        checks.append(oracle.compare(df, kind, position, w))
+
+    random_windows, interrupted = run_plan(plan, check, lambda: rng.randint(1, last_start), budget, progress)
     return VerifyResult(
         file=facts,
         checks=checks,
@@ -116,8 +109,6 @@ def _verify_hex(df, facts, samples, seed, at, window, budget, workers, progress)
         interrupted=interrupted,
         window=w,
         seed=seed,
-        false_match_chance=false_match_chance(w, 16),
         tail_position=last_start,
-        scattered_bound=scattered_damage_bound(clean_random),
         random_windows=random_windows,
     )
