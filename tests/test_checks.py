@@ -225,3 +225,12 @@ def test_other_constants_damaged_files(workdir, constant, value) -> None:
     assert verify_file(str(path), samples=2, seed=3).exit_code == 1
     loc = locate_file(str(path))
     assert loc.first_mismatch == 20_001 and loc.how == "bisection" and loc.rest == "wrong"
+
+
+def test_locate_within_a_zero_budget_explains_the_cost(workdir, truth) -> None:
+    digits = list(truth[:20_000])
+    digits[777] = "0" if digits[777] != "0" else "1"
+    path = write_hex(workdir, "".join(digits))
+    loc = locate_file(str(path), budget=0)
+    assert loc.first_mismatch is None and loc.exit_code == 0
+    assert "spotcheck scan" in loc.explanation and loc.scan_estimate_seconds is not None

@@ -135,6 +135,17 @@ class _HexLocator:
             first_is_certain=certain and first is not None,
         )
 
+    def scan_cost(self, seconds: float, upto: int | None) -> str:
+        """Why no full comparison ran, and what one would cost."""
+        if seconds == float("inf"):
+            return f"there is no independent full computation of {self.facts.constant} to compare with"
+        what = f"the first {upto:,} digits" if upto else "the whole file"
+        limit = f" --limit {upto}" if upto else ""
+        return (
+            f"comparing {what} with a full computation would take about {seconds:.0f} s, beyond the "
+            f"budget of {self.budget:.0f} s (run `spotcheck scan{limit}`, or raise --budget)"
+        )
+
     # -- the search -----------------------------------------------------------
     def run(self) -> LocateResult:
         try:
@@ -231,8 +242,7 @@ class _HexLocator:
             "bisection",
             f"first wrong digit at position {first:,} if the error persisted once made (as in a "
             f"computation that went astray): {found_by}; the window just before it matches. Earlier "
-            f"isolated damage is not ruled out: comparing the {first - 1:,} digits before it would take "
-            f"about {seconds:.0f} s (budget {self.budget:.0f} s; run `spotcheck scan --limit {first - 1}`)",
+            f"isolated damage is not ruled out: {self.scan_cost(seconds, first - 1)}",
             rest=rest,
             certain=first == 1,
             scan_estimate=seconds,
@@ -254,8 +264,7 @@ class _HexLocator:
             return self.result(
                 None,
                 "none",
-                f"{ruled_out}; a full scan would take about {seconds:.0f} s, beyond the budget of "
-                f"{self.budget:.0f} s: run `spotcheck scan` (or raise --budget) to look for isolated damage",
+                f"{ruled_out}; {self.scan_cost(seconds, None)}",
                 scan_estimate=seconds,
             )
         first = self.scan_before(None)

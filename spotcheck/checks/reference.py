@@ -64,6 +64,14 @@ def _mpfr_value(name: str) -> Callable[[], object]:
     return table[name]
 
 
+def require_supported(constant: str) -> None:
+    if not supported(constant):
+        raise UsageError(
+            f"no independent full computation is available for {constant!r}; "
+            "scan covers the built-in constants (use verify or locate)"
+        )
+
+
 def supported(constant: str) -> bool:
     return constant in ("pi", "log2", "log3", "pi-squared", "catalan", "zeta3", "arctan-half")
 
@@ -101,8 +109,7 @@ def reference_digits(constant: str, base: int, n: int, reference: str = "arb") -
     """``(integer_part, digits)``: the first ``n`` certified digits after the point."""
     if reference not in REFERENCES:
         raise UsageError(f"unknown reference {reference!r} (choose from {', '.join(REFERENCES)})")
-    if not supported(constant):
-        raise UsageError(f"no independent full computation is available for {constant!r}")
+    require_supported(constant)
     bits = int(n * math.log2(base)) + GUARD_BITS
     floor_scaled = _floor_scaled_arb if reference == "arb" else _floor_scaled_mpfr
     while True:
@@ -130,10 +137,14 @@ def _calibrate(constant: str, reference: str) -> float:
 def estimate_reference(constant: str, base: int, n: int, reference: str = "arb") -> tuple[float, int]:
     """``(seconds, bytes)`` predicted for :func:`reference_digits`: a small timed run, scaled.
 
+    Infinite seconds for a constant with no full computation (a user formula).
+
     Time grows like ``b log(b)^2`` in the bit count ``b`` (fast multiplication
     inside binary splitting); memory like :data:`BYTES_PER_BIT` per bit plus
     the digit strings.
     """
+    if not supported(constant):
+        return math.inf, 0
     bits = int(n * math.log2(base)) + GUARD_BITS
     t0 = _calibrate(constant, reference)
     ratio = max(bits / CALIBRATION_BITS, 1.0)

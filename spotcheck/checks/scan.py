@@ -9,7 +9,7 @@ from spotcheck.digitfile import DigitFile
 from spotcheck.errors import UsageError
 
 from .common import Progress, integer_part_check, open_checked
-from .reference import REFERENCES, estimate_reference, memory_budget, reference_digits
+from .reference import REFERENCES, estimate_reference, memory_budget, reference_digits, require_supported
 from .results import FileFacts, MismatchRun, ScanResult, WindowCheck
 
 __all__ = ["scan_file", "scan_open", "estimate_scan", "diff_runs", "merge_runs"]
@@ -88,6 +88,7 @@ def scan_open(
     """Scan an already opened file, or its first ``upto`` digits (``locate`` reuses this)."""
     if reference not in REFERENCES:
         raise UsageError(f"unknown reference {reference!r} (choose from {', '.join(REFERENCES)})")
+    require_supported(facts.constant)
     t0 = time.perf_counter()
     n = facts.checked if upto is None else min(upto, facts.checked)
     seconds, memory = estimate_scan(facts, reference, upto=n)
