@@ -115,10 +115,15 @@ def _meaning(result: CheckResult) -> list[str]:
         w = result.window
         if result.file.base == 10:
             lines.append(
-                "Radix conversion: the whole decimal value was converted to hexadecimal; the hex digits it "
-                "determines were compared with certified engine digits, and the last decimal digits were "
-                "recomputed exactly."
+                "Radix conversion: each decimal prefix checked (the whole file for the tail) was converted "
+                "to hexadecimal; the hex digits it determines were compared with certified engine digits "
+                "(base 16 rows), and its last decimal digits were recomputed exactly (base 10 rows)."
             )
+            if result.any_mismatch:
+                lines.append(
+                    "A differing row means that some decimal digit of that prefix is wrong, not necessarily "
+                    "at the position shown; `spotcheck locate` finds the first wrong decimal digit."
+                )
         tail = next((c for c in result.checks if c.kind == "tail"), None)
         if tail is not None and tail.match:
             lines.append(
@@ -145,11 +150,8 @@ def _meaning(result: CheckResult) -> list[str]:
 def _row_result(c: WindowCheck) -> str:
     if c.match:
         return f"[{STYLE_OK}]match[/]"
-    return (
-        f"[{STYLE_BAD}]differs at {c.first_difference:,}[/]"
-        if c.first_difference
-        else f"[{STYLE_BAD}]differs[/]"
-    )
+    where = f" at {c.first_difference:,}" if c.first_difference else ""
+    return f"[{STYLE_BAD}]✗{where}[/]"
 
 
 def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool) -> None:
@@ -158,6 +160,7 @@ def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool)
         return
     if quiet:
         return
+    from rich import box
     from rich.table import Table
     from rich.text import Text
 
@@ -171,22 +174,29 @@ def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool)
         style=STYLE_DIM,
     )
     if isinstance(result, ScanResult) and result.runs:
-        table = Table(show_edge=False)
+        table = Table(box=box.SIMPLE_HEAD, pad_edge=False, show_edge=False, collapse_padding=True)
         for col in ("start", "length", "wrong", "expected", "found"):
             table.add_column(col)
         for r in result.runs[:MAX_TABLE_ROWS]:
             table.add_row(f"{r.start:,}", f"{r.length:,}", f"{r.wrong:,}", r.expected, r.found)
         con.print(table)
     elif result.checks:
-        table = Table(show_edge=False)
-        for col in ("check", "base", "position", "expected", "found", "result"):
-            table.add_column(col)
+        mixed = any(c.base != f.base for c in result.checks)
+        table = Table(box=box.SIMPLE_HEAD, pad_edge=False, show_edge=False, collapse_padding=True)
+        table.add_column("check", no_wrap=True)
+        if mixed:
+            table.add_column("base", no_wrap=True)
+        table.add_column("position", justify="right", no_wrap=True)
+        table.add_column("expected", no_wrap=True)
+        table.add_column("found", no_wrap=True)
+        table.add_column("result", no_wrap=True)
         shown = result.checks
         if len(shown) > MAX_TABLE_ROWS:
             bad = [c for c in shown if not c.match]
             shown = (bad + [c for c in shown if c.match])[:MAX_TABLE_ROWS]
         for c in shown:
-            table.add_row(c.kind, str(c.base), f"{c.position:,}", c.expected, c.found, _row_result(c))
+            base_cell = [str(c.base)] if mixed else []
+            table.add_row(c.kind, *base_cell, f"{c.position:,}", c.expected, c.found, _row_result(c))
         con.print(table)
         if len(shown) < len(result.checks):
             con.print(f"({len(result.checks) - len(shown)} more matching checks not shown)", style=STYLE_DIM)
