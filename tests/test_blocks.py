@@ -275,6 +275,8 @@ DAMAGE = {
     "wrong term count": lambda p: rewrite(p, set_first(3, 1)),
     "shifted range": lambda p: rewrite(p, set_first(0, 1)),
     "value not hex": lambda p: rewrite(p, set_first(2, "xyz")),
+    "k0 as a string": lambda p: rewrite(p, set_first(0, "0")),
+    "terms as a float": lambda p: rewrite(p, set_first(3, float(7 * BLOCK_K))),
     "section of another series": lambda p: rewrite(p, lambda d: d["sections"][0].update(k_total=5)),
     "duplicated section": lambda p: rewrite(p, lambda d: d["sections"].append(d["sections"][0])),
 }

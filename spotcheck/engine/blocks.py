@@ -292,8 +292,9 @@ def sum_blocks(
         if resumed:
             report()
     missing = [b for b in blocks if b[0] not in seen]
+    records = runner(request, missing)
     try:
-        for item in runner(request, missing):
+        for item in records:
             problem = block_problem(request, item)
             if problem is None and isinstance(item, BlockRecord) and item.k0 in seen:
                 problem = f"block [{item.k0}, {item.k1}) arrived twice"
@@ -306,6 +307,9 @@ def sum_blocks(
                 checkpoint.add(request, record)
             report()
     finally:
+        close = getattr(records, "close", None)
+        if close is not None:  # stop a generator runner now: cancel its queued blocks
+            close()
         if checkpoint is not None:
             checkpoint.flush()
     if len(seen) != len(blocks):
@@ -387,11 +391,16 @@ class Checkpoint:
 
     def _load_section(self, section: Any) -> None:
         try:
-            d, words, block_k = int(section["d"]), int(section["words"]), int(section["block_k"])
-            raw = section["blocks"]
+            d, words, block_k = (
+                _exact_int(section["d"]),
+                _exact_int(section["words"]),
+                _exact_int(section["block_k"]),
+            )
             records = [
-                BlockRecord(section["series"], d, words, int(k0), int(k1), int(v, 16), int(t))
-                for k0, k1, v, t in raw
+                BlockRecord(
+                    section["series"], d, words, _exact_int(k0), _exact_int(k1), int(v, 16), _exact_int(t)
+                )
+                for k0, k1, v, t in section["blocks"]
             ]
         except (KeyError, TypeError, ValueError) as exc:
             raise self._refuse(f"damaged section ({exc!r})") from None
@@ -466,6 +475,13 @@ class Checkpoint:
         _write_atomic(self.path, json.dumps(payload, separators=(",", ":")) + "\n")
         self._dirty = False
         self._last_write = time.monotonic()
+
+
+def _exact_int(x: object) -> int:
+    """``x`` if it is a JSON integer (not a bool, float or string), else TypeError."""
+    if type(x) is not int:
+        raise TypeError(f"expected an integer, got {x!r}")
+    return x
 
 
 def _write_atomic(path: Path, text: str) -> None:
