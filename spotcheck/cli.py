@@ -85,13 +85,30 @@ def digits(
     ] = False,
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
+    checkpoint: Annotated[
+        str | None,
+        typer.Option(
+            "--checkpoint",
+            metavar="FILE",
+            help="Keep finished head-sum blocks in FILE; the same command resumes after an interruption. "
+            "'auto': a file under the user's cache directory (its path is printed).",
+        ),
+    ] = None,
+    cluster: Annotated[
+        str | None,
+        typer.Option(
+            "--cluster",
+            metavar="ADDRESS",
+            help="Run the head sum on a Dask scheduler, e.g. tcp://host:8786 (pip install 'spotcheck\\[cluster]').",
+        ),
+    ] = None,
     as_json: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
     """Print certified hexadecimal digits of CONSTANT from position --at."""
-    from spotcheck.engine.api import check_request, extract
+    from spotcheck.engine.api import check_request, default_checkpoint_path, extract
     from spotcheck.formulas import get_constant
-    from spotcheck.report.console import progress_bar
+    from spotcheck.report.console import block_progress_bar, info_line
     from spotcheck.report.digits import show_digits
 
     _load_formula_files(formula_file)
@@ -102,12 +119,38 @@ def digits(
         raise typer.BadParameter(
             f"{const.name} has only one formula; nothing to cross-check", param_hint="--cross-check"
         )
+    if checkpoint is not None and checkpoint != "auto" and len(keys) > 1:
+        raise typer.BadParameter(
+            "one checkpoint file serves one formula; use --checkpoint auto with --cross-check",
+            param_hint="--checkpoint",
+        )
     results = []
     for key in keys:
-        with progress_bar(f"{const.name} [{key}] head sum", enabled=not (quiet or as_json)) as cb:
-            results.append(
-                extract(const.name, at, count, formula=key, workers=_workers(workers), progress=cb)
-            )
+        path: Path | None = None
+        if checkpoint == "auto":
+            path = default_checkpoint_path(const.name, at, count, formula=key)
+        elif checkpoint is not None:
+            path = Path(checkpoint)
+        if path is not None and not (quiet or as_json):
+            info_line(f"checkpoint: {path}")
+        try:
+            with block_progress_bar(f"{const.name} [{key}] head sum", enabled=not (quiet or as_json)) as cb:
+                results.append(
+                    extract(
+                        const.name,
+                        at,
+                        count,
+                        formula=key,
+                        workers=_workers(workers),
+                        checkpoint=path,
+                        cluster=cluster,
+                        block_progress=cb,
+                    )
+                )
+        except KeyboardInterrupt:
+            if path is not None:
+                info_line(f"finished blocks are kept in {path}; run the same command to resume")
+            raise
     main_result = results[0]
     if formula is not None:
         main_result = next(r for r in results if r.formula == const.formula(formula).key)

@@ -13,6 +13,10 @@ from spotcheck.cli import run
 from .reference import pi_hex
 
 
+def hex_digits_reference(position: int, count: int) -> str:
+    return pi_hex(position + count)[position - 1 : position - 1 + count]  # gmpy2/MPFR
+
+
 def cli(capsys, *args: str) -> tuple[int, str, str]:
     code = run(list(args))
     out, err = capsys.readouterr()
@@ -103,3 +107,32 @@ def test_import_is_light() -> None:
     code = "import sys, spotcheck; spotcheck.hex_digits('pi', 1, 4); print('rich' in sys.modules, 'typer' in sys.modules)"
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert proc.stdout.strip() == "False False"
+
+
+def test_checkpoint_for_another_request_is_refused(capsys, tmp_path) -> None:
+    ckpt = tmp_path / "run.json"
+    code, out, _ = cli(
+        capsys, "digits", "pi", "--at", "200000", "--count", "14", "--checkpoint", str(ckpt), "--quiet"
+    )
+    assert code == 0 and ckpt.exists()
+    assert out.strip() == hex_digits_reference(200_000, 14)
+    before = ckpt.read_bytes()
+    code, _, err = cli(capsys, "digits", "pi", "--at", "300000", "--count", "14", "--checkpoint", str(ckpt))
+    lines = [ln for ln in err.splitlines() if ln.startswith("error:")]
+    assert code == 2 and len(lines) == 1 and "checkpoint" in lines[0]
+    assert ckpt.read_bytes() == before  # refused, never rewritten
+
+
+def test_cluster_without_dask_says_how_to_install(capsys, monkeypatch) -> None:
+    import builtins
+
+    real_import = builtins.__import__
+
+    def no_dask(name, *args, **kwargs):
+        if name == "distributed" or name.startswith("distributed."):
+            raise ImportError("no dask here")
+        return real_import(name, *args, **kwargs)
+
+    monkeypatch.setattr(builtins, "__import__", no_dask)
+    code, _, err = cli(capsys, "digits", "pi", "--at", "1000", "--cluster", "tcp://127.0.0.1:9")
+    assert code == 2 and "spotcheck[cluster]" in err

@@ -393,7 +393,7 @@ ALWAYS_INLINE void run_lanes(const int L, const int step, const uint64_t *n, con
     for (int b = top - 1; b >= 0; b--) {
         for (int l = 0; l < L; l++) {
             uint64_t bit = (f[l] >> b) & 1, hi, lo;
-            if (step == STEP_FUSED || step == STEP_NARROW) {
+            if (step == STEP_FUSED || step == STEP_NARROW || step == STEP_SIMD) {
                 /* x * 2x < n 2^64 because x < n < 2^63: double before reducing. */
                 mul_wide(x[l], x[l] + (x[l] & (0 - bit)), &hi, &lo);
                 x[l] = redc(hi, lo, n[l], ninv[l]);

@@ -45,6 +45,11 @@ def warning_line(message: str) -> None:
     sys.stderr.write(f"warning: {message}\n")
 
 
+def info_line(message: str) -> None:
+    """A line for the user on stderr (stdout stays the result)."""
+    sys.stderr.write(f"{message}\n")
+
+
 ProgressCallback = Callable[[int, int], None]
 
 
@@ -87,6 +92,58 @@ def progress_bar(description: str, *, enabled: bool = True) -> Iterator[Progress
             state["bar"] = bar
             state["task"] = bar.add_task(description, total=total)
         state["bar"].update(state["task"], completed=done, total=total)
+
+    try:
+        yield callback
+    finally:
+        if state["bar"] is not None:
+            state["bar"].stop()
+
+
+def _eta(seconds: float | None) -> str:
+    if seconds is None:
+        return "-:--:--"
+    s = int(seconds + 0.5)
+    return f"{s // 3600}:{s // 60 % 60:02d}:{s % 60:02d}"
+
+
+@contextmanager
+def block_progress_bar(description: str, *, enabled: bool = True) -> Iterator[Callable[[Any], None] | None]:
+    """Yield a ``callback(BlockProgress)`` drawing blocks done/total, rate and ETA on stderr.
+
+    Like :func:`progress_bar` it appears only after :data:`PROGRESS_DELAY`
+    seconds, and it starts a new line for each window and precision the engine
+    evaluates.  Yields ``None`` when disabled.
+    """
+    if not enabled:
+        yield None
+        return
+    state: dict[str, Any] = {"bar": None, "task": None, "window": None, "t0": time.monotonic()}
+
+    def callback(p: Any) -> None:
+        if state["bar"] is None:
+            if time.monotonic() - state["t0"] < PROGRESS_DELAY:
+                return
+            from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+
+            new_bar = Progress(
+                TextColumn("{task.description}"),
+                BarColumn(),
+                MofNCompleteColumn(),
+                TextColumn("blocks {task.fields[note]}"),
+                TimeElapsedColumn(),
+                TextColumn("eta {task.fields[eta]}"),
+                console=stderr_console(),
+                transient=True,
+            )
+            new_bar.start()
+            state["bar"] = new_bar
+        bar = state["bar"]
+        if state["window"] != (p.d, p.words):
+            state["window"] = (p.d, p.words)
+            state["task"] = bar.add_task(description, total=p.total, note="", eta="")
+        note = f"{p.rate:.2f}/s" + (f", {p.resumed} resumed" if p.resumed else "")
+        bar.update(state["task"], completed=p.done, total=p.total, note=note, eta=_eta(p.eta))
 
     try:
         yield callback
