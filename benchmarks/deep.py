@@ -25,10 +25,11 @@ from __future__ import annotations
 
 import argparse
 import os
-import platform
 import sys
 import time
 from collections.abc import Iterator, Sequence
+
+from machine import describe  # noqa: E402  (this folder is first on sys.path)
 
 from spotcheck.engine import backend
 from spotcheck.engine.api import extract
@@ -47,29 +48,6 @@ PROJECT_CORES = (8, 32, 128, 512)
 # next to ours for the reader, not asserted.
 PAPER_TABLE = {10**8: "ECB840E21926EC", 10**9: "85895585A0428B"}
 # -------------------------------------------------------------------------------
-
-
-def machine() -> str:
-    model = "unknown CPU"
-    try:
-        with open("/proc/cpuinfo") as fh:
-            for line in fh:
-                if line.startswith("model name"):
-                    model = line.split(":", 1)[1].strip()
-                    break
-    except OSError:
-        model = platform.processor() or model
-    kernel = ""
-    try:
-        from spotcheck.engine import _kernel  # type: ignore[attr-defined]
-
-        kernel = f", kernel {getattr(_kernel, 'ARITHMETIC', '?')} / {getattr(_kernel, 'LANES', '?')} lanes"
-    except ImportError:
-        pass
-    return (
-        f"{model}, {os.cpu_count()} logical CPUs, {platform.system()} {platform.machine()}, "
-        f"Python {platform.python_version()}{kernel}"
-    )
 
 
 def load() -> str:
@@ -153,7 +131,7 @@ def main() -> None:
         sys.exit("the compiled kernel is not in use; these figures are for the C kernel")
 
     f = get_constant("pi").formula()
-    print(f"machine: {machine()}")
+    print(describe())
     print(f"backend: {backend.BACKEND_NOTE}")
     print(f"pi, formula {f.key}: {f.notation()}; {DIGITS} certified hex digits; blocks of deep_block_k")
     print(f"load average at start: {load()}")

@@ -22,13 +22,14 @@ import argparse
 import gzip
 import json
 import os
-import platform
 import random
 import resource
 import subprocess
 import sys
 import tempfile
 import time
+
+from machine import describe  # noqa: E402  (this folder is first on sys.path)
 
 MIB = 1 << 20
 TO_DIGIT = bytes(48 + (i % 10) for i in range(256))
@@ -80,20 +81,6 @@ def write_labelled(path: str, size: int, rng: random.Random) -> int:
             f.write(chunk)
             written += len(chunk)
     return written
-
-
-def machine() -> str:
-    cpu = platform.processor() or "unknown cpu"
-    try:
-        with open("/proc/cpuinfo") as f:
-            cpu = next(line.split(":", 1)[1].strip() for line in f if line.startswith("model name"))
-    except (OSError, StopIteration):
-        pass
-    mem = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES") / 2**30 if hasattr(os, "sysconf") else 0
-    return (
-        f"machine: {cpu}, {os.cpu_count()} cpus, {mem:.0f} GiB RAM, {platform.system()} {platform.release()}, "
-        f"Python {platform.python_version()}"
-    )
 
 
 def peak_rss() -> int:
@@ -176,7 +163,7 @@ def main() -> None:
         return
     size = int(args.gib * 2**30)
     rng = random.Random(2026)
-    print(machine())
+    print(describe())
     print(f"load average before: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     with tempfile.TemporaryDirectory(prefix="spotcheck-bench-") as tmp:
         path = os.path.join(tmp, "digits.txt")

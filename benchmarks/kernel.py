@@ -12,11 +12,11 @@ threads.  Figures are minima over repeats, as the machine may be shared.
 from __future__ import annotations
 
 import argparse
-import os
-import platform
 import sys
 import time
 from collections.abc import Callable
+
+from machine import describe  # noqa: E402  (this folder is first on sys.path)
 
 from spotcheck.engine import backend
 from spotcheck.engine.api import extract
@@ -48,23 +48,6 @@ STEPS = {
 }
 VARIANTS = [(lanes, step) for step in STEPS for lanes in (4, 8)]
 # -------------------------------------------------------------------------------
-
-
-def machine() -> str:
-    model = "unknown CPU"
-    try:
-        with open("/proc/cpuinfo") as fh:
-            for line in fh:
-                if line.startswith("model name"):
-                    model = line.split(":", 1)[1].strip()
-                    break
-    except OSError:
-        model = platform.processor() or model
-    return (
-        f"{model}, {os.cpu_count()} logical CPUs, {platform.system()} {platform.machine()}, "
-        f"Python {platform.python_version()}, kernel arithmetic {_kernel.ARITHMETIC}, "
-        f"shipped head_sum = {_kernel.LANES} lanes / step {_kernel.STEP}"
-    )
 
 
 def power(n: int) -> str:
@@ -108,7 +91,7 @@ def main() -> None:
     parser.add_argument("--quick", action="store_true", help="skip sympy at 10^7 and the digits at 10^8")
     args = parser.parse_args()
 
-    print(f"machine: {machine()}")
+    print(describe())
     print(f"backend: {backend.BACKEND_NOTE}")
     bbp = series_of(get_constant("pi").formula("bbp"))
 
