@@ -182,6 +182,23 @@ FormulaOpt = Annotated[
 ]
 WindowOpt = Annotated[int, typer.Option("--window", help="Digits compared per check.")]
 LimitOpt = Annotated[int | None, typer.Option("--limit", help="Check only the first N digits of the file.")]
+ClusterOpt = Annotated[
+    str | None,
+    typer.Option(
+        "--cluster",
+        metavar="ADDRESS",
+        help="Run the head sums on a Dask scheduler, e.g. tcp://host:8786 (pip install 'spotcheck\\[cluster]').",
+    ),
+]
+WindowCheckpointOpt = Annotated[
+    str | None,
+    typer.Option(
+        "--checkpoint",
+        metavar="auto",
+        help="Keep each window's finished head-sum blocks under the user's cache directory, so a rerun "
+        "resumes ('auto' is the only value: a check evaluates several windows).",
+    ),
+]
 IgnoreLabelsOpt = Annotated[
     bool,
     typer.Option(
@@ -200,6 +217,15 @@ def _base(base: int | None) -> int | None:
     if base not in (None, 10, 16):
         raise typer.BadParameter(f"base must be 10 or 16, got {base}", param_hint="--base")
     return base
+
+
+def _window_checkpoint(value: str | None) -> bool:
+    if value not in (None, "auto"):
+        raise typer.BadParameter(
+            "checks evaluate several windows, one checkpoint file each: use --checkpoint auto",
+            param_hint="--checkpoint",
+        )
+    return value == "auto"
 
 
 def _repeat(command: str, path: Path, **options: Any) -> str:
@@ -251,6 +277,8 @@ def verify(
     ignore_labels: IgnoreLabelsOpt = False,
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
+    cluster: ClusterOpt = None,
+    checkpoint: WindowCheckpointOpt = None,
     as_json: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
@@ -276,6 +304,8 @@ def verify(
             workers=_workers(workers),
             limit=limit,
             ignore_labels=ignore_labels,
+            cluster=cluster,
+            checkpoint=_window_checkpoint(checkpoint),
             progress=cb,
         )
     repeat = _repeat(
@@ -291,6 +321,8 @@ def verify(
         limit=limit,
         ignore_labels=ignore_labels,
         formula_file=formula_file,
+        cluster=cluster,
+        checkpoint=checkpoint,
     )
     _finish(result, repeat, as_json, quiet)
 
@@ -310,6 +342,8 @@ def locate(
     ignore_labels: IgnoreLabelsOpt = False,
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
+    cluster: ClusterOpt = None,
+    checkpoint: WindowCheckpointOpt = None,
     as_json: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
@@ -330,6 +364,8 @@ def locate(
             workers=_workers(workers),
             limit=limit,
             ignore_labels=ignore_labels,
+            cluster=cluster,
+            checkpoint=_window_checkpoint(checkpoint),
             progress=cb,
         )
     repeat = _repeat(
@@ -344,6 +380,8 @@ def locate(
         limit=limit,
         ignore_labels=ignore_labels,
         formula_file=formula_file,
+        cluster=cluster,
+        checkpoint=checkpoint,
     )
     _finish(result, repeat, as_json, quiet)
 

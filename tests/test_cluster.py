@@ -138,3 +138,31 @@ def test_lost_worker_blocks_are_recomputed(monkeypatch: pytest.MonkeyPatch) -> N
     assert killed
     # Bailey, Borwein, Plouffe, Math. Comp. 66 (1997): hex digits of pi at 10^7.
     assert digits == "17AF5863EFED8D"
+
+
+def test_verify_and_locate_on_a_cluster(cluster, tmp_path, capsys) -> None:
+    from spotcheck.cli import run
+
+    digits = pi_hex(POSITION)
+    bad = digits[:40_000] + "".join("0123456789ABCDEF"[(int(c, 16) + 5) % 16] for c in digits[40_000:])
+    path = tmp_path / "astray.txt"
+    path.write_text("3." + bad + "\n")
+    address = cluster.scheduler_address
+    assert run(["verify", str(path), "--cluster", address, "--seed", "1", "--quiet"]) == 1
+    assert run(["locate", str(path), "--cluster", address, "--json"]) == 1
+    import json
+
+    assert json.loads(capsys.readouterr().out)["first_mismatch"] == 40_001
+
+
+def test_verify_checkpoint_auto_keeps_each_window(tmp_path, monkeypatch, capsys) -> None:
+    from spotcheck.cli import run
+
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    path = tmp_path / "pi.txt"
+    path.write_text("3." + pi_hex(20_000) + "\n")
+    assert run(["verify", str(path), "--checkpoint", "auto", "--samples", "2", "--seed", "4", "--quiet"]) == 0
+    kept = sorted((tmp_path / "cache" / "spotcheck").glob("*.json"))
+    assert len(kept) >= 3  # head, tail and two samples: one file per window
+    assert run(["verify", str(path), "--checkpoint", str(tmp_path / "one.json")]) == 2
+    assert "--checkpoint auto" in capsys.readouterr().err

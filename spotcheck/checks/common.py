@@ -5,6 +5,7 @@ from __future__ import annotations
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import Any
 
 from spotcheck.digitfile import DigitFile, open_digit_file
 from spotcheck.engine.api import extract, leading_digits
@@ -100,6 +101,10 @@ class HexOracle:
     constant: str
     formula: str
     workers: int = 1
+    cluster: Any = None
+    """A Dask scheduler address (or Client) for the head sums of deep windows."""
+    checkpoint: bool = False
+    """Keep each window's finished head-sum blocks under the cache directory."""
     evaluations: int = 0
     engine_seconds: float = 0.0
     _cache: dict[tuple[int, int], str] = field(default_factory=dict)
@@ -108,7 +113,15 @@ class HexOracle:
         key = (position, count)
         if key not in self._cache:
             t0 = time.perf_counter()
-            r = extract(self.constant, position, count, formula=self.formula, workers=self.workers)
+            r = extract(
+                self.constant,
+                position,
+                count,
+                formula=self.formula,
+                workers=self.workers,
+                cluster=self.cluster,
+                checkpoint=True if self.checkpoint else None,
+            )
             self.engine_seconds += time.perf_counter() - t0
             self.evaluations += 1
             self._cache[key] = r.digits

@@ -205,7 +205,7 @@ def verify_decimal(
     at: Sequence[int],
     window: int = DEFAULT_WINDOW,
     budget: float | None = None,
-    workers: int = 1,
+    oracle: HexOracle,
     progress: Progress | None = None,
 ) -> VerifyResult:
     """Verify a decimal file: the whole value through radix conversion, plus random prefixes."""
@@ -213,7 +213,6 @@ def verify_decimal(
     n = facts.checked
     _check_memory(n)
     w = clamp_window(window, n)
-    oracle = HexOracle(facts.constant, facts.formula, workers=workers)
     rng = random.Random(seed)
     checks: list[WindowCheck] = []
     ip = integer_part_check(facts)
@@ -252,7 +251,7 @@ def locate_decimal(
     window: int = DEFAULT_WINDOW,
     budget: float = 0.0,
     reference: str = "arb",
-    workers: int = 1,
+    oracle: HexOracle,
     progress: Progress | None = None,
 ) -> LocateResult:
     """First wrong decimal digit, by bisection over prefix lengths.
@@ -266,7 +265,6 @@ def locate_decimal(
     n = facts.checked
     _check_memory(n)
     w = clamp_window(window, n)
-    oracle = HexOracle(facts.constant, facts.formula, workers=workers)
     checks: list[WindowCheck] = []
     ip = integer_part_check(facts)
     if ip is not None:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import time
 from dataclasses import dataclass, field
+from typing import Any
 
 from spotcheck.digitfile import DigitFile
 
@@ -31,12 +32,15 @@ def locate_file(
     workers: int = 1,
     limit: int | None = None,
     ignore_labels: bool = False,
+    cluster: Any = None,
+    checkpoint: bool = False,
     progress: Progress | None = None,
 ) -> LocateResult:
     """Find the first wrong digit of a digit file (1-based position), or say what was ruled out."""
     df, facts = open_checked(
         path, base=base, constant=constant, formula=formula, limit=limit, ignore_labels=ignore_labels
     )
+    oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, checkpoint=checkpoint)
     try:
         if facts.base == 10:
             from .decimal import locate_decimal
@@ -47,10 +51,10 @@ def locate_file(
                 window=window,
                 budget=budget,
                 reference=reference,
-                workers=workers,
+                oracle=oracle,
                 progress=progress,
             )
-        return _HexLocator(df, facts, window, budget, reference, workers, progress).run()
+        return _HexLocator(df, facts, window, budget, reference, oracle, progress).run()
     finally:
         df.close()
 
@@ -72,7 +76,7 @@ class _HexLocator:
     window: int
     budget: float
     reference: str
-    workers: int
+    oracle: HexOracle
     progress: Progress | None
     checks: list[WindowCheck] = field(default_factory=list)
     t0: float = field(default_factory=time.perf_counter)
@@ -81,7 +85,6 @@ class _HexLocator:
     def __post_init__(self) -> None:
         self.n = self.facts.checked
         self.w = clamp_window(self.window, self.n)
-        self.oracle = HexOracle(self.facts.constant, self.facts.formula, workers=self.workers)
         self.steps_total = max(1, (self.n // self.w).bit_length() + 2 + AFTER_SAMPLES)
         ip = integer_part_check(self.facts)
         if ip is not None:

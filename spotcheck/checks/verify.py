@@ -6,7 +6,9 @@ import random
 import secrets
 import time
 from collections.abc import Sequence
+from typing import Any
 
+from spotcheck.digitfile import DigitFile
 from spotcheck.errors import UsageError
 
 from .common import (
@@ -18,7 +20,7 @@ from .common import (
     open_checked,
     run_plan,
 )
-from .results import VerifyResult, WindowCheck
+from .results import FileFacts, VerifyResult, WindowCheck
 
 __all__ = ["verify_file", "MAX_SAMPLES"]
 
@@ -43,19 +45,23 @@ def verify_file(
     workers: int = 1,
     limit: int | None = None,
     ignore_labels: bool = False,
+    cluster: Any = None,
+    checkpoint: bool = False,
     progress: Progress | None = None,
 ) -> VerifyResult:
     """Check a digit file's tail, head, ``samples`` random windows and the positions ``at``.
 
     Hexadecimal files are compared window by window with certified engine
     digits; decimal files go through radix conversion
-    (:func:`spotcheck.checks.decimal.verify_decimal`).
+    (:func:`spotcheck.checks.decimal.verify_decimal`).  ``cluster`` and
+    ``checkpoint`` serve deep windows (see :func:`spotcheck.engine.api.extract`).
     """
     if not 0 <= samples <= MAX_SAMPLES:
         raise UsageError(f"samples must be between 0 and {MAX_SAMPLES}, got {samples}")
     if budget is not None and budget <= 0:
         raise UsageError(f"budget must be a positive number of seconds, got {budget}")
     seed = _seed(seed)
+    oracle_options = {"workers": workers, "cluster": cluster, "checkpoint": checkpoint}
     df, facts = open_checked(
         path, base=base, constant=constant, formula=formula, limit=limit, ignore_labels=ignore_labels
     )
@@ -74,18 +80,28 @@ def verify_file(
                 at=at,
                 window=window,
                 budget=budget,
-                workers=workers,
+                oracle=HexOracle(facts.constant, facts.formula, **oracle_options),
                 progress=progress,
             )
-        return _verify_hex(df, facts, samples, seed, at, window, budget, workers, progress)
+        oracle = HexOracle(facts.constant, facts.formula, **oracle_options)
+        return _verify_hex(df, facts, samples, seed, at, window, budget, oracle, progress)
     finally:
         df.close()
 
 
-def _verify_hex(df, facts, samples, seed, at, window, budget, workers, progress) -> VerifyResult:  # type: ignore[no-untyped-def]
+def _verify_hex(
+    df: DigitFile,
+    facts: FileFacts,
+    samples: int,
+    seed: int,
+    at: Sequence[int],
+    window: int,
+    budget: float | None,
+    oracle: HexOracle,
+    progress: Progress | None,
+) -> VerifyResult:
     t0 = time.perf_counter()
     w = clamp_window(window, facts.checked)
-    oracle = HexOracle(facts.constant, facts.formula, workers=workers)
     rng = random.Random(seed)
     last_start = facts.checked - w + 1
     plan: list[tuple[str, int]] = [("head", 1), ("tail", last_start)]
