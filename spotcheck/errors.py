@@ -24,6 +24,10 @@ class DigitFileError(SpotcheckError, ValueError):
     """A digit file that cannot be read as digits (garbage, empty, wrong base...)."""
 
 
+class LabelError(DigitFileError):
+    """Position labels in a digit file that disagree with the real digit count."""
+
+
 class FileAccessError(SpotcheckError, OSError):
     """A path that cannot be opened: missing, a directory, unreadable."""
 

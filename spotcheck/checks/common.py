@@ -9,7 +9,7 @@ from typing import Any
 
 from spotcheck.digitfile import DigitFile, open_digit_file
 from spotcheck.engine.api import extract, leading_digits
-from spotcheck.errors import DigitFileError, UsageError
+from spotcheck.errors import LabelError, UsageError
 from spotcheck.formulas import get_constant
 
 from .results import FileFacts, WindowCheck
@@ -42,10 +42,8 @@ def open_checked(
         raise UsageError(f"limit must be at least 1, got {limit}")
     try:
         df = open_digit_file(path, base=base, constant=constant, strict_labels=not ignore_labels)
-    except DigitFileError as exc:
-        if "labels that lie" in str(exc) and not ignore_labels:
-            raise DigitFileError(f"{exc} (check the digits themselves with --ignore-labels)") from None
-        raise
+    except LabelError as exc:
+        raise LabelError(f"{exc} (check the digits themselves with --ignore-labels)") from None
     if df.constant is None:
         df.close()
         raise UsageError(f"{path}: {df.constant_how} (--constant NAME; `spotcheck constants` lists them)")

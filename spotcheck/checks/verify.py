@@ -61,10 +61,10 @@ def verify_file(
     if budget is not None and budget <= 0:
         raise UsageError(f"budget must be a positive number of seconds, got {budget}")
     seed = _seed(seed)
-    oracle_options = {"workers": workers, "cluster": cluster, "checkpoint": checkpoint}
     df, facts = open_checked(
         path, base=base, constant=constant, formula=formula, limit=limit, ignore_labels=ignore_labels
     )
+    oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, checkpoint=checkpoint)
     try:
         for p in at:
             if not 1 <= p <= facts.checked:
@@ -80,10 +80,9 @@ def verify_file(
                 at=at,
                 window=window,
                 budget=budget,
-                oracle=HexOracle(facts.constant, facts.formula, **oracle_options),
+                oracle=oracle,
                 progress=progress,
             )
-        oracle = HexOracle(facts.constant, facts.formula, **oracle_options)
         return _verify_hex(df, facts, samples, seed, at, window, budget, oracle, progress)
     finally:
         df.close()

@@ -42,7 +42,7 @@ from spotcheck.digitfile.charsets import (
 from spotcheck.digitfile.detect import Plan
 from spotcheck.digitfile.model import Finding
 from spotcheck.digitfile.source import ByteSource
-from spotcheck.errors import DigitFileError
+from spotcheck.errors import DigitFileError, LabelError
 
 __all__ = ["ScanResult", "scan_text", "line_of", "Progress", "CHUNK_BYTES", "INDEX_STEP"]
 
@@ -149,7 +149,7 @@ class _LabelCheck:
         want = self.expect(self.meaning, before, nd)
         msg = f"label {label} disagrees with the digits: {self.EXPLAIN[self.meaning]} is {want}"
         if self.strict:
-            raise DigitFileError(f"{self.name}: labels that lie: line {line}: {msg}")
+            raise LabelError(f"{self.name}: labels that lie: line {line}: {msg}")
         self.mismatches += 1
         if self.mismatches <= MAX_FINDINGS:
             pos = before + 1 if nd else None
