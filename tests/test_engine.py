@@ -34,7 +34,7 @@ BBP_TABLE_1E7 = "17AF5863EFED8D"  # same table, position 10^7
 # Blowfish P-array (B. Schneier, "Description of a New Variable-Length Key,
 # 64-Bit Block Cipher (Blowfish)", 1993): the first 144 hex digits of pi after
 # the point, as 18 words of 32 bits.  Typed from memory of the published
-# listing; test_blowfish_matches_mpfr checks the transcription against MPFR.
+# listing; test_blowfish_matches_mpfr checks what was typed against MPFR.
 BLOWFISH_P = (
     "243F6A88 85A308D3 13198A2E 03707344 A4093822 299F31D0 082EFA98 EC4E6C89 452821E6 "
     "38D01377 BE5466CF 34E90C6C C0AC29B7 C97C50DD 3F84D5B5 B5470917 9216D5D9 8979FB1B"
