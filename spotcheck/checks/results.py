@@ -74,8 +74,16 @@ class _Common:
     def exit_code(self) -> int:
         return 1 if self.any_mismatch else 0
 
-    def _base_dict(self) -> dict[str, Any]:
+    @property
+    def verdict(self) -> str:
+        if self.any_mismatch:
+            return MISMATCH
+        return INCOMPLETE if self.interrupted else MATCH
+
+    def _base_dict(self, command: str) -> dict[str, Any]:
         return {
+            "command": command,
+            "verdict": self.verdict,
             "schema_version": 1,
             "file": asdict(self.file),
             "method": self.method,
@@ -104,14 +112,8 @@ class VerifyResult(_Common):
         """95% upper bound on the damaged fraction from the clean random windows (None if any differs)."""
         return None if self.any_mismatch else scattered_damage_bound(self.random_windows)
 
-    @property
-    def verdict(self) -> str:
-        if self.any_mismatch:
-            return MISMATCH
-        return INCOMPLETE if self.interrupted else MATCH
-
     def to_dict(self) -> dict[str, Any]:
-        out = {"command": "verify", "verdict": self.verdict, **self._base_dict()}
+        out = self._base_dict("verify")
         out.update(
             window=self.window,
             seed=self.seed,
@@ -151,7 +153,7 @@ class LocateResult(_Common):
         return 1 if self.first_mismatch is not None else 0
 
     def to_dict(self) -> dict[str, Any]:
-        out = {"command": "locate", "verdict": self.verdict, **self._base_dict()}
+        out = self._base_dict("locate")
         out.update(
             first_mismatch=self.first_mismatch,
             expected=self.expected,
@@ -194,14 +196,8 @@ class ScanResult(_Common):
     def first_mismatch(self) -> int | None:
         return self.runs[0].start if self.runs else None
 
-    @property
-    def verdict(self) -> str:
-        if self.any_mismatch:
-            return MISMATCH
-        return INCOMPLETE if self.interrupted else MATCH
-
     def to_dict(self) -> dict[str, Any]:
-        out = {"command": "scan", "verdict": self.verdict, **self._base_dict()}
+        out = self._base_dict("scan")
         out.update(
             reference=self.reference,
             digits_compared=self.digits_compared,
