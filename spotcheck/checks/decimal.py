@@ -84,6 +84,11 @@ class PrefixOutcome:
     """The decimal-end comparison (None when the window differs or it could not be settled)."""
 
     @property
+    def rows(self) -> list[WindowCheck]:
+        """The comparisons made, for a report's list of checks."""
+        return [c for c in (self.window, self.end) if c is not None]
+
+    @property
     def match(self) -> bool:
         return all(c is None or c.match for c in (self.window, self.end))
 
@@ -227,7 +232,7 @@ def verify_decimal(
 
     def check(kind: str, length: int) -> None:
         out = prefix_check(digits[:length], oracle, w, kind)
-        checks.extend(c for c in (out.window, out.end) if c is not None)
+        checks.extend(out.rows)
 
     random_windows, interrupted = run_plan(plan, check, lambda: rng.randint(lo, n), budget, progress)
     return VerifyResult(
@@ -276,14 +281,14 @@ def locate_decimal(
     bad_end: WindowCheck | None = None
     try:
         whole = prefix_check(digits, oracle, w, "tail")
-        checks.extend(c for c in (whole.window, whole.end) if c is not None)
+        checks.extend(whole.rows)
         if not whole.match:
             good, bad = 0, n  # prefix `good` passes, prefix `bad` fails
             bad_end = whole.end
             while bad - good > 1:
                 mid = (good + bad) // 2
                 out = prefix_check(digits[:mid], oracle, w, "bisection")
-                checks.extend(c for c in (out.window, out.end) if c is not None)
+                checks.extend(out.rows)
                 if out.match:
                     good = mid
                 else:
@@ -294,7 +299,7 @@ def locate_decimal(
             # Convert a prefix reaching a window past it to recompute the expected digits there.
             first = bad
             out = prefix_check(digits[: min(n, bad + w - 1)], oracle, w, "confirm", basis=good)
-            checks.extend(c for c in (out.window, out.end) if c is not None)
+            checks.extend(out.rows)
             bad_end = out.end
     except KeyboardInterrupt:
         interrupted = True
