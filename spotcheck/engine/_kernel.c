@@ -714,12 +714,38 @@ PyMODINIT_FUNC PyInit__kernel(void)
     PyObject *mod = PyModule_Create(&kernel_module);
     if (mod == NULL)
         return NULL;
+    /* The limits of head_sum's integer arithmetic, read by backend.py (the one
+       place that splits a sum between this kernel and the twin):
+       every modulus N < MAX_MODULUS, exponent D - e k <= MAX_EXPONENT,
+       |c_j| < MAX_COEFFICIENT, words <= MAX_WORDS. */
     PyObject *limit = PyLong_FromUnsignedLongLong(MODULUS_LIMIT);
+    PyObject *exponent = PyLong_FromUnsignedLongLong(UINT64_MAX);
+    PyObject *coeff = PyLong_FromLongLong(COEFF_LIMIT);
     if (PyModule_AddStringConstant(mod, "ARITHMETIC", KERNEL_ARITH) ||
         PyModule_AddIntConstant(mod, "MAX_WORDS", MAX_WORDS) ||
         PyModule_AddIntConstant(mod, "LANES", BEST_LANES) || PyModule_AddIntConstant(mod, "STEP", BEST_STEP) ||
-        limit == NULL || PyModule_AddObject(mod, "MAX_MODULUS", limit)) {
+        limit == NULL || exponent == NULL || coeff == NULL) {
         Py_XDECREF(limit);
+        Py_XDECREF(exponent);
+        Py_XDECREF(coeff);
+        Py_DECREF(mod);
+        return NULL;
+    }
+    if (PyModule_AddObject(mod, "MAX_MODULUS", limit)) {
+        Py_DECREF(limit);
+        Py_DECREF(exponent);
+        Py_DECREF(coeff);
+        Py_DECREF(mod);
+        return NULL;
+    }
+    if (PyModule_AddObject(mod, "MAX_EXPONENT", exponent)) {
+        Py_DECREF(exponent);
+        Py_DECREF(coeff);
+        Py_DECREF(mod);
+        return NULL;
+    }
+    if (PyModule_AddObject(mod, "MAX_COEFFICIENT", coeff)) {
+        Py_DECREF(coeff);
         Py_DECREF(mod);
         return NULL;
     }
