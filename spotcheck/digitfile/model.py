@@ -57,6 +57,10 @@ class Finding:
     line: int | None = None
     byte_offset: int | None = None
     position: int | None = None
+    expected: int | None = None
+    """For a label finding: the value the digit count implies the label should have."""
+    found: str | None = None
+    """For a label finding: the label as written in the file."""
 
     def to_dict(self) -> dict[str, Any]:
         return asdict(self)
