@@ -51,6 +51,15 @@
 #else
 #define HAVE_SSE2 0
 #endif
+/* The run-time chosen vector paths: x86-64 with gcc or clang (per-function
+ * target attributes and __builtin_cpu_supports); elsewhere only the portable
+ * and scalar paths.  -DSPOTCHECK_NO_SIMD leaves them out. */
+#if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__)) && !defined(SPOTCHECK_NO_SIMD)
+#include <immintrin.h>
+#define HAVE_X86_PATHS 1
+#else
+#define HAVE_X86_PATHS 0
+#endif
 
 /* ---- tuning ------------------------------------------------------------ */
 #define MAX_WORDS 16        /* at most 64 * 16 fractional bits per term */
@@ -489,6 +498,536 @@ static runner_t pick_runner(long lanes, long step)
     return NULL;
 }
 
+/* ==== Run-time chosen SIMD paths ==========================================
+ *
+ * The extension is built for the generic target.  The functions below carry
+ * their own target attributes and run only after the CPU was asked (once, at
+ * import: __builtin_cpu_supports, which also checks that the OS saves the
+ * vector registers).  A path is a way to compute, for a batch of B terms,
+ *
+ *     x_l = c_l 2^(f_l) mod n_l        (n_l odd, x_l in [0, n_l))
+ *
+ * together with ninv_l = n_l^-1 mod 2^64; the fraction words then come from
+ * add_fractions exactly as on the portable path.  Every path computes these
+ * residues exactly (integer arithmetic, or doubles whose error is bounded
+ * below half a unit and rounded away, see each ladder), so each term's
+ * floor(2^P frac(...)) -- and hence the value, bit for bit -- is the same as
+ * the twin's, and the certification bound [value, value + terms) of
+ * evaluate.py holds on every path unchanged.
+ *
+ * Each ladder keeps one exponent per lane (no shared exponent): at step b
+ * lane l multiplies by 2 when bit b of f_l is set, by a per-lane shift or
+ * blend, so terms of different k share a batch.  The ladder starts from the
+ * form of 1 at the top bit of max f; lanes with shorter exponents square 1
+ * until their own top bit.  A batch whose largest modulus exceeds a ladder's
+ * limit goes to the next wider one, and above every vector limit to the
+ * 64-bit scalar Montgomery code (moduli up to 2^63).
+ *
+ *   path        moduli < 2^29          < 2^48 / 2^51            below 2^63
+ *   avx2        4 x 32-bit Montgomery   4 x FMA double (2^48)    64-bit scalar
+ *   avx512f     8 x 32-bit Montgomery   8 x FMA double (2^48)    64-bit scalar
+ *   avx512ifma  8 x 32-bit Montgomery   8 x IFMA 52-bit (2^51)   64-bit scalar
+ *
+ * with B = 32 (AVX2) or 64 (AVX-512) terms in flight: 8 independent vector
+ * registers of chains per step.  Padding lanes use n = 1 (x = 0, fraction 0).
+ */
+
+#define BATCH 64
+
+typedef struct {
+    uint64_t n[BATCH], f[BATCH], cm[BATCH], x[BATCH], ninv[BATCH];
+} batch_t;
+
+typedef void (*ladder_t)(batch_t *bt);
+
+/* The 64-bit scalar ladder for a batch (any odd n < 2^63), 8 lanes at a time:
+ * the fused x * 2x step of run_lanes.  Exact integer Montgomery arithmetic. */
+static void ladder64(batch_t *bt, int count)
+{
+    for (int g = 0; g < count; g += 8) {
+        const uint64_t *n = bt->n + g, *f = bt->f + g, *cm = bt->cm + g;
+        uint64_t ninv[8], x[8], fmax = 0;
+        for (int l = 0; l < 8; l++) {
+            ninv[l] = inverse64(n[l]);
+            x[l] = mont_one(n[l]);
+            fmax = f[l] > fmax ? f[l] : fmax;
+        }
+        for (int b = bit_length(fmax) - 1; b >= 0; b--) {
+            for (int l = 0; l < 8; l++) {
+                uint64_t bit = (f[l] >> b) & 1, hi, lo;
+                mul_wide(x[l], x[l] + (x[l] & (0 - bit)), &hi, &lo); /* x * 2x < n 2^64 */
+                x[l] = redc(hi, lo, n[l], ninv[l]);
+            }
+        }
+        for (int l = 0; l < 8; l++) {
+            bt->x[g + l] = mont_mul(x[l], cm[l], n[l], ninv[l]);
+            bt->ninv[g + l] = ninv[l];
+        }
+    }
+}
+
+typedef struct {
+    const char *name;
+    const char *features; /* what the CPU must offer, for messages */
+    int batch;            /* terms per batch (a multiple of 8, at most BATCH) */
+    ladder_t small;       /* all n < small_limit */
+    uint64_t small_limit;
+    ladder_t medium; /* all n < medium_limit */
+    uint64_t medium_limit;
+} simd_path_t;
+
+/* Residues of a full batch by the path's narrowest ladder that takes every
+ * modulus of it, then the fraction words of all its terms. */
+static void flush_batch(batch_t *bt, const simd_path_t *path, int words, uint64_t *acc)
+{
+    const int B = path->batch;
+    uint64_t nor = 0;
+    for (int l = 0; l < B; l++)
+        nor |= bt->n[l]; /* below a power of two iff every n is */
+    if (path->small && nor < path->small_limit)
+        path->small(bt);
+    else if (path->medium && nor < path->medium_limit)
+        path->medium(bt);
+    else
+        ladder64(bt, B);
+    if (B == 64)
+        add_fractions(64, bt->x, bt->n, bt->ninv, words, acc);
+    else
+        add_fractions(32, bt->x, bt->n, bt->ninv, words, acc);
+}
+
+/* Walk the terms of the job, a batch at a time: the same terms with the same
+ * per-term rules as run_job (slow_term for E < v, big_exponent_term beyond
+ * 64-bit exponents); only the residues come from the path's ladders.  The sum
+ * mod 2^P does not depend on the order of the terms. */
+static void run_job_batched(const job_t *jb, uint64_t *acc, const simd_path_t *path)
+{
+    batch_t bt;
+    const int B = path->batch;
+    const uint64_t extra = 64 * (uint64_t)jb->words;
+    int fill = 0;
+    if (jb->npairs == 0)
+        return;
+    for (uint64_t k = jb->k0; k < jb->k1; k++) {
+        uint64_t E = jb->D - jb->e * k;
+        int negate = jb->alternating && (k & 1);
+        uint64_t mk = jb->m * k;
+        for (Py_ssize_t p = 0; p < jb->npairs; p++) {
+            uint64_t base = mk + jb->js[p], N = jb->q;
+            for (unsigned i = 0; i < jb->s; i++)
+                N *= base; /* below 2^63: checked in parse_job */
+            int v = trailing_zeros(N);
+            uint64_t odd = N >> v;
+            int64_t c = negate ? -jb->cs[p] : jb->cs[p];
+            if (E < (uint64_t)v) {
+                slow_term(N, E, c, jb->words, acc);
+                continue;
+            }
+            if (E - v > UINT64_MAX - extra) {
+                big_exponent_term(odd, E - v, c, jb->words, acc);
+                continue;
+            }
+            bt.n[fill] = odd;
+            bt.f[fill] = E - v + extra;
+            bt.cm[fill] = coeff_mod(c, odd);
+            if (++fill == B) {
+                flush_batch(&bt, path, jb->words, acc);
+                fill = 0;
+            }
+        }
+    }
+    if (fill) {
+        for (int l = fill; l < B; l++) { /* pad with n = 1: contributes 0 */
+            bt.n[l] = 1;
+            bt.f[l] = bt.f[0];
+            bt.cm[l] = 0;
+        }
+        flush_batch(&bt, path, jb->words, acc);
+    }
+}
+
+#if HAVE_X86_PATHS
+#define TARGET_AVX2 __attribute__((target("avx2,fma")))
+#define TARGET_AVX512 __attribute__((target("avx512f")))
+#define TARGET_IFMA __attribute__((target("avx512f,avx512ifma")))
+#define MAGIC52 0x4330000000000000ULL /* the bits of the double 2^52 */
+#define H 8                           /* vector registers of chains per ladder */
+
+/* ---- AVX2 (+FMA): 4 lanes of 64 bits, B = 32 ---------------------------- */
+
+/* n^-1 mod 2^64 for odd n (any 64-bit n): three Newton steps mod 2^32
+ * (5 -> 10 -> 20 -> 40 correct bits) on the low halves, then one step mod
+ * 2^64 from 32-bit pieces: x (2 - n x) with x < 2^32. */
+TARGET_AVX2 static inline __m256i inv64_avx2(__m256i n)
+{
+    const __m256i two = _mm256_set1_epi32(2), lo32 = _mm256_set1_epi64x(0xffffffff);
+    __m256i x = _mm256_xor_si256(_mm256_mullo_epi32(n, _mm256_set1_epi32(3)), two);
+    for (int i = 0; i < 3; i++)
+        x = _mm256_mullo_epi32(x, _mm256_sub_epi32(two, _mm256_mullo_epi32(n, x)));
+    x = _mm256_and_si256(x, lo32);
+    __m256i t = _mm256_add_epi64(_mm256_mul_epu32(n, x),
+                                 _mm256_slli_epi64(_mm256_mul_epu32(_mm256_srli_epi64(n, 32), x), 32));
+    __m256i u = _mm256_sub_epi64(_mm256_set1_epi64x(2), t);
+    return _mm256_add_epi64(_mm256_mul_epu32(x, u),
+                            _mm256_slli_epi64(_mm256_mul_epu32(x, _mm256_srli_epi64(u, 32)), 32));
+}
+
+/* Exact conversions between integers below 2^52 and doubles: the integer is
+ * the mantissa of 2^52 + i. */
+TARGET_AVX2 static inline __m256d u52_to_pd_avx2(__m256i i)
+{
+    return _mm256_sub_pd(_mm256_castsi256_pd(_mm256_or_si256(i, _mm256_set1_epi64x((int64_t)MAGIC52))),
+                         _mm256_set1_pd(4503599627370496.0));
+}
+TARGET_AVX2 static inline __m256i pd_to_u52_avx2(__m256d d) /* 0 <= d < 2^52, an integer */
+{
+    return _mm256_xor_si256(_mm256_castpd_si256(_mm256_add_pd(d, _mm256_set1_pd(4503599627370496.0))),
+                            _mm256_set1_epi64x((int64_t)MAGIC52));
+}
+
+/* 2^p mod n for odd n < 2^(p-1) (p = 32 or 52), exact: 2^p / n <= 2^52, so
+ * its double quotient is within one ulp <= 1 of the truth in any rounding
+ * mode and q = floor of it is within one of floor(2^p / n); r = 2^p - q n
+ * lies in [-n, 2n), so the fma computing it is exact (|r| < 2^52), and one
+ * correction each way puts r in [0, n). */
+TARGET_AVX2 static inline __m256i pow2_mod_avx2(__m256d nd, double p2)
+{
+    __m256d P = _mm256_set1_pd(p2), zero = _mm256_setzero_pd();
+    __m256d q = _mm256_round_pd(_mm256_div_pd(P, nd), _MM_FROUND_TO_NEG_INF | _MM_FROUND_NO_EXC);
+    __m256d r = _mm256_fnmadd_pd(q, nd, P);
+    r = _mm256_add_pd(r, _mm256_and_pd(_mm256_cmp_pd(r, zero, _CMP_LT_OQ), nd));
+    r = _mm256_sub_pd(r, _mm256_and_pd(_mm256_cmp_pd(r, nd, _CMP_GE_OQ), nd));
+    return pd_to_u52_avx2(r);
+}
+
+/* 32-bit Montgomery, R = 2^32, for odd n < 2^29 (the portable path's SSE2
+ * step, on four lanes with per-lane exponents).  t -> (t + m n) / 2^32 with
+ * m = t (-n^-1) mod 2^32 is exact (the low half of t + m n is zero).  Values
+ * stay in [0, 2n) without correction: y < 2n gives y (2y) < 8 n^2 < n 2^32,
+ * so (t + m n) / 2^32 < 8 n^2 / 2^32 + n < 2n, and 2y < 2^31 fits the 32-bit
+ * multiplier input.  X starts at 2^32 mod n (the form of 1); after the
+ * ladder X = 2^f 2^32 mod n, reduced to [0, n), and one more reduction of
+ * X cm (< n^2) gives c 2^f mod n in [0, 2n), reduced to [0, n). */
+TARGET_AVX2 static void small_avx2(batch_t *bt)
+{
+    __m256i X[H], N[H], NP[H], F[H];
+    const __m256i one = _mm256_set1_epi64x(1), zero = _mm256_setzero_si256();
+    uint64_t fmax = 0;
+    for (int l = 0; l < 32; l++)
+        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
+    for (int h = 0; h < H; h++) {
+        N[h] = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
+        F[h] = _mm256_loadu_si256((const __m256i *)(bt->f + 4 * h));
+        __m256i ninv = inv64_avx2(N[h]);
+        _mm256_storeu_si256((__m256i *)(bt->ninv + 4 * h), ninv);
+        NP[h] = _mm256_sub_epi64(zero, ninv); /* the multiplier reads the low 32 bits */
+        X[h] = pow2_mod_avx2(u52_to_pd_avx2(N[h]), 4294967296.0);
+    }
+    for (int b = bit_length(fmax) - 1; b >= 0; b--) {
+        __m128i cnt = _mm_cvtsi32_si128(b);
+        for (int h = 0; h < H; h++) {
+            __m256i bit = _mm256_and_si256(_mm256_srl_epi64(F[h], cnt), one);
+            __m256i t = _mm256_mul_epu32(X[h], _mm256_sllv_epi64(X[h], bit));
+            __m256i m = _mm256_mul_epu32(t, NP[h]);
+            X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, N[h])), 32);
+        }
+    }
+    for (int h = 0; h < H; h++) {
+        /* values below 2^31: signed compares are exact */
+        __m256i x = X[h], d = _mm256_sub_epi64(x, N[h]);
+        x = _mm256_blendv_epi8(d, x, _mm256_cmpgt_epi64(N[h], x));
+        __m256i t = _mm256_mul_epu32(x, _mm256_loadu_si256((const __m256i *)(bt->cm + 4 * h)));
+        __m256i m = _mm256_mul_epu32(t, NP[h]);
+        x = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, N[h])), 32);
+        d = _mm256_sub_epi64(x, N[h]);
+        x = _mm256_blendv_epi8(d, x, _mm256_cmpgt_epi64(N[h], x));
+        _mm256_storeu_si256((__m256i *)(bt->x + 4 * h), x);
+    }
+}
+
+/* a b mod n in doubles for integers |a|, |b| < 2^52 with |a b / n| < 2^49
+ * and n < 2^48, result an integer in (-n, n) -- exact:
+ *   p = fl(a b) and l = fma(a, b, -p) give a b = p + l exactly (l is the
+ *   rounding error of an integer product, itself an integer);
+ *   y = fl(p fl(1/n)) is within (1 + 2u)^3 - 1 < 6.1u of a b / n in any
+ *   rounding mode (u = 2^-53), i.e. within 2^49 6.1 2^-53 < 0.39, so
+ *   q = round(y) is within 0.89 < 1 of a b / n and |a b - q n| < n;
+ *   r = fma(-q, n, p) = a b - q n - l is an integer below 2^53 in size, so
+ *   the fma is exact, and r + l is exact for the same reason.
+ * The ladder calls it with |a| < n and b = a or 2a (|a b / n| < 2n < 2^49),
+ * and at the end with b = c mod n (|a b / n| < n). */
+TARGET_AVX2 static inline __m256d mulmod_avx2(__m256d a, __m256d b, __m256d n, __m256d ninv)
+{
+    __m256d p = _mm256_mul_pd(a, b);
+    __m256d l = _mm256_fmsub_pd(a, b, p);
+    __m256d q = _mm256_round_pd(_mm256_mul_pd(p, ninv), _MM_FROUND_TO_NEAREST_INT | _MM_FROUND_NO_EXC);
+    return _mm256_add_pd(_mm256_fnmadd_pd(q, n, p), l);
+}
+
+/* FMA double-precision ladder for odd n < 2^48 (plain residues, no
+ * Montgomery form): x = 1, then x <- x * (x or 2x) mod n per bit (doubling
+ * by 2 is exact), values in (-n, n); the last product by c mod n and one
+ * correction give c 2^f mod n in [0, n). */
+TARGET_AVX2 static void medium_avx2(batch_t *bt)
+{
+    __m256d X[H], ND[H], NI[H];
+    __m256i F[H];
+    const __m256i one = _mm256_set1_epi64x(1);
+    const __m256d d1 = _mm256_set1_pd(1.0), d2 = _mm256_set1_pd(2.0);
+    uint64_t fmax = 0;
+    for (int l = 0; l < 32; l++)
+        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
+    for (int h = 0; h < H; h++) {
+        __m256i n = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
+        F[h] = _mm256_loadu_si256((const __m256i *)(bt->f + 4 * h));
+        _mm256_storeu_si256((__m256i *)(bt->ninv + 4 * h), inv64_avx2(n));
+        ND[h] = u52_to_pd_avx2(n);
+        NI[h] = _mm256_div_pd(d1, ND[h]);
+        X[h] = d1;
+    }
+    for (int b = bit_length(fmax) - 1; b >= 0; b--) {
+        __m128i cnt = _mm_cvtsi32_si128(b);
+        for (int h = 0; h < H; h++) {
+            __m256i bit = _mm256_cmpeq_epi64(_mm256_and_si256(_mm256_srl_epi64(F[h], cnt), one), one);
+            __m256d y = _mm256_mul_pd(X[h], _mm256_blendv_pd(d1, d2, _mm256_castsi256_pd(bit)));
+            X[h] = mulmod_avx2(X[h], y, ND[h], NI[h]);
+        }
+    }
+    for (int h = 0; h < H; h++) {
+        __m256d c = u52_to_pd_avx2(_mm256_loadu_si256((const __m256i *)(bt->cm + 4 * h)));
+        __m256d r = mulmod_avx2(X[h], c, ND[h], NI[h]);
+        r = _mm256_add_pd(r, _mm256_and_pd(_mm256_cmp_pd(r, _mm256_setzero_pd(), _CMP_LT_OQ), ND[h]));
+        _mm256_storeu_si256((__m256i *)(bt->x + 4 * h), pd_to_u52_avx2(r));
+    }
+}
+
+/* ---- AVX-512F: 8 lanes of 64 bits, B = 64 ------------------------------- */
+
+TARGET_AVX512 static inline __m512i inv64_avx512(__m512i n) /* as inv64_avx2 */
+{
+    const __m512i two = _mm512_set1_epi32(2);
+    __m512i x = _mm512_xor_si512(_mm512_mullo_epi32(n, _mm512_set1_epi32(3)), two);
+    for (int i = 0; i < 3; i++)
+        x = _mm512_mullo_epi32(x, _mm512_sub_epi32(two, _mm512_mullo_epi32(n, x)));
+    x = _mm512_and_si512(x, _mm512_set1_epi64(0xffffffff));
+    __m512i t = _mm512_add_epi64(_mm512_mul_epu32(n, x),
+                                 _mm512_slli_epi64(_mm512_mul_epu32(_mm512_srli_epi64(n, 32), x), 32));
+    __m512i u = _mm512_sub_epi64(_mm512_set1_epi64(2), t);
+    return _mm512_add_epi64(_mm512_mul_epu32(x, u),
+                            _mm512_slli_epi64(_mm512_mul_epu32(x, _mm512_srli_epi64(u, 32)), 32));
+}
+
+TARGET_AVX512 static inline __m512d u52_to_pd_avx512(__m512i i)
+{
+    return _mm512_sub_pd(_mm512_castsi512_pd(_mm512_or_si512(i, _mm512_set1_epi64((int64_t)MAGIC52))),
+                         _mm512_set1_pd(4503599627370496.0));
+}
+TARGET_AVX512 static inline __m512i pd_to_u52_avx512(__m512d d)
+{
+    return _mm512_xor_si512(_mm512_castpd_si512(_mm512_add_pd(d, _mm512_set1_pd(4503599627370496.0))),
+                            _mm512_set1_epi64((int64_t)MAGIC52));
+}
+
+TARGET_AVX512 static inline __m512i pow2_mod_avx512(__m512d nd, double p2) /* as pow2_mod_avx2 */
+{
+    __m512d P = _mm512_set1_pd(p2), zero = _mm512_setzero_pd();
+    __m512d q = _mm512_roundscale_pd(_mm512_div_pd(P, nd), _MM_FROUND_TO_NEG_INF | _MM_FROUND_NO_EXC);
+    __m512d r = _mm512_fnmadd_pd(q, nd, P);
+    r = _mm512_mask_add_pd(r, _mm512_cmp_pd_mask(r, zero, _CMP_LT_OQ), r, nd);
+    r = _mm512_mask_sub_pd(r, _mm512_cmp_pd_mask(r, nd, _CMP_GE_OQ), r, nd);
+    return pd_to_u52_avx512(r);
+}
+
+/* small_avx2 on eight lanes; the same bounds (n < 2^29, values in [0, 2n)). */
+TARGET_AVX512 static void small_avx512(batch_t *bt)
+{
+    __m512i X[H], N[H], NP[H], F[H];
+    const __m512i one = _mm512_set1_epi64(1), zero = _mm512_setzero_si512();
+    uint64_t fmax = 0;
+    for (int l = 0; l < 64; l++)
+        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
+    for (int h = 0; h < H; h++) {
+        N[h] = _mm512_loadu_si512(bt->n + 8 * h);
+        F[h] = _mm512_loadu_si512(bt->f + 8 * h);
+        __m512i ninv = inv64_avx512(N[h]);
+        _mm512_storeu_si512(bt->ninv + 8 * h, ninv);
+        NP[h] = _mm512_sub_epi64(zero, ninv);
+        X[h] = pow2_mod_avx512(u52_to_pd_avx512(N[h]), 4294967296.0);
+    }
+    for (int b = bit_length(fmax) - 1; b >= 0; b--) {
+        __m128i cnt = _mm_cvtsi32_si128(b);
+        for (int h = 0; h < H; h++) {
+            __m512i bit = _mm512_and_si512(_mm512_srl_epi64(F[h], cnt), one);
+            __m512i t = _mm512_mul_epu32(X[h], _mm512_sllv_epi64(X[h], bit));
+            __m512i m = _mm512_mul_epu32(t, NP[h]);
+            X[h] = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, N[h])), 32);
+        }
+    }
+    for (int h = 0; h < H; h++) {
+        __m512i x = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], N[h])); /* x >= n ? x - n : x */
+        __m512i t = _mm512_mul_epu32(x, _mm512_loadu_si512(bt->cm + 8 * h));
+        __m512i m = _mm512_mul_epu32(t, NP[h]);
+        x = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, N[h])), 32);
+        x = _mm512_min_epu64(x, _mm512_sub_epi64(x, N[h]));
+        _mm512_storeu_si512(bt->x + 8 * h, x);
+    }
+}
+
+TARGET_AVX512 static inline __m512d mulmod_avx512(__m512d a, __m512d b, __m512d n, __m512d ninv)
+{ /* as mulmod_avx2, same bounds */
+    __m512d p = _mm512_mul_pd(a, b);
+    __m512d l = _mm512_fmsub_pd(a, b, p);
+    __m512d q = _mm512_roundscale_pd(_mm512_mul_pd(p, ninv), _MM_FROUND_TO_NEAREST_INT | _MM_FROUND_NO_EXC);
+    return _mm512_add_pd(_mm512_fnmadd_pd(q, n, p), l);
+}
+
+/* medium_avx2 on eight lanes (n < 2^48). */
+TARGET_AVX512 static void medium_avx512(batch_t *bt)
+{
+    __m512d X[H], ND[H], NI[H];
+    __m512i F[H];
+    const __m512d d1 = _mm512_set1_pd(1.0), d2 = _mm512_set1_pd(2.0);
+    uint64_t fmax = 0;
+    for (int l = 0; l < 64; l++)
+        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
+    for (int h = 0; h < H; h++) {
+        __m512i n = _mm512_loadu_si512(bt->n + 8 * h);
+        F[h] = _mm512_loadu_si512(bt->f + 8 * h);
+        _mm512_storeu_si512(bt->ninv + 8 * h, inv64_avx512(n));
+        ND[h] = u52_to_pd_avx512(n);
+        NI[h] = _mm512_div_pd(d1, ND[h]);
+        X[h] = d1;
+    }
+    for (int b = bit_length(fmax) - 1; b >= 0; b--) {
+        __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
+        for (int h = 0; h < H; h++) {
+            __m512d y = _mm512_mul_pd(X[h], _mm512_mask_blend_pd(_mm512_test_epi64_mask(F[h], sel), d1, d2));
+            X[h] = mulmod_avx512(X[h], y, ND[h], NI[h]);
+        }
+    }
+    for (int h = 0; h < H; h++) {
+        __m512d c = u52_to_pd_avx512(_mm512_loadu_si512(bt->cm + 8 * h));
+        __m512d r = mulmod_avx512(X[h], c, ND[h], NI[h]);
+        r = _mm512_mask_add_pd(r, _mm512_cmp_pd_mask(r, _mm512_setzero_pd(), _CMP_LT_OQ), r, ND[h]);
+        _mm512_storeu_si512(bt->x + 8 * h, pd_to_u52_avx512(r));
+    }
+}
+
+/* ---- AVX-512 IFMA: 52-bit Montgomery, R = 2^52, odd n < 2^51 -------------
+ * For a, b < 2^52: lo = a b mod 2^52, hi = floor(a b / 2^52) (madd52lo/hi),
+ * m = lo (-n^-1) mod 2^52, and (a b + m n) / 2^52 = hi + hi52(m n) + carry,
+ * where lo + lo52(m n) is 0 (lo = 0) or exactly 2^52, so carry = that sum
+ * >> 52: exact.  With x < n and y = x or 2x < 2n < 2^52, a b < 2 n^2 and the
+ * result is below 2 n^2 / 2^52 + n < 2n (n < 2^51), brought to [0, n) by
+ * min(t, t - n) (unsigned: t - n wraps above t when t < n).  X starts at
+ * 2^52 mod n and ends as 2^f 2^52 mod n; its product with c mod n (< n)
+ * gives c 2^f mod n. */
+
+TARGET_IFMA static inline __m512i mont52(__m512i a, __m512i b, __m512i n, __m512i np)
+{
+    const __m512i zero = _mm512_setzero_si512();
+    __m512i lo = _mm512_madd52lo_epu64(zero, a, b);
+    __m512i hi = _mm512_madd52hi_epu64(zero, a, b);
+    __m512i m = _mm512_madd52lo_epu64(zero, lo, np);
+    hi = _mm512_madd52hi_epu64(hi, m, n);
+    lo = _mm512_madd52lo_epu64(lo, m, n);
+    __m512i t = _mm512_add_epi64(hi, _mm512_srli_epi64(lo, 52));
+    return _mm512_min_epu64(t, _mm512_sub_epi64(t, n));
+}
+
+TARGET_IFMA static void medium_ifma(batch_t *bt)
+{
+    __m512i X[H], N[H], NP[H], F[H];
+    const __m512i one = _mm512_set1_epi64(1), mask52 = _mm512_set1_epi64(((int64_t)1 << 52) - 1);
+    uint64_t fmax = 0;
+    for (int l = 0; l < 64; l++)
+        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
+    for (int h = 0; h < H; h++) {
+        N[h] = _mm512_loadu_si512(bt->n + 8 * h);
+        F[h] = _mm512_loadu_si512(bt->f + 8 * h);
+        __m512i ninv = inv64_avx512(N[h]);
+        _mm512_storeu_si512(bt->ninv + 8 * h, ninv);
+        NP[h] = _mm512_and_si512(_mm512_sub_epi64(_mm512_setzero_si512(), ninv), mask52);
+        X[h] = pow2_mod_avx512(u52_to_pd_avx512(N[h]), 4503599627370496.0);
+    }
+    for (int b = bit_length(fmax) - 1; b >= 0; b--) {
+        __m128i cnt = _mm_cvtsi32_si128(b);
+        for (int h = 0; h < H; h++) {
+            __m512i bit = _mm512_and_si512(_mm512_srl_epi64(F[h], cnt), one);
+            X[h] = mont52(X[h], _mm512_sllv_epi64(X[h], bit), N[h], NP[h]);
+        }
+    }
+    for (int h = 0; h < H; h++)
+        _mm512_storeu_si512(bt->x + 8 * h, mont52(X[h], _mm512_loadu_si512(bt->cm + 8 * h), N[h], NP[h]));
+}
+#undef H
+#endif /* HAVE_X86_PATHS */
+
+/* ---- the table of paths ------------------------------------------------- */
+
+enum { PATH_PORTABLE = 0, PATH_SCALAR, PATH_AVX2, PATH_AVX512F, PATH_AVX512IFMA, NPATHS };
+
+#define SMALL_LIMIT ((uint64_t)1 << 29)
+#define FMA_LIMIT ((uint64_t)1 << 48)
+#define IFMA_LIMIT ((uint64_t)1 << 51)
+
+static const simd_path_t PATHS[NPATHS] = {
+    {"portable", "", 0, NULL, 0, NULL, 0}, /* today's shipped code: run_8_simd */
+    {"scalar", "", 0, NULL, 0, NULL, 0},   /* 64-bit Montgomery only, 8 lanes: run_8_fused */
+#if HAVE_X86_PATHS
+    {"avx2", "avx2, fma", 32, small_avx2, SMALL_LIMIT, medium_avx2, FMA_LIMIT},
+    {"avx512f", "avx512f", 64, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT},
+    {"avx512ifma", "avx512f, avx512ifma", 64, small_avx512, SMALL_LIMIT, medium_ifma, IFMA_LIMIT},
+#else
+    {"avx2", "avx2, fma", 0, NULL, 0, NULL, 0},
+    {"avx512f", "avx512f", 0, NULL, 0, NULL, 0},
+    {"avx512ifma", "avx512f, avx512ifma", 0, NULL, 0, NULL, 0},
+#endif
+};
+
+static int path_ok[NPATHS];             /* set once at import */
+static const char *path_why[NPATHS];    /* why a path is not available */
+static volatile int active = PATH_PORTABLE;
+
+static void detect_paths(void)
+{
+    for (int i = 0; i < NPATHS; i++) {
+        path_ok[i] = i <= PATH_SCALAR;
+        path_why[i] = "";
+    }
+#if HAVE_X86_PATHS
+    __builtin_cpu_init();
+    int avx2 = __builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma");
+    int avx512f = __builtin_cpu_supports("avx512f");
+    int ifma = avx512f && __builtin_cpu_supports("avx512ifma");
+    path_ok[PATH_AVX2] = avx2;
+    path_why[PATH_AVX2] = avx2 ? "" : "this CPU (or its OS) lacks AVX2 and FMA";
+    path_ok[PATH_AVX512F] = avx512f;
+    path_why[PATH_AVX512F] = avx512f ? "" : "this CPU (or its OS) lacks AVX-512F";
+    path_ok[PATH_AVX512IFMA] = ifma;
+    path_why[PATH_AVX512IFMA] = ifma ? "" : "this CPU (or its OS) lacks AVX-512F with AVX-512 IFMA";
+#else
+    for (int i = PATH_AVX2; i < NPATHS; i++)
+        path_why[i] = "not built: the extension was compiled without x86-64 vector support";
+#endif
+    active = PATH_PORTABLE;
+    for (int i = NPATHS - 1; i > PATH_SCALAR; i--)
+        if (path_ok[i]) {
+            active = i;
+            break;
+        }
+}
+
+static void run_path(int path, const job_t *jb, uint64_t *acc)
+{
+    if (path == PATH_PORTABLE)
+        run_job(jb, acc, 8, STEP_SIMD);
+    else if (path == PATH_SCALAR)
+        run_job(jb, acc, 8, STEP_FUSED);
+    else
+        run_job_batched(jb, acc, &PATHS[path]);
+}
+
 /* ---- Python glue ------------------------------------------------------- */
 
 /* A non-negative integer below 2^64 (OverflowError otherwise). */
@@ -641,7 +1180,8 @@ static PyObject *build_result(const uint64_t *acc, int words, PyObject *k0, PyOb
     return out;
 }
 
-static PyObject *head_sum_common(PyObject *const *args, runner_t run)
+/* run == NULL: the given path of run_path. */
+static PyObject *head_sum_common(PyObject *const *args, runner_t run, int path)
 {
     int empty = PyObject_RichCompareBool(args[2], args[1], Py_LE);
     if (empty < 0)
@@ -655,7 +1195,10 @@ static PyObject *head_sum_common(PyObject *const *args, runner_t run)
         return NULL;
     }
     Py_BEGIN_ALLOW_THREADS
-    run(&jb, acc);
+    if (run)
+        run(&jb, acc);
+    else
+        run_path(path, &jb, acc);
     Py_END_ALLOW_THREADS
     free_job(&jb);
     return build_result(acc, jb.words, args[1], args[2], jb.npairs);
@@ -671,7 +1214,7 @@ static PyObject *head_sum(PyObject *self, PyObject *const *args, Py_ssize_t narg
         PyErr_Format(PyExc_TypeError, "head_sum takes 11 arguments (%zd given)", nargs);
         return NULL;
     }
-    return head_sum_common(args, pick_runner(BEST_LANES, BEST_STEP));
+    return head_sum_common(args, NULL, active);
 }
 
 /* head_sum with a chosen interleave (1, 4, 8) and doubling step (0 fused,
@@ -691,10 +1234,113 @@ static PyObject *head_sum_variant(PyObject *self, PyObject *const *args, Py_ssiz
         PyErr_SetString(PyExc_ValueError, "no such kernel variant");
         return NULL;
     }
-    return head_sum_common(args, run);
+    return head_sum_common(args, run, 0);
+}
+
+/* The index of a path named by a str object; -1 with ValueError if unknown
+ * or (when need_ok) not offered by this CPU. */
+static int path_index(PyObject *name, int need_ok)
+{
+    const char *txt = PyUnicode_Check(name) ? PyUnicode_AsUTF8(name) : NULL;
+    if (txt == NULL) {
+        if (!PyErr_Occurred())
+            PyErr_SetString(PyExc_TypeError, "a kernel path name must be a str");
+        return -1;
+    }
+    for (int i = 0; i < NPATHS; i++) {
+        if (strcmp(txt, PATHS[i].name) != 0)
+            continue;
+        if (need_ok && !path_ok[i]) {
+            PyErr_Format(PyExc_ValueError, "kernel path %s is not available: %s", txt, path_why[i]);
+            return -1;
+        }
+        return i;
+    }
+    PyErr_Format(PyExc_ValueError, "unknown kernel path %R (known: portable, scalar, avx2, avx512f, avx512ifma)",
+                 name);
+    return -1;
+}
+
+static PyObject *py_paths(PyObject *self, PyObject *unused)
+{
+    (void)self, (void)unused;
+    PyObject *out = PyList_New(0);
+    for (int i = 0; out && i < NPATHS; i++) {
+        if (!path_ok[i])
+            continue;
+        PyObject *name = PyUnicode_FromString(PATHS[i].name);
+        if (name == NULL || PyList_Append(out, name)) {
+            Py_XDECREF(name);
+            Py_CLEAR(out);
+            break;
+        }
+        Py_DECREF(name);
+    }
+    if (out == NULL)
+        return NULL;
+    PyObject *tuple = PyList_AsTuple(out);
+    Py_DECREF(out);
+    return tuple;
+}
+
+static PyObject *py_unavailable_paths(PyObject *self, PyObject *unused)
+{
+    (void)self, (void)unused;
+    PyObject *out = PyDict_New();
+    for (int i = 0; out && i < NPATHS; i++) {
+        if (path_ok[i])
+            continue;
+        PyObject *why = PyUnicode_FromString(path_why[i]);
+        if (why == NULL || PyDict_SetItemString(out, PATHS[i].name, why)) {
+            Py_XDECREF(why);
+            Py_CLEAR(out);
+            break;
+        }
+        Py_DECREF(why);
+    }
+    return out;
+}
+
+static PyObject *py_select_path(PyObject *self, PyObject *name)
+{
+    (void)self;
+    int i = path_index(name, 1);
+    if (i < 0)
+        return NULL;
+    active = i;
+    Py_RETURN_NONE;
+}
+
+static PyObject *py_active_path(PyObject *self, PyObject *unused)
+{
+    (void)self, (void)unused;
+    return PyUnicode_FromString(PATHS[active].name);
+}
+
+/* _head_sum_path(path, D, k0, ...): head_sum on a named path (tests, benchmarks). */
+static PyObject *head_sum_path(PyObject *self, PyObject *const *args, Py_ssize_t nargs)
+{
+    (void)self;
+    if (nargs != 12) {
+        PyErr_Format(PyExc_TypeError, "_head_sum_path takes 12 arguments (%zd given)", nargs);
+        return NULL;
+    }
+    int i = path_index(args[0], 1);
+    if (i < 0)
+        return NULL;
+    return head_sum_common(args + 1, NULL, i);
 }
 
 static PyMethodDef kernel_methods[] = {
+    {"paths", py_paths, METH_NOARGS,
+     "paths() -> the names of the kernel paths this CPU offers, from the baseline 'portable' up."},
+    {"unavailable_paths", py_unavailable_paths, METH_NOARGS,
+     "unavailable_paths() -> {name: reason} for the paths this CPU or build lacks."},
+    {"select_path", py_select_path, METH_O,
+     "select_path(name): run head_sum on this path from now on (ValueError if unknown or unavailable)."},
+    {"active_path", py_active_path, METH_NOARGS, "active_path() -> the name of the path head_sum runs."},
+    {"_head_sum_path", (PyCFunction)(void (*)(void))head_sum_path, METH_FASTCALL,
+     "_head_sum_path(path, D, k0, k1, m, s, e, q, alternating, js, cs, words): head_sum on a named path."},
     {"head_sum", (PyCFunction)(void (*)(void))head_sum, METH_FASTCALL,
      "head_sum(D, k0, k1, m, s, e, q, alternating, js, cs, words) -> (value, terms)\n\n"
      "The compiled twin of spotcheck.engine.head_py.head_sum_py (same result).\n"
@@ -714,6 +1360,7 @@ PyMODINIT_FUNC PyInit__kernel(void)
     PyObject *mod = PyModule_Create(&kernel_module);
     if (mod == NULL)
         return NULL;
+    detect_paths();
     /* The limits of head_sum's integer arithmetic, read by backend.py (the one
        place that splits a sum between this kernel and the twin):
        every modulus N < MAX_MODULUS, exponent D - e k <= MAX_EXPONENT,
