@@ -34,7 +34,7 @@ JsonOpt = Annotated[
 QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", help="Print as little as possible (no progress).")]
 WorkersOpt = Annotated[
     int | None,
-    typer.Option("--workers", "-w", min=1, help="Threads for the head sum (default: all cores)."),
+    typer.Option("--workers", "-w", min=1, help="Threads for the head sum (default: one per physical core)."),
 ]
 
 
@@ -47,7 +47,11 @@ def _load_formula_files(paths: list[Path] | None) -> None:
 
 
 def _workers(n: int | None) -> int:
-    return n if n is not None else (os.cpu_count() or 1)
+    if n is not None:
+        return n
+    from spotcheck.engine.cpus import physical_cores
+
+    return physical_cores()
 
 
 def _version_callback(value: bool) -> None:

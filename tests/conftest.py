@@ -12,6 +12,17 @@ settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ci" if os.environ.ge
 
 
 def pytest_report_header(config):  # noqa: ARG001 - pytest hook signature
+    """The kernel in use, the paths this CPU offers, and why the others are skipped."""
     from spotcheck.engine import backend
 
-    return f"spotcheck head-sum kernel: {backend.BACKEND_NOTE}"
+    lines = [f"spotcheck head-sum kernel: {backend.BACKEND_NOTE}"]
+    try:
+        from spotcheck.engine import _kernel  # type: ignore[attr-defined]
+    except ImportError:
+        return lines + ["kernel paths: none (the compiled kernel is not built); its tests are skipped"]
+    lines.append(
+        f"kernel path in use: {_kernel.active_path()}; paths this CPU offers: {', '.join(_kernel.paths())}"
+    )
+    for name, why in _kernel.unavailable_paths().items():
+        lines.append(f"kernel path {name} skipped: {why}")
+    return lines

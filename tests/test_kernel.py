@@ -8,7 +8,11 @@ outside them with ValueError or OverflowError.
 
 from __future__ import annotations
 
+import os
+import subprocess
+import sys
 import threading
+from pathlib import Path
 
 import pytest
 from hypothesis import example, given, settings
@@ -256,3 +260,231 @@ def test_unknown_variant_is_refused() -> None:
         _kernel._head_sum_variant(10, 0, 1, 8, 1, 4, 1, False, [1], [1], 2, 3, 0)
     with pytest.raises(ValueError):
         _kernel._head_sum_variant(10, 0, 1, 8, 1, 4, 1, False, [1], [1], 2, 8, 5)
+
+
+# --- the run-time chosen paths (issue 14) --------------------------------------
+
+ALL_PATHS = ("portable", "scalar", "avx2", "avx512f", "avx512ifma", "ifma52")
+OFFERED = _kernel.paths()
+MISSING = _kernel.unavailable_paths()
+# Where each vector path switches ladder (see _kernel.c): 32-bit lanes below
+# 2^29, FMA doubles below 2^48, IFMA below 2^51, 64-bit scalar up to 2^63;
+# and the portable path's own edges 2^29, 2^31, 2^32.
+EDGES = (1 << 29, 1 << 31, 1 << 32, 1 << 48, 1 << 49, 1 << 50, 1 << 51, 1 << 52, 1 << 62, LIMIT)
+
+
+def on_path(name: str):  # type: ignore[no-untyped-def]
+    """pytest.param for a path, skipped with the reason when this CPU (or build) lacks it."""
+    marks = [pytest.mark.skip(reason=f"path {name}: {MISSING[name]}")] if name in MISSING else []
+    return pytest.param(name, marks=marks, id=name)
+
+
+PATH_PARAMS = [on_path(p) for p in ALL_PATHS]
+
+
+def test_paths_are_reported_consistently() -> None:
+    assert set(OFFERED) | set(MISSING) == set(ALL_PATHS)
+    assert not set(OFFERED) & set(MISSING)
+    assert OFFERED[0] == "portable"  # the baseline is always there
+    assert _kernel.active_path() in OFFERED
+    assert all(MISSING.values())  # every missing path says why
+
+
+def test_unknown_path_is_refused() -> None:
+    with pytest.raises(ValueError, match="unknown kernel path"):
+        _kernel.select_path("avx9000")
+    with pytest.raises(ValueError, match="unknown kernel path"):
+        _kernel._head_sum_path("", 10, 0, 1, 8, 1, 4, 1, False, [1], [1], 2)
+    with pytest.raises(TypeError):
+        _kernel.select_path(3)
+
+
+@pytest.mark.parametrize("name", sorted(MISSING) or ["none"])
+def test_missing_path_is_refused(name: str) -> None:
+    if name == "none":
+        pytest.skip("this CPU offers every path")
+    with pytest.raises(ValueError, match="not available"):
+        _kernel.select_path(name)
+
+
+@pytest.fixture
+def forced_path():  # type: ignore[no-untyped-def]
+    """select_path for one test; the path in use before is restored afterwards."""
+    before = _kernel.active_path()
+    yield _kernel.select_path
+    _kernel.select_path(before)
+
+
+@pytest.mark.parametrize("name", PATH_PARAMS)
+def test_select_path_switches_head_sum(name: str, forced_path) -> None:  # type: ignore[no-untyped-def]
+    args = series_args(PI_BBP, 4 * 10**6, 10**5, 10**5 + 300, 2)
+    forced_path(name)
+    assert _kernel.active_path() == name
+    assert _kernel.head_sum(*args) == _kernel._head_sum_path(name, *args) == head_sum_py(*args)
+
+
+@pytest.mark.parametrize("name", PATH_PARAMS)
+@pytest.mark.parametrize("series", SERIES, ids=SERIES_IDS)
+def test_path_whole_head_every_series(name: str, series: Series) -> None:
+    """A whole head at a small offset, then a block deep in the head (moduli near 2^31 and beyond)."""
+    big_d = 900
+    args = series_args(series, big_d, 0, series.head_length(big_d + series.shift), 4)
+    assert _kernel._head_sum_path(name, *args) == head_sum_py(*args)
+    for target in (1 << 29, 1 << 31, 1 << 48):  # the first k whose moduli reach the target, +- a batch
+        k = max(1, (integer_root(target // series.q, series.s) - max(series.js)) // series.m)
+        big_d = series.e * (k + 40) + 77
+        args = series_args(series, big_d, max(0, k - 40), k + 40, 2)
+        assert _kernel._head_sum_path(name, *args) == head_sum_py(*args)
+
+
+@pytest.mark.parametrize("name", PATH_PARAMS)
+@settings(max_examples=40, deadline=None)
+@given(args=builtin_calls())
+def test_path_builtin_series_match_twin(name: str, args: tuple) -> None:
+    assert _kernel._head_sum_path(name, *args) == head_sum_py(*args)
+
+
+@st.composite
+def edge_moduli_calls(draw: st.DrawFn) -> tuple:
+    """Up to 150 moduli (k = 0, m = 0: the moduli are the j's) near one or two of the edges.
+
+    Odd and even, below and above each edge, so that batches fall in every
+    ladder and mix neighbouring ones; any D, any coefficient, 1 to 16 words.
+    """
+    edges = draw(st.lists(st.sampled_from(EDGES), min_size=1, max_size=2))
+    offset = st.integers(-(1 << 12), 1 << 12) | st.integers(-3, 3)
+    shift = st.integers(0, 4)  # a factor 2^v: even moduli
+    moduli = draw(
+        st.lists(
+            st.builds(
+                lambda e, o, v: min(LIMIT - 1, max(1, (e + o) >> v)), st.sampled_from(edges), offset, shift
+            ),
+            min_size=1,
+            max_size=150,
+        )
+    )
+    coefficient = st.integers(-(1 << 62) + 1, (1 << 62) - 1) | st.integers(-600, 600)
+    cs = draw(st.lists(coefficient, min_size=len(moduli), max_size=len(moduli)))
+    big_d = draw(st.integers(0, 300) | st.integers(0, 2**64 - 1))
+    return (big_d, 0, 1, 0, 1, 0, 1, draw(st.booleans()), moduli, cs, draw(st.integers(1, 16)))
+
+
+@pytest.mark.parametrize("name", PATH_PARAMS)
+@settings(max_examples=80, deadline=None)
+@given(args=edge_moduli_calls())
+@example(args=(2**64 - 1, 0, 1, 0, 1, 0, 1, True, [2**29 - 1, 2**29 + 1] * 40, [3, -5] * 40, 16))
+@example(args=(2**64 - 1, 0, 1, 0, 1, 0, 1, False, [2**48 - 1] * 63 + [2**48 + 1], [-(2**62) + 1] * 64, 3))
+@example(args=(12345, 0, 1, 0, 1, 0, 1, False, [2**51 - 1] * 64 + [2**51 - 3] * 64, [1, -1] * 64, 1))
+@example(args=(77, 0, 1, 0, 1, 0, 1, False, [1] * 70 + [3], [1] * 71, 2))  # moduli 1 and the padding
+def test_path_edge_moduli_match_twin(name: str, args: tuple) -> None:
+    assert _kernel._head_sum_path(name, *args) == head_sum_py(*args)
+
+
+@pytest.mark.parametrize("name", PATH_PARAMS)
+@settings(max_examples=40, deadline=None)
+@given(args=moduli_calls())
+def test_path_chosen_moduli_match_twin(name: str, args: tuple) -> None:
+    """Real series shapes (q, m, s, alternating) with the last modulus just below an edge."""
+    assert _kernel._head_sum_path(name, *args) == head_sum_py(*args)
+
+
+# Bailey, Borwein, Plouffe, "On the rapid computation of various polylogarithmic
+# constants", Math. Comp. 66 (1997), table of hex digits of pi: the 14 digits
+# from position n in this project's convention (digit 1 is the first after the
+# point), as benchmarks/deep.py also prints them.  Values as quoted in issue 14.
+TABLE_1997 = {10**6: "26C65E52CB4593", 10**7: "17AF5863EFED8D", 10**8: "ECB840E21926EC"}
+
+
+@pytest.mark.parametrize("name", PATH_PARAMS)
+@pytest.mark.parametrize("position", [10**6, 10**7])
+def test_path_1997_table(name: str, position: int, forced_path) -> None:  # type: ignore[no-untyped-def]
+    from spotcheck.engine.api import extract
+
+    if backend.BACKEND != "c":
+        pytest.skip(f"the engine does not run the compiled kernel: {backend.BACKEND_NOTE}")
+    forced_path(name)
+    formula = "bbp" if position == 10**6 else "bellard"
+    assert extract("pi", position, 14, formula=formula).digits == TABLE_1997[position]
+
+
+@pytest.mark.slow
+def test_fastest_path_1997_table_at_10_8(forced_path) -> None:  # type: ignore[no-untyped-def]
+    from spotcheck.engine.api import extract
+
+    if backend.BACKEND != "c":
+        pytest.skip(f"the engine does not run the compiled kernel: {backend.BACKEND_NOTE}")
+    forced_path(next(p for p in ("avx512ifma", "avx512f", "avx2", "portable") if p in OFFERED))
+    assert extract("pi", 10**8, 14).digits == TABLE_1997[10**8]
+
+
+def run_cli(env_extra: dict[str, str], *argv: str) -> subprocess.CompletedProcess[str]:
+    env = {k: v for k, v in os.environ.items() if k not in ("SPOTCHECK_PURE", "SPOTCHECK_KERNEL")}
+    env.update(env_extra)
+    return subprocess.run(
+        [sys.executable, "-m", "spotcheck", *argv], env=env, capture_output=True, text=True, timeout=120
+    )
+
+
+def test_spotcheck_kernel_names_the_path() -> None:
+    name = OFFERED[-1]
+    out = run_cli({"SPOTCHECK_KERNEL": name}, "--version")
+    assert out.returncode == 0, out.stderr
+    assert f"path {name} (SPOTCHECK_KERNEL is set" in out.stdout
+    assert all(p in out.stdout for p in OFFERED)
+
+
+@pytest.mark.parametrize("value", ["avx9000", *sorted(MISSING)])
+def test_spotcheck_kernel_refuses_a_path_it_cannot_run(value: str) -> None:
+    out = run_cli({"SPOTCHECK_KERNEL": value}, "digits", "pi", "--at", "1000")
+    assert out.returncode == 2
+    lines = out.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("error:") and "SPOTCHECK_KERNEL" in lines[0]
+    assert out.stdout == ""
+
+
+# --- physical cores (the default of --workers) ---------------------------------
+
+
+def fake_topology(root: Path, cpus: dict[int, tuple[int, int, str] | None]) -> Path:
+    """A sysfs cpu tree: cpu -> (package, core, siblings) or None for no topology."""
+    for cpu, topo in cpus.items():
+        d = root / f"cpu{cpu}" / "topology"
+        d.mkdir(parents=True)
+        if topo is not None:
+            package, core, siblings = topo
+            (d / "physical_package_id").write_text(f"{package}\n")
+            (d / "core_id").write_text(f"{core}\n")
+            (d / "thread_siblings_list").write_text(f"{siblings}\n")
+    (root / "cpufreq").mkdir()  # not a cpuN entry
+    return root
+
+
+def test_physical_cores_counts_siblings_once(tmp_path: Path) -> None:
+    from spotcheck.engine.cpus import physical_cores
+
+    # 2 packages x 2 cores x 2 threads; core ids repeat across packages
+    topo = {c: (c // 4, (c // 2) % 2, f"{c & ~1}-{c | 1}") for c in range(8)}
+    root = fake_topology(tmp_path, topo)
+    assert physical_cores(root, allowed=set(range(8))) == 4
+    assert physical_cores(root, allowed={0, 1}) == 1  # two siblings of one core
+    assert physical_cores(root, allowed={0, 2, 5}) == 3
+
+
+def test_physical_cores_from_sibling_lists_and_fallback(tmp_path: Path) -> None:
+    from spotcheck.engine.cpus import physical_cores
+
+    root = tmp_path / "a"
+    for cpu, siblings in {0: "0,2", 1: "1,3", 2: "0,2", 3: "1,3"}.items():
+        d = root / f"cpu{cpu}" / "topology"
+        d.mkdir(parents=True)
+        (d / "thread_siblings_list").write_text(siblings)
+    assert physical_cores(root, allowed={0, 1, 2, 3}) == 2
+    # a CPU without topology: the logical count of the allowed CPUs
+    assert physical_cores(fake_topology(tmp_path / "b", {0: None, 1: None, 2: None}), allowed={0, 1, 2}) == 3
+    assert physical_cores(tmp_path / "missing", allowed={0, 1, 2, 3, 4}) == 5
+
+
+def test_physical_cores_here_is_sane() -> None:
+    from spotcheck.engine.cpus import physical_cores
+
+    assert 1 <= physical_cores() <= (os.cpu_count() or 1)

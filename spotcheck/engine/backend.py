@@ -2,8 +2,13 @@
 
 ``head_sum`` is the compiled kernel (``spotcheck.engine._kernel``) when it was
 built and ``SPOTCHECK_PURE`` is not set to a true value, else the pure
-Python/gmpy2 twin.  ``BACKEND`` records the choice ("c" or "python") and
-``BACKEND_NOTE`` says why, for ``spotcheck --version`` and the pytest header.
+Python/gmpy2 twin.  The kernel runs the fastest path the CPU offers, or the
+one ``SPOTCHECK_KERNEL`` names (``portable`` is the baseline); a name that is
+unknown or not offered makes every head sum raise ``UsageError`` (the CLI
+prints one error line and exits 2) instead of silently running another.
+``BACKEND`` records the choice ("c" or "python") and ``BACKEND_NOTE`` says why
+and names the path in use and the paths offered, for ``spotcheck --version``
+and the pytest header.
 
 The compiled kernel only accepts machine-sized arguments; ``kernel_k_limit``
 gives the first k from which a series' moduli leave its range, and the engine
@@ -31,6 +36,7 @@ KERNEL_MAX_COEFFICIENT = 1 << 62  # |c_j| below this
 KERNEL_MAX_WORDS = 16  # at most 64 * 16 fractional bits
 
 _PURE_ENV = "SPOTCHECK_PURE"
+_KERNEL_ENV = "SPOTCHECK_KERNEL"  # forces one path of the compiled kernel (_kernel.paths())
 
 head_sum: HeadSum
 _kernel_head_sum: HeadSum | None = None
@@ -47,7 +53,28 @@ else:
         BACKEND_NOTE = f"pure Python/gmpy2 (compiled kernel not available: {exc})"
     else:
         BACKEND = "c"
-        BACKEND_NOTE = f"compiled C kernel ({_kernel.ARITHMETIC} arithmetic, {_kernel.LANES} terms in flight)"
+        _offered = ", ".join(_kernel.paths())
+        _forced = os.environ.get(_KERNEL_ENV, "").strip()
+        try:
+            if _forced:
+                _kernel.select_path(_forced)
+        except (ValueError, TypeError) as exc:
+            # An unknown or unavailable path is refused, never replaced by another:
+            # every head sum raises UsageError, so the CLI exits 2 with one error line.
+            _problem = f"{_KERNEL_ENV}={_forced}: {exc} (this CPU offers: {_offered})"
+
+            def _kernel_head_sum(*args: object, _why: str = _problem) -> tuple[int, int]:  # type: ignore[misc]
+                from spotcheck.errors import UsageError
+
+                raise UsageError(_why)
+
+            BACKEND_NOTE = f"compiled C kernel refused: {_problem}"
+        else:
+            _why_path = f"{_KERNEL_ENV} is set" if _forced else "the fastest this CPU offers"
+            BACKEND_NOTE = (
+                f"compiled C kernel, path {_kernel.active_path()} ({_why_path}; this CPU offers: {_offered}; "
+                f"{_kernel.ARITHMETIC} arithmetic)"
+            )
 
 head_sum = _kernel_head_sum if _kernel_head_sum is not None else head_sum_py
 
