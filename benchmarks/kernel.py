@@ -1,12 +1,17 @@
-"""Speed of the compiled head-sum kernel (issue 3), printed for the machine it runs on.
+"""Speed of the compiled head-sum kernel, per run-time path (issues 3 and 14).
 
     python benchmarks/kernel.py            # everything (sympy at 10^7 takes about 100 s)
-    python benchmarks/kernel.py --quick    # skips sympy at 10^7 and the digits at 10^8
+    python benchmarks/kernel.py --quick    # the per-path table and the digits below 10^8 only
 
-Prints ns per head-sum term for each interleave / doubling variant, wall times
-for 14 certified hex digits of pi with each formula, the ratio to sympy's
-``pi_hex_digits`` and to the pure-Python twin, and the speed-up with 2 worker
-threads.  Figures are minima over repeats, as the machine may be shared.
+Prints, for every kernel path this CPU offers (``_kernel.paths()``), ns per
+head-sum term at positions 10^6, 10^7, 10^8, 10^9 and 10^11 (pi, BBP and
+Bellard, 128 fractional bits; sampled blocks of k spread over the head, deep
+in the sum for the big positions) and the ratio to the ``portable`` path (the
+kernel as shipped before the vector paths), all measured in this one run,
+best of KERNEL_REPEATS per block.  Then wall times for 14 certified hex
+digits on the default path and on ``portable``, sympy's ``pi_hex_digits``,
+the pure twin, and 1 against 2 worker threads.  The machine may be shared:
+compare ratios from one run, not figures across runs.
 """
 
 from __future__ import annotations
@@ -30,24 +35,28 @@ except ImportError:  # pragma: no cover - the benchmark needs the extension
     sys.exit("the compiled kernel is not built (pip install the package with a C compiler)")
 
 # --- settings ------------------------------------------------------------------
-POSITIONS = (10**6, 10**7, 10**8)
+POSITIONS = (10**6, 10**7, 10**8, 10**9, 10**11)
+DIGIT_POSITIONS = (10**6, 10**7, 10**8)
+FORMULAS = ("bbp", "bellard")
 DIGITS = 14
 WORDS = 2  # 128 fractional bits: what 14 digits need up to position ~10^9
-SAMPLE_CHUNKS = 8  # k ranges spread over the head
-SAMPLE_K = 1 << 13  # k values per chunk
-TWIN_K = 1 << 9  # k values per chunk for the (slow) pure twin
+SAMPLE_CHUNKS = 6  # k ranges spread over the head (the last one deep in it)
+SAMPLE_K = 1 << 12  # k values per chunk
+TWIN_K = 1 << 8  # k values per chunk for the (slow) pure twin
 REPEATS = 3  # whole extractions
-KERNEL_REPEATS = 7  # per sampled chunk (a few ms each); the minimum is kept
-# (lanes, step) of _kernel._head_sum_variant; steps as in _kernel.c
-STEPS = {
-    0: "fused x*2x",
-    1: "add+subtract",
-    2: "multiply (no doubling trick)",
-    3: "fused, 32-bit when n < 2^31",
-    4: "fused, 32-bit, SSE2 when n < 2^29",
-}
-VARIANTS = [(lanes, step) for step in STEPS for lanes in (4, 8)]
+KERNEL_REPEATS = 5  # per sampled chunk (a few ms each); the minimum is kept
+FLAGS = ("sse2", "avx2", "fma", "bmi2", "adx", "avx512f", "avx512dq", "avx512vl", "avx512ifma")
 # -------------------------------------------------------------------------------
+
+
+def cpu_flags() -> str:
+    """The /proc/cpuinfo flags that decide the kernel paths, present or not."""
+    try:
+        with open("/proc/cpuinfo", encoding="ascii", errors="replace") as fh:
+            have = next((set(ln.split(":", 1)[1].split()) for ln in fh if ln.startswith("flags")), set())
+    except OSError:
+        return "cpu flags: unknown (no /proc/cpuinfo)"
+    return "cpu flags: " + " ".join(f if f in have else f"-{f}" for f in FLAGS)
 
 
 def power(n: int) -> str:
@@ -65,91 +74,112 @@ def best_of(fn: Callable[[], object], repeats: int = REPEATS) -> float:
 
 
 def sample_ranges(series: Series, position: int, span: int) -> tuple[int, list[tuple[int, int]]]:
-    """``D`` and SAMPLE_CHUNKS k ranges spread evenly over the head at ``position``."""
+    """``D`` and SAMPLE_CHUNKS k ranges spread evenly over the head at ``position`` (the last at its end)."""
     d = 4 * (position - 1)
     k_total = series.head_length(d)
-    starts = [k_total * i // SAMPLE_CHUNKS for i in range(SAMPLE_CHUNKS)]
+    starts = [max(0, k_total * (i + 1) // SAMPLE_CHUNKS - span) for i in range(SAMPLE_CHUNKS)]
     return d - series.shift, [(k0, min(k0 + span, k_total)) for k0 in starts]
 
 
 def ns_per_term(
-    fn: Callable[..., tuple[int, int]], series: Series, position: int, span: int, *extra: int
+    fn: Callable[..., tuple[int, int]], series: Series, position: int, span: int, *pre: str
 ) -> float:
     """Sum over the sampled chunks of each chunk's fastest of KERNEL_REPEATS runs, per term."""
     big_d, ranges = sample_ranges(series, position, span)
     s = series
     total, terms = 0.0, 0
     for k0, k1 in ranges:
-        args = (big_d, k0, k1, s.m, s.s, s.e, s.q, s.alternating, s.js, s.cs, WORDS, *extra)
+        args = (*pre, big_d, k0, k1, s.m, s.s, s.e, s.q, s.alternating, s.js, s.cs, WORDS)
         total += best_of(lambda args=args: fn(*args), KERNEL_REPEATS)
         terms += (k1 - k0) * len(s.js)
     return total / terms * 1e9
 
 
+def path_table() -> dict[tuple[str, str, int], float]:
+    """ns per term per (formula, path, position); prints the table with ratios to portable."""
+    paths = _kernel.paths()
+    figures: dict[tuple[str, str, int], float] = {}
+    for key in FORMULAS:
+        series = series_of(get_constant("pi").formula(key))
+        print(
+            f"\nns per term (ratio to portable), pi ({key}), {WORDS * 64} fractional bits, "
+            f"{SAMPLE_CHUNKS} x {SAMPLE_K} k sampled over the head"
+        )
+        print(f"{'path':<12}" + "".join(f"{'n = ' + power(p):>16}" for p in POSITIONS))
+        # interleaved by position so that a change of machine load hits every path alike
+        for p in POSITIONS:
+            for name in paths:
+                figures[key, name, p] = ns_per_term(_kernel._head_sum_path, series, p, SAMPLE_K, name)
+        for name in paths:
+            cells = []
+            for p in POSITIONS:
+                x = figures[key, name, p]
+                cells.append(f"{x:>7.1f} ({figures[key, 'portable', p] / x:4.1f}x)")
+            print(f"{name:<12}" + "".join(f"{c:>16}" for c in cells))
+    return figures
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    parser.add_argument("--quick", action="store_true", help="skip sympy at 10^7 and the digits at 10^8")
+    parser.add_argument("--quick", action="store_true", help="skip sympy, the twin and the digits at 10^8")
     args = parser.parse_args()
 
     print(describe())
+    print(cpu_flags())
     print(f"backend: {backend.BACKEND_NOTE}")
+    print(
+        f"paths this CPU offers: {', '.join(_kernel.paths())}; missing: {_kernel.unavailable_paths() or 'none'}"
+    )
+    figures = path_table()
+    default = _kernel.active_path()
+
     bbp = series_of(get_constant("pi").formula("bbp"))
+    if not args.quick:
+        twin = ns_per_term(head_sum_py, bbp, 10**7, TWIN_K)
+        print(
+            f"\npure twin (head_sum_py) at n = 10^7: {twin:.0f} ns per term, "
+            f"{twin / figures['bbp', default, 10**7]:.0f}x the {default} path"
+        )
 
-    print(
-        f"\nns per term, pi (BBP), {WORDS * 64} fractional bits, {SAMPLE_CHUNKS} x {SAMPLE_K} k sampled over the head"
-    )
-    print(f"{'lanes':>5}  {'doubling step':<34}" + "".join(f"{'n = ' + power(p):>12}" for p in POSITIONS))
-    for lanes, step in VARIANTS:
-        row = [ns_per_term(_kernel._head_sum_variant, bbp, p, SAMPLE_K, lanes, step) for p in POSITIONS]
-        print(f"{lanes:>5}  {STEPS[step]:<34}" + "".join(f"{x:>12.1f}" for x in row))
-    shipped = [ns_per_term(_kernel.head_sum, bbp, p, SAMPLE_K) for p in POSITIONS]
-    print(f"{'':>5}  {'shipped head_sum':<34}" + "".join(f"{x:>12.1f}" for x in shipped))
-
-    twin = ns_per_term(head_sum_py, bbp, 10**7, TWIN_K)
-    print(
-        f"\npure twin (head_sum_py) at n = 10^7: {twin:.0f} ns per term, {twin / shipped[1]:.0f}x the kernel"
-    )
-
-    print(
-        f"\n{DIGITS} certified hex digits of pi, one worker (spotcheck.engine.api.extract; best of 3 below 10^8)"
-    )
-    times: dict[tuple[str, int], float] = {}
-    for position in POSITIONS:
+    print(f"\n{DIGITS} certified hex digits of pi (Bellard), one worker, path {default} against portable")
+    for position in DIGIT_POSITIONS:
         if args.quick and position >= 10**8:
             print(f"  position {power(position)}: skipped (--quick)")
             continue
-        for key in ("bbp", "bellard"):
-            runs = [extract("pi", position, DIGITS, formula=key) for _ in range(3 if position < 10**8 else 1)]
+        times = {}
+        for name in (default, "portable"):
+            _kernel.select_path(name)
+            runs = [
+                extract("pi", position, DIGITS, workers=1) for _ in range(REPEATS if position < 10**8 else 1)
+            ]
             result = min(runs, key=lambda r: r.seconds)
-            times[key, position] = result.seconds
+            times[name] = result.seconds
+        _kernel.select_path(default)
+        print(
+            f"  position {power(position)}: {default} {times[default]:7.2f} s, portable {times['portable']:7.2f} s, "
+            f"ratio {times['portable'] / times[default]:.1f}x  {result.digits}  ({result.terms} terms)"
+        )
+
+    if not args.quick:
+        print("\nsympy.ntheory.bbp_pi.pi_hex_digits, same digits, same run")
+        from sympy.ntheory.bbp_pi import pi_hex_digits
+
+        for position in (10**6, 10**7):
+            t0 = time.perf_counter()
+            theirs = pi_hex_digits(position, DIGITS).upper()  # sympy counts the leading 3 as digit 0
+            t_sympy = time.perf_counter() - t0
+            ours = min(
+                (extract("pi", position, DIGITS, workers=1) for _ in range(REPEATS)), key=lambda r: r.seconds
+            )
+            agree = "agree" if theirs == ours.digits else f"DIFFER ({theirs} vs {ours.digits})"
             print(
-                f"  position {power(position)} {key:<8} {result.seconds:8.2f} s  "
-                f"{result.digits}  ({result.terms} terms, {result.fraction_bits} bits)"
+                f"  position {power(position)}: sympy {t_sympy:.1f} s, spotcheck {ours.seconds:.2f} s, "
+                f"ratio {t_sympy / ours.seconds:.0f}x; digits {agree}"
             )
 
-    print("\nsympy.ntheory.bbp_pi.pi_hex_digits, same digits, same run")
-    from sympy.ntheory.bbp_pi import pi_hex_digits
-
-    for position in (10**6, 10**7):
-        if args.quick and position >= 10**7:
-            print(f"  position {power(position)}: skipped (--quick)")
-            continue
-        t0 = time.perf_counter()
-        theirs = pi_hex_digits(position, DIGITS).upper()  # sympy counts the leading 3 as digit 0
-        t_sympy = time.perf_counter() - t0
-        ours = extract("pi", position, DIGITS)
-        fastest = min(
-            times.get(("bbp", position), ours.seconds), times.get(("bellard", position), ours.seconds)
-        )
-        agree = "agree" if theirs == ours.digits else f"DIFFER ({theirs} vs {ours.digits})"
-        print(
-            f"  position {power(position)}: sympy {t_sympy:.1f} s, spotcheck {fastest:.2f} s, "
-            f"ratio {t_sympy / fastest:.0f}x; digits {agree}"
-        )
-
-    print("\nworker threads, position 10^7, BBP")
-    one = best_of(lambda: extract("pi", 10**7, DIGITS, formula="bbp", workers=1), 2)
-    two = best_of(lambda: extract("pi", 10**7, DIGITS, formula="bbp", workers=2), 2)
+    print(f"\nworker threads, position 10^8, Bellard, path {default}")
+    one = best_of(lambda: extract("pi", 10**8, DIGITS, workers=1), 2)
+    two = best_of(lambda: extract("pi", 10**8, DIGITS, workers=2), 2)
     print(f"  1 worker {one:.2f} s, 2 workers {two:.2f} s, speed-up {one / two:.2f}x")
 
 
