@@ -131,7 +131,7 @@ def test_variants_match_twin(args: tuple, variant: tuple[int, int]) -> None:
 @st.composite
 def moduli_calls(draw: st.DrawFn) -> tuple:
     """Arguments whose largest modulus q (m k + j)^s lands just below a target."""
-    target = draw(st.sampled_from([1 << 31, 1 << 32, 1 << 62, LIMIT]))
+    target = draw(st.sampled_from([1 << b for b in (29, 31, 32, 48, 49, 50, 51, 52, 62, 63)]))
     s = draw(st.integers(1, 3))
     q = draw(st.sampled_from([1, 3, 21, 255, 1 << 10]) | st.integers(1, 1 << 12))
     m = draw(st.integers(1, 40))

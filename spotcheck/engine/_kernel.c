@@ -600,44 +600,81 @@ static void flush_batch(batch_t *bt, const simd_path_t *path, int words, uint64_
         add_fractions(32, bt->x, bt->n, bt->ninv, words, acc);
 }
 
-/* Walk the terms of the job, a batch at a time: the same terms with the same
- * per-term rules as run_job (slow_term for E < v, big_exponent_term beyond
- * 64-bit exponents); only the residues come from the path's ladders.  The sum
- * mod 2^P does not depend on the order of the terms. */
+/* One term (k, pair p) by the general rules of run_job: slow_term for E < v,
+ * big_exponent_term beyond 64-bit exponents, else into the batch. */
+static void batch_term(const job_t *jb, uint64_t k, Py_ssize_t p, batch_t *bt, int *fill, const simd_path_t *path,
+                       uint64_t *acc)
+{
+    const uint64_t extra = 64 * (uint64_t)jb->words, E = jb->D - jb->e * k, base = jb->m * k + jb->js[p];
+    uint64_t N = jb->q;
+    for (unsigned i = 0; i < jb->s; i++)
+        N *= base; /* below 2^63: checked in parse_job */
+    int v = trailing_zeros(N);
+    uint64_t odd = N >> v;
+    int64_t c = jb->alternating && (k & 1) ? -jb->cs[p] : jb->cs[p];
+    if (E < (uint64_t)v) {
+        slow_term(N, E, c, jb->words, acc);
+        return;
+    }
+    if (E - v > UINT64_MAX - extra) {
+        big_exponent_term(odd, E - v, c, jb->words, acc);
+        return;
+    }
+    bt->n[*fill] = odd;
+    bt->f[*fill] = E - v + extra;
+    bt->cm[*fill] = coeff_mod(c, odd);
+    if (++*fill == path->batch) {
+        flush_batch(bt, path, jb->words, acc);
+        *fill = 0;
+    }
+}
+
+/* Walk the terms of the job a batch at a time, pair by pair (the sum mod 2^P
+ * does not depend on the order of the terms), each term by the rules of
+ * run_job; only the residues come from the path's ladders.
+ *
+ * The common case takes no multiplication, division or bit count per term:
+ * when s = 1, q is odd (as series_of makes it) and j has fewer factors 2
+ * than m (t = ctz(j) < ctz(m)), every
+ * m k + j = 2^t (m' k + j') with m' k + j' odd, so v = t for all k and the
+ * odd part n = q (m' k + j') grows by q m' per k (exact mod 2^64, and n
+ * < 2^63 by parse_job); while |c| < n the residue of c is c or n + c.  The
+ * terms this does not cover (E < t, exponents beyond 64 bits, |c| >= n) take
+ * batch_term. */
 static void run_job_batched(const job_t *jb, uint64_t *acc, const simd_path_t *path)
 {
     batch_t bt;
     const int B = path->batch;
-    const uint64_t extra = 64 * (uint64_t)jb->words;
+    const uint64_t extra = 64 * (uint64_t)jb->words, D = jb->D, e = jb->e, m = jb->m, q = jb->q, k1 = jb->k1;
     int fill = 0;
-    if (jb->npairs == 0)
-        return;
-    for (uint64_t k = jb->k0; k < jb->k1; k++) {
-        uint64_t E = jb->D - jb->e * k;
-        int negate = jb->alternating && (k & 1);
-        uint64_t mk = jb->m * k;
-        for (Py_ssize_t p = 0; p < jb->npairs; p++) {
-            uint64_t base = mk + jb->js[p], N = jb->q;
-            for (unsigned i = 0; i < jb->s; i++)
-                N *= base; /* below 2^63: checked in parse_job */
-            int v = trailing_zeros(N);
-            uint64_t odd = N >> v;
-            int64_t c = negate ? -jb->cs[p] : jb->cs[p];
-            if (E < (uint64_t)v) {
-                slow_term(N, E, c, jb->words, acc);
-                continue;
+    for (Py_ssize_t p = 0; p < jb->npairs; p++) {
+        const uint64_t j = jb->js[p];
+        const int64_t c0 = jb->cs[p];
+        uint64_t k = jb->k0;
+        if (jb->s == 1 && (q & 1) && m != 0 && j != 0 && trailing_zeros(j) < trailing_zeros(m)) {
+            const int t = trailing_zeros(j);
+            const uint64_t step = q * (m >> t);
+            const int alt = jb->alternating;
+            uint64_t n = q * (j >> t) + step * k;
+            for (; k < k1; k++, n += step) {
+                uint64_t E = D - e * k;
+                int64_t c = alt && (k & 1) ? -c0 : c0;
+                uint64_t ca = c < 0 ? (uint64_t)(-c) : (uint64_t)c;
+                if (E < (uint64_t)t || E - t > UINT64_MAX - extra || ca >= n) {
+                    batch_term(jb, k, p, &bt, &fill, path, acc);
+                    continue;
+                }
+                bt.n[fill] = n;
+                bt.f[fill] = E - t + extra;
+                bt.cm[fill] = c < 0 ? n - ca : ca;
+                if (++fill == B) {
+                    flush_batch(&bt, path, jb->words, acc);
+                    fill = 0;
+                }
             }
-            if (E - v > UINT64_MAX - extra) {
-                big_exponent_term(odd, E - v, c, jb->words, acc);
-                continue;
-            }
-            bt.n[fill] = odd;
-            bt.f[fill] = E - v + extra;
-            bt.cm[fill] = coeff_mod(c, odd);
-            if (++fill == B) {
-                flush_batch(&bt, path, jb->words, acc);
-                fill = 0;
-            }
+        } else {
+            for (; k < k1; k++)
+                batch_term(jb, k, p, &bt, &fill, path, acc);
         }
     }
     if (fill) {
