@@ -576,6 +576,7 @@ typedef struct {
     uint64_t medium_limit;
     ladder_t wide; /* all n < wide_limit */
     uint64_t wide_limit;
+    void (*fractions)(batch_t *bt, int words, uint64_t *acc); /* NULL: add_fractions */
 } simd_path_t;
 
 /* Residues of a full batch by the path's narrowest ladder that takes every
@@ -594,7 +595,9 @@ static void flush_batch(batch_t *bt, const simd_path_t *path, int words, uint64_
         path->wide(bt);
     else
         ladder64(bt, B);
-    if (B == 64)
+    if (path->fractions)
+        path->fractions(bt, words, acc);
+    else if (B == 64)
         add_fractions(64, bt->x, bt->n, bt->ninv, words, acc);
     else
         add_fractions(32, bt->x, bt->n, bt->ninv, words, acc);
@@ -1001,6 +1004,113 @@ TARGET_IFMA static void medium_ifma(batch_t *bt)
     for (int h = 0; h < H; h++)
         _mm512_storeu_si512(bt->x + 8 * h, mont52(X[h], _mm512_loadu_si512(bt->cm + 8 * h), N[h], NP[h]));
 }
+
+/* ---- the fraction words in vector form -----------------------------------
+ * add_fractions on 4 or 8 lanes: per word, w = -r n^-1 mod 2^64 and
+ * r <- hi64(w n) + (r != 0), from 32 x 32-bit products (exact for any
+ * n < 2^63, see hi64_avx512); the words of the batch's terms are summed in
+ * 32-bit halves (no overflow for 64 terms), and the exact total plus the
+ * carry goes into acc word by word, as add_fractions does. */
+
+/* lo64(a b) for 64-bit lanes. */
+TARGET_AVX512 static inline __m512i mullo64_avx512(__m512i a, __m512i b)
+{
+    __m512i cross = _mm512_add_epi64(_mm512_mul_epu32(_mm512_srli_epi64(a, 32), b),
+                                     _mm512_mul_epu32(a, _mm512_srli_epi64(b, 32)));
+    return _mm512_add_epi64(_mm512_mul_epu32(a, b), _mm512_slli_epi64(cross, 32));
+}
+
+/* hi64(w n) for w < 2^64, n < 2^63: with w = wh 2^32 + wl, n = nh 2^32 + nl,
+ * mid = wh nl + (wl nl >> 32) < 2^64 and mid2 = (mid mod 2^32) + wl nh < 2^64,
+ * hi64 = wh nh + (mid >> 32) + (mid2 >> 32) (the low 32 bits of wl nl cannot
+ * carry past bit 64). */
+TARGET_AVX512 static inline __m512i mulhi64_avx512(__m512i w, __m512i n)
+{
+    const __m512i lo32 = _mm512_set1_epi64(0xffffffff);
+    __m512i wh = _mm512_srli_epi64(w, 32), nh = _mm512_srli_epi64(n, 32);
+    __m512i mid = _mm512_add_epi64(_mm512_mul_epu32(wh, n), _mm512_srli_epi64(_mm512_mul_epu32(w, n), 32));
+    __m512i mid2 = _mm512_add_epi64(_mm512_and_si512(mid, lo32), _mm512_mul_epu32(w, nh));
+    return _mm512_add_epi64(_mm512_add_epi64(_mm512_mul_epu32(wh, nh), _mm512_srli_epi64(mid, 32)),
+                            _mm512_srli_epi64(mid2, 32));
+}
+
+TARGET_AVX512 static void fractions_avx512(batch_t *bt, int words, uint64_t *acc)
+{
+    __m512i T[8], N[8], NI[8];
+    const __m512i lo32 = _mm512_set1_epi64(0xffffffff), one = _mm512_set1_epi64(1);
+    for (int h = 0; h < 8; h++) {
+        T[h] = _mm512_loadu_si512(bt->x + 8 * h);
+        N[h] = _mm512_loadu_si512(bt->n + 8 * h);
+        NI[h] = _mm512_loadu_si512(bt->ninv + 8 * h);
+    }
+    unsigned __int128 carry = 0;
+    for (int idx = 0; idx < words; idx++) {
+        __m512i SL = _mm512_setzero_si512(), SH = _mm512_setzero_si512();
+        for (int h = 0; h < 8; h++) {
+            __m512i w = _mm512_sub_epi64(_mm512_setzero_si512(), mullo64_avx512(T[h], NI[h]));
+            __mmask8 nz = _mm512_test_epi64_mask(T[h], T[h]);
+            __m512i hi = mulhi64_avx512(w, N[h]);
+            T[h] = _mm512_mask_add_epi64(hi, nz, hi, one);
+            SL = _mm512_add_epi64(SL, _mm512_and_si512(w, lo32));
+            SH = _mm512_add_epi64(SH, _mm512_srli_epi64(w, 32));
+        }
+        unsigned __int128 total = (unsigned __int128)(uint64_t)_mm512_reduce_add_epi64(SL) +
+                                  ((unsigned __int128)(uint64_t)_mm512_reduce_add_epi64(SH) << 32) + acc[idx] +
+                                  carry;
+        acc[idx] = (uint64_t)total;
+        carry = total >> 64; /* dropped past the top word (mod 2^P) */
+    }
+}
+
+TARGET_AVX2 static inline __m256i mullo64_avx2(__m256i a, __m256i b) /* as mullo64_avx512 */
+{
+    __m256i cross = _mm256_add_epi64(_mm256_mul_epu32(_mm256_srli_epi64(a, 32), b),
+                                     _mm256_mul_epu32(a, _mm256_srli_epi64(b, 32)));
+    return _mm256_add_epi64(_mm256_mul_epu32(a, b), _mm256_slli_epi64(cross, 32));
+}
+
+TARGET_AVX2 static inline __m256i mulhi64_avx2(__m256i w, __m256i n) /* as mulhi64_avx512 */
+{
+    const __m256i lo32 = _mm256_set1_epi64x(0xffffffff);
+    __m256i wh = _mm256_srli_epi64(w, 32), nh = _mm256_srli_epi64(n, 32);
+    __m256i mid = _mm256_add_epi64(_mm256_mul_epu32(wh, n), _mm256_srli_epi64(_mm256_mul_epu32(w, n), 32));
+    __m256i mid2 = _mm256_add_epi64(_mm256_and_si256(mid, lo32), _mm256_mul_epu32(w, nh));
+    return _mm256_add_epi64(_mm256_add_epi64(_mm256_mul_epu32(wh, nh), _mm256_srli_epi64(mid, 32)),
+                            _mm256_srli_epi64(mid2, 32));
+}
+
+TARGET_AVX2 static uint64_t hsum_avx2(__m256i v)
+{
+    uint64_t out[4];
+    _mm256_storeu_si256((__m256i *)out, v);
+    return out[0] + out[1] + out[2] + out[3];
+}
+
+TARGET_AVX2 static void fractions_avx2(batch_t *bt, int words, uint64_t *acc) /* 32 terms */
+{
+    __m256i T[8], N[8], NI[8];
+    const __m256i lo32 = _mm256_set1_epi64x(0xffffffff), one = _mm256_set1_epi64x(1), zero = _mm256_setzero_si256();
+    for (int h = 0; h < 8; h++) {
+        T[h] = _mm256_loadu_si256((const __m256i *)(bt->x + 4 * h));
+        N[h] = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
+        NI[h] = _mm256_loadu_si256((const __m256i *)(bt->ninv + 4 * h));
+    }
+    unsigned __int128 carry = 0;
+    for (int idx = 0; idx < words; idx++) {
+        __m256i SL = zero, SH = zero;
+        for (int h = 0; h < 8; h++) {
+            __m256i w = _mm256_sub_epi64(zero, mullo64_avx2(T[h], NI[h]));
+            __m256i nz = _mm256_andnot_si256(_mm256_cmpeq_epi64(T[h], zero), one);
+            T[h] = _mm256_add_epi64(mulhi64_avx2(w, N[h]), nz);
+            SL = _mm256_add_epi64(SL, _mm256_and_si256(w, lo32));
+            SH = _mm256_add_epi64(SH, _mm256_srli_epi64(w, 32));
+        }
+        unsigned __int128 total = (unsigned __int128)hsum_avx2(SL) + ((unsigned __int128)hsum_avx2(SH) << 32) +
+                                  acc[idx] + carry;
+        acc[idx] = (uint64_t)total;
+        carry = total >> 64;
+    }
+}
 #undef H
 #endif /* HAVE_X86_PATHS */
 
@@ -1014,21 +1124,21 @@ enum { PATH_PORTABLE = 0, PATH_SCALAR, PATH_AVX2, PATH_AVX512F, PATH_AVX512IFMA,
 #define IFMA_LIMIT ((uint64_t)1 << 51)
 
 static const simd_path_t PATHS[NPATHS] = {
-    {"portable", "", 0, NULL, 0, NULL, 0, NULL, 0}, /* today's shipped code: run_8_simd */
-    {"scalar", "", 0, NULL, 0, NULL, 0, NULL, 0},   /* 64-bit Montgomery only, 8 lanes: run_8_fused */
+    {"portable", "", 0, NULL, 0, NULL, 0, NULL, 0, NULL}, /* today's shipped code: run_8_simd */
+    {"scalar", "", 0, NULL, 0, NULL, 0, NULL, 0, NULL},   /* 64-bit Montgomery only, 8 lanes: run_8_fused */
 #if HAVE_X86_PATHS
-    {"avx2", "avx2, fma", 32, small_avx2, SMALL_LIMIT, medium_avx2, FMA_LIMIT, NULL, 0},
-    {"avx512f", "avx512f", 64, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT, NULL, 0},
+    {"avx2", "avx2, fma", 32, small_avx2, SMALL_LIMIT, medium_avx2, FMA_LIMIT, NULL, 0, fractions_avx2},
+    {"avx512f", "avx512f", 64, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT, NULL, 0, fractions_avx512},
     /* FMA below 2^48 measured slightly faster than IFMA on AMD EPYC (Zen 5);
        IFMA takes 2^48 .. 2^51 */
     {"avx512ifma", "avx512f, avx512ifma", 64, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT, medium_ifma,
-     IFMA_LIMIT},
-    {"ifma52", "avx512f, avx512ifma", 64, NULL, 0, NULL, 0, medium_ifma, IFMA_LIMIT},
+     IFMA_LIMIT, fractions_avx512},
+    {"ifma52", "avx512f, avx512ifma", 64, NULL, 0, NULL, 0, medium_ifma, IFMA_LIMIT, fractions_avx512},
 #else
-    {"avx2", "avx2, fma", 0, NULL, 0, NULL, 0, NULL, 0},
-    {"avx512f", "avx512f", 0, NULL, 0, NULL, 0, NULL, 0},
-    {"avx512ifma", "avx512f, avx512ifma", 0, NULL, 0, NULL, 0, NULL, 0},
-    {"ifma52", "avx512f, avx512ifma", 0, NULL, 0, NULL, 0, NULL, 0},
+    {"avx2", "avx2, fma", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
+    {"avx512f", "avx512f", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
+    {"avx512ifma", "avx512f, avx512ifma", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
+    {"ifma52", "avx512f, avx512ifma", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
 #endif
 };
 
