@@ -2,6 +2,7 @@
 
     python benchmarks/deep.py            # full runs at 10^8 and 10^9 (several minutes)
     python benchmarks/deep.py --quick    # 10^9 from a sample of its blocks, extrapolated
+    python benchmarks/deep.py --path portable   # the same on one kernel path (default: the fastest)
 
 For 14 certified hex digits of pi (the default formula) at positions 10^8
 and 10^9, the head sum is cut into the blocks a checkpointed or cluster run
@@ -11,6 +12,8 @@ spread sample of the blocks of 10^9 and extrapolates from the sampled share
 of terms, and says so.  The projection to N cores divides the one-thread
 time by N times the measured two-thread efficiency; a cluster adds Dask's
 per-task overhead (milliseconds per block of about a second or more).
+The last line projects position 10^12 in core-hours (one-thread CPU time
+grows in proportion to the position).
 
 Measured 2026-12-02 on a 2-vCPU AMD EPYC VM, Python 3.11.7, the int128
 kernel of commit 8659246 (load average about 1.5 from other jobs):
@@ -29,6 +32,7 @@ import sys
 import time
 from collections.abc import Iterator, Sequence
 
+from kernel import cpu_flags  # noqa: E402  (benchmarks/kernel.py)
 from machine import describe  # noqa: E402  (this folder is first on sys.path)
 
 from spotcheck.engine import backend
@@ -125,14 +129,22 @@ def main() -> None:
         action="append",
         help="measure only this position (repeatable; default 10^8 and 10^9)",
     )
+    parser.add_argument(
+        "--path", help="the kernel path to run (default: the one in use, the fastest offered)"
+    )
     args = parser.parse_args()
     positions = tuple(args.position or POSITIONS)
     if backend.BACKEND != "c":
         sys.exit("the compiled kernel is not in use; these figures are for the C kernel")
+    from spotcheck.engine import _kernel  # type: ignore[attr-defined]
+
+    if args.path:
+        _kernel.select_path(args.path)
 
     f = get_constant("pi").formula()
     print(describe())
-    print(f"backend: {backend.BACKEND_NOTE}")
+    print(cpu_flags())
+    print(f"backend: {backend.BACKEND_NOTE}; path running: {_kernel.active_path()}")
     print(f"pi, formula {f.key}: {f.notation()}; {DIGITS} certified hex digits; blocks of deep_block_k")
     print(f"load average at start: {load()}")
     print()
@@ -179,9 +191,10 @@ def main() -> None:
         cells = [f"{duration(cpus[p] / (m[p] * eff))} ({duration(cpus[p] / m[p])})" for p in positions]
         print(f"{n:>6}" + "".join(f"{c:>22}" for c in cells))
     cost_per_bit = cpus[positions[-1]] / positions[-1]
+    hours = cost_per_bit * 10**12 / 3600
     print(
-        f"beyond: time grows in proportion to the position, about {duration(cost_per_bit * 10**12)} "
-        "of one-thread CPU time at 10^12"
+        f"projected 10^12 (time grows in proportion to the position): {hours:.1f} core-hours of one-thread "
+        f"CPU time on path {_kernel.active_path()}, about {duration(hours * 3600 / (100 * eff))} on 100 cores"
     )
 
 
