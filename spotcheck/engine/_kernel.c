@@ -886,7 +886,7 @@ TARGET_AVX512 static inline __m512i pow2_mod_avx512(__m512d nd, double p2) /* as
 TARGET_AVX512 static void small_avx512(batch_t *bt)
 {
     __m512i X[H], N[H], NP[H], F[H];
-    const __m512i one = _mm512_set1_epi64(1), zero = _mm512_setzero_si512();
+    const __m512i zero = _mm512_setzero_si512();
     uint64_t fmax = 0;
     for (int l = 0; l < 64; l++)
         fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
@@ -899,10 +899,10 @@ TARGET_AVX512 static void small_avx512(batch_t *bt)
         X[h] = pow2_mod_avx512(u52_to_pd_avx512(N[h]), 4294967296.0);
     }
     for (int b = bit_length(fmax) - 1; b >= 0; b--) {
-        __m128i cnt = _mm_cvtsi32_si128(b);
-        for (int h = 0; h < H; h++) {
-            __m512i bit = _mm512_and_si512(_mm512_srl_epi64(F[h], cnt), one);
-            __m512i t = _mm512_mul_epu32(X[h], _mm512_sllv_epi64(X[h], bit));
+        __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
+        for (int h = 0; h < H; h++) { /* y = x, or 2x where bit b of f is set */
+            __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]);
+            __m512i t = _mm512_mul_epu32(X[h], y);
             __m512i m = _mm512_mul_epu32(t, NP[h]);
             X[h] = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, N[h])), 32);
         }
@@ -930,7 +930,7 @@ TARGET_AVX512 static void medium_avx512(batch_t *bt)
 {
     __m512d X[H], ND[H], NI[H];
     __m512i F[H];
-    const __m512d d1 = _mm512_set1_pd(1.0), d2 = _mm512_set1_pd(2.0);
+    const __m512d d1 = _mm512_set1_pd(1.0);
     uint64_t fmax = 0;
     for (int l = 0; l < 64; l++)
         fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
@@ -945,7 +945,7 @@ TARGET_AVX512 static void medium_avx512(batch_t *bt)
     for (int b = bit_length(fmax) - 1; b >= 0; b--) {
         __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
         for (int h = 0; h < H; h++) {
-            __m512d y = _mm512_mul_pd(X[h], _mm512_mask_blend_pd(_mm512_test_epi64_mask(F[h], sel), d1, d2));
+            __m512d y = _mm512_mask_add_pd(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]); /* exact */
             X[h] = mulmod_avx512(X[h], y, ND[h], NI[h]);
         }
     }
@@ -982,7 +982,7 @@ TARGET_IFMA static inline __m512i mont52(__m512i a, __m512i b, __m512i n, __m512
 TARGET_IFMA static void medium_ifma(batch_t *bt)
 {
     __m512i X[H], N[H], NP[H], F[H];
-    const __m512i one = _mm512_set1_epi64(1), mask52 = _mm512_set1_epi64(((int64_t)1 << 52) - 1);
+    const __m512i mask52 = _mm512_set1_epi64(((int64_t)1 << 52) - 1);
     uint64_t fmax = 0;
     for (int l = 0; l < 64; l++)
         fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
@@ -995,10 +995,10 @@ TARGET_IFMA static void medium_ifma(batch_t *bt)
         X[h] = pow2_mod_avx512(u52_to_pd_avx512(N[h]), 4503599627370496.0);
     }
     for (int b = bit_length(fmax) - 1; b >= 0; b--) {
-        __m128i cnt = _mm_cvtsi32_si128(b);
+        __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
         for (int h = 0; h < H; h++) {
-            __m512i bit = _mm512_and_si512(_mm512_srl_epi64(F[h], cnt), one);
-            X[h] = mont52(X[h], _mm512_sllv_epi64(X[h], bit), N[h], NP[h]);
+            __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]);
+            X[h] = mont52(X[h], y, N[h], NP[h]);
         }
     }
     for (int h = 0; h < H; h++)
