@@ -654,27 +654,47 @@ static void run_job_batched(const job_t *jb, uint64_t *acc, const simd_path_t *p
         const uint64_t j = jb->js[p];
         const int64_t c0 = jb->cs[p];
         uint64_t k = jb->k0;
-        if (jb->s == 1 && (q & 1) && m != 0 && j != 0 && trailing_zeros(j) < trailing_zeros(m)) {
-            const int t = trailing_zeros(j);
-            const uint64_t step = q * (m >> t);
-            const int alt = jb->alternating;
-            uint64_t n = q * (j >> t) + step * k;
-            for (; k < k1; k++, n += step) {
-                uint64_t E = D - e * k;
-                int64_t c = alt && (k & 1) ? -c0 : c0;
-                uint64_t ca = c < 0 ? (uint64_t)(-c) : (uint64_t)c;
-                if (E < (uint64_t)t || E - t > UINT64_MAX - extra || ca >= n) {
-                    batch_term(jb, k, p, &bt, &fill, path, acc);
-                    continue;
+        if (jb->s == 1 && (q & 1) && m != 0 && j != 0 && c0 != 0 && trailing_zeros(j) < trailing_zeros(m)) {
+            const uint64_t t = (uint64_t)trailing_zeros(j);
+            const uint64_t step = q * (m >> t), b = q * (j >> t); /* n_k = b + step k, exact mod 2^64 */
+            const uint64_t ca = c0 < 0 ? (uint64_t)(-c0) : (uint64_t)c0, M = UINT64_MAX - extra;
+            /* [lo, hi): the k where E >= t, E - t <= M and n_k > |c| all hold */
+            uint64_t lo = k, hi = k1;
+            if (D < t)
+                hi = lo;
+            else if (e && (D - t) / e + 1 < hi)
+                hi = (D - t) / e + 1;
+            if (D - t > M && D >= t) {
+                uint64_t need = D - t - M; /* e k >= need */
+                uint64_t kk = e ? need / e + (need % e != 0) : UINT64_MAX;
+                lo = kk > lo ? kk : lo;
+            }
+            if (b <= ca) {
+                uint64_t kk = (ca - b) / step + 1;
+                lo = kk > lo ? kk : lo;
+            }
+            if (lo > hi)
+                lo = hi;
+            for (; k < lo; k++)
+                batch_term(jb, k, p, &bt, &fill, path, acc);
+            /* the tight loop: no branch per term but the batch boundary */
+            const uint64_t f0 = D - t + extra, neg_odd = jb->alternating ? 1 : 0, negc = c0 < 0;
+            while (k < hi) {
+                uint64_t run = hi - k < (uint64_t)(B - fill) ? hi - k : (uint64_t)(B - fill);
+                for (uint64_t i = 0; i < run; i++, k++) {
+                    uint64_t n = b + step * k, neg = negc ^ (neg_odd & k);
+                    bt.n[fill + i] = n;
+                    bt.f[fill + i] = f0 - e * k;
+                    bt.cm[fill + i] = neg ? n - ca : ca;
                 }
-                bt.n[fill] = n;
-                bt.f[fill] = E - t + extra;
-                bt.cm[fill] = c < 0 ? n - ca : ca;
-                if (++fill == B) {
+                fill += (int)run;
+                if (fill == B) {
                     flush_batch(&bt, path, jb->words, acc);
                     fill = 0;
                 }
             }
+            for (; k < k1; k++)
+                batch_term(jb, k, p, &bt, &fill, path, acc);
         } else {
             for (; k < k1; k++)
                 batch_term(jb, k, p, &bt, &fill, path, acc);
