@@ -384,7 +384,9 @@ def test_path_edge_moduli_match_twin(name: str, args: tuple) -> None:
 @settings(max_examples=40, deadline=None)
 @given(args=moduli_calls())
 @example(args=(10**6, 0, 3000, 8, 1, 4, 1, True, [1, 4, 5, 6], [4, 0, -1, 0], 2))  # zero coefficients
-@example(args=(2**64 - 1, 0, 3000, 20, 1, 10, 3, True, [2, 5, 6], [2**62 - 1, -(2**61), 7], 3))  # |c| >= n, big E
+@example(
+    args=(2**64 - 1, 0, 3000, 20, 1, 10, 3, True, [2, 5, 6], [2**62 - 1, -(2**61), 7], 3)
+)  # |c| >= n, big E
 def test_path_chosen_moduli_match_twin(name: str, args: tuple) -> None:
     """Real series shapes (q, m, s, alternating) with the last modulus just below an edge."""
     assert _kernel._head_sum_path(name, *args) == head_sum_py(*args)

@@ -33,6 +33,13 @@
  * SSE2 register where the target has SSE2 (STEP_SIMD; every x86-64 does);
  * otherwise in 64-bit form.
  *
+ * That is the "portable" path, built for the generic target and kept as the
+ * baseline.  On x86-64 the extension also carries vector paths compiled with
+ * per-function target attributes (AVX2+FMA, AVX-512F, AVX-512 IFMA) and picks
+ * the fastest the CPU offers once at import (see "Run-time chosen SIMD paths"
+ * below); select_path() / SPOTCHECK_KERNEL force one, paths() lists them.
+ * Every path returns the twin's value bit for bit: the residues are exact.
+ *
  * Limits (checked in parse_job, and by spotcheck/engine/backend.py before the
  * call): every N < 2^63, 0 <= D < 2^64, |c| < 2^62, 1 <= words <= 16,
  * D - e*(k1-1) >= 0, k0 >= 0, s <= 63, e < 2^32.
