@@ -524,7 +524,9 @@ static runner_t pick_runner(long lanes, long step)
  *
  * Each ladder keeps one exponent per lane (no shared exponent): at step b
  * lane l multiplies by 2 when bit b of f_l is set, by a per-lane shift or
- * blend, so terms of different k share a batch.  The ladder starts from the
+ * blend, so terms of different k share a batch.  (The AVX2 ladders test the
+ * top bits once for all lanes where every f of the batch has the same bits:
+ * every integer between min f and max f shares their common leading bits.)  The ladder starts from the
  * form of 1 at the top bit of max f; lanes with shorter exponents square 1
  * until their own top bit.  A batch whose largest modulus exceeds a ladder's
  * limit goes to the next wider one, and above every vector limit to the
@@ -783,9 +785,12 @@ TARGET_AVX2 static void small_avx2(batch_t *bt)
 {
     __m256i X[H], N[H], NP[H], F[H];
     const __m256i one = _mm256_set1_epi64x(1), zero = _mm256_setzero_si256();
-    uint64_t fmax = 0;
-    for (int l = 0; l < 32; l++)
+    uint64_t fmax = 0, fmin = UINT64_MAX;
+    for (int l = 0; l < 32; l++) {
         fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
+        fmin = bt->f[l] < fmin ? bt->f[l] : fmin;
+    }
+    const int low = bit_length(fmax ^ fmin); /* bits >= low: the same in every lane */
     for (int h = 0; h < H; h++) {
         N[h] = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
         F[h] = _mm256_loadu_si256((const __m256i *)(bt->f + 4 * h));
@@ -794,7 +799,15 @@ TARGET_AVX2 static void small_avx2(batch_t *bt)
         NP[h] = _mm256_sub_epi64(zero, ninv); /* the multiplier reads the low 32 bits */
         X[h] = pow2_mod_avx2(u52_to_pd_avx2(N[h]), 4294967296.0);
     }
-    for (int b = bit_length(fmax) - 1; b >= 0; b--) {
+    for (int b = bit_length(fmax) - 1; b >= low; b--) { /* the shared bits: one test per step */
+        __m128i cnt = _mm_cvtsi32_si128((int)((fmax >> b) & 1));
+        for (int h = 0; h < H; h++) {
+            __m256i t = _mm256_mul_epu32(X[h], _mm256_sll_epi64(X[h], cnt));
+            __m256i m = _mm256_mul_epu32(t, NP[h]);
+            X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, N[h])), 32);
+        }
+    }
+    for (int b = low - 1; b >= 0; b--) {
         __m128i cnt = _mm_cvtsi32_si128(b);
         for (int h = 0; h < H; h++) {
             __m256i bit = _mm256_and_si256(_mm256_srl_epi64(F[h], cnt), one);
@@ -845,9 +858,12 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
     __m256i F[H];
     const __m256i one = _mm256_set1_epi64x(1);
     const __m256d d1 = _mm256_set1_pd(1.0), d2 = _mm256_set1_pd(2.0);
-    uint64_t fmax = 0;
-    for (int l = 0; l < 32; l++)
+    uint64_t fmax = 0, fmin = UINT64_MAX;
+    for (int l = 0; l < 32; l++) {
         fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
+        fmin = bt->f[l] < fmin ? bt->f[l] : fmin;
+    }
+    const int low = bit_length(fmax ^ fmin); /* bits >= low: the same in every lane */
     for (int h = 0; h < H; h++) {
         __m256i n = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
         F[h] = _mm256_loadu_si256((const __m256i *)(bt->f + 4 * h));
@@ -856,7 +872,15 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
         NI[h] = _mm256_div_pd(d1, ND[h]);
         X[h] = d1;
     }
-    for (int b = bit_length(fmax) - 1; b >= 0; b--) {
+    for (int b = bit_length(fmax) - 1; b >= low; b--) { /* the shared bits */
+        if ((fmax >> b) & 1)
+            for (int h = 0; h < H; h++)
+                X[h] = mulmod_avx2(X[h], _mm256_add_pd(X[h], X[h]), ND[h], NI[h]);
+        else
+            for (int h = 0; h < H; h++)
+                X[h] = mulmod_avx2(X[h], X[h], ND[h], NI[h]);
+    }
+    for (int b = low - 1; b >= 0; b--) {
         __m128i cnt = _mm_cvtsi32_si128(b);
         for (int h = 0; h < H; h++) {
             __m256i bit = _mm256_cmpeq_epi64(_mm256_and_si256(_mm256_srl_epi64(F[h], cnt), one), one);
