@@ -537,11 +537,12 @@ static runner_t pick_runner(long lanes, long step)
  *   avx512f     8 x 32-bit Montgomery   8 x FMA double (2^48)    64-bit scalar
  *   avx512ifma  8 x 32-bit Montgomery   8 x IFMA 52-bit (2^51)   64-bit scalar
  *
- * with B = 32 (AVX2) or 64 (AVX-512) terms in flight: 8 independent vector
- * registers of chains per step.  Padding lanes use n = 1 (x = 0, fraction 0).
+ * with B = 32 (AVX2: 8 registers) or 128 (AVX-512: 16 registers) terms in
+ * flight, each lane an independent chain.  Padding lanes use n = 1 (x = 0,
+ * fraction 0).
  */
 
-#define BATCH 64
+#define BATCH 128
 
 typedef struct {
     uint64_t n[BATCH], f[BATCH], cm[BATCH], x[BATCH], ninv[BATCH];
@@ -724,7 +725,8 @@ static void run_job_batched(const job_t *jb, uint64_t *acc, const simd_path_t *p
 #define TARGET_AVX512 __attribute__((target("avx512f")))
 #define TARGET_IFMA __attribute__((target("avx512f,avx512ifma")))
 #define MAGIC52 0x4330000000000000ULL /* the bits of the double 2^52 */
-#define H 8                           /* vector registers of chains per ladder */
+#define H 8                           /* AVX2: vector registers of chains per ladder (32 terms) */
+#define H5 16                         /* AVX-512: registers of chains per ladder (128 terms) */
 
 /* ---- AVX2 (+FMA): 4 lanes of 64 bits, B = 32 ---------------------------- */
 
@@ -936,12 +938,12 @@ TARGET_AVX512 static inline __m512i pow2_mod_avx512(__m512d nd, double p2) /* as
 /* small_avx2 on eight lanes; the same bounds (n < 2^29, values in [0, 2n)). */
 TARGET_AVX512 static void small_avx512(batch_t *bt)
 {
-    __m512i X[H], N[H], NP[H], F[H];
+    __m512i X[H5], N[H5], NP[H5], F[H5];
     const __m512i zero = _mm512_setzero_si512();
     uint64_t fmax = 0;
-    for (int l = 0; l < 64; l++)
+    for (int l = 0; l < 8 * H5; l++)
         fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
-    for (int h = 0; h < H; h++) {
+    for (int h = 0; h < H5; h++) {
         N[h] = _mm512_loadu_si512(bt->n + 8 * h);
         F[h] = _mm512_loadu_si512(bt->f + 8 * h);
         __m512i ninv = inv64_avx512(N[h]);
@@ -951,14 +953,14 @@ TARGET_AVX512 static void small_avx512(batch_t *bt)
     }
     for (int b = bit_length(fmax) - 1; b >= 0; b--) {
         __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
-        for (int h = 0; h < H; h++) { /* y = x, or 2x where bit b of f is set */
+        for (int h = 0; h < H5; h++) { /* y = x, or 2x where bit b of f is set */
             __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]);
             __m512i t = _mm512_mul_epu32(X[h], y);
             __m512i m = _mm512_mul_epu32(t, NP[h]);
             X[h] = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, N[h])), 32);
         }
     }
-    for (int h = 0; h < H; h++) {
+    for (int h = 0; h < H5; h++) {
         __m512i x = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], N[h])); /* x >= n ? x - n : x */
         __m512i t = _mm512_mul_epu32(x, _mm512_loadu_si512(bt->cm + 8 * h));
         __m512i m = _mm512_mul_epu32(t, NP[h]);
@@ -979,13 +981,13 @@ TARGET_AVX512 static inline __m512d mulmod_avx512(__m512d a, __m512d b, __m512d 
 /* medium_avx2 on eight lanes (n < 2^48). */
 TARGET_AVX512 static void medium_avx512(batch_t *bt)
 {
-    __m512d X[H], ND[H], NI[H];
-    __m512i F[H];
+    __m512d X[H5], ND[H5], NI[H5];
+    __m512i F[H5];
     const __m512d d1 = _mm512_set1_pd(1.0);
     uint64_t fmax = 0;
-    for (int l = 0; l < 64; l++)
+    for (int l = 0; l < 8 * H5; l++)
         fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
-    for (int h = 0; h < H; h++) {
+    for (int h = 0; h < H5; h++) {
         __m512i n = _mm512_loadu_si512(bt->n + 8 * h);
         F[h] = _mm512_loadu_si512(bt->f + 8 * h);
         _mm512_storeu_si512(bt->ninv + 8 * h, inv64_avx512(n));
@@ -995,12 +997,12 @@ TARGET_AVX512 static void medium_avx512(batch_t *bt)
     }
     for (int b = bit_length(fmax) - 1; b >= 0; b--) {
         __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
-        for (int h = 0; h < H; h++) {
+        for (int h = 0; h < H5; h++) {
             __m512d y = _mm512_mask_add_pd(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]); /* exact */
             X[h] = mulmod_avx512(X[h], y, ND[h], NI[h]);
         }
     }
-    for (int h = 0; h < H; h++) {
+    for (int h = 0; h < H5; h++) {
         __m512d c = u52_to_pd_avx512(_mm512_loadu_si512(bt->cm + 8 * h));
         __m512d r = mulmod_avx512(X[h], c, ND[h], NI[h]);
         r = _mm512_mask_add_pd(r, _mm512_cmp_pd_mask(r, _mm512_setzero_pd(), _CMP_LT_OQ), r, ND[h]);
@@ -1032,12 +1034,12 @@ TARGET_IFMA static inline __m512i mont52(__m512i a, __m512i b, __m512i n, __m512
 
 TARGET_IFMA static void medium_ifma(batch_t *bt)
 {
-    __m512i X[H], N[H], NP[H], F[H];
+    __m512i X[H5], N[H5], NP[H5], F[H5];
     const __m512i mask52 = _mm512_set1_epi64(((int64_t)1 << 52) - 1);
     uint64_t fmax = 0;
-    for (int l = 0; l < 64; l++)
+    for (int l = 0; l < 8 * H5; l++)
         fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
-    for (int h = 0; h < H; h++) {
+    for (int h = 0; h < H5; h++) {
         N[h] = _mm512_loadu_si512(bt->n + 8 * h);
         F[h] = _mm512_loadu_si512(bt->f + 8 * h);
         __m512i ninv = inv64_avx512(N[h]);
@@ -1047,12 +1049,12 @@ TARGET_IFMA static void medium_ifma(batch_t *bt)
     }
     for (int b = bit_length(fmax) - 1; b >= 0; b--) {
         __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
-        for (int h = 0; h < H; h++) {
+        for (int h = 0; h < H5; h++) {
             __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]);
             X[h] = mont52(X[h], y, N[h], NP[h]);
         }
     }
-    for (int h = 0; h < H; h++)
+    for (int h = 0; h < H5; h++)
         _mm512_storeu_si512(bt->x + 8 * h, mont52(X[h], _mm512_loadu_si512(bt->cm + 8 * h), N[h], NP[h]));
 }
 
@@ -1060,7 +1062,7 @@ TARGET_IFMA static void medium_ifma(batch_t *bt)
  * add_fractions on 4 or 8 lanes: per word, w = -r n^-1 mod 2^64 and
  * r <- hi64(w n) + (r != 0), from 32 x 32-bit products (exact for any
  * n < 2^63, see hi64_avx512); the words of the batch's terms are summed in
- * 32-bit halves (no overflow for 64 terms), and the exact total plus the
+ * 32-bit halves (no overflow for 128 terms), and the exact total plus the
  * carry goes into acc word by word, as add_fractions does. */
 
 /* lo64(a b) for 64-bit lanes. */
@@ -1087,9 +1089,9 @@ TARGET_AVX512 static inline __m512i mulhi64_avx512(__m512i w, __m512i n)
 
 TARGET_AVX512 static void fractions_avx512(batch_t *bt, int words, uint64_t *acc)
 {
-    __m512i T[8], N[8], NI[8];
+    __m512i T[H5], N[H5], NI[H5];
     const __m512i lo32 = _mm512_set1_epi64(0xffffffff), one = _mm512_set1_epi64(1);
-    for (int h = 0; h < 8; h++) {
+    for (int h = 0; h < H5; h++) {
         T[h] = _mm512_loadu_si512(bt->x + 8 * h);
         N[h] = _mm512_loadu_si512(bt->n + 8 * h);
         NI[h] = _mm512_loadu_si512(bt->ninv + 8 * h);
@@ -1097,7 +1099,7 @@ TARGET_AVX512 static void fractions_avx512(batch_t *bt, int words, uint64_t *acc
     unsigned __int128 carry = 0;
     for (int idx = 0; idx < words; idx++) {
         __m512i SL = _mm512_setzero_si512(), SH = _mm512_setzero_si512();
-        for (int h = 0; h < 8; h++) {
+        for (int h = 0; h < H5; h++) {
             __m512i w = _mm512_sub_epi64(_mm512_setzero_si512(), mullo64_avx512(T[h], NI[h]));
             __mmask8 nz = _mm512_test_epi64_mask(T[h], T[h]);
             __m512i hi = mulhi64_avx512(w, N[h]);
@@ -1163,6 +1165,7 @@ TARGET_AVX2 static void fractions_avx2(batch_t *bt, int words, uint64_t *acc) /*
     }
 }
 #undef H
+#undef H5
 #endif /* HAVE_X86_PATHS */
 
 /* ---- the table of paths ------------------------------------------------- */
@@ -1179,12 +1182,12 @@ static const simd_path_t PATHS[NPATHS] = {
     {"scalar", "", 0, NULL, 0, NULL, 0, NULL, 0, NULL},   /* 64-bit Montgomery only, 8 lanes: run_8_fused */
 #if HAVE_X86_PATHS
     {"avx2", "avx2, fma", 32, small_avx2, SMALL_LIMIT, medium_avx2, FMA_LIMIT, NULL, 0, fractions_avx2},
-    {"avx512f", "avx512f", 64, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT, NULL, 0, fractions_avx512},
+    {"avx512f", "avx512f", 128, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT, NULL, 0, fractions_avx512},
     /* FMA below 2^48 measured slightly faster than IFMA on AMD EPYC (Zen 5);
        IFMA takes 2^48 .. 2^51 */
-    {"avx512ifma", "avx512f, avx512ifma", 64, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT, medium_ifma,
+    {"avx512ifma", "avx512f, avx512ifma", 128, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT, medium_ifma,
      IFMA_LIMIT, fractions_avx512},
-    {"ifma52", "avx512f, avx512ifma", 64, NULL, 0, NULL, 0, medium_ifma, IFMA_LIMIT, fractions_avx512},
+    {"ifma52", "avx512f, avx512ifma", 128, NULL, 0, NULL, 0, medium_ifma, IFMA_LIMIT, fractions_avx512},
 #else
     {"avx2", "avx2, fma", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
     {"avx512f", "avx512f", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
