@@ -205,6 +205,12 @@ IgnoreLabelsOpt = Annotated[
         "--ignore-labels", help="Check the digits even when position labels disagree with their count."
     ),
 ]
+LabelsOpt = Annotated[
+    str | None,
+    typer.Option(
+        "--labels", help="Where position labels are when the layout cannot tell: start, end or none."
+    ),
+]
 ReferenceOpt = Annotated[
     str,
     typer.Option(
@@ -275,6 +281,7 @@ def verify(
     formula: FormulaOpt = None,
     limit: LimitOpt = None,
     ignore_labels: IgnoreLabelsOpt = False,
+    labels: LabelsOpt = None,
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
     cluster: ClusterOpt = None,
@@ -304,6 +311,7 @@ def verify(
             workers=_workers(workers),
             limit=limit,
             ignore_labels=ignore_labels,
+            labels=labels,
             cluster=cluster,
             checkpoint=_window_checkpoint(checkpoint),
             progress=cb,
@@ -320,6 +328,7 @@ def verify(
         formula=formula,
         limit=limit,
         ignore_labels=ignore_labels,
+        labels=labels,
         formula_file=formula_file,
         cluster=cluster,
         checkpoint=checkpoint,
@@ -340,6 +349,7 @@ def locate(
     formula: FormulaOpt = None,
     limit: LimitOpt = None,
     ignore_labels: IgnoreLabelsOpt = False,
+    labels: LabelsOpt = None,
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
     cluster: ClusterOpt = None,
@@ -364,6 +374,7 @@ def locate(
             workers=_workers(workers),
             limit=limit,
             ignore_labels=ignore_labels,
+            labels=labels,
             cluster=cluster,
             checkpoint=_window_checkpoint(checkpoint),
             progress=cb,
@@ -379,6 +390,7 @@ def locate(
         formula=formula,
         limit=limit,
         ignore_labels=ignore_labels,
+        labels=labels,
         formula_file=formula_file,
         cluster=cluster,
         checkpoint=checkpoint,
@@ -394,6 +406,7 @@ def scan(
     base: BaseOpt = None,
     limit: LimitOpt = None,
     ignore_labels: IgnoreLabelsOpt = False,
+    labels: LabelsOpt = None,
     as_json: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
@@ -409,6 +422,7 @@ def scan(
             reference=reference,
             limit=limit,
             ignore_labels=ignore_labels,
+            labels=labels,
             progress=cb,
         )
     repeat = _repeat(
@@ -419,6 +433,7 @@ def scan(
         base=base,
         limit=limit,
         ignore_labels=ignore_labels,
+        labels=labels,
     )
     _finish(result, repeat, as_json, quiet)
 
@@ -428,6 +443,7 @@ def inspect(
     file: FileArg,
     constant: ConstantOpt = None,
     base: BaseOpt = None,
+    labels: LabelsOpt = None,
     formula_file: FormulaFileOpt = None,
     as_json: JsonOpt = False,
 ) -> None:
@@ -438,7 +454,7 @@ def inspect(
 
     _load_formula_files(formula_file)
     with progress_bar("reading", enabled=not as_json) as cb:
-        result = inspect_file(str(file), base=_base(base), constant=constant, progress=cb)
+        result = inspect_file(str(file), base=_base(base), constant=constant, progress=cb, labels=labels)
     show_inspect(result, as_json=as_json)
     lies = [f for f in result.findings if f.kind == "label-mismatch"]
     if lies:  # the report above shows them all; labels that lie are bad input
@@ -477,7 +493,10 @@ def run(argv: list[str] | None = None) -> int:
     try:
         rv: Any = command.main(args=args, prog_name="spotcheck", standalone_mode=False)
     except SpotcheckError as exc:
-        error_line(exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc))
+        msg = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
+        if getattr(exc, "choice", None) == "labels":
+            msg += " (--labels start|end|none)"
+        error_line(msg)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         error_line("interrupted")
