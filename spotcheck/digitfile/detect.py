@@ -149,6 +149,17 @@ class LabelSyntax:
         m = rx.search(text)
         return (m.group(1), 0, m.start()) if m else (None, 0, len(text))
 
+    def split_first(self, text: bytes) -> tuple[bytes | None, int, int]:
+        """Like :meth:`split_line` for the first digit line, whose label may use any separator."""
+        got = self.split_line(text)
+        if got[0] is None:
+            for sep in SEPARATORS:
+                if sep != self.sep:
+                    got = LabelSyntax(self.where, self.radix, sep).split_line(text)
+                    if got[0] is not None:
+                        break
+        return got
+
     def value(self, label: bytes) -> int:
         return int(label, self.radix)  # at most MAX_LABEL_CHARS characters by the pattern
 
@@ -265,6 +276,7 @@ class _Parse:
     integer_part: bytes | None = None
     body: tuple[int, int] = (0, 0)  # first line's body span (absolute offsets)
     first_only: bool = False
+    first_own_sep: bool = False
     meaning: LabelMeaning | None = None
     steps: int = 0
     steps_ok: int = 0
@@ -279,7 +291,12 @@ def _parse(syntax: LabelSyntax | None, lines: list[tuple[int, bytes]], first: in
         text = text[:-1] if text.endswith(b"\r") else text
         if not text.strip(b" \t"):
             continue
-        label, b0, b1 = syntax.split_line(text) if syntax else (None, 0, len(text))
+        if syntax is None:
+            label, b0, b1 = None, 0, len(text)
+        else:
+            label, b0, b1 = syntax.split_first(text) if i == first else syntax.split_line(text)
+            if i == first:
+                out.first_own_sep = syntax.split_line(text)[0] is not None
         body = text[b0:b1]
         if i == first:
             m = _FIRST_BODY.match(body)
@@ -303,17 +320,19 @@ def _parse(syntax: LabelSyntax | None, lines: list[tuple[int, bytes]], first: in
     return out
 
 
-def _score(p: _Parse) -> None:
+def _score(p: _Parse, forced: bool = False) -> None:
     """Pick the meaning whose progression the labels follow best."""
     assert p.syntax is not None
     rows = [(lab, b, n) for _, lab, b, n in p.labels]
     labelled = [r for r in rows if r[0] is not None]
+    if rows and rows[0][0] is not None and not p.first_own_sep and len(labelled) == 1:
+        labelled = []  # the first line's other separator counts only beside labelled lines
     if not labelled:
         p.ok = False
         return
     if len(labelled) == 1 and rows[0][0] is not None and len(rows) > 1:
         p.first_only = True
-        if p.syntax.sep != "mark":  # a bare number before the digits is digits
+        if p.syntax.sep != "mark" or not p.first_own_sep:  # a bare number before the digits is digits
             p.ok = False
             return
     elif 2 * len(labelled) <= len(rows):
@@ -337,7 +356,7 @@ def _score(p: _Parse) -> None:
             p.meaning, p.steps, p.steps_ok, p.agree = mean, steps, steps_ok, agree
     if p.first_only:
         return
-    if p.syntax.sep == "blank":
+    if p.syntax.sep == "blank" and not forced:
         p.ok = p.steps_ok >= MIN_STEPS and 4 * p.steps_ok >= 3 * p.steps
     else:
         p.ok = True  # no unlabelled reading explains ':' or '|': labels that disagree are damage
@@ -384,6 +403,11 @@ def _choose(parses: list[_Parse], labels: str | None, name: str, lines: list[tup
         return plain
     # Nothing explains every byte: name the first byte the furthest-reaching reading cannot explain.
     worst = max(parses, key=lambda p: p.bad_at)
+    if worst.bad_at < 0:
+        raise DigitFileError(
+            f"{name}: no digit line among the first {len(lines)} lines carries a position label at the "
+            f"line {labels}s"
+        )
     line, col = _line_col(lines, worst.bad_at)
     off, text = lines[line - 1]
     byte = text[col - 1] if col - 1 < len(text) else 0x0A
@@ -447,13 +471,13 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
     parses = [_parse(s, examined, first) for s in syntaxes]
     for p in parses:
         if p.ok and p.syntax is not None:
-            _score(p)
+            _score(p, forced=labels in ("start", "end"))
     chosen = _choose(parses, labels, name, examined)
     syntax = chosen.syntax
     first_label = first_label_text = None
     first_text = line[:-1] if line.endswith(b"\r") else line
     if syntax is not None:
-        lab, _, _ = syntax.split_line(first_text)
+        lab, _, _ = syntax.split_first(first_text)
         if lab is not None:
             first_label, first_label_text = syntax.value(lab), lab.decode("ascii")
     body_off, body_end = chosen.body
