@@ -155,14 +155,15 @@ def test_first_digit_wrong_is_a_mismatch_not_an_input_error(tmp_path: Path, caps
 
 
 def test_ambiguous_first_column_is_refused_and_the_option_picks(tmp_path: Path, capsys) -> None:
-    # Two lines: the first column could be labels (1, 11: one agreeing step) or digits.
+    # Three lines: the first column could be labels (1, 11, 21: two agreeing steps, a 1 in 10^4
+    # chance for digits) or digits.  Pi's digits from gmpy2/MPFR.
     path = tmp_path / "short.txt"
-    path.write_text("1 1415926535\n11 8979323846\n")
+    path.write_text(f"1 {DEC[:10]}\n11 {DEC[10:20]}\n21 {DEC[20:30]}\n")
     code, _, err = cli(capsys, "inspect", path)
     assert code == 2 and "ambiguous" in err and "--labels start|end|none" in err
     code, out, err = cli(capsys, "inspect", path, "--labels", "start", "--json")
     assert code == 0, err
-    assert json.loads(out)["count"] == 20 and json.loads(out)["constant"] == "pi"
+    assert json.loads(out)["count"] == 30 and json.loads(out)["constant"] == "pi"
     code, out, err = cli(capsys, "inspect", path, "--labels", "none", "--constant", "pi", "--json")
     assert code == 0, err
-    assert json.loads(out)["count"] == 23
+    assert json.loads(out)["count"] == 35

@@ -18,8 +18,11 @@ Detection proposes every reading (:class:`LabelSyntax`, or none) over the first
 digit, a separator, a label or header text under it and, for a labelled
 reading, when its labels form the progression its digit counts imply from line
 to line.  A reading whose labels are set off by blanks alone competes with the
-unlabelled reading of the same bytes; the labels win only on ``MIN_STEPS``
-agreeing steps, and with less evidence the file is refused as ambiguous
+unlabelled reading of the same bytes, so its agreeing steps are weighed as
+evidence: the chance that digits agree as often by accident (each agreeing
+step with a ``k``-character label has chance ``radix**-k``, times the ways to
+pick the agreeing steps) must be at most ``10**LABELS_LOG_CHANCE``; between
+that and ``10**AMBIGUOUS_LOG_CHANCE`` the file is refused as ambiguous
 (:class:`AmbiguousLayoutError`, ``choice="labels"``).  Nothing is decided from
 one line's shape.
 
@@ -31,6 +34,7 @@ compression suffix, or when its first bytes are those of a known constant.
 
 from __future__ import annotations
 
+import math
 import os
 import re
 from dataclasses import dataclass, field
@@ -59,8 +63,10 @@ MAX_FIRST_LINE = 64 * 1024  # a first line longer than this is read as one long 
 HEAD_DIGITS = 64  # leading digits kept for guessing the constant
 MIN_HEX_EVIDENCE = 200  # decimal-only digits this many long cannot be hex by chance
 MAX_LABEL_CHARS = 18  # a number longer than this is digits, never a label
-MIN_STEPS = 2  # agreeing label steps that make blank-separated labels evidence
-DIGIT_LINE_SHARE = 0.8  # a line is a digit line when this share of its non-blank bytes are digits
+LABELS_LOG_CHANCE = -7.0  # log10 chance below which blank-separated labels are labels
+MIN_STEPS_BOTH = 2  # agreeing steps that let a start reading win over an end reading (or back)
+AMBIGUOUS_LOG_CHANCE = -4.0  # log10 chance below which they are too likely to be ignored
+DIGIT_LINE_SHARE = 0.8  # a line of 8+ bytes is a digit line when this share of its non-blank bytes are digits
 PACKED_SUFFIXES = (".bin", ".hexbin")
 
 SEPARATORS: dict[str, bytes] = {"mark": rb"[ \t]*[:|][ \t]*", "blank": rb"[ \t]+"}
@@ -68,7 +74,8 @@ SEPARATORS: dict[str, bytes] = {"mark": rb"[ \t]*[:|][ \t]*", "blank": rb"[ \t]+
 
 _LABEL_CHARS = {10: rb"[0-9]{1,%d}" % MAX_LABEL_CHARS, 16: rb"[0-9A-Fa-f]{1,%d}" % (MAX_LABEL_CHARS - 2)}
 _HEXD = rb"0-9A-Fa-f"
-_FIRST_BODY = re.compile(rb"[ \t]*(?:([" + _HEXD + rb"]+)\.)?[" + _HEXD + rb" \t]*\Z")
+MAX_INTEGER_PART = 20  # longer runs before a point are digits with a stray '.'
+_FIRST_BODY = re.compile(rb"[ \t]*(?:([" + _HEXD + rb"]{1,%d})\.)?[" % MAX_INTEGER_PART + _HEXD + rb" \t]*\Z")
 _BODY = re.compile(rb"[" + _HEXD + rb" \t]*\Z")
 _DIGITISH = bytes(HEX + b".:|")
 _TEXT_BYTES = bytes(range(0x20, 0x7F)) + b"\t\n\r\f\v"
@@ -95,6 +102,10 @@ class LabelMeaning:
     @property
     def name(self) -> str:
         return self.kind if self.unit == 1 else f"bytes-{self.kind}"
+
+    def raw(self, before: int, nd: int) -> int:
+        """The count (in digits) a label of this meaning reports."""
+        return before + nd if self.kind == "through" else before
 
     def expect(self, before: int, nd: int) -> int | None:
         """The label a line holding ``nd`` digits after ``before`` digits must carry (None: none can)."""
@@ -250,7 +261,10 @@ def _is_header(text: bytes) -> bool:
     if not s or s.startswith(b"#"):
         return True
     s = s.translate(None, b" \t")
-    return len(s) - len(s.translate(None, _DIGITISH)) < DIGIT_LINE_SHARE * len(s)
+    share = (len(s) - len(s.translate(None, _DIGITISH))) / len(s)
+    # One foreign byte in a line of 8 or more leaves it above DIGIT_LINE_SHARE: a digit line with a
+    # stray character.  A shorter line must be mostly foreign to be text.
+    return share < (DIGIT_LINE_SHARE if len(s) >= 8 else 0.5)
 
 
 def _line_col(lines: list[tuple[int, bytes]], offset: int) -> tuple[int, int]:
@@ -280,6 +294,8 @@ class _Parse:
     meaning: LabelMeaning | None = None
     steps: int = 0
     steps_ok: int = 0
+    log_chance: float = 0.0
+    labelled: bool = False  # labels on most digit lines (or the first only), whatever the evidence
     agree: int = 0
 
 
@@ -306,7 +322,9 @@ def _parse(syntax: LabelSyntax | None, lines: list[tuple[int, bytes]], first: in
         else:
             m = _BODY.match(body)
         if not m:
-            bad = re.compile(rb"[ \t]*(?:[" + _HEXD + rb"]+\.)?" if i == first else rb"").match(body)
+            bad = re.compile(
+                rb"[ \t]*(?:[" + _HEXD + rb"]{1,%d}\.)?" % MAX_INTEGER_PART if i == first else rb""
+            ).match(body)
             skip = bad.end() if bad else 0
             rest = body[skip:].translate(None, HEX + b" \t")
             at = skip + body[skip:].find(rest[:1])
@@ -340,24 +358,35 @@ def _score(p: _Parse, forced: bool = False) -> None:
         return
     best: tuple[int, int, int] | None = None
     for mean in MEANINGS:
+        if (mean.kind == "through") != (p.syntax.where == "end"):
+            continue  # a start label says where its line starts, an end label where it ends
         vals = [(p.syntax.value(lab), b, n) if lab is not None else None for lab, b, n in rows]
         agree = sum(1 for v in vals if v is not None and v[0] == mean.expect(v[1], v[2]))
         steps = steps_ok = 0
-        for a, c in zip(vals, vals[1:], strict=False):
+        evidence = 0.0
+        for j in range(len(vals) - 1):
+            a, c = vals[j], vals[j + 1]
             if a is None or c is None:
                 continue
             steps += 1
-            ea, ec = mean.expect(a[1], a[2]), mean.expect(c[1], c[2])
-            if ea is not None and ec is not None and c[0] - a[0] == ec - ea:
+            # A step compares neighbours only, so one damaged line breaks one or two steps.
+            ra, rc = mean.raw(a[1], a[2]), mean.raw(c[1], c[2])
+            if (rc - ra) % mean.unit == 0 and c[0] - a[0] == (rc - ra) // mean.unit and c[0] > a[0]:
                 steps_ok += 1
+                evidence -= len(rows[j + 1][0] or b"") * math.log10(p.syntax.radix)
         key = (steps_ok, agree, -MEANINGS.index(mean))
         if best is None or key > best:
             best = key
             p.meaning, p.steps, p.steps_ok, p.agree = mean, steps, steps_ok, agree
+            p.log_chance = evidence + math.log10(math.comb(steps, steps_ok)) if steps else 0.0
+    if p.first_only:
+        # A label on the first line alone must say what such a label says: 0, 1 or the line's count.
+        p.ok = p.agree >= 1
+    p.labelled = p.ok
     if p.first_only:
         return
     if p.syntax.sep == "blank" and not forced:
-        p.ok = p.steps_ok >= MIN_STEPS and 4 * p.steps_ok >= 3 * p.steps
+        p.ok = p.log_chance <= LABELS_LOG_CHANCE
     else:
         p.ok = True  # no unlabelled reading explains ':' or '|': labels that disagree are damage
 
@@ -373,7 +402,11 @@ def _choose(parses: list[_Parse], labels: str | None, name: str, lines: list[tup
             p
             for p in labelled[1:]
             if p.syntax.where != top.syntax.where  # type: ignore[union-attr]
-            and (p.steps_ok, p.agree) == (top.steps_ok, top.agree)
+            and (
+                (p.steps_ok, p.agree) == (top.steps_ok, top.agree)
+                # ':' both before and after a short number: which side is the label is a guess
+                or (p.syntax.sep == top.syntax.sep == "mark" and p.steps_ok < MIN_STEPS_BOTH)  # type: ignore[union-attr]
+            )
         ]
         if rivals:
             a, b = top.syntax.name, rivals[0].syntax.name  # type: ignore[union-attr]
@@ -384,6 +417,11 @@ def _choose(parses: list[_Parse], labels: str | None, name: str, lines: list[tup
                 (top.syntax.where, rivals[0].syntax.where),  # type: ignore[union-attr]
             )
         return top
+    if plain is None:
+        # Only labels explain the bytes: take the best-labelled reading, its disagreements are damage.
+        rest = [p for p in parses if p.syntax is not None and p.labelled]
+        if rest:
+            return max(rest, key=lambda p: (p.steps_ok, p.agree, p.syntax.radix == 10))  # type: ignore[union-attr]
     if plain is not None:
         # A blank-separated reading with some evidence but not enough is a rival, not a loser.
         for p in parses:
@@ -391,7 +429,7 @@ def _choose(parses: list[_Parse], labels: str | None, name: str, lines: list[tup
                 p.syntax is not None
                 and p.syntax.sep == "blank"
                 and p.steps_ok >= 1
-                and 4 * p.steps_ok >= 3 * p.steps
+                and p.log_chance <= AMBIGUOUS_LOG_CHANCE
                 and not p.first_only
             ):
                 raise AmbiguousLayoutError(
@@ -445,7 +483,16 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
         lines.append((pos, head[pos:nl]))
         pos = nl + 1
     first = 0
-    while first < len(lines) and _is_header(lines[first][1]):
+    while first < len(lines):
+        off, text = lines[first]
+        inner = text.rstrip(b"\r").rfind(b"\r")
+        if inner >= 0 and _is_header(text[:inner]) and not _is_header(text[inner + 1 :]):
+            # A lone CR inside a header line of an LF/CRLF file ends a line too.
+            lines[first : first + 1] = [(off, text[:inner]), (off + inner + 1, text[inner + 1 :])]
+            first += 1
+            break
+        if not _is_header(text):
+            break
         first += 1
     if first >= len(lines) or first > MAX_HEADER_LINES:
         raise DigitFileError(
@@ -453,6 +500,8 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
             "is a digit line (expected hex or decimal digits after an optional header)"
         )
     line_off, line = lines[first]
+    if first and first + 1 < len(lines):
+        _check_merged_header(lines, first, name)
     ends_in_newline = line_off + len(line) < len(head)
     long_line = len(line) > MAX_FIRST_LINE or not ends_in_newline and not eof
     examined = lines[: first + 1] if long_line else lines[: first + EXAMINE_LINES]
@@ -581,6 +630,18 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
         letter_case=letter_case,
         whole_file_in_head=eof,
     )
+
+
+def _check_merged_header(lines: list[tuple[int, bytes]], first: int, name: str) -> None:
+    """Refuse a header line that ends in as many digits as a digit line holds (a lost line break)."""
+    last = lines[first - 1][1].rstrip(b" \t\r")
+    run = len(last) - len(last.rstrip(HEX))
+    width = len(lines[first][1].translate(None, b" \t\r"))
+    if width >= 8 and run >= width:
+        raise DigitFileError(
+            f"{name}: line {first} is header text that ends in {run} digits, as many as a digit line "
+            "holds: a line break may be missing there"
+        )
 
 
 def _line_no(head: bytes, offset: int) -> int:

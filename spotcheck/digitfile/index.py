@@ -115,7 +115,8 @@ class _LabelCheck:
         want = self.meaning.expect(before, nd)
         text = label.decode("ascii")
         if want is None:
-            msg = f"label {text} disagrees with the digits: {before} digits before it are not whole bytes"
+            n = before + nd if self.meaning.kind == "through" else before
+            msg = f"label {text} disagrees with the digits: {n} digits are not a whole number of bytes"
             want = -1
         else:
             shown = str(want) if self.syntax.radix == 10 else format(want, "X")

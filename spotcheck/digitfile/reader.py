@@ -37,6 +37,7 @@ from spotcheck.errors import DigitFileError, UsageError
 __all__ = ["DigitFile", "open_digit_file", "inspect_file", "EDGE_DIGITS"]
 
 EDGE_DIGITS = 64  # first and last digits shown by inspect
+_TEXT = frozenset(range(0x20, 0x7F)) | frozenset(b"\t\n\r\f\v")
 _COMPRESSION_SUFFIXES = (".gz", ".gzip", ".bz2", ".xz")
 
 
@@ -340,9 +341,11 @@ def _open(
     if packed is None and binary:
         packed = _bare_name(src.path).endswith(PACKED_SUFFIXES) or _known_packed(head)
         if not packed:
+            at = next((i for i, c in enumerate(head[:4096]) if c not in _TEXT), 0)
             raise DigitFileError(
-                f"{name}: binary content: not digit text, not gzip/bzip2/xz, and not packed hex digits "
-                "of a known constant (name it *.bin to read it as packed hex digits)"
+                f"{name}: binary content (byte 0x{head[at]:02X} at byte {at}): not digit text, not "
+                "gzip/bzip2/xz, and not packed hex digits of a known constant "
+                "(name it *.bin to read it as packed hex digits)"
             )
     if packed:
         return _open_packed(src, head, base, constant, progress)
