@@ -26,10 +26,10 @@ that and ``10**AMBIGUOUS_LOG_CHANCE`` the file is refused as ambiguous
 (:class:`AmbiguousLayoutError`, ``choice="labels"``).  Nothing is decided from
 one line's shape.
 
-Binary content (control bytes, or mostly bytes >= 0x80) is handled by the
-reader: it is *packed hex* (two hex digits per byte, high nibble first) when
+Binary content (control bytes, or mostly bytes >= 0x80) is *packed hex* (two hex digits per byte, high nibble first) when
 the caller says so, when the name ends in ``.bin`` or ``.hexbin`` before any
-compression suffix, or when its first bytes are those of a known constant.
+compression suffix, or when its first bytes are those of a known constant
+(:func:`packed_reading`); any other binary content is refused.
 """
 
 from __future__ import annotations
@@ -40,6 +40,7 @@ import re
 from dataclasses import dataclass, field
 
 from spotcheck.digitfile.charsets import DEC, HEX, HEX_LETTERS, class_table
+from spotcheck.digitfile.guess import match_constant
 from spotcheck.errors import DigitFileError, UsageError
 
 __all__ = [
@@ -50,6 +51,7 @@ __all__ = [
     "detect_text",
     "looks_binary",
     "newline_of",
+    "packed_reading",
     "HEAD_BYTES",
     "PACKED_SUFFIXES",
     "SEPARATORS",
@@ -244,6 +246,39 @@ def looks_binary(head: bytes) -> bool:
         return False
     controls = odd.translate(None, bytes(range(0x80, 0x100)))
     return bool(controls) or len(odd) > 0.3 * len(sample)
+
+
+_COMPRESSION_SUFFIXES = (".gz", ".gzip", ".bz2", ".xz")
+
+
+def packed_reading(head: bytes, path: str, packed: bool | None) -> bool:
+    """The packed-binary rule: True to read the content as packed hex, False for text.
+
+    ``packed`` (the caller's choice) wins; otherwise text content is text, and
+    binary content is packed hex when the name ends in one of ``PACKED_SUFFIXES``
+    (before any compression suffix) or its first 32 bytes are the leading hex
+    digits of a known constant.  Any other binary content is an error.
+    """
+    if packed is not None:
+        return packed
+    if not looks_binary(head):
+        return False
+    bare = os.path.basename(path).lower()
+    for suffix in _COMPRESSION_SUFFIXES:
+        if bare.endswith(suffix):
+            bare = bare[: -len(suffix)]
+            break
+    if bare.endswith(PACKED_SUFFIXES):
+        return True
+    digits = head[:32].hex().upper()
+    if match_constant(digits, None, 16, len(digits)).name is not None:
+        return True
+    at = next((i for i, c in enumerate(head[:4096]) if c not in _TEXT_BYTES), 0)
+    raise DigitFileError(
+        f"{os.path.basename(path)}: binary content (byte 0x{head[at]:02X} at byte {at}): not digit text, "
+        "not gzip/bzip2/xz, and not packed hex digits of a known constant "
+        "(name it *.bin to read it as packed hex digits)"
+    )
 
 
 def newline_of(head: bytes) -> str | None:

@@ -22,11 +22,10 @@ from types import TracebackType
 from spotcheck.digitfile.charsets import WS
 from spotcheck.digitfile.detect import (
     HEAD_BYTES,
-    PACKED_SUFFIXES,
     Detection,
     detect_text,
-    looks_binary,
     newline_of,
+    packed_reading,
 )
 from spotcheck.digitfile.guess import ConstantMatch, explicit_constant, guess_constant, match_constant
 from spotcheck.digitfile.index import CHUNK_BYTES, INDEX_STEP, IndexResult, Progress, build_index
@@ -37,8 +36,6 @@ from spotcheck.errors import DigitFileError, UsageError
 __all__ = ["DigitFile", "open_digit_file", "inspect_file", "EDGE_DIGITS"]
 
 EDGE_DIGITS = 64  # first and last digits shown by inspect
-_TEXT = frozenset(range(0x20, 0x7F)) | frozenset(b"\t\n\r\f\v")
-_COMPRESSION_SUFFIXES = (".gz", ".gzip", ".bz2", ".xz")
 
 
 class DigitFile:
@@ -260,14 +257,6 @@ def _check_window(position: object, count: object) -> tuple[int, int]:
     return p, n
 
 
-def _bare_name(path: str) -> str:
-    name = os.path.basename(path).lower()
-    for suffix in _COMPRESSION_SUFFIXES:
-        if name.endswith(suffix):
-            return name[: -len(suffix)]
-    return name
-
-
 def open_digit_file(
     path: str | os.PathLike[str],
     base: int | None = None,
@@ -337,16 +326,7 @@ def _open(
     if not head:
         what = f"its {src.compression} content is empty" if src.compression else "the file is empty"
         raise DigitFileError(f"{name}: {what}")
-    binary = looks_binary(head)
-    if packed is None and binary:
-        packed = _bare_name(src.path).endswith(PACKED_SUFFIXES) or _known_packed(head)
-        if not packed:
-            at = next((i for i, c in enumerate(head[:4096]) if c not in _TEXT), 0)
-            raise DigitFileError(
-                f"{name}: binary content (byte 0x{head[at]:02X} at byte {at}): not digit text, not "
-                "gzip/bzip2/xz, and not packed hex digits of a known constant "
-                "(name it *.bin to read it as packed hex digits)"
-            )
+    packed = packed_reading(head, src.path, packed)
     if packed:
         return _open_packed(src, head, base, constant, progress)
     cr_only = newline_of(head) == "\r"
@@ -378,12 +358,6 @@ def _open(
     )
     _decide_constant(df, plan.head_digits.decode("ascii"), constant)
     return df
-
-
-def _known_packed(head: bytes) -> bool:
-    digits = head[:32].hex().upper()
-    name, _, matched = guess_constant(digits, None, 16, len(digits))
-    return name is not None
 
 
 def _resolve_base(plan: Detection) -> tuple[int, str]:
