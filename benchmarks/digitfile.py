@@ -68,6 +68,22 @@ def write_file(path: str, size: int, block: bytes, head: bytes = b"3.") -> int:
     return written
 
 
+def write_blank_labelled(path: str, size: int, rng: random.Random) -> int:
+    """``      51 5820974944 ...``: 1-based start positions set off by blanks, groups of 10."""
+    d = random_digits(50 * 1000, rng)
+    lines = [b" ".join(d[i + j : i + j + 10] for j in range(0, 50, 10)) for i in range(0, len(d), 50)]
+    count, written = 0, 0
+    with open(path, "wb") as f:
+        while written < size:
+            chunk = bytearray()
+            for line in lines:
+                chunk += b"%10d " % (count + 1) + line + b"\n"
+                count += 50
+            f.write(chunk)
+            written += len(chunk)
+    return written
+
+
 def write_labelled(path: str, size: int, rng: random.Random) -> int:
     d = random_digits(100 * 1000, rng)
     lines = [d[i : i + 100] for i in range(0, len(d), 100)]
@@ -144,12 +160,25 @@ def run_child(path: str) -> dict[str, float]:
     return best
 
 
-def report(label: str, r: dict[str, float], content_bytes: int | None = None) -> None:
+def wc_seconds(path: str) -> float:
+    """Best of REPEAT runs of ``wc -l`` on the same file in the same run (the speed reference)."""
+    best = float("inf")
+    for _ in range(REPEAT):
+        t0 = time.perf_counter()
+        subprocess.run(["wc", "-l", path], capture_output=True, check=True)
+        best = min(best, time.perf_counter() - t0)
+    return best
+
+
+def report(
+    label: str, r: dict[str, float], content_bytes: int | None = None, wc: float | None = None
+) -> None:
     size = content_bytes or r["bytes"]
+    ratio = f"  {r['seconds'] / wc:5.1f} x wc -l ({size / 1e6 / wc:.0f} MB/s)" if wc else ""
     print(
         f"{label:<28} {size / 1e6:9.0f} MB  {size / 1e6 / r['seconds']:7.0f} MB/s  "
         f"peak RSS {r['peak'] / MIB:6.0f} MiB  {r['digits']:>13,} digits  access={r['access']}  "
-        f"window read {r['read_ms']:.2f} ms"
+        f"window read {r['read_ms']:.2f} ms{ratio}"
     )
 
 
@@ -172,11 +201,14 @@ def main() -> None:
             ("irregular lines (indexed)", block_irregular(rng, 64 * MIB)),
         ):
             write_file(path, size, block)
-            report(label, run_child(path))
+            report(label, run_child(path), wc=wc_seconds(path))
             os.remove(path)
         small = min(size, 256 * MIB)
         write_labelled(path, small, rng)
-        report("labelled lines", run_child(path))
+        report("labelled lines (':')", run_child(path), wc=wc_seconds(path))
+        os.remove(path)
+        write_blank_labelled(path, small, rng)
+        report("labelled lines (blanks)", run_child(path), wc=wc_seconds(path))
         os.remove(path)
         gz = path + ".gz"
         with gzip.open(gz, "wb", compresslevel=1) as f:

@@ -209,6 +209,12 @@ IgnoreLabelsOpt = Annotated[
         "--ignore-labels", help="Check the digits even when position labels disagree with their count."
     ),
 ]
+LabelsOpt = Annotated[
+    str | None,
+    typer.Option(
+        "--labels", help="Where position labels are when the layout cannot tell: start, end or none."
+    ),
+]
 ReferenceOpt = Annotated[
     str,
     typer.Option(
@@ -279,6 +285,7 @@ def verify(
     formula: FormulaOpt = None,
     limit: LimitOpt = None,
     ignore_labels: IgnoreLabelsOpt = False,
+    labels: LabelsOpt = None,
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
     cluster: ClusterOpt = None,
@@ -308,6 +315,7 @@ def verify(
             workers=_workers(workers),
             limit=limit,
             ignore_labels=ignore_labels,
+            labels=labels,
             cluster=cluster,
             checkpoint=_window_checkpoint(checkpoint),
             progress=cb,
@@ -324,6 +332,7 @@ def verify(
         formula=formula,
         limit=limit,
         ignore_labels=ignore_labels,
+        labels=labels,
         formula_file=formula_file,
         cluster=cluster,
         checkpoint=checkpoint,
@@ -344,6 +353,7 @@ def locate(
     formula: FormulaOpt = None,
     limit: LimitOpt = None,
     ignore_labels: IgnoreLabelsOpt = False,
+    labels: LabelsOpt = None,
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
     cluster: ClusterOpt = None,
@@ -368,6 +378,7 @@ def locate(
             workers=_workers(workers),
             limit=limit,
             ignore_labels=ignore_labels,
+            labels=labels,
             cluster=cluster,
             checkpoint=_window_checkpoint(checkpoint),
             progress=cb,
@@ -383,6 +394,7 @@ def locate(
         formula=formula,
         limit=limit,
         ignore_labels=ignore_labels,
+        labels=labels,
         formula_file=formula_file,
         cluster=cluster,
         checkpoint=checkpoint,
@@ -398,6 +410,7 @@ def scan(
     base: BaseOpt = None,
     limit: LimitOpt = None,
     ignore_labels: IgnoreLabelsOpt = False,
+    labels: LabelsOpt = None,
     as_json: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
@@ -413,6 +426,7 @@ def scan(
             reference=reference,
             limit=limit,
             ignore_labels=ignore_labels,
+            labels=labels,
             progress=cb,
         )
     repeat = _repeat(
@@ -423,6 +437,7 @@ def scan(
         base=base,
         limit=limit,
         ignore_labels=ignore_labels,
+        labels=labels,
     )
     _finish(result, repeat, as_json, quiet)
 
@@ -432,6 +447,7 @@ def inspect(
     file: FileArg,
     constant: ConstantOpt = None,
     base: BaseOpt = None,
+    labels: LabelsOpt = None,
     formula_file: FormulaFileOpt = None,
     as_json: JsonOpt = False,
 ) -> None:
@@ -442,7 +458,7 @@ def inspect(
 
     _load_formula_files(formula_file)
     with progress_bar("reading", enabled=not as_json) as cb:
-        result = inspect_file(str(file), base=_base(base), constant=constant, progress=cb)
+        result = inspect_file(str(file), base=_base(base), constant=constant, progress=cb, labels=labels)
     show_inspect(result, as_json=as_json)
     lies = [f for f in result.findings if f.kind == "label-mismatch"]
     if lies:  # the report above shows them all; labels that lie are bad input
@@ -481,7 +497,10 @@ def run(argv: list[str] | None = None) -> int:
     try:
         rv: Any = command.main(args=args, prog_name="spotcheck", standalone_mode=False)
     except SpotcheckError as exc:
-        error_line(exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc))
+        msg = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
+        if getattr(exc, "choice", None) == "labels":
+            msg += " (--labels start|end|none)"
+        error_line(msg)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         error_line("interrupted")

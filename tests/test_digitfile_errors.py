@@ -98,7 +98,7 @@ def test_mixed_bases(tmp_path):
     path.write_text(text)
     at = text.index(next(c for c in PI16[:1000] if c.isalpha()), len(rows(PI10[:2000])))
     line = text.count("\n", 0, at) + 1
-    expect_error(path, DigitFileError, "mixed bases", f"at byte {at} (line {line})")
+    expect_error(path, DigitFileError, "mixed bases", f"at byte {at} (line {line}")
 
 
 def test_stray_character_in_the_middle(tmp_path):
@@ -108,7 +108,7 @@ def test_stray_character_in_the_middle(tmp_path):
     path = tmp_path / "stray.txt"
     path.write_text(text)
     line = text.count("\n", 0, at) + 1
-    expect_error(path, DigitFileError, "stray character 'x'", f"at byte {at} (line {line})")
+    expect_error(path, DigitFileError, "stray character 'x'", f"at byte {at} (line {line}")
 
 
 def test_stray_character_in_labelled_file(tmp_path):
@@ -118,7 +118,7 @@ def test_stray_character_in_labelled_file(tmp_path):
     path = tmp_path / "labelled.txt"
     path.write_text(text)
     at = text.index("?")
-    expect_error(path, DigitFileError, "stray character '?'", f"at byte {at} (line 34)")
+    expect_error(path, DigitFileError, "stray character '?'", f"at byte {at} (line 34,")
 
 
 def test_stray_character_in_regular_file_late(tmp_path):
@@ -170,7 +170,7 @@ def test_unreadable_path(tmp_path):
 
 
 def test_file_growing_while_read(tmp_path, monkeypatch):
-    from spotcheck.digitfile import scan
+    from spotcheck.digitfile import index as scan
 
     monkeypatch.setattr(scan, "CHUNK_BYTES", 1024)
     path = tmp_path / "growing.txt"
@@ -261,7 +261,7 @@ def test_mixed_bases_found_by_the_pass(tmp_path):
     path = tmp_path / "late-mix.txt"
     path.write_text(text)
     at = len("3." + decimal) + min(i for i, c in enumerate(PI16) if c.isalpha())
-    expect_error(path, DigitFileError, "mixed bases", f"at byte {at} (line {text.count(chr(10), 0, at) + 1})")
+    expect_error(path, DigitFileError, "mixed bases", f"at byte {at} (line {text.count(chr(10), 0, at) + 1}")
 
 
 def test_path_below_a_file(tmp_path):

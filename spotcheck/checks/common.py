@@ -31,6 +31,7 @@ def open_checked(
     formula: str | None,
     limit: int | None = None,
     ignore_labels: bool = False,
+    labels: str | None = None,
 ) -> tuple[DigitFile, FileFacts]:
     """Open a digit file and settle the constant, or raise :class:`UsageError`.
 
@@ -41,7 +42,9 @@ def open_checked(
     if limit is not None and limit < 1:
         raise UsageError(f"limit must be at least 1, got {limit}")
     try:
-        df = open_digit_file(path, base=base, constant=constant, strict_labels=not ignore_labels)
+        df = open_digit_file(
+            path, base=base, constant=constant, strict_labels=not ignore_labels, labels=labels
+        )
     except LabelError as exc:
         raise LabelError(f"{exc} (check the digits themselves with --ignore-labels)") from None
     if df.constant is None:

@@ -32,13 +32,20 @@ def locate_file(
     workers: int = 1,
     limit: int | None = None,
     ignore_labels: bool = False,
+    labels: str | None = None,
     cluster: Any = None,
     checkpoint: bool = False,
     progress: Progress | None = None,
 ) -> LocateResult:
     """Find the first wrong digit of a digit file (1-based position), or say what was ruled out."""
     df, facts = open_checked(
-        path, base=base, constant=constant, formula=formula, limit=limit, ignore_labels=ignore_labels
+        path,
+        base=base,
+        constant=constant,
+        formula=formula,
+        limit=limit,
+        ignore_labels=ignore_labels,
+        labels=labels,
     )
     oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, checkpoint=checkpoint)
     try:

@@ -160,11 +160,18 @@ def scan_file(
     reference: str = "arb",
     limit: int | None = None,
     ignore_labels: bool = False,
+    labels: str | None = None,
     progress: Progress | None = None,
 ) -> ScanResult:
     """Compare every digit of the file with a full computation (Arb by default, or MPFR)."""
     df, facts = open_checked(
-        path, base=base, constant=constant, formula=None, limit=limit, ignore_labels=ignore_labels
+        path,
+        base=base,
+        constant=constant,
+        formula=None,
+        limit=limit,
+        ignore_labels=ignore_labels,
+        labels=labels,
     )
     try:
         return scan_open(df, facts, reference=reference, progress=progress)

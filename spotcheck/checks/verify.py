@@ -45,6 +45,7 @@ def verify_file(
     workers: int = 1,
     limit: int | None = None,
     ignore_labels: bool = False,
+    labels: str | None = None,
     cluster: Any = None,
     checkpoint: bool = False,
     progress: Progress | None = None,
@@ -62,7 +63,13 @@ def verify_file(
         raise UsageError(f"budget must be a positive number of seconds, got {budget}")
     seed = _seed(seed)
     df, facts = open_checked(
-        path, base=base, constant=constant, formula=formula, limit=limit, ignore_labels=ignore_labels
+        path,
+        base=base,
+        constant=constant,
+        formula=formula,
+        limit=limit,
+        ignore_labels=ignore_labels,
+        labels=labels,
     )
     oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, checkpoint=checkpoint)
     try:

@@ -1,59 +1,204 @@
-"""Look at the head of a digit file and decide how to read the rest.
+"""The layout model: which reading of a text digit file explains every byte of its head.
 
-Detection reads at most ``HEAD_BYTES`` of (decompressed) content and returns a
-:class:`Plan`; the streaming pass (:mod:`spotcheck.digitfile.scan`) then
-checks the whole file against it.
+This module is the one owner of the layout rules.  A text digit file is
 
-Rules, in order:
+* optional header lines: blank, ``#`` comments, or free text (a line that is
+  not mostly digit characters);
+* then digit lines, each ``[start label][separator] body [separator][end label]``:
+  the body is digits in groups separated by spaces or tabs, the first digit
+  line may begin with an integer part and a radix point (``3.``), and lines end
+  in LF, CRLF or CR;
+* a label is a number (decimal, or hex for byte offsets, at most
+  ``MAX_LABEL_CHARS`` characters: a longer number is digits) that counts digits
+  or bytes, 0- or 1-based, at the start or end of the line, set off by one of
+  ``SEPARATORS`` (``:`` or ``|`` with optional blanks, or blanks alone).
 
-* binary content (control bytes, or mostly bytes >= 0x80) that is not
-  compressed is *packed hex* (two hex digits per byte, high nibble first) when
-  the caller says so, when the name ends in ``.bin`` or ``.hexbin`` (before any
-  compression suffix), or when its first bytes are those of a known constant;
-  any other binary content is an error;
-* lines before the digits are a header: blank lines, ``#`` comments and a
-  short free-text preamble (at most ``MAX_HEADER_LINES`` lines).  The digits
-  start at the first line that looks like digits and is followed by lines
-  that look like digits too;
-* the first digit line may begin with an integer part and a radix point
-  (``3.``);
-* a line may carry a position label, a decimal number set off by ``:`` or
-  ``|`` at its start (``  1000: 1415926535``) or end (``1415926535 : 10``);
-* base 16 when any digit is a letter A-F (either case); an explicit base
-  overrides, and digits that contradict it are an error.
+Detection proposes every reading (:class:`LabelSyntax`, or none) over the first
+``EXAMINE_LINES`` digit lines and keeps one only when every byte there is a
+digit, a separator, a label or header text under it and, for a labelled
+reading, when its labels form the progression its digit counts imply from line
+to line.  A reading whose labels are set off by blanks alone competes with the
+unlabelled reading of the same bytes, so its agreeing steps are weighed as
+evidence: the chance that digits agree as often by accident (each agreeing
+step with a ``k``-character label has chance ``radix**-k``, times the ways to
+pick the agreeing steps) must be at most ``10**LABELS_LOG_CHANCE``; between
+that and ``10**AMBIGUOUS_LOG_CHANCE`` the file is refused as ambiguous
+(:class:`AmbiguousLayoutError`, ``choice="labels"``).  Nothing is decided from
+one line's shape.
+
+Binary content (control bytes, or mostly bytes >= 0x80) is *packed hex* (two hex digits per byte, high nibble first) when
+the caller says so, when the name ends in ``.bin`` or ``.hexbin`` before any
+compression suffix, or when its first bytes are those of a known constant
+(:func:`packed_reading`); any other binary content is refused.
 """
 
 from __future__ import annotations
 
+import math
 import os
 import re
 from dataclasses import dataclass, field
 
-from spotcheck.digitfile.charsets import DEC, HEX, HEX_LETTERS, WS, class_table, strip_labels
-from spotcheck.errors import DigitFileError
+from spotcheck.digitfile.charsets import DEC, HEX, HEX_LETTERS, class_table
+from spotcheck.digitfile.guess import match_constant
+from spotcheck.errors import DigitFileError, UsageError
 
-__all__ = ["Plan", "detect_text", "looks_binary", "HEAD_BYTES", "PACKED_SUFFIXES"]
+__all__ = [
+    "Detection",
+    "LabelSyntax",
+    "LabelMeaning",
+    "AmbiguousLayoutError",
+    "detect_text",
+    "looks_binary",
+    "newline_of",
+    "packed_reading",
+    "HEAD_BYTES",
+    "PACKED_SUFFIXES",
+    "SEPARATORS",
+]
 
 # --- tuning -----------------------------------------------------------------
 HEAD_BYTES = 256 * 1024  # bytes of content examined before the pass
-MAX_HEADER_LINES = 100  # longest header/preamble accepted before the digits
-CONFIRM_LINES = 3  # digit-looking lines that must follow the first digit line
+MAX_HEADER_LINES = 100  # longest header accepted before the digits
+EXAMINE_LINES = 64  # digit lines every reading must explain
 MAX_FIRST_LINE = 64 * 1024  # a first line longer than this is read as one long line
 HEAD_DIGITS = 64  # leading digits kept for guessing the constant
 MIN_HEX_EVIDENCE = 200  # decimal-only digits this many long cannot be hex by chance
+MAX_LABEL_CHARS = 18  # a number longer than this is digits, never a label
+LABELS_LOG_CHANCE = -7.0  # log10 chance below which blank-separated labels are labels
+MIN_STEPS_BOTH = 2  # agreeing steps that let a start reading win over an end reading (or back)
+AMBIGUOUS_LOG_CHANCE = -4.0  # log10 chance below which they are too likely to be ignored
+DIGIT_LINE_SHARE = 0.8  # a line of 8+ bytes is a digit line when this share of its non-blank bytes are digits
 PACKED_SUFFIXES = (".bin", ".hexbin")
 
-_BODY = rb"[0-9A-Fa-f \t]*"
-_PLAIN = re.compile(rb"[ \t]*(?:[0-9A-Fa-f]+\.)?" + _BODY + rb"\r?\Z")
-_START = re.compile(rb"[ \t]*(\d+)[ \t]*[:|]((?:[ \t]*[0-9A-Fa-f]+\.)?" + _BODY + rb")\r?\Z")
-_END = re.compile(rb"((?:[ \t]*[0-9A-Fa-f]+\.)?" + _BODY + rb"?)[ \t]*[:|][ \t]*(\d+)[ \t]*\r?\Z")
-_INT_PART = re.compile(rb"[ \t]*([0-9A-Fa-f]+)\.")
+SEPARATORS: dict[str, bytes] = {"mark": rb"[ \t]*[:|][ \t]*", "blank": rb"[ \t]+"}
+"""The one list of label separators: every label pattern is built from it."""
+
+_LABEL_CHARS = {10: rb"[0-9]{1,%d}" % MAX_LABEL_CHARS, 16: rb"[0-9A-Fa-f]{1,%d}" % (MAX_LABEL_CHARS - 2)}
+_HEXD = rb"0-9A-Fa-f"
+MAX_INTEGER_PART = 20  # longer runs before a point are digits with a stray '.'
+_FIRST_BODY = re.compile(rb"[ \t]*(?:([" + _HEXD + rb"]{1,%d})\.)?[" % MAX_INTEGER_PART + _HEXD + rb" \t]*\Z")
+_BODY = re.compile(rb"[" + _HEXD + rb" \t]*\Z")
+_DIGITISH = bytes(HEX + b".:|")
 _TEXT_BYTES = bytes(range(0x20, 0x7F)) + b"\t\n\r\f\v"
 
 
+class AmbiguousLayoutError(DigitFileError):
+    """Two readings explain the file's head equally well; ``choice`` names what picks one."""
+
+    def __init__(self, message: str, choice: str, readings: tuple[str, ...]) -> None:
+        super().__init__(message)
+        self.choice = choice
+        self.readings = readings
+
+
+@dataclass(frozen=True)
+class LabelMeaning:
+    """What a label counts: ``unit`` digits (1) or bytes of two hex digits (2),
+    ``kind`` ``before`` (0-based, count before the line), ``first`` (1-based,
+    position of the line's first digit) or ``through`` (count up to the line's end)."""
+
+    kind: str
+    unit: int = 1
+
+    @property
+    def name(self) -> str:
+        return self.kind if self.unit == 1 else f"bytes-{self.kind}"
+
+    def raw(self, before: int, nd: int) -> int:
+        """The count (in digits) a label of this meaning reports."""
+        return before + nd if self.kind == "through" else before
+
+    def expect(self, before: int, nd: int) -> int | None:
+        """The label a line holding ``nd`` digits after ``before`` digits must carry (None: none can)."""
+        n = before + nd if self.kind == "through" else before
+        if n % self.unit:
+            return None
+        return n // self.unit + (1 if self.kind == "first" else 0)
+
+    def explain(self) -> str:
+        what = "digits" if self.unit == 1 else "bytes (two hex digits each)"
+        return {
+            "before": f"the count of {what} before this line",
+            "first": f"the 1-based position in {what} of this line's start",
+            "through": f"the count of {what} up to the end of this line",
+        }[self.kind]
+
+
+MEANINGS = tuple(LabelMeaning(k, u) for u in (1, 2) for k in ("before", "first", "through"))
+
+
+@dataclass(frozen=True)
+class LabelSyntax:
+    """One way labels can be written: where, in which radix, set off by which separator."""
+
+    where: str  # "start" or "end"
+    radix: int  # 10 or 16
+    sep: str  # a key of SEPARATORS
+
+    def __post_init__(self) -> None:
+        lab, sep = _LABEL_CHARS[self.radix], SEPARATORS[self.sep]
+        if self.where == "start":
+            line = rb"[ \t]*(" + lab + rb")" + sep
+            bulk = rb"\n[ \t]*(" + lab + rb")" + sep
+        else:
+            line = sep + rb"(" + lab + rb")[ \t]*\r?\Z"
+            bulk = sep + rb"(" + lab + rb")[ \t]*(?=\r?$)"
+        object.__setattr__(self, "_line", re.compile(line))
+        object.__setattr__(self, "_bulk", re.compile(bulk, re.M))
+
+    @property
+    def name(self) -> str:
+        radix = "decimal" if self.radix == 10 else "hex"
+        sep = "':' or '|'" if self.sep == "mark" else "blanks"
+        return f"{radix} labels at the line {self.where}s set off by {sep}"
+
+    def split_line(self, text: bytes) -> tuple[bytes | None, int, int]:
+        """``(label text or None, body start, body end)`` of one line (no line break)."""
+        rx: re.Pattern[bytes] = self._line  # type: ignore[attr-defined]
+        if self.where == "start":
+            m = rx.match(text)
+            return (m.group(1), m.end(), len(text)) if m else (None, 0, len(text))
+        m = rx.search(text)
+        return (m.group(1), 0, m.start()) if m else (None, 0, len(text))
+
+    def split_first(self, text: bytes) -> tuple[bytes | None, int, int]:
+        """Like :meth:`split_line` for the first digit line, whose label may use any separator."""
+        got = self.split_line(text)
+        if got[0] is None:
+            for sep in SEPARATORS:
+                if sep != self.sep:
+                    got = LabelSyntax(self.where, self.radix, sep).split_line(text)
+                    if got[0] is not None:
+                        break
+        return got
+
+    def value(self, label: bytes) -> int:
+        return int(label, self.radix)  # at most MAX_LABEL_CHARS characters by the pattern
+
+    def strip(self, data: bytes) -> bytes:
+        """``data`` (starting at a line start) without its labels."""
+        rx: re.Pattern[bytes] = self._bulk  # type: ignore[attr-defined]
+        if self.where == "start":
+            return rx.sub(b"\n", b"\n" + data)[1:]
+        return rx.sub(b"", data)
+
+    def split(self, data: bytes) -> tuple[bytes, list[bytes]]:
+        """``(data without labels, the label texts in order)`` in one regex pass."""
+        rx: re.Pattern[bytes] = self._bulk  # type: ignore[attr-defined]
+        if self.where == "start":
+            parts = rx.split(b"\n" + data)
+            return b"\n".join(parts[0::2])[1:], parts[1::2]
+        parts = rx.split(data)
+        return b"".join(parts[0::2]), parts[1::2]
+
+
+SYNTAXES = tuple(LabelSyntax(w, r, s) for w in ("start", "end") for s in ("mark", "blank") for r in (10, 16))
+
+
 @dataclass
-class Plan:
-    """What detection decided; the pass and the reader follow it."""
+class Detection:
+    """The reading detection kept; the index pass and the reader follow it."""
 
     base: int | None
     """10 or 16, or None when only the constant can tell (short file, no letters)."""
@@ -63,7 +208,13 @@ class Plan:
     header_lines: int
     first_line_no: int
     labels: str | None
+    """``"start"``/``"end"`` for labels on every line, ``"first-line"`` for a
+    label on the first digit line only, None for no labels."""
+    syntax: LabelSyntax | None
+    """How the labels of the pass are written (None when the pass sees no labels)."""
+    meaning: LabelMeaning | None
     first_label: int | None
+    first_label_text: str | None
     digits_offset: int
     seg_end: int
     """The pass starts here: after the first digit line, or at ``digits_offset``
@@ -74,11 +225,12 @@ class Plan:
     head_digits: bytes
     """Up to ``HEAD_DIGITS`` leading digits after the point, as in the file."""
     sample_digits: int
-    """Digits examined for the base decision."""
     template: bytes | None
     """Character classes of one repeating unit (a line, or a group when the file
     has no line breaks) for the regular-layout check; None for labelled files."""
     newline: str | None
+    """``"\\n"``, ``"\\r\\n"`` or ``"\\r"``; None without line breaks.  For
+    ``"\\r"`` the reader translates CR to LF (one byte for one, offsets kept)."""
     letter_case: str | None
     whole_file_in_head: bool
     notes: list[str] = field(default_factory=list)
@@ -96,129 +248,372 @@ def looks_binary(head: bytes) -> bool:
     return bool(controls) or len(odd) > 0.3 * len(sample)
 
 
-def _classify(line: bytes) -> str:
-    s = line.strip()
-    if not s:
-        return "blank"
-    if s.startswith(b"#"):
-        return "comment"
-    if _PLAIN.match(line):
-        return "plain"
-    if _START.match(line):
-        return "start"
-    if _END.match(line):
-        return "end"
-    return "text"
+_COMPRESSION_SUFFIXES = (".gz", ".gzip", ".bz2", ".xz")
 
 
-def _line_of(head: bytes, offset: int) -> int:
-    return head.count(b"\n", 0, offset) + 1
+def packed_reading(head: bytes, path: str, packed: bool | None) -> bool:
+    """The packed-binary rule: True to read the content as packed hex, False for text.
+
+    ``packed`` (the caller's choice) wins; otherwise text content is text, and
+    binary content is packed hex when the name ends in one of ``PACKED_SUFFIXES``
+    (before any compression suffix) or its first 32 bytes are the leading hex
+    digits of a known constant.  Any other binary content is an error.
+    """
+    if packed is not None:
+        return packed
+    if not looks_binary(head):
+        return False
+    bare = os.path.basename(path).lower()
+    for suffix in _COMPRESSION_SUFFIXES:
+        if bare.endswith(suffix):
+            bare = bare[: -len(suffix)]
+            break
+    if bare.endswith(PACKED_SUFFIXES):
+        return True
+    digits = head[:32].hex().upper()
+    if match_constant(digits, None, 16, len(digits)).name is not None:
+        return True
+    at = next((i for i, c in enumerate(head[:4096]) if c not in _TEXT_BYTES), 0)
+    raise DigitFileError(
+        f"{os.path.basename(path)}: binary content (byte 0x{head[at]:02X} at byte {at}): not digit text, "
+        "not gzip/bzip2/xz, and not packed hex digits of a known constant "
+        "(name it *.bin to read it as packed hex digits)"
+    )
 
 
-def detect_text(head: bytes, eof: bool, path: str, base: int | None) -> Plan:
+def newline_of(head: bytes) -> str | None:
+    """The line ending of the first line break: ``"\\n"``, ``"\\r\\n"``, ``"\\r"`` or None."""
+    cr, lf = head.find(b"\r"), head.find(b"\n")
+    if cr < 0 and lf < 0:
+        return None
+    if cr < 0 or (0 <= lf < cr):
+        return "\n"
+    return "\r\n" if head[cr + 1 : cr + 2] == b"\n" else "\r"
+
+
+def _is_header(text: bytes) -> bool:
+    s = text.strip()
+    if not s or s.startswith(b"#"):
+        return True
+    s = s.translate(None, b" \t")
+    share = (len(s) - len(s.translate(None, _DIGITISH))) / len(s)
+    # One foreign byte in a line of 8 or more leaves it above DIGIT_LINE_SHARE: a digit line with a
+    # stray character.  A shorter line must be mostly foreign to be text.
+    return share < (DIGIT_LINE_SHARE if len(s) >= 8 else 0.5)
+
+
+def _line_col(lines: list[tuple[int, bytes]], offset: int) -> tuple[int, int]:
+    for i, (off, text) in enumerate(lines):
+        if off <= offset <= off + len(text):
+            return i + 1, offset - off + 1
+    return len(lines), 1
+
+
+def _show(byte: int) -> str:
+    return repr(chr(byte)) if 0x20 <= byte < 0x7F else f"byte 0x{byte:02X}"
+
+
+@dataclass
+class _Parse:
+    """One reading applied to the examined lines."""
+
+    syntax: LabelSyntax | None
+    ok: bool = True
+    bad_at: int = -1  # byte offset of the first byte this reading cannot explain
+    labels: list[tuple[int, bytes | None, int, int]] = field(default_factory=list)
+    """(line index, label text, digits before the line, digits on the line) per digit line."""
+    integer_part: bytes | None = None
+    body: tuple[int, int] = (0, 0)  # first line's body span (absolute offsets)
+    first_only: bool = False
+    first_own_sep: bool = False
+    meaning: LabelMeaning | None = None
+    steps: int = 0
+    steps_ok: int = 0
+    log_chance: float = 0.0
+    labelled: bool = False  # labels on most digit lines (or the first only), whatever the evidence
+    agree: int = 0
+
+
+def _parse(syntax: LabelSyntax | None, lines: list[tuple[int, bytes]], first: int) -> _Parse:
+    out = _Parse(syntax)
+    before = 0
+    for i in range(first, len(lines)):
+        off, text = lines[i]
+        text = text[:-1] if text.endswith(b"\r") else text
+        if not text.strip(b" \t"):
+            continue
+        if syntax is None:
+            label, b0, b1 = None, 0, len(text)
+        else:
+            label, b0, b1 = syntax.split_first(text) if i == first else syntax.split_line(text)
+            if i == first:
+                out.first_own_sep = syntax.split_line(text)[0] is not None
+        body = text[b0:b1]
+        if i == first:
+            m = _FIRST_BODY.match(body)
+            if m and m.group(1) is not None:
+                out.integer_part = m.group(1)
+            out.body = (off + b0, off + b1)
+        else:
+            m = _BODY.match(body)
+        if not m:
+            bad = re.compile(
+                rb"[ \t]*(?:[" + _HEXD + rb"]{1,%d}\.)?" % MAX_INTEGER_PART if i == first else rb""
+            ).match(body)
+            skip = bad.end() if bad else 0
+            rest = body[skip:].translate(None, HEX + b" \t")
+            at = skip + body[skip:].find(rest[:1])
+            out.ok, out.bad_at = False, off + b0 + at
+            return out
+        nd = len(body) - len(body.translate(None, HEX))
+        if out.integer_part is not None and i == first:
+            nd -= len(out.integer_part)
+        out.labels.append((i, label, before, nd))
+        before += nd
+    return out
+
+
+def _score(p: _Parse, forced: bool = False) -> None:
+    """Pick the meaning whose progression the labels follow best."""
+    assert p.syntax is not None
+    rows = [(lab, b, n) for _, lab, b, n in p.labels]
+    labelled = [r for r in rows if r[0] is not None]
+    if rows and rows[0][0] is not None and not p.first_own_sep and len(labelled) == 1:
+        labelled = []  # the first line's other separator counts only beside labelled lines
+    if not labelled:
+        p.ok = False
+        return
+    if len(labelled) == 1 and rows[0][0] is not None and len(rows) > 1:
+        p.first_only = True
+        if p.syntax.sep != "mark" or not p.first_own_sep:  # a bare number before the digits is digits
+            p.ok = False
+            return
+    elif 2 * len(labelled) <= len(rows):
+        p.ok = False
+        return
+    best: tuple[int, int, int] | None = None
+    for mean in MEANINGS:
+        if (mean.kind == "through") != (p.syntax.where == "end"):
+            continue  # a start label says where its line starts, an end label where it ends
+        vals = [(p.syntax.value(lab), b, n) if lab is not None else None for lab, b, n in rows]
+        agree = sum(1 for v in vals if v is not None and v[0] == mean.expect(v[1], v[2]))
+        steps = steps_ok = 0
+        evidence = 0.0
+        for j in range(len(vals) - 1):
+            a, c = vals[j], vals[j + 1]
+            if a is None or c is None:
+                continue
+            steps += 1
+            # A step compares neighbours only, so one damaged line breaks one or two steps.
+            ra, rc = mean.raw(a[1], a[2]), mean.raw(c[1], c[2])
+            if (rc - ra) % mean.unit == 0 and c[0] - a[0] == (rc - ra) // mean.unit and c[0] > a[0]:
+                steps_ok += 1
+                evidence -= len(rows[j + 1][0] or b"") * math.log10(p.syntax.radix)
+        key = (steps_ok, agree, -MEANINGS.index(mean))
+        if best is None or key > best:
+            best = key
+            p.meaning, p.steps, p.steps_ok, p.agree = mean, steps, steps_ok, agree
+            p.log_chance = evidence + math.log10(math.comb(steps, steps_ok)) if steps else 0.0
+    if p.first_only:
+        # A label on the first line alone must say what such a label says: 0, 1 or the line's count.
+        p.ok = p.agree >= 1
+    p.labelled = p.ok
+    if p.first_only:
+        return
+    if p.syntax.sep == "blank" and not forced:
+        p.ok = p.log_chance <= LABELS_LOG_CHANCE
+    else:
+        p.ok = True  # no unlabelled reading explains ':' or '|': labels that disagree are damage
+
+
+def _choose(parses: list[_Parse], labels: str | None, name: str, lines: list[tuple[int, bytes]]) -> _Parse:
+    plain = next((p for p in parses if p.syntax is None and p.ok), None)
+    labelled = [p for p in parses if p.syntax is not None and p.ok]
+    if labelled:
+        # Same place and separator: decimal unless hex labels follow the progression better.
+        labelled.sort(key=lambda p: (p.steps_ok, p.agree, p.syntax.radix == 10), reverse=True)  # type: ignore[union-attr]
+        top = labelled[0]
+        rivals = [
+            p
+            for p in labelled[1:]
+            if p.syntax.where != top.syntax.where  # type: ignore[union-attr]
+            and (
+                (p.steps_ok, p.agree) == (top.steps_ok, top.agree)
+                # ':' both before and after a short number: which side is the label is a guess
+                or (p.syntax.sep == top.syntax.sep == "mark" and p.steps_ok < MIN_STEPS_BOTH)  # type: ignore[union-attr]
+            )
+        ]
+        if rivals:
+            a, b = top.syntax.name, rivals[0].syntax.name  # type: ignore[union-attr]
+            raise AmbiguousLayoutError(
+                f"{name}: the layout is ambiguous: {a} and {b} both explain the first lines; "
+                "say where the labels are",
+                "labels",
+                (top.syntax.where, rivals[0].syntax.where),  # type: ignore[union-attr]
+            )
+        return top
+    if plain is None:
+        # Only labels explain the bytes: take the best-labelled reading, its disagreements are damage.
+        rest = [p for p in parses if p.syntax is not None and p.labelled]
+        if rest:
+            return max(rest, key=lambda p: (p.steps_ok, p.agree, p.syntax.radix == 10))  # type: ignore[union-attr]
+    if plain is not None:
+        # A blank-separated reading with some evidence but not enough is a rival, not a loser.
+        for p in parses:
+            if (
+                p.syntax is not None
+                and p.syntax.sep == "blank"
+                and p.steps_ok >= 1
+                and p.log_chance <= AMBIGUOUS_LOG_CHANCE
+                and not p.first_only
+            ):
+                raise AmbiguousLayoutError(
+                    f"{name}: the layout is ambiguous: the first column could be {p.syntax.name} "
+                    f"({p.steps_ok} of {p.steps} steps agree) or digits; say whether the lines carry labels",
+                    "labels",
+                    (p.syntax.where, "none"),
+                )
+        return plain
+    # Nothing explains every byte: name the first byte the furthest-reaching reading cannot explain.
+    worst = max(parses, key=lambda p: p.bad_at)
+    if worst.bad_at < 0:
+        raise DigitFileError(
+            f"{name}: no digit line among the first {len(lines)} lines carries a position label at the "
+            f"line {labels}s"
+        )
+    line, col = _line_col(lines, worst.bad_at)
+    off, text = lines[line - 1]
+    byte = text[col - 1] if col - 1 < len(text) else 0x0A
+    raise DigitFileError(
+        f"{name}: stray character {_show(byte)} at byte {worst.bad_at} (line {line}, column {col}): "
+        "not a digit, a blank, a line break or a position label"
+    )
+
+
+def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str | None = None) -> Detection:
     """Decide the layout of a text digit file from its first bytes.
 
     ``head`` is the start of the (decompressed) content, ``eof`` says whether
-    it is the whole content.  ``base`` is the caller's explicit base or None.
+    it is the whole content.  ``base`` is the caller's explicit base or None;
+    ``labels`` (``"start"``, ``"end"``, ``"none"`` or None) restricts the
+    readings tried.  A CR-only file must be given with CR already turned into LF.
     """
     name = os.path.basename(path)
+    if labels not in (None, "start", "end", "none"):
+        raise UsageError(f"labels must be start, end or none, got {labels!r}")
     if not head.strip():
         raise DigitFileError(
             f"{name}: the file is empty" if not head else f"{name}: the file holds only whitespace"
         )
     start = 3 if head.startswith(b"\xef\xbb\xbf") else 0  # UTF-8 byte-order mark
-    complete = head if eof else head[: head.rfind(b"\n") + 1]
-    # Split into lines with their offsets.
+    newline = newline_of(head)
     lines: list[tuple[int, bytes]] = []
     pos = start
-    while pos < len(head) and len(lines) < MAX_HEADER_LINES + CONFIRM_LINES + 64:
+    while pos < len(head) and len(lines) < MAX_HEADER_LINES + EXAMINE_LINES + 2:
         nl = head.find(b"\n", pos)
-        end = len(head) if nl < 0 else nl
-        lines.append((pos, head[pos:end]))
-        pos = end + 1
-    kinds = [_classify(text) for _, text in lines]
-    digit_kinds = ("plain", "start", "end")
-    first = None
-    for i, k in enumerate(kinds):
-        if i > MAX_HEADER_LINES:
+        if nl < 0:
+            if eof or not lines:
+                lines.append((pos, head[pos:]))
             break
-        if k not in digit_kinds:
-            continue
-        following = [kk for kk in kinds[i + 1 : i + 1 + CONFIRM_LINES + 2] if kk != "blank"][:CONFIRM_LINES]
-        if all(kk in digit_kinds for kk in following):
-            first = i
+        lines.append((pos, head[pos:nl]))
+        pos = nl + 1
+    first = 0
+    while first < len(lines):
+        off, text = lines[first]
+        inner = text.rstrip(b"\r").rfind(b"\r")
+        if inner >= 0 and _is_header(text[:inner]) and not _is_header(text[inner + 1 :]):
+            # A lone CR inside a header line of an LF/CRLF file ends a line too.
+            lines[first : first + 1] = [(off, text[:inner]), (off + inner + 1, text[inner + 1 :])]
+            first += 1
             break
-    if first is None:
+        if not _is_header(text):
+            break
+        first += 1
+    if first >= len(lines) or first > MAX_HEADER_LINES:
         raise DigitFileError(
-            f"{name}: no digits found: none of the first {min(len(lines), MAX_HEADER_LINES)} lines "
-            "starts a block of digit lines (expected hex or decimal digits after an optional header)"
+            f"{name}: no digits found: none of the first {min(len(lines), MAX_HEADER_LINES + 1)} lines "
+            "is a digit line (expected hex or decimal digits after an optional header)"
         )
     line_off, line = lines[first]
-    sample_kinds = [k for k in kinds[first : first + 50] if k in digit_kinds]
-    labels: str | None = max(("plain", "start", "end"), key=sample_kinds.count)
-    if labels == "plain":
-        labels = None
-    # The first line: label, integer part, body.
-    first_label: int | None = None
-    body_off = line_off
-    body_end = line_off + len(line.rstrip(b"\r"))
-    if labels == "start" and (m := _START.match(line)):
-        first_label, body_off = int(m.group(1)), line_off + m.start(2)
-    elif labels == "end" and (m := _END.match(line)):
-        first_label, body_end = int(m.group(2)), line_off + m.end(1)
-    integer_part = None
-    digits_offset = body_off
-    if m := _INT_PART.match(head, body_off, body_end):
-        integer_part = m.group(1).decode().upper().lstrip("0") or "0"
-        digits_offset = m.end()
-    elif m := re.compile(rb"[ \t]*").match(head, body_off):
-        digits_offset = m.end()
-    nl_at = line_off + len(line)
-    ends_in_newline = head[nl_at : nl_at + 1] == b"\n"
-    newline = None
-    if ends_in_newline:
-        newline = "\r\n" if line.endswith(b"\r") else "\n"
-    if (ends_in_newline or eof) and len(line) <= MAX_FIRST_LINE:
-        seg_end = nl_at + 1 if ends_in_newline else nl_at
-        seg = head[digits_offset:body_end]
+    if first and first + 1 < len(lines):
+        _check_merged_header(lines, first, name)
+    ends_in_newline = line_off + len(line) < len(head)
+    long_line = len(line) > MAX_FIRST_LINE or not ends_in_newline and not eof
+    examined = lines[: first + 1] if long_line else lines[: first + EXAMINE_LINES]
+    if long_line:
+        syntaxes: list[LabelSyntax | None] = [None]
     else:
-        if labels is not None:
-            raise DigitFileError(
-                f"{name}: labelled lines longer than {MAX_FIRST_LINE} bytes are not supported"
-            )
-        seg_end = digits_offset
-        seg = b""
+        syntaxes = [None] + [s for s in SYNTAXES if labels in (None, s.where)]
+        if labels == "none":
+            syntaxes = [None]
+        elif labels in ("start", "end"):
+            syntaxes = syntaxes[1:]
+    if long_line:
+        # Only the head of a very long line is here; the pass validates the rest.
+        cut = len(line)
+        examined = [(line_off, line[:cut])]
+    parses = [_parse(s, examined, first) for s in syntaxes]
+    for p in parses:
+        if p.ok and p.syntax is not None:
+            _score(p, forced=labels in ("start", "end"))
+    chosen = _choose(parses, labels, name, examined)
+    syntax = chosen.syntax
+    first_label = first_label_text = None
+    first_text = line[:-1] if line.endswith(b"\r") else line
+    if syntax is not None:
+        lab, _, _ = syntax.split_first(first_text)
+        if lab is not None:
+            first_label, first_label_text = syntax.value(lab), lab.decode("ascii")
+    body_off, body_end = chosen.body
+    integer_part = None
+    m = re.compile(rb"[ \t]*").match(head, body_off)
+    digits_offset = m.end() if m else body_off
+    if chosen.integer_part is not None:
+        integer_part = chosen.integer_part.decode().upper().lstrip("0") or "0"
+        digits_offset = head.index(b".", body_off) + 1
+    if long_line:
+        seg_end, seg = digits_offset, b""
+        newline = None if b"\n" not in head else newline
+    else:
+        seg_end = line_off + len(line) + (1 if ends_in_newline else 0)
+        seg = head[digits_offset:body_end]
+        if not ends_in_newline:
+            newline = None
     # Digits sample for the base decision and the constant guess.
-    region = (
-        head[digits_offset:]
-        if (eof or labels is None)
-        else head[digits_offset : max(len(complete), digits_offset)]
-    )
-    cleaned = strip_labels(region, labels).translate(None, WS)
-    m = re.compile(rb"[0-9A-Fa-f]*").match(cleaned)
-    sample = m.group() if m else b""
+    if long_line:
+        sample = head[digits_offset:].translate(None, b" \t\r\n")
+        mm = re.compile(rb"[0-9A-Fa-f]*").match(sample)
+        sample = mm.group() if mm else b""
+    else:
+        pieces = [seg]
+        for i, (_off, text) in enumerate(examined):
+            if i <= first:
+                continue
+            text = text[:-1] if text.endswith(b"\r") else text
+            _, b0, b1 = syntax.split_line(text) if syntax else (None, 0, len(text))
+            pieces.append(text[b0:b1])
+        sample = b"".join(pieces).translate(None, b" \t")
     if not sample:
         raise DigitFileError(f"{name}: no digits after the radix point")
     has_letters = bool(sample.translate(None, DEC))
+    seg_all = head[digits_offset:]
     if has_letters and base != 10:
-        plain = len(sample) - len(sample.lstrip(DEC))
-        if plain >= MIN_HEX_EVIDENCE:
-            at = digits_offset + _first_of(head[digits_offset:], HEX_LETTERS)
+        plain_run = len(sample) - len(sample.lstrip(DEC))
+        if plain_run >= MIN_HEX_EVIDENCE:
+            at = digits_offset + _first_of(seg_all, HEX_LETTERS)
             raise DigitFileError(
-                f"{name}: mixed bases: hex digit {chr(head[at])!r} at byte {at} (line {_line_of(head, at)}), "
-                f"but the {plain} digits before it are all decimal"
+                f"{name}: mixed bases: hex digit {chr(head[at])!r} at byte {at} (line {_line_no(head, at)}), "
+                f"but the {plain_run} digits before it are all decimal"
             )
     base_how: str
     if base is not None:
         if base not in (10, 16):
-            from spotcheck.errors import UsageError
-
             raise UsageError(f"base must be 10 or 16, got {base}")
         base_how = f"given explicitly ({base})"
         if base == 10 and has_letters:
-            at = digits_offset + _first_of(head[digits_offset:], HEX_LETTERS)
+            at = digits_offset + _first_of(seg_all, HEX_LETTERS)
             raise DigitFileError(
-                f"{name}: {chr(head[at])!r} at byte {at} (line {_line_of(head, at)}) is not a decimal digit: "
+                f"{name}: {chr(head[at])!r} at byte {at} (line {_line_no(head, at)}) is not a decimal digit: "
                 "the file looks hexadecimal, but base 10 was requested"
             )
         if base == 16 and not has_letters and len(sample) >= MIN_HEX_EVIDENCE:
@@ -227,14 +622,11 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None) -> Plan:
                 "but base 16 was requested"
             )
     elif has_letters:
-        base = 16
-        base_how = "detected: hex letters among the digits"
+        base, base_how = 16, "detected: hex letters among the digits"
     elif len(sample) >= MIN_HEX_EVIDENCE:
-        base = 10
-        base_how = f"detected: no letter A-F among the first {len(sample)} digits"
+        base, base_how = 10, f"detected: no letter A-F among the first {len(sample)} digits"
     else:
-        base = None
-        base_how = ""
+        base, base_how = None, ""
     letter_case = None
     if has_letters:
         up, low = any(c in b"ABCDEF" for c in sample), any(c in b"abcdef" for c in sample)
@@ -242,18 +634,26 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None) -> Plan:
     digits = HEX if (base or 16) == 16 else DEC
     seg_cols = [digits_offset + i for i, c in enumerate(seg) if c in digits]
     seg_digits = bytes(seg[i - digits_offset] for i in seg_cols)
+    label_where: str | None = None
+    pass_syntax: LabelSyntax | None = None
+    if syntax is not None:
+        label_where = "first-line" if chosen.first_only else syntax.where
+        pass_syntax = None if chosen.first_only else syntax
     template = None
-    if labels is None:
+    if pass_syntax is None:
         template = _template(head, seg_end, digits_offset, eof, base or 16, newline)
-    return Plan(
+    return Detection(
         base=base,
         base_how=base_how,
         explicit_base=base_how.startswith("given"),
         integer_part=integer_part,
         header_lines=first,
         first_line_no=first + 1,
-        labels=labels,
+        labels=label_where,
+        syntax=pass_syntax,
+        meaning=chosen.meaning if syntax is not None else None,
         first_label=first_label,
+        first_label_text=first_label_text,
         digits_offset=digits_offset,
         seg_end=seg_end,
         seg_cols=seg_cols,
@@ -265,6 +665,22 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None) -> Plan:
         letter_case=letter_case,
         whole_file_in_head=eof,
     )
+
+
+def _check_merged_header(lines: list[tuple[int, bytes]], first: int, name: str) -> None:
+    """Refuse a header line that ends in as many digits as a digit line holds (a lost line break)."""
+    last = lines[first - 1][1].rstrip(b" \t\r")
+    run = len(last) - len(last.rstrip(HEX))
+    width = len(lines[first][1].translate(None, b" \t\r"))
+    if width >= 8 and run >= width:
+        raise DigitFileError(
+            f"{name}: line {first} is header text that ends in {run} digits, as many as a digit line "
+            "holds: a line break may be missing there"
+        )
+
+
+def _line_no(head: bytes, offset: int) -> int:
+    return head.count(b"\n", 0, offset) + 1
 
 
 def _first_of(data: bytes, chars: bytes) -> int:
@@ -280,9 +696,9 @@ def _template(
         nl = head.find(b"\n", seg_end)
         if nl >= 0:
             return head[seg_end : nl + 1].translate(table)
-        rest = head[seg_end:].rstrip(WS)
+        rest = head[seg_end:].rstrip(b" \t\r\n")
         if rest:
-            return rest.translate(table) + (newline or "\n").encode()
+            return rest.translate(table) + (b"\r\n" if newline == "\r\n" else b"\n")
         return b"d"
     # One long line: the unit is a group and its separator, or a single digit.
     m = re.compile(rb"[0-9A-Fa-f]+[ \t]+").match(head, seg_end)

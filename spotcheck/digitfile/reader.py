@@ -19,18 +19,23 @@ import re
 from collections.abc import Iterator
 from types import TracebackType
 
-from spotcheck.digitfile.charsets import LABEL_END, LABEL_START, WS, strip_labels
-from spotcheck.digitfile.detect import HEAD_BYTES, PACKED_SUFFIXES, Plan, detect_text, looks_binary
-from spotcheck.digitfile.guess import explicit_constant, guess_constant
+from spotcheck.digitfile.charsets import WS
+from spotcheck.digitfile.detect import (
+    HEAD_BYTES,
+    Detection,
+    detect_text,
+    newline_of,
+    packed_reading,
+)
+from spotcheck.digitfile.guess import ConstantMatch, explicit_constant, guess_constant, match_constant
+from spotcheck.digitfile.index import CHUNK_BYTES, INDEX_STEP, IndexResult, Progress, build_index
 from spotcheck.digitfile.model import Finding, InspectResult, Layout
-from spotcheck.digitfile.scan import CHUNK_BYTES, INDEX_STEP, Progress, ScanResult, scan_text
 from spotcheck.digitfile.source import ByteSource, open_source
 from spotcheck.errors import DigitFileError, UsageError
 
 __all__ = ["DigitFile", "open_digit_file", "inspect_file", "EDGE_DIGITS"]
 
 EDGE_DIGITS = 64  # first and last digits shown by inspect
-_COMPRESSION_SUFFIXES = (".gz", ".gzip", ".bz2", ".xz")
 
 
 class DigitFile:
@@ -48,13 +53,34 @@ class DigitFile:
     constant_how: str
     findings: list[Finding]
 
-    def __init__(self) -> None:  # filled in by open_digit_file
-        self._src: ByteSource | None = None
-        self._plan: Plan | None = None
-        self._scan: ScanResult | None = None
-        self._packed = False
-        self._first = ""  # leading and trailing digits seen by the pass (inspect needs no re-read)
-        self._last = ""
+    constant_match: ConstantMatch | None
+    """The facts behind a guessed constant (None when the constant was given or packed)."""
+
+    def __init__(
+        self,
+        src: ByteSource,
+        *,
+        base: int,
+        base_how: str,
+        count: int,
+        integer_part: str | None,
+        layout: Layout,
+        findings: list[Finding],
+        detection: Detection | None = None,
+        index: IndexResult | None = None,
+        first: str = "",
+        last: str = "",
+    ) -> None:
+        """A file after its pass: ``detection`` and ``index`` for text, neither for packed hex."""
+        self._src: ByteSource | None = src
+        self.path, self.size_bytes, self.compression = src.path, src.size_bytes, src.compression
+        self.base, self.base_how, self.count, self.integer_part = base, base_how, count, integer_part
+        self.layout, self.findings = layout, list(findings)
+        self._plan, self._scan = detection, index
+        self._packed = detection is None
+        self._first = first  # leading and trailing digits seen by the pass (inspect needs no re-read)
+        self._last = last
+        self.constant, self.constant_how, self.constant_match = None, "", None
 
     # -- reading -------------------------------------------------------------
     def read(self, position: int, count: int) -> str:
@@ -112,10 +138,11 @@ class DigitFile:
         off, pos, line = scan.index_off[i], scan.index_pos[i], scan.index_line[i]
         data = self._source().read_at(off, 4 * INDEX_STEP + 4 * (p - pos))
         mask = bytearray(data)
-        rx = LABEL_START if plan.labels == "start" else LABEL_END if plan.labels == "end" else None
-        if rx is not None:
-            for m in rx.finditer(data):
-                mask[m.start() : m.end()] = b" " * (m.end() - m.start())
+        if plan.syntax is not None:
+            rx = plan.syntax._bulk  # type: ignore[attr-defined]
+            prefix = 1 if plan.syntax.where == "start" else 0
+            for m in rx.finditer(b"\n" * prefix + data):
+                mask[m.start(1) - prefix : m.end(1) - prefix] = b" " * (m.end(1) - m.start(1))
         digits = b"0123456789ABCDEFabcdef" if self.base == 16 else b"0123456789"
         for i, c in enumerate(mask):
             if c in digits:
@@ -162,10 +189,14 @@ class DigitFile:
             data = src.read_at(off, ask)
             if not data:
                 break
-            if plan.labels is not None and len(data) == ask:
+            if plan.syntax is not None and len(data) == ask:
                 cut = data.rfind(b"\n") + 1
                 data = data[:cut] if cut else data
-            digits = strip_labels(data, plan.labels).translate(None, WS)
+            if plan.syntax is not None:
+                data_digits = plan.syntax.strip(data)
+            else:
+                data_digits = data
+            digits = data_digits.translate(None, WS)
             got.append(digits)
             have += len(digits)
             off += len(data)
@@ -226,14 +257,6 @@ def _check_window(position: object, count: object) -> tuple[int, int]:
     return p, n
 
 
-def _bare_name(path: str) -> str:
-    name = os.path.basename(path).lower()
-    for suffix in _COMPRESSION_SUFFIXES:
-        if name.endswith(suffix):
-            return name[: -len(suffix)]
-    return name
-
-
 def open_digit_file(
     path: str | os.PathLike[str],
     base: int | None = None,
@@ -242,6 +265,7 @@ def open_digit_file(
     packed: bool | None = None,
     strict_labels: bool = False,
     progress: Progress | None = None,
+    labels: str | None = None,
 ) -> DigitFile:
     """Open a digit file read-only, detect its layout and run the one pass over it.
 
@@ -250,17 +274,41 @@ def open_digit_file(
     by default binary content is packed hex when its name ends in ``.bin`` or
     ``.hexbin`` or its first bytes are those of a known constant.
     ``strict_labels`` turns the first disagreeing position label into a
-    :class:`DigitFileError` instead of a finding.  ``progress(done, total)`` is
-    called after each chunk of the pass.
+    :class:`DigitFileError` instead of a finding.  ``labels`` (``"start"``,
+    ``"end"`` or ``"none"``) says where position labels are when the layout
+    alone cannot tell.  ``progress(done, total)`` is called after each chunk of
+    the pass.
     """
     if base is not None and base not in (10, 16):
         raise UsageError(f"base must be 10 or 16, got {base!r}")
+    if labels not in (None, "start", "end", "none"):
+        raise UsageError(f"labels must be start, end or none, got {labels!r}")
     src = open_source(path)
     try:
-        return _open(src, base, constant, packed, strict_labels, progress)
+        return _open(src, base, constant, packed, strict_labels, progress, labels)
     except BaseException:
         src.close()
         raise
+
+
+class _CarriageReturns:
+    """A CR-only text file seen with LF line breaks (one byte for one: offsets are kept)."""
+
+    def __init__(self, src: ByteSource) -> None:
+        self._inner = src
+        self.path, self.size_bytes, self.compression = src.path, src.size_bytes, src.compression
+
+    def read_at(self, offset: int, n: int) -> bytes:
+        return self._inner.read_at(offset, n).replace(b"\r", b"\n")
+
+    def stored_bytes_done(self, offset: int) -> int:
+        return self._inner.stored_bytes_done(offset)
+
+    def check_unchanged(self) -> None:
+        self._inner.check_unchanged()
+
+    def close(self) -> None:
+        self._inner.close()
 
 
 def _open(
@@ -270,6 +318,7 @@ def _open(
     packed: bool | None,
     strict_labels: bool,
     progress: Progress | None,
+    labels: str | None = None,
 ) -> DigitFile:
     name = os.path.basename(src.path)
     head = src.read_at(0, HEAD_BYTES)
@@ -277,44 +326,41 @@ def _open(
     if not head:
         what = f"its {src.compression} content is empty" if src.compression else "the file is empty"
         raise DigitFileError(f"{name}: {what}")
-    df = DigitFile()
-    df.path, df.size_bytes, df.compression = src.path, src.size_bytes, src.compression
-    df._src = src
-    binary = looks_binary(head)
-    if packed is None and binary:
-        packed = _bare_name(src.path).endswith(PACKED_SUFFIXES) or _known_packed(head)
-        if not packed:
-            raise DigitFileError(
-                f"{name}: binary content: not digit text, not gzip/bzip2/xz, and not packed hex digits "
-                "of a known constant (name it *.bin to read it as packed hex digits)"
-            )
+    packed = packed_reading(head, src.path, packed)
     if packed:
-        return _open_packed(df, src, head, base, constant, progress)
-    plan = detect_text(head, eof, src.path, base)
+        return _open_packed(src, head, base, constant, progress)
+    cr_only = newline_of(head) == "\r"
+    if cr_only:
+        src = _CarriageReturns(src)  # type: ignore[assignment]
+        head = head.replace(b"\r", b"\n")
+    plan = detect_text(head, eof, src.path, base, labels)
+    if cr_only:
+        plan.newline = "\r"
     if plan.base is None:
         plan.base, plan.base_how = _resolve_base(plan)
     assert plan.base is not None
-    scan = scan_text(src, plan, plan.base, strict_labels=strict_labels, progress=progress)
+    scan = build_index(src, plan, plan.base, strict_labels=strict_labels, progress=progress)
     src.check_unchanged()
-    df._plan, df._scan = plan, scan
-    df._first = plan.head_digits.decode("ascii").upper()
-    df._last = scan.last_digits.decode("ascii").upper()
-    df.base, df.base_how, df.count, df.integer_part = plan.base, plan.base_how, scan.count, plan.integer_part
-    if df.count == 0:
+    if scan.count == 0:
         raise DigitFileError(f"{name}: no digits after the radix point")
-    df.findings = list(scan.findings)
-    df.layout = _text_layout(src, plan, scan)
+    df = DigitFile(
+        src,
+        base=plan.base,
+        base_how=plan.base_how,
+        count=scan.count,
+        integer_part=plan.integer_part,
+        layout=_text_layout(src, plan, scan),
+        findings=scan.findings,
+        detection=plan,
+        index=scan,
+        first=plan.head_digits.decode("ascii").upper(),
+        last=scan.last_digits.decode("ascii").upper(),
+    )
     _decide_constant(df, plan.head_digits.decode("ascii"), constant)
     return df
 
 
-def _known_packed(head: bytes) -> bool:
-    digits = head[:32].hex().upper()
-    name, _, matched = guess_constant(digits, None, 16, len(digits))
-    return name is not None
-
-
-def _resolve_base(plan: Plan) -> tuple[int, str]:
+def _resolve_base(plan: Detection) -> tuple[int, str]:
     head = plan.head_digits.decode("ascii")
     for b in (10, 16):
         name, _, _ = guess_constant(head, plan.integer_part, b, len(head))
@@ -337,7 +383,8 @@ def _decide_constant(df: DigitFile, head: str, constant: str | None) -> None:
                 )
             )
         return
-    df.constant, df.constant_how, _ = guess_constant(head, df.integer_part, df.base, df.count)
+    match = match_constant(head, df.integer_part, df.base, df.count)
+    df.constant, df.constant_how, df.constant_match = match.name, match.how, match
 
 
 def _groups(unit: bytes) -> tuple[int | None, int | None]:
@@ -366,7 +413,7 @@ def _runs(cols: list[int]) -> list[int]:
     return runs
 
 
-def _text_layout(src: ByteSource, plan: Plan, scan: ScanResult) -> Layout:
+def _text_layout(src: ByteSource, plan: Detection, scan: IndexResult) -> Layout:
     width = group = line_bytes = None
     if scan.count == len(plan.seg_digits):  # one line holds every digit
         runs = _runs(plan.seg_cols)
@@ -375,10 +422,10 @@ def _text_layout(src: ByteSource, plan: Plan, scan: ScanResult) -> Layout:
     elif scan.regular and scan.unit is not None:
         width, group = _groups(scan.unit)
         line_bytes = len(scan.unit) if width is not None else None
-    elif plan.labels is not None:
+    elif plan.syntax is not None:
         line = src.read_at(plan.seg_end, 64 << 10)
         line = line[: line.find(b"\n") + 1] if b"\n" in line else line
-        body = strip_labels(line, plan.labels).strip(b" \t") or line
+        body = plan.syntax.strip(line).strip(b" \t") or line
         from spotcheck.digitfile.charsets import class_table
 
         width, group = _groups(body.translate(class_table(plan.base or 16)))
@@ -399,17 +446,17 @@ def _text_layout(src: ByteSource, plan: Plan, scan: ScanResult) -> Layout:
 
 
 def _open_packed(
-    df: DigitFile,
     src: ByteSource,
     head: bytes,
     base: int | None,
     constant: str | None,
     progress: Progress | None,
 ) -> DigitFile:
+    """Packed binary hex: every byte holds two hex digits, high nibble first; no byte is anything else."""
     name = os.path.basename(src.path)
     if base == 10:
         raise DigitFileError(f"{name}: packed binary holds hex digits, but base 10 was requested")
-    df._packed = True
+    last = ""
     if src.compression is None:
         size = src.size_bytes
     else:
@@ -419,12 +466,19 @@ def _open_packed(
             tail = (tail + data)[-EDGE_DIGITS:]
             if progress:
                 progress(src.stored_bytes_done(size), src.size_bytes)
-        df._last = tail.hex().upper()
+        last = tail.hex().upper()
     src.check_unchanged()
-    df.base, df.base_how = 16, "packed binary: two hex digits per byte"
-    df.count, df.integer_part, df.findings = 2 * size, None, []
-    df._first = head[:EDGE_DIGITS].hex().upper()
-    df.layout = Layout(kind="packed", access="regular")
+    df = DigitFile(
+        src,
+        base=16,
+        base_how="packed binary: two hex digits per byte",
+        count=2 * size,
+        integer_part=None,
+        layout=Layout(kind="packed", access="regular"),
+        findings=[],
+        first=head[:EDGE_DIGITS].hex().upper(),
+        last=last,
+    )
     _decide_constant(df, head[:32].hex().upper(), constant)
     return df
 
@@ -436,7 +490,8 @@ def inspect_file(
     *,
     packed: bool | None = None,
     progress: Progress | None = None,
+    labels: str | None = None,
 ) -> InspectResult:
     """Open, pass over and summarise a digit file (what ``spotcheck inspect`` prints)."""
-    with open_digit_file(path, base, constant, packed=packed, progress=progress) as df:
+    with open_digit_file(path, base, constant, packed=packed, progress=progress, labels=labels) as df:
         return df.inspect()

@@ -1,4 +1,4 @@
-"""The one streaming pass over a text digit file.
+"""The first pass over a text digit file: it validates every byte and builds the index.
 
 The pass validates every byte, counts the digits, checks position labels and
 builds what random access needs, in bounded memory (one chunk of
@@ -28,30 +28,19 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 from itertools import accumulate
 
-from spotcheck.digitfile.charsets import (
-    HEX_LETTERS,
-    LABEL_END,
-    LABEL_START,
-    WS,
-    allowed_set,
-    class_table,
-    digit_set,
-    split_labels,
-    strip_labels,
-)
-from spotcheck.digitfile.detect import Plan
+from spotcheck.digitfile.charsets import HEX_LETTERS, WS, allowed_set, class_table, digit_set
+from spotcheck.digitfile.detect import Detection, LabelMeaning, LabelSyntax
 from spotcheck.digitfile.model import Finding
 from spotcheck.digitfile.source import ByteSource
 from spotcheck.errors import DigitFileError, LabelError
 
-__all__ = ["ScanResult", "scan_text", "line_of", "Progress", "CHUNK_BYTES", "INDEX_STEP"]
+__all__ = ["IndexResult", "build_index", "line_of", "Progress", "CHUNK_BYTES", "INDEX_STEP"]
 
 # --- tuning -----------------------------------------------------------------
 CHUNK_BYTES = 8 << 20  # bytes examined per step of the pass
 INDEX_STEP = 64 << 10  # bytes between sparse index entries (a window read parses at most this much)
 TAIL_DIGITS = 64  # last digits kept for inspect
 MAX_FINDINGS = 20  # findings of one kind kept in full; the rest are counted
-LABEL_VOTES = 4  # labels used to decide what labels count
 
 Progress = Callable[[int, int], None]
 """``progress(done, total)`` in bytes of the file as stored: for a compressed
@@ -59,7 +48,7 @@ file, the compressed bytes consumed so far out of the file's size."""
 
 
 @dataclass
-class ScanResult:
+class IndexResult:
     count: int
     """Digits after the point, first line included."""
     regular: bool
@@ -88,11 +77,13 @@ def line_of(src: ByteSource, offset: int) -> int:
     return lines
 
 
-def stray_error(src: ByteSource, plan: Plan, base: int, offset: int, byte: int) -> DigitFileError:
+def stray_error(src: ByteSource, plan: Detection, base: int, offset: int, byte: int) -> DigitFileError:
     name = os.path.basename(src.path)
     line = line_of(src, offset)
     ch = repr(chr(byte)) if 0x20 <= byte < 0x7F else f"byte 0x{byte:02X}"
-    where = f"at byte {offset} (line {line})"
+    back = src.read_at(max(0, offset - INDEX_STEP), offset - max(0, offset - INDEX_STEP))
+    col = len(back) - (back.rfind(b"\n") + 1) + 1
+    where = f"at byte {offset} (line {line}, column {col})"
     if base == 10 and byte in HEX_LETTERS:
         if plan.explicit_base:
             return DigitFileError(f"{name}: {ch} {where} is not a decimal digit, but base 10 was requested")
@@ -104,59 +95,55 @@ def stray_error(src: ByteSource, plan: Plan, base: int, offset: int, byte: int) 
 
 
 class _LabelCheck:
-    """Decides what the labels count from the first few, then checks every one."""
+    """Checks every label against the count its meaning (from detection) implies."""
 
-    EXPLAIN = {
-        "before": "the count of digits before this line",
-        "first": "the position of this line's first digit",
-        "through": "the count of digits up to the end of this line",
-    }
-
-    def __init__(self, where: str, strict: bool, name: str) -> None:
-        self.order = ("first", "before", "through") if where == "start" else ("through", "before", "first")
-        self.meaning: str | None = None
-        self.pending: list[tuple[int, int, int, int, int]] = []
+    def __init__(self, meaning: LabelMeaning, syntax: LabelSyntax, strict: bool, name: str) -> None:
+        self.meaning = meaning
+        self.syntax = syntax
         self.strict = strict
         self.name = name
         self.findings: list[Finding] = []
         self.mismatches = 0
         self.missing = 0
 
-    @staticmethod
-    def expect(meaning: str, before: int, nd: int) -> int:
-        return before if meaning == "before" else before + 1 if meaning == "first" else before + nd
-
-    def feed(self, label: int, before: int, nd: int, line: int, offset: int) -> None:
-        if self.meaning is None:
-            self.pending.append((label, before, nd, line, offset))
-            if len(self.pending) >= LABEL_VOTES:
-                self.decide()
-            return
-        if label != self.expect(self.meaning, before, nd):
+    def feed(self, label: bytes, before: int, nd: int, line: int, offset: int) -> None:
+        want = self.meaning.expect(before, nd)
+        if want is None or self.syntax.value(label) != want:
             self.mismatch(label, before, nd, line, offset)
 
-    def decide(self) -> None:
-        def score(m: str) -> int:
-            return sum(lab == self.expect(m, b, n) for lab, b, n, _, _ in self.pending)
-
-        self.meaning = max(self.order, key=score)
-        pending, self.pending = self.pending, []
-        for item in pending:
-            self.feed(*item)
-
-    def mismatch(self, label: int, before: int, nd: int, line: int, offset: int) -> None:
-        assert self.meaning is not None
-        want = self.expect(self.meaning, before, nd)
-        msg = f"label {label} disagrees with the digits: {self.EXPLAIN[self.meaning]} is {want}"
+    def mismatch(self, label: bytes, before: int, nd: int, line: int, offset: int) -> None:
+        want = self.meaning.expect(before, nd)
+        text = label.decode("ascii")
+        if want is None:
+            n = before + nd if self.meaning.kind == "through" else before
+            msg = f"label {text} disagrees with the digits: {n} digits are not a whole number of bytes"
+            want = -1
+        else:
+            shown = str(want) if self.syntax.radix == 10 else format(want, "X")
+            msg = f"label {text} disagrees with the digits: {self.meaning.explain()} is {shown}"
         if self.strict:
             raise LabelError(f"{self.name}: labels that lie: line {line}: {msg}")
         self.mismatches += 1
         if self.mismatches <= MAX_FINDINGS:
             pos = before + 1 if nd else None
-            self.findings.append(Finding("label-mismatch", msg, line=line, byte_offset=offset, position=pos))
+            self.findings.append(
+                Finding(
+                    "label-mismatch",
+                    msg,
+                    line=line,
+                    byte_offset=offset,
+                    position=pos,
+                    expected=want,
+                    found=text,
+                )
+            )
 
     def no_label(self, line: int, offset: int, before: int) -> None:
         self.missing += 1
+        if self.strict:
+            raise LabelError(
+                f"{self.name}: line {line}: a digit line without a position label, unlike the lines around it"
+            )
         if self.missing <= MAX_FINDINGS:
             msg = "a digit line without a position label, unlike the lines around it"
             self.findings.append(
@@ -164,8 +151,6 @@ class _LabelCheck:
             )
 
     def finish(self) -> list[Finding]:
-        if self.meaning is None and self.pending:
-            self.decide()
         out = list(self.findings)
         if self.mismatches > MAX_FINDINGS:
             out.append(
@@ -180,18 +165,23 @@ class _LabelCheck:
         return out
 
 
-def scan_text(
-    src: ByteSource, plan: Plan, base: int, *, strict_labels: bool = False, progress: Progress | None = None
-) -> ScanResult:
+def build_index(
+    src: ByteSource,
+    plan: Detection,
+    base: int,
+    *,
+    strict_labels: bool = False,
+    progress: Progress | None = None,
+) -> IndexResult:
     """Run the pass from ``plan.seg_end`` to the end of the content."""
     total = src.size_bytes
     d1 = len(plan.seg_digits)
     tail = plan.seg_digits[-TAIL_DIGITS:]
-    res = ScanResult(
+    res = IndexResult(
         count=d1, regular=False, unit=None, unit_digits=0, unit_cols=[], region_start=plan.seg_end
     )
     name = os.path.basename(src.path)
-    if plan.labels is not None:
+    if plan.syntax is not None:
         return _scan_labelled(src, plan, base, res, tail, strict_labels, progress, total, name)
     off, pos = plan.seg_end, d1
     line = plan.first_line_no + (1 if plan.seg_end > plan.digits_offset else 0)
@@ -267,23 +257,25 @@ def scan_text(
 
 def _scan_labelled(
     src: ByteSource,
-    plan: Plan,
+    plan: Detection,
     base: int,
-    res: ScanResult,
+    res: IndexResult,
     tail: bytes,
     strict: bool,
     progress: Progress | None,
     total: int,
     name: str,
-) -> ScanResult:
-    check = _LabelCheck(plan.labels or "start", strict, name)
+) -> IndexResult:
+    syntax, meaning = plan.syntax, plan.meaning
+    assert syntax is not None and meaning is not None
+    check = _LabelCheck(meaning, syntax, strict, name)
     d1 = len(plan.seg_digits)
-    if plan.first_label is not None:
-        check.feed(plan.first_label, 0, d1, plan.first_line_no, plan.digits_offset)
+    if plan.first_label_text is not None:
+        check.feed(plan.first_label_text.encode(), 0, d1, plan.first_line_no, plan.digits_offset)
+    elif d1:
+        check.no_label(plan.first_line_no, plan.digits_offset, 0)
     allowed = allowed_set(base)
     digit_bytes = digit_set(base)
-    start = plan.labels == "start"
-    rx = LABEL_START if start else LABEL_END
     off, pos, line = plan.seg_end, d1, plan.first_line_no + 1
     last_index = -INDEX_STEP
     while True:
@@ -297,28 +289,24 @@ def _scan_labelled(
                     f"{name}: a labelled line at byte {off} is longer than {CHUNK_BYTES} bytes"
                 )
             data = data[:cut]
-        cleaned, found = split_labels(data, plan.labels or "start")
+        cleaned, found = syntax.split(data)
         if cleaned.translate(None, allowed):
-            _raise_labelled_stray(src, plan, base, data, off, rx, allowed)
-        fast = (
-            _labelled_chunk_fast(data, cleaned, found, off, pos, line, check.meaning, res)
-            if check.meaning
-            else None
-        )
+            _raise_labelled_stray(src, plan, base, data, off, syntax, allowed)
+        fast = _labelled_chunk_fast(data, cleaned, found, off, pos, line, meaning, syntax, res)
         if fast is not None:
             pos, line = fast
             last_index = res.index_off[-1] if res.index_off else last_index
         else:
-            lo, decided = 0, check.meaning
-            for text in data.split(b"\n"):
-                m = rx.match(text) if start else rx.search(text)
-                if m:
-                    body = text[m.end() :] if start else text[: m.start()]
-                else:
-                    body = text
+            lo = 0
+            pieces = data.split(b"\n")
+            if data.endswith(b"\n"):
+                pieces.pop()
+            for text in pieces:
+                label, b0, b1 = syntax.split_line(text[:-1] if text.endswith(b"\r") else text)
+                body = text[b0:b1]
                 nd = len(body) - len(body.translate(None, digit_bytes))
-                if m:
-                    check.feed(int(m.group(1)), pos, nd, line, off + lo)
+                if label is not None:
+                    check.feed(label, pos, nd, line, off + lo)
                 elif nd:
                     check.no_label(line, off + lo, pos)
                 if nd:
@@ -330,19 +318,14 @@ def _scan_labelled(
                     pos += nd
                 lo += len(text) + 1
                 line += 1
-                if decided is None and check.meaning is not None and lo < len(data):
-                    break  # the labels' meaning is known: the rest of the chunk can go fast
-            else:
+            if not data.endswith(b"\n"):
                 line -= 1  # the piece after the chunk's last line break is not a line
-            if lo < len(data):
-                data = data[:lo]
-                cleaned = strip_labels(data, plan.labels)
         tail = (tail + cleaned.translate(None, WS)[-TAIL_DIGITS:])[-TAIL_DIGITS:]
         off += len(data)
         if progress:
             progress(src.stored_bytes_done(off), total)
     res.findings = check.finish()
-    res.label_meaning = check.meaning
+    res.label_meaning = meaning.name
     res.count, res.last_digits, res.content_bytes = pos, tail, off
     return res
 
@@ -354,8 +337,9 @@ def _labelled_chunk_fast(
     off: int,
     pos: int,
     line: int,
-    meaning: str,
-    res: ScanResult,
+    meaning: LabelMeaning,
+    syntax: LabelSyntax,
+    res: IndexResult,
 ) -> tuple[int, int] | None:
     """Check a chunk whose every line carries a label, with list-level operations only.
 
@@ -371,13 +355,16 @@ def _labelled_chunk_fast(
     if len(found) != len(pieces) or len(raw) != len(pieces) or not pieces:
         return None
     ends = list(accumulate(map(len, pieces), initial=pos))
-    if meaning == "before":
-        expected = ends[:-1]
-    elif meaning == "first":
-        expected = [e + 1 for e in ends[:-1]]
+    unit = meaning.unit
+    if any(e % unit for e in ends):
+        return None
+    if meaning.kind == "before":
+        expected = [e // unit for e in ends[:-1]]
+    elif meaning.kind == "first":
+        expected = [e // unit + 1 for e in ends[:-1]]
     else:
-        expected = ends[1:]
-    if list(map(int, found)) != expected:
+        expected = [e // unit for e in ends[1:]]
+    if [int(f, syntax.radix) for f in found] != expected:
         return None
     n = len(pieces)
     step = max(1, n * INDEX_STEP // max(1, len(data)))
@@ -392,20 +379,15 @@ def _labelled_chunk_fast(
 
 
 def _raise_labelled_stray(
-    src: ByteSource, plan: Plan, base: int, data: bytes, off: int, rx: object, allowed: bytes
+    src: ByteSource, plan: Detection, base: int, data: bytes, off: int, syntax: LabelSyntax, allowed: bytes
 ) -> None:
     lo = 0
-    start = plan.labels == "start"
     for text in data.split(b"\n"):
-        m = rx.match(text) if start else rx.search(text)  # type: ignore[attr-defined]
-        b0, b1 = (m.end(), len(text)) if (m and start) else (0, m.start() if m else len(text))
+        _, b0, b1 = syntax.split_line(text[:-1] if text.endswith(b"\r") else text)
         body = text[b0:b1]
         bad = body.translate(None, allowed)
-        if not bad and m is None:
-            bad = b""
         if bad:
             at = lo + b0 + body.find(bad[:1])
             raise stray_error(src, plan, base, off + at, data[at])
-        # label text outside the body is valid by construction
         lo += len(text) + 1
     raise DigitFileError(f"{os.path.basename(src.path)}: unreadable labelled lines near byte {off}")

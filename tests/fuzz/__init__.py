@@ -1,0 +1,1 @@
+"""Writers and oracles for round-trip, mutation and fuzz tests of the digit-file reader."""

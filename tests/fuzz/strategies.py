@@ -1,0 +1,62 @@
+"""Hypothesis strategies over the layout model (every family the reader promises to read)."""
+
+from __future__ import annotations
+
+from hypothesis import assume
+from hypothesis import strategies as st
+
+from tests.fuzz.writer import HEADERS, Label, Spec
+
+MARK_SEPS = (":", ": ", " : ", "|", " | ", "\t|\t")
+BLANK_SEPS = (" ", "  ", "\t")
+
+
+@st.composite
+def labels(draw, base: int, width: int | None, lines: int, n: int) -> Label | None:
+    blank_ok = lines >= 8  # blank-separated labels are told from digits by their progression
+    where = draw(st.sampled_from(("start", "end")))
+    seps = MARK_SEPS + (BLANK_SEPS if blank_ok else ())
+    sep = draw(st.sampled_from(seps))
+    unit = 1
+    if base == 16 and width is not None and width % 2 == 0 and n % 2 == 0 and draw(st.booleans()):
+        unit = 2
+    return Label(
+        where=where,
+        radix=draw(st.sampled_from((10, 16))),
+        sep=sep,
+        kind=draw(st.sampled_from(("before", "first"))) if where == "start" else "through",
+        unit=unit,
+        pad=draw(st.sampled_from((0, 0, 6, 8))),
+    )
+
+
+@st.composite
+def specs(draw, max_digits: int = 700) -> Spec:
+    base = draw(st.sampled_from((10, 16)))
+    alphabet = "0123456789" if base == 10 else "0123456789ABCDEF"
+    n = draw(st.integers(1, max_digits))
+    digits = draw(st.text(alphabet, min_size=n, max_size=n))
+    if base == 16 and not any(c in "ABCDEF" for c in digits[:200]):
+        at = draw(st.integers(0, min(n, 200) - 1))
+        digits = digits[:at] + draw(st.sampled_from("ABCDEF")) + digits[at + 1 :]
+    width = draw(st.one_of(st.none(), st.integers(1, 120)))
+    lines = 1 if width is None else -(-n // width)
+    group = draw(st.one_of(st.none(), st.integers(1, 12)))
+    label = draw(st.one_of(st.none(), labels(base, width, lines, n)))
+    if label is not None and label.blank:
+        assume(width is None or width >= 2)
+    return Spec(
+        digits=digits,
+        base=base,
+        integer_part=draw(st.sampled_from((None, None, "3", "0", "12"))),
+        width=width,
+        group=group,
+        group_sep=draw(st.sampled_from((" ", " ", "\t", "  "))),
+        label=label,
+        header=tuple(draw(st.lists(st.sampled_from(HEADERS), max_size=3))),
+        newline=draw(st.sampled_from(("\n", "\r\n", "\r"))),
+        lower=base == 16 and draw(st.booleans()),
+        final_newline=draw(st.booleans()),
+        compression=draw(st.sampled_from((None, None, None, "gzip", "bzip2", "xz"))),
+        indent=draw(st.sampled_from(("", "", " "))),
+    )

@@ -1,0 +1,124 @@
+"""Write any digit string in any layout of the model, and know where every digit went.
+
+The writer is independent of the reader: it formats with plain string
+operations, and records for every character of ``integer part + "." + digits``
+the byte offset it was written at, which the mutation oracle needs.
+"""
+
+from __future__ import annotations
+
+import bz2
+import gzip
+import lzma
+from dataclasses import dataclass, field
+
+HEADERS = (
+    "# digits of a constant, computed 2026-12-02",
+    "Digits of the constant, 10000 of them (seed 42)",
+    "",
+    "# 3.14159 is not data",
+    "source: our own run #7, 2 cores",
+)
+
+
+@dataclass(frozen=True)
+class Label:
+    where: str  # "start" or "end"
+    radix: int  # 10 or 16
+    sep: str  # written between label and body: ": ", "|", " | ", " ", "\t", "  " ...
+    kind: str  # "before", "first", "through"
+    unit: int = 1  # 1: counts digits; 2: counts bytes of two hex digits
+    pad: int = 0  # right-align the label in this many characters
+
+    @property
+    def blank(self) -> bool:
+        return self.sep.strip(" \t") == ""
+
+    def text(self, before: int, nd: int) -> str:
+        n = before + nd if self.kind == "through" else before
+        v = n // self.unit + (1 if self.kind == "first" else 0)
+        s = format(v, "x") if self.radix == 16 else str(v)
+        return s.rjust(self.pad)
+
+
+@dataclass(frozen=True)
+class Spec:
+    digits: str
+    base: int
+    integer_part: str | None = None
+    width: int | None = None  # digits a line (None: one line)
+    group: int | None = None  # digits a group
+    group_sep: str = " "
+    label: Label | None = None
+    header: tuple[str, ...] = ()
+    newline: str = "\n"
+    lower: bool = False
+    final_newline: bool = True
+    compression: str | None = None
+    indent: str = ""
+
+
+@dataclass
+class Written:
+    content: bytes  # decompressed bytes
+    stored: bytes  # as on disk (compressed when asked)
+    offsets: list[int] = field(default_factory=list)
+    """Byte offset of each character of ``full`` (integer part, point, digits)."""
+    full: str = ""
+    label_spans: list[tuple[int, int]] = field(default_factory=list)
+
+
+def write(spec: Spec) -> Written:
+    digits = spec.digits.lower() if spec.lower else spec.digits
+    width = spec.width or max(1, len(digits))
+    lines = [digits[i : i + width] for i in range(0, len(digits), width)] or [""]
+    out: list[str] = []
+    offsets: list[int] = []
+    spans: list[tuple[int, int]] = []
+    pos = 0
+    for h in spec.header:
+        out.append(h + spec.newline)
+        pos += len(out[-1])
+    before = 0
+    full = ""
+    for n, line in enumerate(lines):
+        row = spec.indent
+        lab = spec.label.text(before, len(line)) if spec.label else ""
+        if spec.label and spec.label.where == "start":
+            spans.append((pos + len(row), pos + len(row) + len(lab)))
+            row += lab + spec.label.sep
+        if n == 0 and spec.integer_part is not None:
+            for c in spec.integer_part + ".":
+                offsets.append(pos + len(row))
+                full += c
+                row += c
+        g = spec.group or len(line) or 1
+        for k in range(0, len(line), g):
+            if k:
+                row += spec.group_sep
+            for c in line[k : k + g]:
+                offsets.append(pos + len(row))
+                full += c.upper()
+                row += c
+        if spec.label and spec.label.where == "end":
+            row += spec.label.sep
+            spans.append((pos + len(row), pos + len(row) + len(lab)))
+            row += lab
+        if n < len(lines) - 1 or spec.final_newline:
+            row += spec.newline
+        out.append(row)
+        pos += len(row)
+        before += len(line)
+    content = "".join(out).encode("ascii")
+    stored = content
+    if spec.compression == "gzip":
+        stored = gzip.compress(content, mtime=0)
+    elif spec.compression == "bzip2":
+        stored = bz2.compress(content)
+    elif spec.compression == "xz":
+        stored = lzma.compress(content)
+    return Written(content, stored, offsets, full, spans)
+
+
+def suffix(spec: Spec) -> str:
+    return {None: ".txt", "gzip": ".txt.gz", "bzip2": ".txt.bz2", "xz": ".txt.xz"}[spec.compression]

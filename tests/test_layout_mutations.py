@@ -1,0 +1,77 @@
+"""Mutated digit files: refused with the place named, or read with digits that differ only at the mutation.
+
+The oracle (tests/fuzz/oracle.py) knows from the writer where every character
+went; a reading that shifts or re-labels digits without a finding fails.
+"""
+
+from __future__ import annotations
+
+import random
+import tempfile
+
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from spotcheck.errors import SpotcheckError
+from tests.fuzz.mutate import Tally, compress, mutation, one_input
+from tests.fuzz.oracle import acceptable_mutation, place_named, read_back, widen
+from tests.fuzz.strategies import specs
+from tests.fuzz.writer import Label, Spec, write
+from tests.reference import pi_decimal, pi_hex
+
+
+def judge(spec: Spec, seed: int) -> None:
+    w = write(spec)
+    rng = random.Random(seed)
+    content, a, b, inserted, kind = mutation(rng, spec, w.content, w.label_spans)
+    lo = sum(1 for o in w.offsets if o < a)
+    hi = sum(1 for o in w.offsets if o < b)
+    lo, hi, inserted = widen(w, lo, hi, a, b, inserted, len(spec.label.sep) if spec.label else 0)
+    with tempfile.TemporaryDirectory() as d:
+        try:
+            got, findings = read_back(spec, compress(spec, content), d)
+        except SpotcheckError as exc:
+            assert place_named(exc), str(exc)
+            return
+    assert acceptable_mutation(w.full, got, findings, lo, hi, inserted), (kind, a, content[:200], got[:80])
+
+
+@settings(max_examples=200, deadline=None)
+@given(specs(max_digits=400), st.integers(0, 2**32))
+def test_mutated_file_is_refused_or_read_where_it_was_hit(spec: Spec, seed: int) -> None:
+    judge(spec, seed)
+
+
+def test_label_change_is_a_finding() -> None:
+    d = pi_decimal(1000)
+    spec = Spec(d, 10, None, width=50, group=10, label=Label("start", 10, " ", "first", pad=8))
+    w = write(spec)
+    s, e = w.label_spans[5]
+    content = w.content[: e - 1] + b"7" + w.content[e:]  # line 6's label 251 -> 257
+    with tempfile.TemporaryDirectory() as tmp:
+        got, findings = read_back(spec, content, tmp)
+    assert got == w.full  # the digits are read as written
+    assert [(f.kind, f.line, f.expected, f.found) for f in findings] == [("label-mismatch", 6, 251, "257")]
+
+
+def test_dropped_line_is_a_finding_at_the_next_line() -> None:
+    h = pi_hex(640)
+    spec = Spec(h, 16, None, width=32, group=8, label=Label("start", 16, "  ", "before", 2, 8))
+    w = write(spec)
+    rows = w.content.split(b"\n")
+    content = b"\n".join(rows[:3] + rows[4:])
+    with tempfile.TemporaryDirectory() as tmp:
+        got, findings = read_back(spec, content, tmp)
+    assert got == h[:96] + h[128:]
+    assert findings[0].kind == "label-mismatch" and findings[0].line == 4
+    assert (findings[0].expected, findings[0].found) == (0x30, "40")  # bytes before line 4 (hex label)
+
+
+def test_fuzz_sample() -> None:
+    """A few thousand fuzz inputs (benchmarks/fuzz_digitfile.py runs 10^5)."""
+    tally = Tally()
+    rng = random.Random(20261202)
+    with tempfile.TemporaryDirectory() as d:
+        for i in range(3000):
+            one_input(rng, tally, d, mutate=i % 2 == 1)
+    assert (tally.crashes, tally.hangs, tally.misreads, tally.unplaced) == (0, 0, 0, 0), tally.examples

@@ -1,0 +1,169 @@
+"""Layouts that were once misread, through the CLI: correct files pass, damaged ones are blamed at the right place.
+
+True digits of pi come from gmpy2/MPFR (tests/reference.py), never from spotcheck.
+Each damaged file changes one digit at a known position to another digit, so
+``locate`` must name exactly that position and ``verify`` must exit 1.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Callable
+from pathlib import Path
+
+import pytest
+
+from spotcheck.cli import run
+from tests.reference import pi_decimal, pi_hex
+
+DEC = pi_decimal(5000)
+HEX = pi_hex(4000)
+
+
+def chunks(d: str, w: int) -> list[str]:
+    return [d[i : i + w] for i in range(0, len(d), w)]
+
+
+def start_labels(d: str, *, hexlab: bool = False, width: int = 50) -> str:
+    """``      51 5820974944 5923078164 ...``: the first digit's position, right-aligned, blanks only."""
+    rows = []
+    for i, line in enumerate(chunks(d, width)):
+        lab = format(i * width + 1, "X") if hexlab else str(i * width + 1)
+        rows.append(f"{lab:>8} " + " ".join(chunks(line, 10)))
+    return "\n".join(rows) + "\n"
+
+
+def hex_dump(d: str, sep: str) -> str:
+    """``00000040  452821E6 ...``: a byte offset in hex, 16 bytes (32 hex digits) a line."""
+    return "".join(
+        f"{i * 16:08x}{sep}" + " ".join(chunks(line, 8)) + "\n" for i, line in enumerate(chunks(d, 32))
+    )
+
+
+def end_labels(d: str, width: int = 50) -> str:
+    """``58209749...0679 : 100``: ungrouped decimal lines with the count through the line."""
+    return "".join(f"{line} : {min((i + 1) * width, len(d))}\n" for i, line in enumerate(chunks(d, width)))
+
+
+def first_line_only(d: str) -> str:
+    return "1: " + "\n".join(chunks(d, 50)) + "\n"
+
+
+def first_line_different(d: str) -> str:
+    """The first line's label is set off by ':', the others by blanks only."""
+    rows = start_labels(d).split("\n")
+    rows[0] = "1: " + rows[0].lstrip()[2:]
+    return "\n".join(rows)
+
+
+def cr_only(d: str) -> str:
+    return "3." + "\r".join(chunks(d, 50)) + "\r"
+
+
+def long_number_before_label(d: str) -> str:
+    """A 5000-digit number where an end label could be: digits, never int()."""
+    return d + " : " + str(len(d)) + "\n"
+
+
+LAYOUTS: dict[str, tuple[Callable[[str], str], str]] = {
+    "start-blank-decimal": (start_labels, "dec"),
+    "start-blank-decimal-hex-digits": (start_labels, "hex"),
+    "start-blank-hex-labels": (lambda d: start_labels(d, hexlab=True), "hex"),
+    "hexdump-blanks": (lambda d: hex_dump(d, "  "), "hex"),
+    "hexdump-colon": (lambda d: hex_dump(d, ": "), "hex"),
+    "end-label-ungrouped": (end_labels, "dec"),
+    "first-line-only": (first_line_only, "dec"),
+    "first-line-different": (first_line_different, "dec"),
+    "cr-only": (cr_only, "dec"),
+    "long-number-then-label": (long_number_before_label, "dec"),
+}
+
+
+def damage(d: str, position: int) -> str:
+    c = d[position - 1]
+    return d[: position - 1] + ("1" if c != "1" else "2") + d[position:]
+
+
+def cli(capsys, *args: object) -> tuple[int, str, str]:
+    code = run([str(a) for a in args])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+@pytest.mark.parametrize("name", list(LAYOUTS))
+def test_correct_file_passes(name: str, tmp_path: Path, capsys) -> None:
+    make, which = LAYOUTS[name]
+    digits = DEC if which == "dec" else HEX
+    path = tmp_path / f"{name}.txt"
+    path.write_bytes(make(digits).encode())
+    code, out, err = cli(capsys, "inspect", path, "--json")
+    assert code == 0, err
+    info = json.loads(out)
+    assert info["count"] == len(digits) and info["constant"] == "pi"
+    assert info["findings"] == []
+    code, _, err = cli(capsys, "verify", path, "--samples", "3", "--seed", "7")
+    assert code == 0, err
+    code, out, err = cli(capsys, "locate", path, "--json")
+    assert code == 0, err
+    assert json.loads(out)["first_mismatch"] is None
+
+
+@pytest.mark.parametrize("position", [1, 85, 2345])
+@pytest.mark.parametrize("name", list(LAYOUTS))
+def test_damaged_file_is_blamed_at_the_damage(name: str, position: int, tmp_path: Path, capsys) -> None:
+    make, which = LAYOUTS[name]
+    digits = DEC if which == "dec" else HEX
+    path = tmp_path / f"{name}-{position}.txt"
+    path.write_bytes(make(damage(digits, position)).encode())
+    code, out, err = cli(capsys, "locate", path, "--json")
+    assert code == 1, err
+    payload = json.loads(out)
+    assert payload["first_mismatch"] == position
+    code, out, err = cli(capsys, "verify", path, "--samples", "2", "--seed", "3", "--at", position)
+    assert code == 1, err
+
+
+@pytest.mark.parametrize("line", [1, 2, 3, 4])
+def test_stray_character_in_the_first_lines_is_named(line: int, tmp_path: Path, capsys) -> None:
+    rows = chunks(DEC[:3000], 50)
+    rows[line - 1] = rows[line - 1][:34] + "x" + rows[line - 1][35:]
+    text = "3." + "\n".join(rows) + "\n"
+    path = tmp_path / "stray.txt"
+    path.write_text(text)
+    code, _, err = cli(capsys, "locate", path)
+    assert code == 2
+    at = text.index("x")
+    assert f"at byte {at} (line {line}, column" in err and "'x'" in err
+    assert err.count("\n") == 1 and err.startswith("error:")
+
+
+def test_first_digit_wrong_is_a_mismatch_not_an_input_error(tmp_path: Path, capsys) -> None:
+    path = tmp_path / "first.txt"
+    path.write_text("3." + damage(HEX, 1) + "\n")
+    code, out, err = cli(capsys, "verify", path, "--samples", "2", "--seed", "1")
+    assert code == 1, err
+    assert out.startswith("MISMATCH")
+    code, out, err = cli(capsys, "verify", path, "--samples", "2", "--seed", "1", "--json")
+    assert code == 1, err
+    wrong = [c for c in json.loads(out)["checks"] if not c["match"]]
+    assert [(c["kind"], c["position"] + c["first_difference"] - 1) for c in wrong] == [("head", 1)]
+    code, out, err = cli(capsys, "locate", path, "--json")
+    assert code == 1 and json.loads(out)["first_mismatch"] == 1
+    code, out, _ = cli(capsys, "inspect", path, "--json")
+    assert code == 0
+    assert "63 of the first 64 digits agree" in json.loads(out)["constant_how"]
+
+
+def test_ambiguous_first_column_is_refused_and_the_option_picks(tmp_path: Path, capsys) -> None:
+    # Three lines: the first column could be labels (1, 11, 21: two agreeing steps, a 1 in 10^4
+    # chance for digits) or digits.  Pi's digits from gmpy2/MPFR.
+    path = tmp_path / "short.txt"
+    path.write_text(f"1 {DEC[:10]}\n11 {DEC[10:20]}\n21 {DEC[20:30]}\n")
+    code, _, err = cli(capsys, "inspect", path)
+    assert code == 2 and "ambiguous" in err and "--labels start|end|none" in err
+    code, out, err = cli(capsys, "inspect", path, "--labels", "start", "--json")
+    assert code == 0, err
+    assert json.loads(out)["count"] == 30 and json.loads(out)["constant"] == "pi"
+    code, out, err = cli(capsys, "inspect", path, "--labels", "none", "--constant", "pi", "--json")
+    assert code == 0, err
+    assert json.loads(out)["count"] == 35

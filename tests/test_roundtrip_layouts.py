@@ -1,0 +1,79 @@
+"""Round trips: any digit string written in any layout of the model reads back exactly.
+
+The writer (tests/fuzz/writer.py) formats with plain string operations and is
+independent of the reader.  Example digits are pi from gmpy2/MPFR
+(tests/reference.py); the property draws arbitrary digit strings.
+"""
+
+from __future__ import annotations
+
+import tempfile
+
+from hypothesis import HealthCheck, example, given, settings
+
+from tests.fuzz.oracle import round_trip
+from tests.fuzz.strategies import specs
+from tests.fuzz.writer import HEADERS, Label, Spec, write
+from tests.reference import pi_decimal, pi_hex
+
+H = pi_hex(1200)
+D = pi_decimal(1200)
+
+EXAMPLES = {
+    "one line": Spec(H, 16, "3"),
+    "fixed width": Spec(D, 10, "3", width=64),
+    "groups of k": Spec(H, 16, None, width=60, group=10),
+    "start ':' 1-based digits": Spec(
+        D, 10, None, width=50, group=10, label=Label("start", 10, ": ", "first", pad=8)
+    ),
+    "start '|' 0-based": Spec(H, 16, None, width=64, label=Label("start", 10, " | ", "before")),
+    "start space": Spec(D, 10, None, width=50, group=10, label=Label("start", 10, " ", "first", pad=8)),
+    "start tab": Spec(D, 10, "3", width=50, label=Label("start", 10, "\t", "before")),
+    "start hex byte offsets": Spec(
+        H, 16, None, width=32, group=8, label=Label("start", 16, "  ", "before", 2, 8)
+    ),
+    "start hex byte offsets ':'": Spec(
+        H, 16, None, width=32, group=8, label=Label("start", 16, ": ", "before", 2, 8)
+    ),
+    "start decimal byte offsets 1-based": Spec(
+        H, 16, None, width=40, label=Label("start", 10, ": ", "first", 2)
+    ),
+    "end labels grouped": Spec(D, 10, "3", width=50, group=10, label=Label("end", 10, " : ", "through")),
+    "end labels ungrouped": Spec(D, 10, None, width=50, label=Label("end", 10, " : ", "through")),
+    "end labels blank": Spec(D, 10, None, width=50, group=5, label=Label("end", 10, "  ", "through")),
+    "header with numbers": Spec(H, 16, "3", width=64, header=HEADERS[1:2] + HEADERS[4:5]),
+    "comments": Spec(D, 10, "3", width=64, header=(HEADERS[0], "", HEADERS[3])),
+    "CRLF": Spec(D, 10, "3", width=50, group=10, newline="\r\n", label=Label("start", 10, ": ", "first")),
+    "CR": Spec(H, 16, "3", width=64, group=16, newline="\r"),
+    "lower case": Spec(H, 16, "3", width=64, group=8, lower=True),
+    "gzip": Spec(H, 16, "3", width=64, compression="gzip"),
+    "bzip2": Spec(D, 10, None, width=50, compression="bzip2", label=Label("end", 10, ":", "through")),
+    "xz": Spec(H, 16, None, width=32, compression="xz", label=Label("start", 16, " ", "before", 2, 8)),
+    "no final newline": Spec(D, 10, "3", width=70, final_newline=False),
+    "tabs between groups": Spec(H, 16, "3", width=40, group=10, group_sep="\t"),
+}
+
+
+def check(spec: Spec) -> None:
+    w = write(spec)
+    with tempfile.TemporaryDirectory() as d:
+        got, findings = round_trip(spec, w, d)
+    assert findings == [], findings
+    assert got == w.full, (w.content[:300], got[:80], w.full[:80])
+
+
+def _apply_examples(f):
+    for spec in EXAMPLES.values():
+        f = example(spec)(f)
+    return f
+
+
+@_apply_examples
+@settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(specs())
+def test_round_trip(spec: Spec) -> None:
+    check(spec)
+
+
+def test_examples_cover_the_families() -> None:
+    assert len(EXAMPLES) >= 12
