@@ -166,7 +166,7 @@ def digits(
             info_line(estimate_line(est, key))
         if not est.feasible:
             raise UsageError(infeasible_line(_refusal(const.name, est), est.hint))
-    for key, path in paths.items():
+    for path in paths.values():
         if path is not None and talk:
             info_line(f"checkpoint: {path}")
     bar = TermProgress(f"{const.name} head sum", enabled=talk)

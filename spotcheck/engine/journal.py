@@ -252,9 +252,11 @@ class Journal:
                 os.ftruncate(self._fd, valid_length)  # cut a torn last line
         except OSError as exc:
             self._fd = None
-            raise CheckpointError(
-                f"checkpoint {self.path} cannot be written: {exc.strerror or exc}"
-            ) from None
+            why = exc.strerror or str(exc)
+            blocker = next((p for p in self.path.parents if p.exists() and not p.is_dir()), None)
+            if blocker is not None:
+                why = f"{blocker} is not a folder"
+            raise CheckpointError(f"checkpoint {self.path} cannot be written: {why}") from None
 
     def _append(self, text: str) -> None:
         if self._fd is None:
