@@ -455,6 +455,9 @@ class Child:
         for line in self.proc.stdout:
             self.lines.append(line.split())
 
+    def reports(self) -> int:
+        return sum(1 for fields in list(self.lines) if fields[0] == "done")
+
     def reported(self) -> dict[tuple[int, int], int]:
         """Blocks done per section, as the child last reported them."""
         out: dict[tuple[int, int], int] = {}
@@ -480,8 +483,7 @@ def kill_and_check(path: Path, child: Child, wait_reports: int, rng: random.Rand
     Returns True if the child finished before it could be killed.
     """
     deadline = time.monotonic() + 120
-    start = sum(child.reported().values())
-    while sum(child.reported().values()) < start + wait_reports and child.proc.poll() is None:
+    while child.reports() < wait_reports and child.proc.poll() is None:
         assert time.monotonic() < deadline
         time.sleep(0.001)
     time.sleep(rng.uniform(0, 0.01))  # a random moment inside a block
@@ -504,8 +506,10 @@ def kill_and_check(path: Path, child: Child, wait_reports: int, rng: random.Rand
 
 
 def kill_campaign(
-    path: Path, position: int, formula: str, block_k: int, kills: int, delay: float
+    path: Path, position: int, formula: str, block_k: int, kills: int, delay: float, spread: int
 ) -> tuple[int, list[str]]:
+    """Run, kill at random moments (``spread`` blocks apart on average), resume; return the kills
+    and the final run's last line."""
     rng = random.Random(20_071_997)
     done_kills = 0
     LEVELS.clear()
@@ -523,7 +527,7 @@ def kill_campaign(
             assert code == 0, err
             last = next(f for f in reversed(child.lines) if f[0] == "digits")
             return done_kills, last
-        if kill_and_check(path, child, rng.randint(0, 8), rng):
+        if kill_and_check(path, child, rng.randint(0, 2 * spread), rng):
             last = next(f for f in reversed(child.lines) if f[0] == "digits")
             return done_kills, last
         done_kills += 1
@@ -532,7 +536,7 @@ def kill_campaign(
 def test_sigkill_loses_at_most_the_block_in_flight(tmp_path: Path) -> None:
     # A short run on either backend (slowed to about 20 ms a block), killed 6 times.
     path = tmp_path / "cp.journal"
-    kills, last = kill_campaign(path, POSITION, "bellard", BLOCK_K, kills=6, delay=0.02)
+    kills, last = kill_campaign(path, POSITION, "bellard", BLOCK_K, kills=6, delay=0.02, spread=6)
     assert kills == 6
     assert last[1] == EXPECTED
     assert int(last[2]) > 0  # the final run resumed blocks of the killed ones
@@ -546,7 +550,7 @@ def test_sigkill_campaign_gives_the_1997_table_digits(tmp_path: Path) -> None:
     # position 10^7 -> 17AF5863EFED8D).
     path = tmp_path / "cp.journal"
     rng_kills = 24
-    kills, last = kill_campaign(path, 10**7, "bbp", 1 << 15, kills=rng_kills, delay=0.0)
+    kills, last = kill_campaign(path, 10**7, "bbp", 1 << 15, kills=rng_kills, delay=0.0, spread=12)
     assert kills >= 20
     assert len(set(LEVELS)) >= 15  # the kills fell all along the run, not in one place
     assert last[1] == "17AF5863EFED8D"
