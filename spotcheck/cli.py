@@ -83,7 +83,7 @@ def digits(
     formula: Annotated[
         str | None, typer.Option("--formula", help="Formula key (default: the fastest).")
     ] = None,
-    cross_check: Annotated[
+    cross_check_: Annotated[
         bool,
         typer.Option("--cross-check", help="Evaluate every formula of the constant; exit 1 if any disagree."),
     ] = False,
@@ -110,16 +110,33 @@ def digits(
     quiet: QuietOpt = False,
 ) -> None:
     """Print certified hexadecimal digits of CONSTANT from position --at."""
-    from spotcheck.engine.api import check_request, default_checkpoint_path, extract
+    import signal
+    import threading
+
+    from spotcheck.engine.api import (
+        check_request,
+        cross_check,
+        default_checkpoint_path,
+        estimate_cost,
+        extract,
+    )
+    from spotcheck.errors import UsageError
     from spotcheck.formulas import get_constant
-    from spotcheck.report.console import block_progress_bar, info_line
-    from spotcheck.report.digits import show_digits
+    from spotcheck.report.console import info_line, warning_line
+    from spotcheck.report.digits import (
+        ESTIMATE_SHOWN_SECONDS,
+        TermProgress,
+        estimate_line,
+        infeasible_line,
+        interrupted_line,
+        show_digits,
+    )
 
     _load_formula_files(formula_file)
     check_request(at, count)
     const = get_constant(constant)
-    keys = [f.key for f in const.formulas] if cross_check else [const.formula(formula).key]
-    if cross_check and len(keys) < 2:
+    keys = [f.key for f in const.formulas] if cross_check_ else [const.formula(formula).key]
+    if cross_check_ and len(keys) < 2:
         raise typer.BadParameter(
             f"{const.name} has only one formula; nothing to cross-check", param_hint="--cross-check"
         )
@@ -128,39 +145,86 @@ def digits(
             "one checkpoint file serves one formula; use --checkpoint auto with --cross-check",
             param_hint="--checkpoint",
         )
-    results = []
+    talk = not (quiet or as_json)
+    n_workers = _workers(workers)
+    paths: dict[str, Path | None] = {}
+    estimates = {}
     for key in keys:
         path: Path | None = None
         if checkpoint == "auto":
             path = default_checkpoint_path(const.name, at, count, formula=key)
         elif checkpoint is not None:
             path = Path(checkpoint)
-        if path is not None and not (quiet or as_json):
+        paths[key] = path
+        est = estimate_cost(
+            const.name,
+            at,
+            count,
+            formula=key,
+            workers=n_workers,
+            cluster=cluster is not None,
+            checkpoint=path is not None,
+        )
+        estimates[key] = est
+        if talk and (est.cpu_seconds >= ESTIMATE_SHOWN_SECONDS or not est.feasible):
+            info_line(estimate_line(est, key))
+        if not est.feasible:
+            raise UsageError(infeasible_line(_refusal(const.name, est), est.hint))
+    for path in paths.values():
+        if path is not None and talk:
             info_line(f"checkpoint: {path}")
-        try:
-            with block_progress_bar(f"{const.name} [{key}] head sum", enabled=not (quiet or as_json)) as cb:
-                results.append(
-                    extract(
-                        const.name,
-                        at,
-                        count,
-                        formula=key,
-                        workers=_workers(workers),
-                        checkpoint=path,
-                        cluster=cluster,
-                        block_progress=cb,
-                    )
-                )
-        except KeyboardInterrupt:
-            if path is not None:
-                info_line(f"finished blocks are kept in {path}; run the same command to resume")
-            raise
-    main_result = results[0]
-    if formula is not None:
-        main_result = next(r for r in results if r.formula == const.formula(formula).key)
-    show_digits(main_result, results if cross_check else None, as_json=as_json, quiet=quiet)
-    if cross_check and any(r.digits != main_result.digits for r in results):
-        raise typer.Exit(EXIT_MISMATCH)
+    bar = TermProgress(f"{const.name} head sum", enabled=talk)
+    current: dict[str, str | None] = {"checkpoint": None}
+
+    def per_formula(key: str) -> dict[str, Any]:
+        current["checkpoint"] = str(paths[key]) if paths[key] is not None else None
+        return {"checkpoint": paths[key], "block_progress": bar, "estimate": estimates[key]}
+
+    def on_term(signum: int, frame: Any) -> None:
+        raise KeyboardInterrupt
+
+    previous = None
+    if threading.current_thread() is threading.main_thread():
+        previous = signal.signal(signal.SIGTERM, on_term)
+    options: dict[str, Any] = {"workers": n_workers, "cluster": cluster}
+    try:
+        if cross_check_:
+            checked = cross_check(const.name, at, count, formula=formula, each=per_formula, **options)
+            main_result, results = checked.main, list(checked.results)
+            code = checked.exit_code
+        else:
+            main_result = extract(const.name, at, count, formula=keys[0], **options, **per_formula(keys[0]))
+            results, code = [main_result], EXIT_OK
+    except KeyboardInterrupt:
+        bar.close()
+        info_line(interrupted_line(bar.last, current["checkpoint"]))
+        raise typer.Exit(130) from None
+    finally:
+        bar.close()
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
+    for r in results:
+        for w in r.warnings:
+            warning_line(w)
+    show_digits(
+        main_result,
+        results if cross_check_ else None,
+        as_json=as_json,
+        quiet=quiet,
+        estimate=estimates[main_result.formula],
+    )
+    if code:
+        raise typer.Exit(code)
+
+
+def _refusal(name: str, est: Any) -> str:
+    from spotcheck.engine.api import refuse_if_infeasible
+
+    try:
+        refuse_if_infeasible(est, name)
+    except SpotcheckError as exc:
+        return str(exc)
+    return ""
 
 
 @app.command()

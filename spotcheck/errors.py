@@ -42,3 +42,22 @@ class CertificationError(SpotcheckError, RuntimeError):
 
 class CheckpointError(SpotcheckError, ValueError):
     """A checkpoint file that belongs to another request or is damaged; it is never used."""
+
+
+class InfeasibleError(UsageError):
+    """A request that cannot finish: its estimated cost is far beyond what can be run.
+
+    ``estimate`` is the engine's cost estimate (a
+    :class:`spotcheck.engine.plan.CostEstimate`); ``hint`` names what would
+    make it feasible (``"cluster"``), or is ``None`` when nothing would.  The
+    message names no command-line option; the CLI adds that wording.
+    """
+
+    def __init__(self, message: str, estimate: object, hint: str | None = None) -> None:
+        super().__init__(message)
+        self.estimate = estimate
+        self.hint = hint
+
+
+class ClusterError(UsageError):
+    """A cluster (Dask scheduler) that cannot be reached or used."""

@@ -13,20 +13,20 @@ from pathlib import Path
 from typing import Any
 
 from spotcheck.engine import backend
-from spotcheck.engine.blocks import (
-    BlockPlan,
-    BlockProgress,
-    Checkpoint,
-    default_checkpoint_dir,
-    series_fingerprint,
-)
-from spotcheck.engine.evaluate import Progress, extract_hex, value_bounds
+from spotcheck.engine.blocks import BlockProgress, series_fingerprint, thread_runner
+from spotcheck.engine.evaluate import extract_hex, value_bounds
+from spotcheck.engine.journal import Journal, default_checkpoint_dir
+from spotcheck.engine.plan import CostEstimate, RunPlan, estimate_series_cost
 from spotcheck.engine.series import series_of
-from spotcheck.errors import CertificationError, UsageError
+from spotcheck.errors import CertificationError, InfeasibleError, UsageError
 from spotcheck.formulas import Formula, get_constant
 
 __all__ = [
+    "CostEstimate",
+    "CrossCheck",
     "DigitResult",
+    "cross_check",
+    "estimate_cost",
     "extract",
     "hex_digits",
     "leading_digits",
@@ -40,6 +40,9 @@ __all__ = [
 # of about 100 digits costs a full head sum, so larger counts belong to a full
 # computation, not to digit extraction.
 MAX_COUNT = 100_000
+# Requests with more head terms than this are costed (a calibration of a few
+# milliseconds) before they start, and refused if they cannot finish.
+COST_CHECK_TERMS = 10**10
 
 
 @dataclass(frozen=True)
@@ -60,14 +63,28 @@ class DigitResult:
     windows: int
     seconds: float
     backend: str
+    terms_loaded: int = 0
+    """Of ``terms``, those whose blocks came from the checkpoint, not computed in this run."""
+    blocks_loaded: int = 0
+    blocks_computed: int = 0
+    checkpoint: str | None = None
+    """The checkpoint file used, if any."""
+    warnings: tuple[str, ...] = ()
+    """Problems that did not stop the run (a checkpoint that could not be written...)."""
 
     @property
     def count(self) -> int:
         return len(self.digits)
 
+    @property
+    def terms_computed(self) -> int:
+        return self.terms - self.terms_loaded
+
     def to_dict(self) -> dict[str, Any]:
         out = asdict(self)
         out["count"] = self.count
+        out["terms_computed"] = self.terms_computed
+        out["warnings"] = list(self.warnings)
         return out
 
 
@@ -123,6 +140,64 @@ def default_checkpoint_path(
     return default_checkpoint_dir() / f"{safe}-at{p}-n{n}-{tag}.json"
 
 
+def _check_block_k(block_k: object) -> int | None:
+    if block_k is None:
+        return None
+    if isinstance(block_k, bool) or not isinstance(block_k, int) or block_k < 1:
+        raise UsageError(f"block size must be a positive integer, got {block_k!r}")
+    return block_k
+
+
+def estimate_cost(
+    constant: str | Formula,
+    position: int,
+    count: int = 16,
+    *,
+    formula: str | None = None,
+    workers: int = 1,
+    cluster: bool = False,
+    checkpoint: bool = False,
+    block_k: int | None = None,
+) -> CostEstimate:
+    """What :func:`extract` with the same arguments will cost, from a short calibration.
+
+    CPU seconds, wall seconds on ``workers``, memory, the path (compiled
+    kernel, or the twin past the kernel's limit for this formula, and why),
+    the number of blocks, and whether it can finish at all (``feasible``;
+    ``hint`` says what would make it so).  Takes a few milliseconds.
+    """
+    p, n = check_request(position, count)
+    _, f = resolve_formula(constant, formula)
+    return estimate_series_cost(
+        series_of(f),
+        p,
+        n,
+        workers=workers,
+        cluster=bool(cluster),
+        block_k=_check_block_k(block_k),
+        deep=bool(checkpoint) or bool(cluster),
+    )
+
+
+def _years(seconds: float) -> str:
+    years = seconds / (365.25 * 86400)
+    return f"{years:.3g} core-years" if years >= 1 else f"{seconds / 86400:.3g} core-days"
+
+
+def refuse_if_infeasible(estimate: CostEstimate, name: str) -> None:
+    """Raise :class:`InfeasibleError` (with the estimate) when ``estimate`` cannot finish."""
+    if estimate.feasible:
+        return
+    why = f"; {estimate.why}" if estimate.why else ""
+    raise InfeasibleError(
+        f"position {estimate.position:,} of {name} is out of reach: about "
+        f"{_years(estimate.cpu_seconds)} of CPU time on the {estimate.path} path{why} "
+        f"(the limit is {_years(estimate.limit_seconds)})",
+        estimate,
+        estimate.hint,
+    )
+
+
 def extract(
     constant: str | Formula,
     position: int,
@@ -130,23 +205,29 @@ def extract(
     *,
     formula: str | None = None,
     workers: int = 1,
-    progress: Progress | None = None,
     checkpoint: str | os.PathLike[str] | bool | None = None,
     cluster: Any = None,
     block_k: int | None = None,
     block_progress: Callable[[BlockProgress], None] | None = None,
+    estimate: CostEstimate | None = None,
 ) -> DigitResult:
     """Certified hex digits of ``constant`` from ``position`` (1 = first after the point).
 
     For deep positions: ``checkpoint`` (a path, or ``True`` for
-    :func:`default_checkpoint_path`) keeps finished head-sum blocks so an
-    interrupted run resumes where it stopped; ``cluster`` (a Dask scheduler
-    address such as ``"tcp://host:8786"`` or a ``distributed.Client``) runs
-    the blocks on a Dask cluster; ``block_k`` overrides the block size (values
-    of k per block); ``block_progress`` is called after every block with a
-    :class:`~spotcheck.engine.blocks.BlockProgress` (done, total, rate, ETA).
-    With any of these the head sum is cut into the larger blocks of
-    :func:`~spotcheck.engine.blocks.deep_block_k`.
+    :func:`default_checkpoint_path`) journals finished head-sum blocks so an
+    interrupted run resumes where it stopped (a file that cannot be created
+    raises :class:`~spotcheck.errors.CheckpointError` before any work; one
+    that fails later becomes a warning in the result); ``cluster`` (a Dask
+    scheduler address such as ``"tcp://host:8786"`` or a
+    ``distributed.Client``) runs the blocks on a Dask cluster; with either,
+    the head sum is cut into the larger blocks of
+    :func:`~spotcheck.engine.blocks.deep_block_k`.  ``block_k`` overrides the
+    block size (values of k per block); ``block_progress`` is called after
+    every block with a :class:`~spotcheck.engine.blocks.BlockProgress`
+    (terms done and to do, loaded blocks apart, rate, ETA) and never changes
+    the block size.  A request too large to finish raises
+    :class:`~spotcheck.errors.InfeasibleError` carrying its
+    :class:`CostEstimate` (``estimate``, if given, is used for that decision).
 
     >>> extract("pi", 1, 8).digits
     '243F6A88'
@@ -154,27 +235,47 @@ def extract(
     p, n = check_request(position, count)
     name, f = resolve_formula(constant, formula)
     series = series_of(f)
-    if block_k is not None and (isinstance(block_k, bool) or not isinstance(block_k, int) or block_k < 1):
-        raise UsageError(f"block size must be a positive integer, got {block_k!r}")
-    plan: BlockPlan | None = None
+    block_k = _check_block_k(block_k)
+    deep = checkpoint not in (None, False) or cluster is not None
+    if estimate is None and series.head_length(4 * (p + n)) * len(series.js) > COST_CHECK_TERMS:
+        estimate = estimate_series_cost(
+            series, p, n, workers=workers, cluster=cluster is not None, block_k=block_k, deep=deep
+        )
+    if estimate is not None:
+        refuse_if_infeasible(estimate, name)
+    plan = RunPlan(series, p, n, thread_runner(workers), block_k=block_k, on_block=block_progress, deep=deep)
+    path: Path | None = None
+    if checkpoint is True:
+        path = default_checkpoint_path(constant, p, n, formula=formula)
+    elif checkpoint not in (None, False):
+        assert not isinstance(checkpoint, bool)
+        path = Path(checkpoint)
+    if path is not None:
+        plan.journal = Journal(path, series, checkpoint_request(name, f, p, n))
     client, owned = None, False
-    if checkpoint not in (None, False) or cluster is not None or block_k is not None or block_progress:
-        plan = BlockPlan(block_k=block_k, on_block=block_progress)
-        if checkpoint is True:
-            checkpoint = default_checkpoint_path(constant, p, n, formula=formula)
-        if checkpoint not in (None, False):
-            assert not isinstance(checkpoint, bool)
-            plan.checkpoint = Checkpoint(checkpoint, series, checkpoint_request(name, f, p, n))
+    finished = False
+    try:
         if cluster is not None:
             from spotcheck.engine.cluster import connect, dask_runner
 
             client, owned = connect(cluster)
             plan.runner = dask_runner(client)
-    try:
-        digits, intervals, seconds = extract_hex(series, p, n, workers=workers, progress=progress, plan=plan)
+        digits, intervals, seconds = extract_hex(series, p, n, plan)
+        finished = True
     finally:
+        if plan.journal is not None:
+            plan.journal.close(compact=finished)
         if owned and client is not None:
             client.close()
+    warnings: list[str] = []
+    if plan.journal is not None:
+        if plan.journal.damaged:
+            warnings.append(
+                f"{plan.journal.damaged} damaged record(s) in the checkpoint {path} were skipped "
+                "and their blocks computed again"
+            )
+        if plan.journal.failure:
+            warnings.append(f"{plan.journal.failure}; the run went on without it")
     widest = max(intervals, key=lambda iv: iv.width_log2)
     return DigitResult(
         constant=name,
@@ -189,7 +290,64 @@ def extract(
         windows=len(intervals),
         seconds=seconds,
         backend=backend.BACKEND,
+        terms_loaded=sum(iv.terms_loaded for iv in intervals),
+        blocks_loaded=sum(iv.blocks_loaded for iv in intervals),
+        blocks_computed=sum(iv.blocks_computed for iv in intervals),
+        checkpoint=str(path) if path is not None else None,
+        warnings=tuple(warnings),
     )
+
+
+@dataclass(frozen=True)
+class CrossCheck:
+    """Every formula of one constant evaluated at the same digits."""
+
+    results: tuple[DigitResult, ...]
+    main: DigitResult
+    """The result of the formula asked for (or the default one)."""
+
+    @property
+    def agree(self) -> bool:
+        return all(r.digits == self.main.digits for r in self.results)
+
+    @property
+    def exit_code(self) -> int:
+        return 0 if self.agree else 1
+
+    def to_dict(self) -> dict[str, Any]:
+        out = self.main.to_dict()
+        out["cross_check"] = {"agree": self.agree, "formulas": {r.formula: r.digits for r in self.results}}
+        return out
+
+
+def cross_check(
+    constant: str,
+    position: int,
+    count: int = 16,
+    *,
+    formula: str | None = None,
+    each: Callable[[str], dict[str, Any]] | None = None,
+    **kwargs: Any,
+) -> CrossCheck:
+    """Evaluate every formula of ``constant`` at the same digits; ``agree`` if all give the same.
+
+    ``formula`` picks the main result (default: the constant's default
+    formula); ``kwargs`` go to :func:`extract` for each formula, and
+    ``each(formula_key)`` may add per-formula keyword arguments (a checkpoint
+    path, a progress callback).  Raises :class:`UsageError` for a constant
+    with one formula.
+    """
+    const = get_constant(constant)
+    keys = [fm.key for fm in const.formulas]
+    if len(keys) < 2:
+        raise UsageError(f"{const.name} has only one formula; nothing to cross-check")
+    main_key = const.formula(formula).key
+    results = []
+    for key in keys:
+        extra = each(key) if each else {}
+        results.append(extract(const.name, position, count, formula=key, **kwargs, **extra))
+    main = next(r for r in results if r.formula == main_key)
+    return CrossCheck(tuple(results), main)
 
 
 def fast_path_position(formula: Formula) -> int:

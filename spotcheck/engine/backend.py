@@ -10,30 +10,41 @@ prints one error line and exits 2) instead of silently running another.
 and names the path in use and the paths offered, for ``spotcheck --version``
 and the pytest header.
 
-The compiled kernel only accepts machine-sized arguments; ``kernel_k_limit``
-gives the first k from which a series' moduli leave its range, and the engine
-sends those terms to the twin.
+The compiled kernel only accepts machine-sized arguments.  Its limits are
+read from the extension itself (``MAX_MODULUS``, ``MAX_EXPONENT``,
+``MAX_COEFFICIENT``, ``MAX_WORDS``), and :func:`kernel_split` is the one place
+that decides which terms of a head sum go to the kernel and which to the twin
+(:func:`head_block` sums a block that way).
 """
 
 from __future__ import annotations
 
+import functools
 import os
 from collections.abc import Callable, Sequence
+from dataclasses import dataclass
 
 from spotcheck.engine.head_py import head_sum_py
 from spotcheck.engine.series import Series
 
-__all__ = ["BACKEND", "BACKEND_NOTE", "head_sum", "head_sum_py", "kernel_k_limit", "KERNEL_MAX_WORDS"]
+__all__ = [
+    "BACKEND",
+    "BACKEND_NOTE",
+    "KERNEL_MAX_MODULUS",
+    "KERNEL_MAX_EXPONENT",
+    "KERNEL_MAX_COEFFICIENT",
+    "KERNEL_MAX_WORDS",
+    "Split",
+    "head_block",
+    "head_sum",
+    "head_sum_py",
+    "kernel_k_limit",
+    "kernel_split",
+]
 
 HeadSum = Callable[
     [int, int, int, int, int, int, int, bool, Sequence[int], Sequence[int], int], tuple[int, int]
 ]
-
-# Limits of the compiled kernel's integer arithmetic (see _kernel.c).
-KERNEL_MAX_MODULUS = 1 << 63  # every N = q (m k + j)^s must be below this
-KERNEL_MAX_EXPONENT = (1 << 64) - 1  # D - e k must fit in an unsigned 64-bit word
-KERNEL_MAX_COEFFICIENT = 1 << 62  # |c_j| below this
-KERNEL_MAX_WORDS = 16  # at most 64 * 16 fractional bits
 
 _PURE_ENV = "SPOTCHECK_PURE"
 _KERNEL_ENV = "SPOTCHECK_KERNEL"  # forces one path of the compiled kernel (_kernel.paths())
@@ -79,13 +90,27 @@ else:
 head_sum = _kernel_head_sum if _kernel_head_sum is not None else head_sum_py
 
 
+# The compiled kernel's limits, as the extension states them (0 when it was
+# not built: then nothing goes to it).  Every modulus N < MAX_MODULUS,
+# exponent D - e k <= MAX_EXPONENT, |c_j| < MAX_COEFFICIENT, words <= MAX_WORDS.
+try:
+    from spotcheck.engine import _kernel as _extension  # type: ignore[attr-defined]
+except ImportError:
+    _extension = None
+KERNEL_MAX_MODULUS: int = int(getattr(_extension, "MAX_MODULUS", 0))
+KERNEL_MAX_EXPONENT: int = int(getattr(_extension, "MAX_EXPONENT", 0))
+KERNEL_MAX_COEFFICIENT: int = int(getattr(_extension, "MAX_COEFFICIENT", 0))
+KERNEL_MAX_WORDS: int = int(getattr(_extension, "MAX_WORDS", 0))
+
+
+@functools.lru_cache(maxsize=256)
 def kernel_k_limit(series: Series) -> int:
     """First k at which the compiled kernel can no longer take the series (0 if never)."""
-    if _kernel_head_sum is None or BACKEND != "c":
+    if _kernel_head_sum is None or BACKEND != "c" or KERNEL_MAX_MODULUS == 0:
         return 0
     if any(abs(c) >= KERNEL_MAX_COEFFICIENT for c in series.cs):
         return 0
-    # Largest k with q * (m k + j_max)^s < 2^63.
+    # Largest k with q * (m k + j_max)^s < MAX_MODULUS.
     j_max = max(series.js)
     lo, hi = 0, 1
     while series.q * (series.m * hi + j_max) ** series.s < KERNEL_MAX_MODULUS:
@@ -97,3 +122,49 @@ def kernel_k_limit(series: Series) -> int:
         else:
             hi = mid
     return lo
+
+
+@dataclass(frozen=True)
+class Split:
+    """Which head terms of one sum go to the compiled kernel: those with ``k < k_split``."""
+
+    k_split: int
+    """Terms with ``k < k_split`` run on the kernel, the rest on the twin."""
+    reason: str
+    """Why the twin takes any terms ("" when it takes none)."""
+
+
+def kernel_split(series: Series, big_d: int, words: int, k_total: int | None = None) -> Split:
+    """The kernel/twin split of a head sum at exponent ``big_d`` with ``words`` words.
+
+    ``k_total`` (default: the whole head) only serves the wording of the
+    reason; the split itself depends on the series, ``big_d`` and ``words``.
+    """
+    head = big_d // series.e + 1 if big_d >= 0 else 0
+    total = head if k_total is None else k_total
+    if BACKEND != "c" or _kernel_head_sum is None:
+        return Split(0, f"the compiled kernel is not in use ({BACKEND_NOTE})")
+    if words > KERNEL_MAX_WORDS:
+        return Split(0, f"{64 * words} fractional bits exceed the kernel's {64 * KERNEL_MAX_WORDS}")
+    if big_d > KERNEL_MAX_EXPONENT:
+        return Split(0, f"the exponent D = {big_d} exceeds the kernel's 64-bit limit")
+    if any(abs(c) >= KERNEL_MAX_COEFFICIENT for c in series.cs):
+        return Split(0, "a coefficient exceeds the kernel's 62-bit limit")
+    limit = kernel_k_limit(series)
+    if limit >= total:
+        return Split(limit, "")
+    bits = KERNEL_MAX_MODULUS.bit_length() - 1
+    return Split(limit, f"from k = {limit:,} the moduli q (m k + j)^s reach 2^{bits}, the kernel's limit")
+
+
+def head_block(series: Series, big_d: int, k0: int, k1: int, words: int) -> tuple[int, int]:
+    """The head sum over ``k0 <= k < k1``, split between the compiled kernel and the twin."""
+    split = min(max(kernel_split(series, big_d, words).k_split, k0), k1)
+    args = (series.m, series.s, series.e, series.q, series.alternating, series.js, series.cs)
+    value, terms = 0, 0
+    if split > k0:
+        value, terms = head_sum(big_d, k0, split, *args, words)
+    if k1 > split:
+        v, t = head_sum_py(big_d, split, k1, *args, words)
+        value, terms = (value + v) & ((1 << (64 * words)) - 1), terms + t
+    return value, terms

@@ -12,11 +12,11 @@ blocks rerun by Dask itself (``retries``).
 
 from __future__ import annotations
 
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Iterator
 from typing import Any
 
 from spotcheck.engine.blocks import BlockRequest, BlockRunner, compute_block
-from spotcheck.errors import UsageError
+from spotcheck.errors import ClusterError, UsageError
 
 __all__ = ["connect", "dask_runner", "INSTALL_HINT", "DASK_RETRIES"]
 
@@ -25,6 +25,8 @@ __all__ = ["connect", "dask_runner", "INSTALL_HINT", "DASK_RETRIES"]
 DASK_RETRIES = 3
 # Seconds to wait for the scheduler when connecting to an address.
 CONNECT_TIMEOUT = 10
+# Blocks submitted and not yet back, at most (blocks are generated lazily).
+MAX_IN_FLIGHT = 1024
 # ---------------------------------------------------------------------------
 
 INSTALL_HINT = "a cluster needs dask.distributed: pip install 'spotcheck[cluster]'"
@@ -43,18 +45,34 @@ def connect(cluster: Any) -> tuple[Any, bool]:
 
     ``owned`` is true when the client was opened here and should be closed by
     the caller.  Raises :class:`UsageError` without dask or when the
-    scheduler cannot be reached.
+    scheduler cannot be reached (:class:`ClusterError`, a ``UsageError``).
     """
     distributed = _distributed()
     if isinstance(cluster, distributed.Client):
         return cluster, False
     if not isinstance(cluster, str) or not cluster.strip():
         raise UsageError(f"cluster must be a scheduler address such as tcp://host:8786, got {cluster!r}")
+    # Built in two steps so that a client whose connection failed can be
+    # disowned here: left to the garbage collector, its __del__ would try to
+    # close it at exit and print a traceback after a 20 s timeout.
+    client = distributed.Client.__new__(distributed.Client)
     try:
-        client = distributed.Client(cluster.strip(), timeout=CONNECT_TIMEOUT, set_as_default=False)
-    except (OSError, TimeoutError, ValueError) as exc:
-        raise UsageError(f"cannot reach the Dask scheduler at {cluster}: {exc}") from None
+        client.__init__(cluster.strip(), timeout=CONNECT_TIMEOUT, set_as_default=False)
+    except Exception as exc:  # noqa: BLE001 - any failure to connect is the same fact for the user
+        _disown(client)
+        raise ClusterError(f"cannot reach the Dask scheduler at {cluster}: {exc}") from None
     return client, True
+
+
+def _disown(client: Any) -> None:
+    """Stop a half-built client's event loop and mark it closed, without waiting."""
+    try:
+        client.status = "closed"
+        runner = getattr(client, "_loop_runner", None)
+        if runner is not None:
+            runner.stop()
+    except Exception:  # noqa: BLE001 - best effort on a broken object
+        pass
 
 
 def dask_runner(
@@ -67,16 +85,33 @@ def dask_runner(
     """
     distributed = _distributed()
 
-    def run(request: BlockRequest, blocks: Sequence[tuple[int, int]]) -> Iterator[object]:
-        if not blocks:
-            return
+    def run(request: BlockRequest, blocks: Iterable[tuple[int, int]]) -> Iterator[object]:
         s, d, w = request.series, request.d, request.words
-        futures = [client.submit(compute, s, d, w, k0, k1, pure=False, retries=retries) for k0, k1 in blocks]
+        todo = iter(blocks)  # lazy: at most MAX_IN_FLIGHT tasks exist at once
+        pending: set[Any] = set()
+
+        def submit() -> Any | None:
+            nxt = next(todo, None)
+            if nxt is None:
+                return None
+            future = client.submit(compute, s, d, w, *nxt, pure=False, retries=retries)
+            pending.add(future)
+            return future
+
+        first = [f for f in (submit() for _ in range(MAX_IN_FLIGHT)) if f is not None]
+        if not first:
+            return
+        queue = distributed.as_completed(first, loop=client.loop)
         try:
-            for future in distributed.as_completed(futures, loop=client.loop):
-                yield future.result()
+            for future in queue:
+                pending.discard(future)
+                record = future.result()
                 future.release()
+                nxt = submit()
+                if nxt is not None:
+                    queue.add(nxt)
+                yield record
         finally:
-            client.cancel([f for f in futures if not f.done()])
+            client.cancel([f for f in pending if not f.done()])
 
     return run

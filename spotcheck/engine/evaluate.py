@@ -24,16 +24,10 @@ from __future__ import annotations
 
 import math
 import time
-from collections.abc import Callable
 from dataclasses import dataclass
 
-from spotcheck.engine.blocks import (
-    BlockPlan,
-    BlockRequest,
-    deep_block_k,
-    sum_blocks,
-    thread_runner,
-)
+from spotcheck.engine.blocks import BlockRequest, HeadSum, sum_blocks
+from spotcheck.engine.plan import RunPlan
 from spotcheck.engine.series import Series
 from spotcheck.errors import CertificationError
 
@@ -42,7 +36,6 @@ __all__ = [
     "frac_interval",
     "certified_hex_prefix",
     "window_digits",
-    "head_blocks",
     "MAX_WORDS",
 ]
 
@@ -54,15 +47,8 @@ GUARD_BITS = 12
 WINDOW_MAX_WORDS = 8
 # Give up (CertificationError) beyond this many words for one window.
 MAX_WORDS = 64
-# Head terms per block handed to the kernel in an ordinary run; blocks are the
-# unit for worker threads and progress callbacks.  Checkpointed and cluster
-# runs use larger blocks: blocks.DEEP_BLOCK_TERMS (2^27 terms, about 7-15 s at
-# the C kernel's 55-110 ns per term).
-BLOCK_K = 1 << 18
+# (The block size is in plan.py: BLOCK_K.)
 # ---------------------------------------------------------------------------
-
-Progress = Callable[[int, int], None]
-"""Called as ``progress(done_k, total_k)`` after each head block."""
 
 
 @dataclass(frozen=True)
@@ -73,6 +59,10 @@ class Interval:
     hi: int
     bits: int
     terms: int
+    terms_loaded: int = 0
+    """Head terms taken from a checkpoint rather than computed (included in ``terms``)."""
+    blocks_loaded: int = 0
+    blocks_computed: int = 0
 
     @property
     def width_log2(self) -> float:
@@ -95,38 +85,15 @@ class Interval:
         return False
 
 
-def head_blocks(k_total: int, block_k: int = BLOCK_K) -> list[tuple[int, int]]:
-    """Split ``range(k_total)`` into consecutive ``(k0, k1)`` blocks."""
-    return [(k, min(k + block_k, k_total)) for k in range(0, k_total, block_k)]
+def head_fixed(series: Series, d: int, words: int, plan: RunPlan | None = None) -> HeadSum:
+    """The whole head sum at bit offset ``d`` (a :class:`~spotcheck.engine.blocks.HeadSum`).
 
-
-def head_fixed(
-    series: Series,
-    d: int,
-    words: int,
-    *,
-    workers: int = 1,
-    progress: Progress | None = None,
-    plan: BlockPlan | None = None,
-) -> tuple[int, int]:
-    """The whole head sum at bit offset ``d``: ``(value mod 2^P, terms)``.
-
-    Without ``plan`` the blocks are of :data:`BLOCK_K` and run on ``workers``
-    threads; a :class:`~spotcheck.engine.blocks.BlockPlan` chooses another
-    runner (a Dask cluster), a checkpoint and the block size.  Either way every
-    block result is checked before it is added.
+    ``plan`` says how: block size, runner, journal, progress (default: one
+    thread, nothing else).  Every block result is checked before it is added.
     """
-    if plan is None:
-        request = BlockRequest(series, d, words, BLOCK_K)
-        return sum_blocks(request, runner=thread_runner(workers), progress=progress)
-    block_k = plan.block_k or deep_block_k(series, series.head_length(d))
-    return sum_blocks(
-        BlockRequest(series, d, words, block_k),
-        runner=plan.runner or thread_runner(workers),
-        checkpoint=plan.checkpoint,
-        progress=progress,
-        on_block=plan.on_block,
-    )
+    plan = plan or RunPlan.local(series)
+    request = BlockRequest(series, d, words, plan.block_size(d))
+    return sum_blocks(request, runner=plan.runner, journal=plan.journal, on_block=plan.on_block)
 
 
 def _sum_from(series: Series, big_d: int, k: int, bits: int) -> tuple[int, int, int]:
@@ -168,23 +135,23 @@ def value_bounds(series: Series, bits: int) -> tuple[int, int]:
     return value - rem, value + terms + rem
 
 
-def frac_interval(
-    series: Series,
-    d: int,
-    words: int,
-    *,
-    workers: int = 1,
-    progress: Progress | None = None,
-    plan: BlockPlan | None = None,
-) -> Interval:
+def frac_interval(series: Series, d: int, words: int, plan: RunPlan | None = None) -> Interval:
     """A certified interval for ``frac(2^d * C)`` with ``64 * words`` fractional bits."""
     if d < 0:
         raise ValueError("bit offset must be >= 0")
     bits = 64 * words
-    head, n_head = head_fixed(series, d, words, workers=workers, progress=progress, plan=plan)
+    head = head_fixed(series, d, words, plan)
     tail, n_tail, rem = tail_fixed(series, d, bits)
-    base = (head + tail) % (1 << bits)
-    return Interval(lo=base - rem, hi=base + n_head + n_tail + rem, bits=bits, terms=n_head + n_tail)
+    base = (head.value + tail) % (1 << bits)
+    return Interval(
+        lo=base - rem,
+        hi=base + head.terms + n_tail + rem,
+        bits=bits,
+        terms=head.terms + n_tail,
+        terms_loaded=head.terms_loaded,
+        blocks_loaded=head.blocks_loaded,
+        blocks_computed=head.blocks_computed,
+    )
 
 
 def certified_hex_prefix(interval: Interval, limit: int) -> str:
@@ -212,11 +179,9 @@ def window_digits(
     series: Series,
     d: int,
     count: int,
+    plan: RunPlan | None = None,
     *,
-    workers: int = 1,
-    progress: Progress | None = None,
     words: int | None = None,
-    plan: BlockPlan | None = None,
 ) -> tuple[str, Interval]:
     """Exactly ``count`` certified hex digits of ``frac(2^d C)``, from one window.
 
@@ -226,7 +191,7 @@ def window_digits(
     """
     words = words or words_for(series, d, count)
     while True:
-        interval = frac_interval(series, d, words, workers=workers, progress=progress, plan=plan)
+        interval = frac_interval(series, d, words, plan)
         digits = certified_hex_prefix(interval, count)
         if len(digits) == count:
             return digits, interval
@@ -247,10 +212,7 @@ def extract_hex(
     series: Series,
     position: int,
     count: int,
-    *,
-    workers: int = 1,
-    progress: Progress | None = None,
-    plan: BlockPlan | None = None,
+    plan: RunPlan | None = None,
 ) -> tuple[str, list[Interval], float]:
     """Certified hex digits ``position .. position + count - 1``; also the windows' intervals."""
     t0 = time.perf_counter()
@@ -261,7 +223,7 @@ def extract_hex(
     while remaining > 0:
         d = 4 * (p - 1)
         n = min(remaining, window_capacity(series, d))
-        digits, interval = window_digits(series, d, n, workers=workers, progress=progress, plan=plan)
+        digits, interval = window_digits(series, d, n, plan)
         out.append(digits)
         intervals.append(interval)
         p += n

@@ -2,19 +2,146 @@
 
 from __future__ import annotations
 
+import time
 from typing import Any
 
-from spotcheck.engine.api import DigitResult, fast_path_position
+from spotcheck.engine.api import CostEstimate, DigitResult, fast_path_position
 from spotcheck.formulas import Constant
-from spotcheck.report.console import STYLE_BAD, STYLE_DIGITS, STYLE_DIM, STYLE_OK, emit_json, stdout_console
+from spotcheck.report.console import (
+    PROGRESS_DELAY,
+    STYLE_BAD,
+    STYLE_DIGITS,
+    STYLE_DIM,
+    STYLE_OK,
+    emit_json,
+    stderr_console,
+    stdout_console,
+)
+
+# The estimate is printed (outside --json) when the run is expected to take
+# at least this many seconds.
+ESTIMATE_SHOWN_SECONDS = 2.0
+
+
+def duration(seconds: float) -> str:
+    """A rough human duration: 45 s, 12 min, 3.5 h, 4.2 days, 3.6 years."""
+    if seconds < 90:
+        return f"{seconds:.0f} s" if seconds >= 1 else f"{seconds:.2f} s"
+    if seconds < 5400:
+        return f"{seconds / 60:.0f} min"
+    if seconds < 2 * 86400:
+        return f"{seconds / 3600:.1f} h"
+    if seconds < 2 * 365.25 * 86400:
+        return f"{seconds / 86400:.1f} days"
+    return f"{seconds / (365.25 * 86400):.3g} years"
+
+
+def estimate_line(est: CostEstimate, formula: str) -> str:
+    """One line: what the run will cost, on which path and why."""
+    path = {
+        "compiled": "compiled kernel",
+        "twin": "pure twin (about 50 times slower per term)",
+        "compiled+twin": f"compiled kernel, then the pure twin for {est.twin_terms / est.terms:.0%} of the terms",
+    }[est.path]
+    why = f" because {est.why}" if est.why and est.path != "compiled" else ""
+    wall = f", about {duration(est.wall_seconds)} on {est.workers} workers" if est.workers > 1 else ""
+    return (
+        f"estimate [{formula}]: {est.terms:,} head terms in {est.blocks:,} blocks, "
+        f"about {duration(est.cpu_seconds)} of CPU time{wall}, {est.memory_bytes / 2**20:.0f} MiB of memory; "
+        f"path: {path}{why}"
+    )
+
+
+def infeasible_line(message: str, hint: str | None) -> str:
+    """The refusal of a position beyond reach, with what would make it feasible (CLI wording)."""
+    if hint == "cluster":
+        return f"{message}; running the head sum on a Dask cluster (--cluster ADDRESS) would make it feasible"
+    return f"{message}; no option makes it feasible"
+
+
+def interrupted_line(progress: Any, checkpoint: str | None) -> str:
+    """What an interrupted run finished, and where it is kept."""
+    if progress is None:
+        done = "no head-sum block was finished"
+    else:
+        done = (
+            f"{progress.done:,} of {progress.total:,} head-sum blocks finished "
+            f"({progress.computed:,} computed in this run, {progress.resumed:,} loaded from the checkpoint)"
+        )
+    if checkpoint:
+        return f"interrupted: {done}; they are kept in {checkpoint}: run the same command to resume"
+    return f"interrupted: {done}; without a checkpoint they are lost"
+
+
+class TermProgress:
+    """A ``callback(BlockProgress)`` drawing terms done over terms to do on stderr.
+
+    Loaded blocks are counted apart (they cost nothing), so the ETA is the
+    terms left over this run's own rate.  It appears only after
+    ``PROGRESS_DELAY`` seconds; a new line for each window and precision.
+    ``last`` is the latest progress seen (for the interruption message).
+    """
+
+    def __init__(self, description: str, *, enabled: bool = True) -> None:
+        self.description = description
+        self.enabled = enabled
+        self.last: Any = None
+        self._bar: Any = None
+        self._task: Any = None
+        self._window: tuple[int, int] | None = None
+        self._t0 = time.monotonic()
+
+    def __call__(self, p: Any) -> None:
+        self.last = p
+        if not self.enabled:
+            return
+        if self._bar is None:
+            if time.monotonic() - self._t0 < PROGRESS_DELAY:
+                return
+            from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+            self._bar = Progress(
+                TextColumn("{task.description}"),
+                BarColumn(),
+                TextColumn("{task.fields[note]}"),
+                TimeElapsedColumn(),
+                TextColumn("eta {task.fields[eta]}"),
+                console=stderr_console(),
+                transient=True,
+            )
+            self._bar.start()
+        if self._window != (p.d, p.words):
+            self._window = (p.d, p.words)
+            self._task = self._bar.add_task(self.description, total=p.terms_total, note="", eta="")
+        note = f"{p.terms_done / max(p.terms_total, 1):.1%} of {p.terms_total:,} terms"
+        if p.terms_loaded:
+            note += f" ({p.terms_loaded:,} loaded)"
+        eta = "-:--:--" if p.eta is None else _clock(p.eta)
+        self._bar.update(self._task, completed=p.terms_done, total=p.terms_total, note=note, eta=eta)
+
+    def close(self) -> None:
+        if self._bar is not None:
+            self._bar.stop()
+            self._bar = None
+
+
+def _clock(seconds: float) -> str:
+    if seconds > 99 * 3600:
+        return duration(seconds)
+    s = int(seconds + 0.5)
+    return f"{s // 3600}:{s // 60 % 60:02d}:{s % 60:02d}"
 
 
 def group(digits: str, size: int = 8) -> str:
     return " ".join(digits[i : i + size] for i in range(0, len(digits), size))
 
 
-def digits_payload(result: DigitResult, cross: list[DigitResult] | None) -> dict[str, Any]:
+def digits_payload(
+    result: DigitResult, cross: list[DigitResult] | None, estimate: CostEstimate | None = None
+) -> dict[str, Any]:
     out = result.to_dict()
+    if estimate is not None:
+        out["estimate"] = estimate.to_dict()
     if cross is not None:
         out["cross_check"] = {
             "agree": all(r.digits == result.digits for r in cross),
@@ -23,9 +150,26 @@ def digits_payload(result: DigitResult, cross: list[DigitResult] | None) -> dict
     return out
 
 
-def show_digits(result: DigitResult, cross: list[DigitResult] | None, *, as_json: bool, quiet: bool) -> None:
+def terms_summary(result: DigitResult) -> str:
+    """``N terms in S s``, or computed and loaded terms apart after a resume."""
+    if not result.terms_loaded:
+        return f"{result.terms:,} terms in {result.seconds:.3f} s"
+    return (
+        f"{result.terms:,} terms: {result.terms_computed:,} computed in {result.seconds:.3f} s, "
+        f"{result.terms_loaded:,} loaded from the checkpoint ({result.blocks_loaded:,} blocks)"
+    )
+
+
+def show_digits(
+    result: DigitResult,
+    cross: list[DigitResult] | None,
+    *,
+    as_json: bool,
+    quiet: bool,
+    estimate: CostEstimate | None = None,
+) -> None:
     if as_json:
-        emit_json(digits_payload(result, cross))
+        emit_json(digits_payload(result, cross, estimate))
         return
     if quiet:
         print(result.digits)
@@ -40,7 +184,7 @@ def show_digits(result: DigitResult, cross: list[DigitResult] | None, *, as_json
     con.print(
         f"formula {result.formula}: {result.formula_notation}; certified by an interval of width "
         f"2^{result.width_log2:.1f} at {result.fraction_bits} fractional bits; "
-        f"{result.terms:,} terms in {result.seconds:.3f} s ({result.backend} kernel)",
+        f"{terms_summary(result)} ({result.backend} kernel)",
         style=STYLE_DIM,
     )
     if cross is not None:

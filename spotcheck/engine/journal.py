@@ -1,0 +1,351 @@
+"""The checkpoint file: a journal of finished head-sum blocks, one line each.
+
+A run with a checkpoint appends every finished block to the file as one line,
+writes it and ``fsync``s it *before* the block is reported done, so a process
+killed at any moment (``kill -9``, power loss) loses at most the blocks that
+were still being computed.  Each line is a JSON object, a tab and the first
+32 hex digits of the SHA-256 of that JSON text::
+
+    {"format":"spotcheck-journal","version":2,"request":{...}}<TAB>checksum
+    {"section":{"d":...,"words":...,"block_k":...,"k_total":...,"series":"..."}}<TAB>checksum
+    {"block":[d,words,k0,k1,"value in hex",terms]}<TAB>checksum
+    ...
+
+The first line names the request (constant, formula and its coefficients,
+position, count).  A *section* line opens one evaluated window and precision
+``(d, words)`` with its block size; block lines follow their section.
+
+Reading:
+
+* a last line without its newline is a write torn by a crash: ignored (and cut
+  off before the next append);
+* a complete line whose checksum does not match (a flipped byte, a damaged
+  sector) is *that record refused*: it is skipped and counted in
+  :attr:`Journal.damaged`, its block is computed again, the other records are
+  kept.  Every record carries its own checksum, so damage to one says nothing
+  about the others, and a skipped block can only cost time, never a digit;
+* a damaged first line, another request, a checksummed record that fails
+  :func:`~spotcheck.engine.blocks.block_problem` (another series, offset,
+  precision or range, a wrong term count, a duplicate), a block before its
+  section, or a section that does not match the series refuses the whole file
+  (:class:`CheckpointError`): that is not storage damage but another run's or
+  another program's file, and the file is left alone.
+
+A file that cannot be created or opened for appending is refused at once,
+before any work.  A write that fails later (disk full, file-size limit) is
+not an error: :attr:`Journal.failure` says why, the run goes on without the
+file, and the blocks already written stay valid.  At the end of a run the
+file is *compacted*: rewritten atomically (temporary file, ``fsync``,
+``os.replace``) with each section's records in order and no damaged lines.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import tempfile
+from pathlib import Path
+from typing import Any
+
+from spotcheck.engine.blocks import BlockRecord, BlockRequest, block_problem
+from spotcheck.engine.series import Series
+from spotcheck.errors import CheckpointError
+
+__all__ = [
+    "Journal",
+    "default_checkpoint_dir",
+    "JOURNAL_FORMAT",
+    "JOURNAL_VERSION",
+    "journal_line",
+    "parse_line",
+]
+
+JOURNAL_FORMAT = "spotcheck-journal"
+JOURNAL_VERSION = 2
+_CHECKSUM_HEX = 32
+
+
+def default_checkpoint_dir() -> Path:
+    """``$XDG_CACHE_HOME/spotcheck`` (``~/.cache/spotcheck`` when unset)."""
+    base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
+    return Path(base) / "spotcheck"
+
+
+def _checksum(text: str) -> str:
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()[:_CHECKSUM_HEX]
+
+
+def journal_line(obj: dict[str, Any]) -> str:
+    """One journal line (newline included) for a JSON object."""
+    text = json.dumps(obj, separators=(",", ":"), sort_keys=True)
+    return f"{text}\t{_checksum(text)}\n"
+
+
+def parse_line(raw: bytes) -> dict[str, Any] | None:
+    """The object of one complete line (no newline), or ``None`` if its checksum fails."""
+    try:
+        line = raw.decode("utf-8")
+    except UnicodeDecodeError:
+        return None
+    text, tab, checksum = line.rpartition("\t")
+    if not tab or _checksum(text) != checksum:
+        return None
+    try:
+        obj = json.loads(text)
+    except ValueError:
+        return None
+    return obj if isinstance(obj, dict) else None
+
+
+def _exact_int(x: object) -> int:
+    """``x`` if it is a JSON integer (not a bool, float or string), else TypeError."""
+    if type(x) is not int:
+        raise TypeError(f"expected an integer, got {x!r}")
+    return x
+
+
+class Journal:
+    """Finished blocks of one request, kept in a journal file across runs.
+
+    Opening reads and checks an existing file (see the module docstring for
+    what is refused) and makes sure it can be appended to; a missing file is
+    created with its first line.  Either failure raises
+    :class:`CheckpointError` before any block is computed.
+    """
+
+    def __init__(self, path: str | os.PathLike[str], series: Series, request: dict[str, Any]) -> None:
+        self.path = Path(path)
+        self.series = series
+        self.request = json.loads(json.dumps(request))  # a plain JSON copy
+        self.damaged = 0
+        """Complete lines skipped on reading because their checksum failed."""
+        self.failure: str | None = None
+        """Why writing stopped mid-run (``None`` while it works)."""
+        self.loaded = 0
+        """Blocks read from the file when it was opened."""
+        self._sections: dict[tuple[int, int], dict[str, Any]] = {}
+        self._records: dict[tuple[int, int], dict[int, BlockRecord]] = {}
+        self._fd: int | None = None
+        if self.path.is_dir():
+            raise self._refuse("it is a directory")
+        valid_length = self._load() if self.path.exists() else None
+        self._open_for_append(valid_length)
+        self.loaded = self.blocks_kept
+
+    # -- reading ------------------------------------------------------------
+    def _refuse(self, why: str) -> CheckpointError:
+        return CheckpointError(f"checkpoint {self.path} refused: {why}")
+
+    def _load(self) -> int:
+        """Read the file; return the length of its complete lines (a torn tail excluded)."""
+        try:
+            data = self.path.read_bytes()
+        except OSError as exc:
+            raise self._refuse(f"it cannot be read ({exc.strerror or exc})") from None
+        cut = data.rfind(b"\n") + 1
+        lines = data[:cut].split(b"\n")[:-1]
+        if not lines:
+            if data:
+                raise self._refuse("not a spotcheck checkpoint file (no complete first line)")
+            return 0
+        header = parse_line(lines[0])
+        if header is None or header.get("format") != JOURNAL_FORMAT:
+            raise self._refuse("not a spotcheck checkpoint file, or its first line is damaged")
+        if header.get("version") != JOURNAL_VERSION:
+            raise self._refuse(f"unsupported checkpoint version {header.get('version')!r}")
+        request = header.get("request")
+        if request != self.request:
+            req = request if isinstance(request, dict) else {}
+            diff = sorted(k for k in set(req) | set(self.request) if req.get(k) != self.request.get(k))
+            theirs = ", ".join(f"{k} {req.get(k)!r}" for k in diff)
+            ours = ", ".join(f"{k} {self.request.get(k)!r}" for k in diff)
+            raise self._refuse(
+                f"it belongs to another request ({theirs}, not {ours}); use another file or delete it"
+            )
+        for number, raw in enumerate(lines[1:], start=2):
+            obj = parse_line(raw)
+            if obj is None:
+                self.damaged += 1
+                continue
+            try:
+                if "section" in obj:
+                    self._load_section(obj["section"])
+                elif "block" in obj:
+                    self._load_block(obj["block"])
+                else:
+                    raise self._refuse(f"line {number} is neither a section nor a block")
+            except (KeyError, TypeError, ValueError) as exc:
+                if isinstance(exc, CheckpointError):
+                    raise
+                raise self._refuse(f"line {number} is malformed ({exc!r})") from None
+        return cut
+
+    def _load_section(self, section: Any) -> None:
+        d, words, block_k = (
+            _exact_int(section["d"]),
+            _exact_int(section["words"]),
+            _exact_int(section["block_k"]),
+        )
+        if block_k < 1 or section.get("k_total") != self.series.head_length(d):
+            raise self._refuse(f"section for bit offset {d} does not match this series")
+        key = (d, words)
+        if key in self._sections:
+            raise self._refuse(f"two sections for bit offset {d} at {words} words")
+        self._sections[key] = {
+            "d": d,
+            "words": words,
+            "block_k": block_k,
+            "k_total": section["k_total"],
+            "series": section.get("series"),
+        }
+        self._records[key] = {}
+
+    def _load_block(self, fields: Any) -> None:
+        d, words, k0, k1, v, t = fields
+        key = (_exact_int(d), _exact_int(words))
+        section = self._sections.get(key)
+        if section is None:
+            if self.damaged:  # its section line was the damaged one: this record goes with it
+                self.damaged += 1
+                return
+            raise self._refuse(f"a block of bit offset {d} comes before its section")
+        if not isinstance(v, str):
+            raise TypeError(f"expected a hex string, got {v!r}")
+        record = BlockRecord(
+            section["series"], key[0], key[1], _exact_int(k0), _exact_int(k1), int(v, 16), _exact_int(t)
+        )
+        request = BlockRequest(self.series, section["d"], section["words"], section["block_k"])
+        problem = block_problem(request, record)
+        if problem is None and record.k0 in self._records[key]:
+            problem = "a block appears twice"
+        if problem is not None:
+            raise self._refuse(f"a block of bit offset {d} failed its check: {problem}")
+        self._records[key][record.k0] = record
+
+    def records(self, request: BlockRequest) -> list[BlockRecord]:
+        """The finished blocks of ``request`` (empty if none); refuses a different block size."""
+        key = (request.d, request.words)
+        section = self._sections.get(key)
+        if section is None:
+            return []
+        if section["block_k"] != request.block_k or section["series"] != request.fingerprint:
+            raise self._refuse(
+                f"bit offset {request.d} was cut into blocks of {section['block_k']} "
+                f"values of k, this run uses {request.block_k}"
+            )
+        return list(self._records[key].values())
+
+    @property
+    def blocks_kept(self) -> int:
+        return sum(len(r) for r in self._records.values())
+
+    # -- writing ------------------------------------------------------------
+    def _open_for_append(self, valid_length: int | None) -> None:
+        try:
+            if valid_length is None:  # a new file: its first line, durable before any work
+                self.path.parent.mkdir(parents=True, exist_ok=True)
+                header = {"format": JOURNAL_FORMAT, "version": JOURNAL_VERSION, "request": self.request}
+                _write_atomic(self.path, journal_line(header))
+            self._fd = os.open(self.path, os.O_WRONLY | os.O_APPEND)
+            if valid_length is not None and valid_length < os.fstat(self._fd).st_size:
+                os.ftruncate(self._fd, valid_length)  # cut a torn last line
+        except OSError as exc:
+            self._fd = None
+            why = exc.strerror or str(exc)
+            blocker = next((p for p in self.path.parents if p.exists() and not p.is_dir()), None)
+            if blocker is not None:
+                why = f"{blocker} is not a folder"
+            raise CheckpointError(f"checkpoint {self.path} cannot be written: {why}") from None
+
+    def _append(self, text: str) -> None:
+        if self._fd is None:
+            return
+        data = text.encode("utf-8")
+        try:
+            while data:
+                n = os.write(self._fd, data)
+                data = data[n:]
+            os.fsync(self._fd)
+        except OSError as exc:
+            self._stop(f"writing the checkpoint {self.path} failed ({exc.strerror or exc})")
+
+    def _stop(self, why: str) -> None:
+        self.failure = why
+        if self._fd is not None:
+            try:
+                os.close(self._fd)
+            except OSError:
+                pass
+            self._fd = None
+
+    def add(self, request: BlockRequest, record: BlockRecord) -> None:
+        """Keep a checked record and append it to the file (written and fsync'd on return)."""
+        key = (request.d, request.words)
+        if key not in self._sections:
+            section = {
+                "d": request.d,
+                "words": request.words,
+                "block_k": request.block_k,
+                "k_total": request.k_total,
+                "series": request.fingerprint,
+            }
+            self._sections[key] = section
+            self._records[key] = {}
+            self._append(journal_line({"section": section}))
+        self._records[key][record.k0] = record
+        self._append(journal_line({"block": [record.d, record.words, *record.to_list()]}))
+
+    def close(self, *, compact: bool = True) -> None:
+        """Stop appending; with ``compact``, rewrite the file in order without damaged lines."""
+        if self._fd is None:
+            return
+        self._stop_quietly()
+        if not compact:
+            return
+        lines = [
+            journal_line({"format": JOURNAL_FORMAT, "version": JOURNAL_VERSION, "request": self.request})
+        ]
+        for key in sorted(self._sections):
+            lines.append(journal_line({"section": self._sections[key]}))
+            for _, r in sorted(self._records[key].items()):
+                lines.append(journal_line({"block": [r.d, r.words, *r.to_list()]}))
+        try:
+            _write_atomic(self.path, "".join(lines))
+        except OSError as exc:  # the journal as appended stays valid
+            self.failure = f"compacting the checkpoint {self.path} failed ({exc.strerror or exc})"
+
+    def _stop_quietly(self) -> None:
+        fd, self._fd = self._fd, None
+        if fd is not None:
+            try:
+                os.close(fd)
+            except OSError:
+                pass
+
+
+def _write_atomic(path: Path, text: str) -> None:
+    """Replace ``path`` by ``text`` so that a crash leaves the old or the new file, never half."""
+    fd, tmp = tempfile.mkstemp(prefix=path.name + ".", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+    try:  # make the rename itself durable
+        dir_fd = os.open(path.parent, os.O_RDONLY)
+    except OSError:  # pragma: no cover - platforms without directory fds
+        return
+    try:
+        os.fsync(dir_fd)
+    except OSError:  # pragma: no cover
+        pass
+    finally:
+        os.close(dir_fd)
