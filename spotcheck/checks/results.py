@@ -12,9 +12,39 @@ from typing import Any
 
 from .stats import false_match_chance, scattered_damage_bound
 
-__all__ = ["FileFacts", "WindowCheck", "VerifyResult", "LocateResult", "MismatchRun", "ScanResult"]
+__all__ = [
+    "LabelFinding",
+    "FileFacts",
+    "WindowCheck",
+    "VerifyResult",
+    "LocateResult",
+    "MismatchRun",
+    "ScanResult",
+]
 
 MATCH, MISMATCH, INCOMPLETE = "match", "mismatch", "incomplete"
+
+
+@dataclass(frozen=True)
+class LabelFinding:
+    """The first position label that disagrees with the digits read: damage, not bad input.
+
+    A user who deleted or inserted digits by accident has such a file; the
+    digits are still checked, and the file is reported inconsistent (exit 1).
+    """
+
+    kind: str
+    """``label-mismatch`` (the label has the wrong value) or ``label-missing``."""
+    line: int | None
+    byte_offset: int | None
+    position: int | None
+    """Position of the first digit of the line the label sits on."""
+    expected: int | None
+    """The value the digit count implies."""
+    found: str | None
+    """The label as written."""
+    total: int = 1
+    """Label findings in the file (the first is described above)."""
 
 
 @dataclass(frozen=True)
@@ -33,6 +63,8 @@ class FileFacts:
     formula: str
     compression: str | None
     integer_part: str | None
+    label_finding: LabelFinding | None = None
+    """The first label that disagrees with the digits (None: labels consistent, absent or ignored)."""
 
 
 @dataclass(frozen=True)
@@ -70,9 +102,52 @@ class _Common:
     def any_mismatch(self) -> bool:
         return any(not c.match for c in self.checks)
 
+    full_through_value = 0  # overridden by results that ran a full comparison from digit 1
+
+    @property
+    def full_through(self) -> int:
+        """Digits 1..N compared with a full computation (0: none)."""
+        return self.full_through_value
+
+    @property
+    def covered(self) -> list[tuple[int, int]]:
+        """Merged ``(first, last)`` ranges of digits (in the file's base) that were compared."""
+        spans: list[tuple[int, int]] = []
+        if self.full_through:
+            spans.append((1, self.full_through))
+        for c in self.checks:
+            if c.position < 1:
+                continue
+            if c.base != self.file.base:
+                if c.prefix:  # a radix conversion of the prefix: every decimal digit of it
+                    spans.append((1, min(c.prefix, self.file.checked)))
+                continue
+            spans.append((c.position, c.position + max(len(c.found), 1) - 1))
+        spans.sort()
+        out: list[tuple[int, int]] = []
+        for a, b in spans:
+            if out and a <= out[-1][1] + 1:
+                out[-1] = (out[-1][0], max(out[-1][1], b))
+            else:
+                out.append((a, b))
+        return out
+
+    @property
+    def covered_digits(self) -> int:
+        return sum(b - a + 1 for a, b in self.covered)
+
+    @property
+    def exhaustive(self) -> bool:
+        """True when every digit under check was compared."""
+        return self.covered == [(1, self.file.checked)]
+
+    @property
+    def labels_consistent(self) -> bool:
+        return self.file.label_finding is None
+
     @property
     def exit_code(self) -> int:
-        return 1 if self.any_mismatch else 0
+        return 1 if self.any_mismatch or not self.labels_consistent else 0
 
     @property
     def verdict(self) -> str:
@@ -91,6 +166,10 @@ class _Common:
             "seconds": round(self.seconds, 3),
             "evaluations": self.evaluations,
             "interrupted": self.interrupted,
+            "labels_consistent": self.labels_consistent,
+            "exhaustive": self.exhaustive,
+            "covered": [list(r) for r in self.covered],
+            "covered_digits": self.covered_digits,
         }
 
 
@@ -150,7 +229,7 @@ class LocateResult(_Common):
 
     @property
     def exit_code(self) -> int:
-        return 1 if self.first_mismatch is not None else 0
+        return 1 if self.first_mismatch is not None or not self.labels_consistent else 0
 
     def to_dict(self) -> dict[str, Any]:
         out = self._base_dict("locate")

@@ -57,6 +57,27 @@ def _verdict_line(result: CheckResult) -> tuple[str, str]:
     return f"MATCH  all {len(result.checks)} checks agree with certified digits ({what})", STYLE_OK
 
 
+def label_sentence(result: CheckResult) -> str | None:
+    """One line on the first position label that disagrees with the digits, or None."""
+    lf = result.file.label_finding
+    if lf is None:
+        return None
+    where = f"line {lf.line:,}" if lf.line is not None else "a line"
+    if lf.kind == "label-missing":
+        what = f"{where}: no position label, unlike the lines around it"
+    elif lf.found is not None and lf.expected is not None:
+        what = f"{where}: labelled {lf.found}, but the digits before it imply {lf.expected:,}"
+    else:
+        what = f"{where}: its position label disagrees with the digit count"
+    if lf.position is not None:
+        what += f" (its first digit is digit {lf.position:,})"
+    more = f"; {lf.total:,} label findings in all" if lf.total > 1 else ""
+    return (
+        f"LABELS DISAGREE  {what}{more}: digits were lost or gained before it, or a label was changed "
+        "(--ignore-labels drops this finding)"
+    )
+
+
 def file_map(result: CheckResult, width: int) -> tuple[str, list[tuple[int, int, str]]]:
     """The file drawn as ``width`` cells: which parts were checked, matched, or are damaged.
 
@@ -167,6 +188,9 @@ def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool)
     con = stdout_console()
     line, style = _verdict_line(result)
     con.print(line, style=style)
+    labels = label_sentence(result)
+    if labels is not None:
+        con.print(labels, style=STYLE_BAD)
     f = result.file
     con.print(
         f"{f.path}: {f.size_bytes:,} bytes{', ' + f.compression if f.compression else ''}; "
