@@ -267,8 +267,21 @@ def verify(
         list[int] | None, typer.Option("--at", help="Also check the window at this position (repeatable).")
     ] = None,
     budget: Annotated[
-        float | None, typer.Option("--budget", help="Keep drawing random windows for this many seconds.")
+        float,
+        typer.Option(
+            "--budget",
+            metavar="SECONDS",
+            help="Compare every digit with a full computation when its estimate fits SECONDS "
+            "(0: windows only); beyond it, sample windows.",
+        ),
+    ] = 60.0,
+    sample_seconds: Annotated[
+        float | None,
+        typer.Option(
+            "--sample-seconds", metavar="SECONDS", help="Keep drawing random windows for this many seconds."
+        ),
     ] = None,
+    reference: ReferenceOpt = "arb",
     window: WindowOpt = 16,
     constant: ConstantOpt = None,
     base: BaseOpt = None,
@@ -301,6 +314,8 @@ def verify(
             at=at or (),
             window=window,
             budget=budget,
+            sample_seconds=sample_seconds,
+            reference=reference,
             workers=_workers(workers),
             limit=limit,
             ignore_labels=ignore_labels,
@@ -314,6 +329,9 @@ def verify(
         samples=samples,
         seed=seed,
         at=at,
+        budget=budget,
+        sample_seconds=sample_seconds,
+        reference=reference,
         window=window,
         constant=constant,
         base=base,

@@ -38,8 +38,34 @@ def test_verify_clean_sample(capsys) -> None:
     assert code == 0
     first = out.splitlines()[0]
     assert first.startswith("MATCH") and "pi" in first and "50,000 digits" in first
+    assert "every digit compared with arb" in first  # a full comparison fits the default budget
+    code, out, _ = cli(capsys, "verify", SAMPLES / "pi-hex-clean.txt", "--seed", "42", "--budget", "0")
+    assert code == 0
+    first = out.splitlines()[0]
+    assert first.startswith("MATCH") and "windows sampled" in first and "below" in first
     assert "--seed 42" in out  # the repeat line names the seed
     assert "16^-16" in out and "95% confidence" in out
+
+
+def test_one_wrong_digit_in_a_million_is_found_by_plain_verify(capsys, tmp_path) -> None:
+    from .reference import pi_hex  # pi from mpmath (tests/reference.py)
+
+    digits = list(pi_hex(10**6))
+    digits[654_320] = "0" if digits[654_320] != "0" else "1"  # digit 654,321 wrong
+    path = tmp_path / "pi-1e6.txt"
+    path.write_text("3." + "".join(digits) + "\n")
+    code, payload = as_json(capsys, "verify", path, "--seed", "5")
+    assert code == 1 and payload["verdict"] == "mismatch"
+    assert payload["exhaustive"] and payload["covered"] == [[1, 10**6]]
+    assert payload["wrong_digits"] == 1
+    full = [c for c in payload["checks"] if c["kind"] == "full"]
+    assert full and full[0]["position"] == 654_321
+    code, out, _ = cli(capsys, "verify", path, "--seed", "5")
+    assert out.startswith("MISMATCH  1 wrong digit in 1 run, the first at position 654,321")
+    code, payload = as_json(capsys, "locate", path, "--budget", "0")
+    assert code == 3 and payload["verdict"] == "unconfirmed" and not payload["exhaustive"]
+    code, out, _ = cli(capsys, "locate", path, "--budget", "0")
+    assert code == 3 and out.startswith("NOT RULED OUT")
 
 
 def test_verify_prints_seed_it_chose(capsys) -> None:

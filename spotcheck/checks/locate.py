@@ -81,6 +81,7 @@ class _HexLocator:
     checks: list[WindowCheck] = field(default_factory=list)
     t0: float = field(default_factory=time.perf_counter)
     scans: int = 0
+    full_through: int = 0
 
     def __post_init__(self) -> None:
         self.n = self.facts.checked
@@ -104,6 +105,9 @@ class _HexLocator:
         scan = scan_open(self.df, self.facts, reference=self.reference, stop_at_first=True, upto=upto)
         if scan.interrupted:
             raise KeyboardInterrupt
+        self.full_through = max(
+            self.full_through, scan.runs[0].start - 1 if scan.runs else scan.digits_compared
+        )
         return scan.runs[0].start if scan.runs else None
 
     def result(
@@ -136,6 +140,7 @@ class _HexLocator:
             explanation=explanation,
             scan_estimate_seconds=scan_estimate,
             first_is_certain=certain and first is not None,
+            full_through_value=self.full_through,
         )
 
     def scan_cost(self, seconds: float, upto: int | None) -> str:

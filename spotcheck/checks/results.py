@@ -22,7 +22,9 @@ __all__ = [
     "ScanResult",
 ]
 
-MATCH, MISMATCH, INCOMPLETE = "match", "mismatch", "incomplete"
+MATCH, MISMATCH, INCOMPLETE, UNCONFIRMED = "match", "mismatch", "incomplete", "unconfirmed"
+EXIT_UNCONFIRMED = 3
+"""``locate`` found no wrong digit but compared only windows: isolated damage is not ruled out."""
 
 
 @dataclass(frozen=True)
@@ -180,6 +182,14 @@ class VerifyResult(_Common):
     tail_position: int | None
     """Where the tail check landed: a match there rules out a persistent error before it."""
     random_windows: int = 0
+    full_through_value: int = 0
+    """Digits 1..N compared with a full computation (0: sampled windows only)."""
+    reference: str | None = None
+    """The full computation's library, when one ran."""
+    wrong_digits: int | None = None
+    """Wrong digits the full comparison found (None when none ran)."""
+    wrong_runs: int | None = None
+    """Runs of wrong digits the full comparison found (None when none ran)."""
 
     @property
     def false_match_chance(self) -> float:
@@ -189,7 +199,9 @@ class VerifyResult(_Common):
     @property
     def scattered_bound(self) -> float | None:
         """95% upper bound on the damaged fraction from the clean random windows (None if any differs)."""
-        return None if self.any_mismatch else scattered_damage_bound(self.random_windows)
+        if self.any_mismatch or self.exhaustive:
+            return None
+        return scattered_damage_bound(self.random_windows)
 
     def to_dict(self) -> dict[str, Any]:
         out = self._base_dict("verify")
@@ -200,6 +212,9 @@ class VerifyResult(_Common):
             tail_position=self.tail_position,
             scattered_bound=self.scattered_bound,
             random_windows=self.random_windows,
+            reference=self.reference,
+            wrong_digits=self.wrong_digits,
+            wrong_runs=self.wrong_runs,
         )
         return out
 
@@ -220,16 +235,22 @@ class LocateResult(_Common):
     first_is_certain: bool = False
     """True when every digit before ``first_mismatch`` is known right (up to the
     false-match chance and, for bisection, the persistent-error model)."""
+    full_through_value: int = 0
+    """Digits 1..N compared with a full computation (0: none)."""
 
     @property
     def verdict(self) -> str:
         if self.first_mismatch is not None:
             return MISMATCH
-        return INCOMPLETE if self.interrupted else MATCH
+        if self.interrupted:
+            return INCOMPLETE
+        return MATCH if self.exhaustive else UNCONFIRMED
 
     @property
     def exit_code(self) -> int:
-        return 1 if self.first_mismatch is not None or not self.labels_consistent else 0
+        if self.first_mismatch is not None or not self.labels_consistent:
+            return 1
+        return EXIT_UNCONFIRMED if self.verdict == UNCONFIRMED else 0
 
     def to_dict(self) -> dict[str, Any]:
         out = self._base_dict("locate")
@@ -274,6 +295,10 @@ class ScanResult(_Common):
     @property
     def first_mismatch(self) -> int | None:
         return self.runs[0].start if self.runs else None
+
+    @property
+    def full_through(self) -> int:
+        return self.digits_compared
 
     def to_dict(self) -> dict[str, Any]:
         out = self._base_dict("scan")

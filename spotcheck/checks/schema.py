@@ -61,6 +61,7 @@ _CHECK = {
                 "confirm",
                 "after",
                 "prefix",
+                "full",
             ]
         },
         "position": {
@@ -136,6 +137,12 @@ VERIFY_SCHEMA: dict[str, Any] = {
         "tail_position": _INT_OR_NULL,
         "scattered_bound": {"type": ["number", "null"]},
         "random_windows": {"type": "integer", "minimum": 0},
+        "reference": {
+            "enum": ["arb", "mpfr", None],
+            "description": "the full computation every digit was compared with, or null (windows only)",
+        },
+        "wrong_digits": {**_INT_OR_NULL, "description": "wrong digits the full comparison found"},
+        "wrong_runs": {**_INT_OR_NULL, "description": "runs of wrong digits the full comparison found"},
     },
 }
 

@@ -33,28 +33,80 @@ def result_payload(result: CheckResult, repeat: str) -> dict[str, Any]:
     return out
 
 
+def plural(n: int, word: str, many: str | None = None) -> str:
+    """``1 wrong digit``, ``2 wrong digits``.
+
+    >>> plural(1, "run"), plural(3, "run"), plural(2, "prefix", "prefixes")
+    ('1 run', '3 runs', '2 prefixes')
+    """
+    return f"{n:,} {word if n == 1 else (many or word + 's')}"
+
+
+def coverage_phrase(result: CheckResult) -> str:
+    """What was compared: every digit, or how many windows (with the damage bound)."""
+    if isinstance(result, VerifyResult) and result.file.base == 10 and result.exhaustive:
+        return "every digit covered by radix conversion of the whole file"
+    if result.full_through and result.exhaustive:
+        ref = getattr(result, "reference", None) or "a full computation"
+        return f"every digit compared with {ref}"
+    windows = sum(1 for c in result.checks if c.position >= 1)
+    text = f"{plural(windows, 'window')} sampled ({result.covered_digits:,} digits)"
+    if isinstance(result, VerifyResult) and result.scattered_bound is not None:
+        text += f"; damaged fraction below {result.scattered_bound:.2%} at 95%"
+    return text
+
+
 def _verdict_line(result: CheckResult) -> tuple[str, str]:
     f = result.file
     what = f"{f.constant} in base {f.base}, {f.checked:,} digits"
     if f.checked != f.count:
         what += f" of {f.count:,}"
+    stop = "; interrupted" if result.interrupted else ""
     if result.verdict == "mismatch":
         if isinstance(result, LocateResult) and result.first_mismatch is not None:
-            return f"MISMATCH  first wrong digit at position {result.first_mismatch:,} ({what})", STYLE_BAD
-        if isinstance(result, ScanResult):
             return (
-                f"MISMATCH  {result.wrong_digits:,} wrong digits in {result.runs_total:,} runs ({what})",
+                f"MISMATCH  first wrong digit at position {result.first_mismatch:,} ({what}){stop}",
+                STYLE_BAD,
+            )
+        wrong_digits = getattr(result, "wrong_digits", None)
+        if wrong_digits:
+            runs = (
+                result.runs_total if isinstance(result, ScanResult) else getattr(result, "wrong_runs", None)
+            )
+            first = result.first_mismatch if isinstance(result, ScanResult) else None
+            if first is None:
+                first = next((c.position for c in result.checks if c.kind == "full"), None)
+            in_runs = f" in {plural(runs, 'run')}" if runs else ""
+            at = f", the first at position {first:,}" if first else ""
+            span = (
+                "every digit compared" if result.exhaustive else f"{result.covered_digits:,} digits compared"
+            )
+            return (
+                f"MISMATCH  {plural(wrong_digits, 'wrong digit')}{in_runs}{at}, {span} ({what}){stop}",
                 STYLE_BAD,
             )
         wrong = sum(not c.match for c in result.checks)
-        return f"MISMATCH  {wrong} of {len(result.checks)} checks differ ({what})", STYLE_BAD
+        return (
+            f"MISMATCH  {wrong} of {plural(len(result.checks), 'check')} differ; {coverage_phrase(result)} "
+            f"({what}){stop}",
+            STYLE_BAD,
+        )
     if result.verdict == "incomplete":
-        return f"INCOMPLETE  interrupted; nothing wrong found so far ({what})", STYLE_WARN
+        return f"INCOMPLETE  interrupted before anything was established ({what})", STYLE_WARN
+    if result.verdict == "unconfirmed":
+        return (
+            f"NOT RULED OUT  no wrong digit found, but isolated damage is not ruled out: "
+            f"{coverage_phrase(result)} ({what})",
+            STYLE_WARN,
+        )
     if isinstance(result, ScanResult):
         return f"MATCH  every one of {result.digits_compared:,} digits agrees ({what})", STYLE_OK
     if isinstance(result, LocateResult):
-        return f"NO WRONG DIGIT FOUND  ({what})", STYLE_OK
-    return f"MATCH  all {len(result.checks)} checks agree with certified digits ({what})", STYLE_OK
+        return f"NO WRONG DIGIT  {coverage_phrase(result)} ({what})", STYLE_OK
+    return (
+        f"MATCH  all {plural(len(result.checks), 'check')} agree; {coverage_phrase(result)} ({what}){stop}",
+        STYLE_OK,
+    )
 
 
 def label_sentence(result: CheckResult) -> str | None:
@@ -150,6 +202,11 @@ def _meaning(result: CheckResult) -> list[str]:
             lines.append(
                 f"Persistent-error model: the matching tail rules out any error before it that stayed wrong "
                 f"to the end (chance of an accidental match {result.false_match_chance:.1e}, 16^-{w})."
+            )
+        if result.reference is not None and result.full_through:
+            lines.append(
+                f"Full comparison: {result.full_through:,} digits compared with an independent computation "
+                f"({result.reference}), which shares nothing with the digit-extraction engine."
             )
         if result.scattered_bound is not None:
             lines.append(
