@@ -76,21 +76,21 @@ def supported(constant: str) -> bool:
     return constant in ("pi", "log2", "log3", "pi-squared", "catalan", "zeta3", "arctan-half")
 
 
-def _floor_scaled_arb(name: str, base: int, n: int, bits: int) -> int | None:
+def _floor_scaled_arb(name: str, base: int, n: int, bits: int, threads: int = 1) -> int | None:
     from flint import arb, ctx
 
-    old = ctx.prec
-    ctx.prec = bits
+    old, old_threads = ctx.prec, ctx.threads
+    ctx.prec, ctx.threads = bits, max(1, threads)
     try:
         x = _arb_value(name)()
         y = (x * arb(base) ** n).floor()  # type: ignore[operator]
         v = y.unique_fmpz()
         return None if v is None else int(v)
     finally:
-        ctx.prec = old
+        ctx.prec, ctx.threads = old, old_threads
 
 
-def _floor_scaled_mpfr(name: str, base: int, n: int, bits: int) -> int | None:
+def _floor_scaled_mpfr(name: str, base: int, n: int, bits: int, threads: int = 1) -> int | None:  # noqa: ARG001 - MPFR runs on one thread
     import gmpy2
 
     with gmpy2.context(precision=bits):
@@ -105,15 +105,20 @@ def _floor_scaled_mpfr(name: str, base: int, n: int, bits: int) -> int | None:
     return int(a) if a == b else None
 
 
-def reference_digits(constant: str, base: int, n: int, reference: str = "arb") -> tuple[str, str]:
-    """``(integer_part, digits)``: the first ``n`` certified digits after the point."""
+def reference_digits(
+    constant: str, base: int, n: int, reference: str = "arb", threads: int = 1
+) -> tuple[str, str]:
+    """``(integer_part, digits)``: the first ``n`` certified digits after the point.
+
+    ``threads``: threads Arb may use (MPFR uses one).
+    """
     if reference not in REFERENCES:
         raise UsageError(f"unknown reference {reference!r} (choose from {', '.join(REFERENCES)})")
     require_supported(constant)
     bits = int(n * math.log2(base)) + GUARD_BITS
     floor_scaled = _floor_scaled_arb if reference == "arb" else _floor_scaled_mpfr
     while True:
-        v = floor_scaled(constant, base, n, bits)
+        v = floor_scaled(constant, base, n, bits, threads)
         if v is not None:
             break
         bits += 64

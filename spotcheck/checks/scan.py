@@ -84,6 +84,7 @@ def scan_open(
     progress: Progress | None = None,
     stop_at_first: bool = False,
     upto: int | None = None,
+    threads: int = 1,
 ) -> ScanResult:
     """Scan an already opened file, or its first ``upto`` digits (``locate`` reuses this)."""
     if reference not in REFERENCES:
@@ -104,7 +105,7 @@ def scan_open(
         checks.append(ip)
     if progress:
         progress(0, n)
-    _, ref = reference_digits(facts.constant, facts.base, n, reference)
+    _, ref = reference_digits(facts.constant, facts.base, n, reference, threads)
     raw: list[tuple[int, int, int]] = []
     compared = 0
     interrupted = False
@@ -160,13 +161,17 @@ def scan_file(
     reference: str = "arb",
     limit: int | None = None,
     ignore_labels: bool = False,
+    workers: int = 1,
     progress: Progress | None = None,
 ) -> ScanResult:
-    """Compare every digit of the file with a full computation (Arb by default, or MPFR)."""
+    """Compare every digit of the file with a full computation (Arb by default, or MPFR).
+
+    ``workers``: threads the Arb computation may use.
+    """
     df, facts = open_checked(
         path, base=base, constant=constant, formula=None, limit=limit, ignore_labels=ignore_labels
     )
     try:
-        return scan_open(df, facts, reference=reference, progress=progress)
+        return scan_open(df, facts, reference=reference, progress=progress, threads=workers)
     finally:
         df.close()
