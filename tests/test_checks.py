@@ -239,3 +239,21 @@ def test_locate_within_a_zero_budget_explains_the_cost(workdir, truth) -> None:
     assert loc.verdict == "unconfirmed" and loc.exit_code == 3  # isolated damage is not ruled out
     assert not loc.exhaustive and loc.covered_digits < 20_000
     assert "spotcheck scan" in loc.explanation and loc.scan_estimate_seconds is not None
+
+
+def test_locate_interrupted_keeps_what_bisection_found(workdir, truth, monkeypatch) -> None:
+    import spotcheck.checks.locate as locate_mod
+
+    digits = truth[:20_000]
+    path = write_hex(workdir, digits[:9_000] + digits[9_000:][::-1])  # every digit from 9,001 moved
+    first = next(i for i in range(9_000, 20_000) if (digits[:9_000] + digits[9_000:][::-1])[i] != digits[i])
+
+    def ctrl_c(*args, **kwargs):  # Ctrl-C during the full comparison of the digits before it
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(locate_mod, "scan_open", ctrl_c)
+    loc = locate_file(str(path), budget=600)
+    assert loc.interrupted and loc.first_mismatch == first + 1
+    assert loc.verdict == "mismatch" and loc.exit_code == 1
+    assert not loc.first_is_certain  # not confirmed as the first
+    assert "not ruled out" in loc.explanation and loc.expected and loc.expected != loc.found

@@ -103,14 +103,24 @@ def scan_open(
     ip = integer_part_check(facts)
     if ip is not None:
         checks.append(ip)
+    share = seconds / (seconds + n / 50e6) if seconds > 0 else 0.0
+
+    def tick(elapsed: float) -> None:
+        # the computation's share of the bar, from its estimate; then the comparison's
+        if progress:
+            progress(int(1000 * share * min(0.99, elapsed / max(seconds, 1e-3))), 1000)
+
     if progress:
-        progress(0, n)
-    _, ref = reference_digits(facts.constant, facts.base, n, reference, threads)
+        progress(0, 1000)
     raw: list[tuple[int, int, int]] = []
     compared = 0
     interrupted = False
     try:
-        for pos, chunk in df.iter_chunks(CHUNK_DIGITS):
+        _, ref = reference_digits(facts.constant, facts.base, n, reference, threads, tick)
+    except KeyboardInterrupt:
+        interrupted, ref = True, ""
+    try:
+        for pos, chunk in df.iter_chunks(CHUNK_DIGITS) if not interrupted else ():
             if pos > n:
                 break
             chunk = chunk[: n - pos + 1]
@@ -122,7 +132,7 @@ def scan_open(
                     raw.append((first, last, last - first + 1))
             compared = pos - 1 + len(chunk)
             if progress:
-                progress(compared, n)
+                progress(int(1000 * (share + (1 - share) * compared / n)), 1000)
             if stop_at_first and raw:
                 break
     except KeyboardInterrupt:

@@ -64,6 +64,12 @@ def _verdict_line(result: CheckResult) -> tuple[str, str]:
     stop = "; interrupted" if result.interrupted else ""
     if result.verdict == "mismatch":
         if isinstance(result, LocateResult) and result.first_mismatch is not None:
+            if result.interrupted and not result.first_is_certain:
+                return (
+                    f"MISMATCH  wrong digit at position {result.first_mismatch:,}, not confirmed as the first "
+                    f"({what}); interrupted",
+                    STYLE_BAD,
+                )
             return (
                 f"MISMATCH  first wrong digit at position {result.first_mismatch:,} ({what}){stop}",
                 STYLE_BAD,
