@@ -104,7 +104,14 @@ class _HexLocator:
     def scan_before(self, upto: int | None) -> int | None:
         """First wrong digit among the first ``upto`` (all when None) by a full comparison."""
         self.scans += 1
-        scan = scan_open(self.df, self.facts, reference=self.reference, stop_at_first=True, upto=upto)
+        scan = scan_open(
+            self.df,
+            self.facts,
+            reference=self.reference,
+            stop_at_first=True,
+            upto=upto,
+            progress=self.progress,
+        )
         if scan.interrupted:
             raise KeyboardInterrupt
         self.full_through = max(

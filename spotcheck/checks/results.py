@@ -190,6 +190,10 @@ class VerifyResult(_Common):
     """Wrong digits the full comparison found (None when none ran)."""
     wrong_runs: int | None = None
     """Runs of wrong digits the full comparison found (None when none ran)."""
+    first_wrong_bracket: tuple[int, int] | None = None
+    """Decimal files: the first wrong decimal digit lies in ``lo..hi`` (from the prefixes checked)."""
+    rounded_from: int | None = None
+    """Decimal files: the wrong digits from this position to the end are the true ones rounded up."""
 
     @property
     def false_match_chance(self) -> float:
@@ -215,6 +219,8 @@ class VerifyResult(_Common):
             reference=self.reference,
             wrong_digits=self.wrong_digits,
             wrong_runs=self.wrong_runs,
+            first_wrong_bracket=list(self.first_wrong_bracket) if self.first_wrong_bracket else None,
+            rounded_from=self.rounded_from,
         )
         return out
 
@@ -237,10 +243,12 @@ class LocateResult(_Common):
     false-match chance and, for bisection, the persistent-error model)."""
     full_through_value: int = 0
     """Digits 1..N compared with a full computation (0: none)."""
+    first_wrong_bracket: tuple[int, int] | None = None
+    """Decimal files, interrupted bisection: the first wrong digit lies in ``lo..hi``."""
 
     @property
     def verdict(self) -> str:
-        if self.first_mismatch is not None:
+        if self.first_mismatch is not None or self.first_wrong_bracket is not None:
             return MISMATCH
         if self.interrupted:
             return INCOMPLETE
@@ -248,7 +256,7 @@ class LocateResult(_Common):
 
     @property
     def exit_code(self) -> int:
-        if self.first_mismatch is not None or not self.labels_consistent:
+        if self.verdict == MISMATCH or not self.labels_consistent:
             return 1
         return EXIT_UNCONFIRMED if self.verdict == UNCONFIRMED else 0
 
@@ -263,6 +271,7 @@ class LocateResult(_Common):
             explanation=self.explanation,
             scan_estimate_seconds=self.scan_estimate_seconds,
             first_is_certain=self.first_is_certain,
+            first_wrong_bracket=list(self.first_wrong_bracket) if self.first_wrong_bracket else None,
         )
         return out
 

@@ -143,6 +143,17 @@ VERIFY_SCHEMA: dict[str, Any] = {
         },
         "wrong_digits": {**_INT_OR_NULL, "description": "wrong digits the full comparison found"},
         "wrong_runs": {**_INT_OR_NULL, "description": "runs of wrong digits the full comparison found"},
+        "first_wrong_bracket": {
+            "type": ["array", "null"],
+            "items": {"type": "integer", "minimum": 1},
+            "minItems": 2,
+            "maxItems": 2,
+            "description": "decimal files: [lo, hi], the first wrong decimal digit lies in lo..hi",
+        },
+        "rounded_from": {
+            **_INT_OR_NULL,
+            "description": "decimal files: the digits from here to the end are the true ones rounded up",
+        },
     },
 }
 
@@ -160,6 +171,13 @@ LOCATE_SCHEMA: dict[str, Any] = {
         "first_is_certain": {"type": "boolean"},
         "explanation": {"type": "string"},
         "scan_estimate_seconds": {"type": ["number", "null"]},
+        "first_wrong_bracket": {
+            "type": ["array", "null"],
+            "items": {"type": "integer", "minimum": 1},
+            "minItems": 2,
+            "maxItems": 2,
+            "description": "decimal files: [lo, hi], the first wrong decimal digit lies in lo..hi",
+        },
     },
 }
 

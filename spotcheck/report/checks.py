@@ -91,6 +91,26 @@ def _verdict_line(result: CheckResult) -> tuple[str, str]:
                 f"MISMATCH  {plural(wrong_digits, 'wrong digit')}{in_runs}{at}, {span} ({what}){stop}",
                 STYLE_BAD,
             )
+        if isinstance(result, VerifyResult) and result.first_wrong_bracket is not None:
+            lo, hi = result.first_wrong_bracket
+            if result.rounded_from is not None:
+                where = (
+                    f"the last digit is the true expansion rounded up (digit {f.checked:,}), not a truncation"
+                    if result.rounded_from == f.checked
+                    else f"digits {result.rounded_from:,} to {f.checked:,} are the true ones rounded up at the "
+                    "last digit, not a truncation"
+                )
+            elif lo == hi:
+                where = f"the first wrong decimal digit is at position {lo:,}"
+            else:
+                where = f"the first wrong decimal digit lies between positions {lo:,} and {hi:,}"
+            return f"MISMATCH  {where} ({what}){stop}", STYLE_BAD
+        if isinstance(result, LocateResult) and result.first_wrong_bracket is not None:
+            lo, hi = result.first_wrong_bracket
+            return (
+                f"MISMATCH  the first wrong decimal digit lies between positions {lo:,} and {hi:,} ({what}){stop}",
+                STYLE_BAD,
+            )
         wrong = sum(not c.match for c in result.checks)
         return (
             f"MISMATCH  {wrong} of {plural(len(result.checks), 'check')} differ; {coverage_phrase(result)} "
@@ -167,12 +187,13 @@ def file_map(result: CheckResult, width: int) -> tuple[str, list[tuple[int, int,
     for c in result.checks:
         if c.position < 1:
             continue
-        # A hex window of a decimal file sits at about position * log10(16) in decimal digits.
-        i = cell(
-            c.position
-            if c.base == result.file.base
-            else round(c.position * math.log(c.base, result.file.base))
-        )
+        # A hex window of a decimal file is evidence about the decimal prefix it was converted from.
+        if c.base == result.file.base:
+            i = cell(c.position)
+        elif c.prefix is not None:
+            i = cell(c.prefix)
+        else:
+            i = cell(round(c.position * math.log(c.base, result.file.base)))
         if not c.match:
             cells[i], styles[i] = MAP_MISMATCH, STYLE_BAD
         elif cells[i] != MAP_MISMATCH:
@@ -196,12 +217,14 @@ def _meaning(result: CheckResult) -> list[str]:
             lines.append(
                 "Radix conversion: each decimal prefix checked (the whole file for the tail) was converted "
                 "to hexadecimal; the hex digits it determines were compared with certified engine digits "
-                "(base 16 rows), and its last decimal digits were recomputed exactly (base 10 rows)."
+                "(rows marked hex: the engine's evidence, in hex positions), and its last decimal digits were "
+                "recomputed exactly (the other rows, in decimal positions)."
             )
             if result.any_mismatch:
                 lines.append(
-                    "A differing row means that some decimal digit of that prefix is wrong, not necessarily "
-                    "at the position shown; `spotcheck locate` finds the first wrong decimal digit."
+                    "A differing hex row means that some decimal digit of the prefix it was converted from is "
+                    "wrong; the verdict line brackets the first wrong decimal digit from the prefixes that "
+                    "pass and fail, and `spotcheck locate` finds it exactly."
                 )
         tail = next((c for c in result.checks if c.kind == "tail"), None)
         if tail is not None and tail.match:
@@ -231,11 +254,19 @@ def _meaning(result: CheckResult) -> list[str]:
     return lines
 
 
-def _row_result(c: WindowCheck) -> str:
+def _row_result(c: WindowCheck, file_base: int) -> str:
     if c.match:
         return f"[{STYLE_OK}]match[/]"
-    where = f" at {c.first_difference:,}" if c.first_difference else ""
+    hex_row = c.base != file_base
+    where = f" at {'hex ' if hex_row else ''}{c.first_difference:,}" if c.first_difference else ""
     return f"[{STYLE_BAD}]✗{where}[/]"
+
+
+def _row_cells(c: WindowCheck, file_base: int) -> tuple[str, str]:
+    """The check and position cells; hex rows of a decimal file are labelled as the engine's evidence."""
+    if c.base == file_base:
+        return c.kind, f"{c.position:,}"
+    return f"{c.kind} (hex)", f"hex {c.position:,}"
 
 
 def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool) -> None:
@@ -268,7 +299,7 @@ def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool)
             table.add_row(f"{r.start:,}", f"{r.length:,}", f"{r.wrong:,}", r.expected, r.found)
         con.print(table)
     elif result.checks:
-        mixed = any(c.base != f.base for c in result.checks)
+        mixed = False  # hex rows of a decimal file say "hex" in their check and position cells
         table = Table(box=box.SIMPLE_HEAD, pad_edge=False, show_edge=False, collapse_padding=True)
         table.add_column("check", no_wrap=True)
         if mixed:
@@ -283,7 +314,8 @@ def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool)
             shown = (bad + [c for c in shown if c.match])[:MAX_TABLE_ROWS]
         for c in shown:
             base_cell = [str(c.base)] if mixed else []
-            table.add_row(c.kind, *base_cell, f"{c.position:,}", c.expected, c.found, _row_result(c))
+            kind_cell, position_cell = _row_cells(c, f.base)
+            table.add_row(kind_cell, *base_cell, position_cell, c.expected, c.found, _row_result(c, f.base))
         con.print(table)
         if len(shown) < len(result.checks):
             con.print(f"({len(result.checks) - len(shown)} more matching checks not shown)", style=STYLE_DIM)
