@@ -14,11 +14,34 @@ from typing import Annotated, Any
 import typer
 
 from spotcheck import __version__
-from spotcheck.errors import DigitFileError, SpotcheckError
+from spotcheck.errors import SpotcheckError
+
+
+def _flags_look_like_flags() -> None:
+    """Show boolean flags without a ``<bool>`` value column in the help (typer with click >= 8.2)."""
+    import typer.core
+
+    for cls in (typer.core.TyperOption, typer.core.TyperArgument):
+        original = getattr(cls, "display_type_rich", None)
+        if original is None or getattr(original, "_spotcheck", False):
+            continue
+
+        def display(self: Any, ctx: Any, _original: Any = original) -> str | None:
+            if getattr(self, "is_flag", False):
+                return None
+            result: str | None = _original(self, ctx)
+            return result
+
+        display._spotcheck = True  # type: ignore[attr-defined]
+        cls.display_type_rich = display  # type: ignore[method-assign]
+
+
+_flags_look_like_flags()
 
 app = typer.Typer(
     add_completion=False,
     no_args_is_help=True,
+    context_settings={"help_option_names": ["-h", "--help"]},
     help="Spot-check digit files of mathematical constants with certified digit extraction.",
 )
 
@@ -237,7 +260,7 @@ def constants(formula_file: FormulaFileOpt = None, as_json: JsonOpt = False) -> 
     show_constants(all_constants(), as_json=as_json)
 
 
-FileArg = Annotated[Path, typer.Argument(help="Digit file (plain, gzip, bzip2 or xz; hex or decimal).")]
+FileArg = Annotated[str, typer.Argument(help="Digit file (plain, gzip, bzip2 or xz; hex or decimal).")]
 ConstantOpt = Annotated[
     str | None,
     typer.Option("--constant", "-c", help="Constant of the file (default: guessed from its digits)."),
@@ -302,7 +325,21 @@ def _window_checkpoint(value: str | None) -> bool:
     return value == "auto"
 
 
-def _repeat(command: str, path: Path, **options: Any) -> str:
+_typed_path: list[str] = []  # the FILE argument of the running command, as the user typed it
+
+
+def _as_typed(message: str) -> str:
+    """Name the file as the user typed it where a library message names it otherwise."""
+    if not _typed_path:
+        return message
+    typed = _typed_path[-1]
+    for other in (str(Path(typed)), os.path.basename(typed), str(Path(typed).resolve())):
+        if other != typed and message.startswith(other + ":"):
+            return typed + message[len(other) :]
+    return message
+
+
+def _repeat(command: str, path: str, **options: Any) -> str:
     import shlex
 
     parts = ["spotcheck", command, shlex.quote(str(path))]
@@ -323,11 +360,25 @@ def _repeat(command: str, path: Path, **options: Any) -> str:
 def _finish(result: Any, repeat: str, as_json: bool, quiet: bool) -> None:
     from spotcheck.report.checks import show_result
 
-    show_result(result, repeat, as_json=as_json, quiet=quiet)
     code = result.exit_code
-    if code == EXIT_OK and result.interrupted:
-        code = 130
+    if result.verdict == "incomplete":
+        code = 130  # interrupted before anything was established
+    try:
+        show_result(result, repeat, as_json=as_json, quiet=quiet)
+        sys.stdout.flush()
+    except BrokenPipeError:  # `spotcheck verify FILE | head -1`: the reader has what it wanted
+        _silence_stdout()
     raise typer.Exit(code)
+
+
+def _silence_stdout() -> None:
+    """Point stdout at /dev/null so that a closed pipe ends the program quietly."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
+    except (OSError, ValueError):
+        pass
 
 
 @app.command()
@@ -341,8 +392,21 @@ def verify(
         list[int] | None, typer.Option("--at", help="Also check the window at this position (repeatable).")
     ] = None,
     budget: Annotated[
-        float | None, typer.Option("--budget", help="Keep drawing random windows for this many seconds.")
+        float,
+        typer.Option(
+            "--budget",
+            metavar="SECONDS",
+            help="Compare every digit with a full computation when its estimate fits SECONDS "
+            "(0: windows only); beyond it, sample windows.",
+        ),
+    ] = 60.0,
+    sample_seconds: Annotated[
+        float | None,
+        typer.Option(
+            "--sample-seconds", metavar="SECONDS", help="Keep drawing random windows for this many seconds."
+        ),
     ] = None,
+    reference: ReferenceOpt = "arb",
     window: WindowOpt = 16,
     constant: ConstantOpt = None,
     base: BaseOpt = None,
@@ -357,7 +421,8 @@ def verify(
     as_json: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
-    """Check the tail, the head, random windows and named positions of FILE against certified digits."""
+    """Check FILE: every digit when a full comparison fits --budget, else tail, head and random windows."""
+    _typed_path.append(file)
     import secrets
 
     from spotcheck.checks import verify_file
@@ -376,6 +441,8 @@ def verify(
             at=at or (),
             window=window,
             budget=budget,
+            sample_seconds=sample_seconds,
+            reference=reference,
             workers=_workers(workers),
             limit=limit,
             ignore_labels=ignore_labels,
@@ -390,6 +457,9 @@ def verify(
         samples=samples,
         seed=seed,
         at=at,
+        budget=budget,
+        sample_seconds=sample_seconds,
+        reference=reference,
         window=window,
         constant=constant,
         base=base,
@@ -426,6 +496,7 @@ def locate(
     quiet: QuietOpt = False,
 ) -> None:
     """Find the first wrong digit of FILE (1-based position), with expected and found digits."""
+    _typed_path.append(file)
     from spotcheck.checks import locate_file
     from spotcheck.report.console import progress_bar
 
@@ -475,13 +546,17 @@ def scan(
     limit: LimitOpt = None,
     ignore_labels: IgnoreLabelsOpt = False,
     labels: LabelsOpt = None,
+    formula_file: FormulaFileOpt = None,
+    workers: WorkersOpt = None,
     as_json: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
     """Compare every digit of FILE with an independent full computation."""
+    _typed_path.append(file)
     from spotcheck.checks import scan_file
     from spotcheck.report.console import progress_bar
 
+    _load_formula_files(formula_file)
     with progress_bar("scan", enabled=not (quiet or as_json)) as cb:
         result = scan_file(
             str(file),
@@ -491,6 +566,7 @@ def scan(
             limit=limit,
             ignore_labels=ignore_labels,
             labels=labels,
+            workers=_workers(workers),
             progress=cb,
         )
     repeat = _repeat(
@@ -502,6 +578,7 @@ def scan(
         limit=limit,
         ignore_labels=ignore_labels,
         labels=labels,
+        formula_file=formula_file,
     )
     _finish(result, repeat, as_json, quiet)
 
@@ -514,22 +591,19 @@ def inspect(
     labels: LabelsOpt = None,
     formula_file: FormulaFileOpt = None,
     as_json: JsonOpt = False,
+    quiet: QuietOpt = False,
 ) -> None:
     """Show what spotcheck detects in FILE: base, constant, layout, digit count, compression."""
+    _typed_path.append(file)
     from spotcheck.digitfile import inspect_file
     from spotcheck.report.checks import show_inspect
     from spotcheck.report.console import progress_bar
 
     _load_formula_files(formula_file)
-    with progress_bar("reading", enabled=not as_json) as cb:
+    with progress_bar("reading", enabled=not (as_json or quiet)) as cb:
         result = inspect_file(str(file), base=_base(base), constant=constant, progress=cb, labels=labels)
-    show_inspect(result, as_json=as_json)
-    lies = [f for f in result.findings if f.kind == "label-mismatch"]
-    if lies:  # the report above shows them all; labels that lie are bad input
-        where = f" (line {lies[0].line})" if lies[0].line else ""
-        raise DigitFileError(
-            f"{file}: position labels disagree with the digit count{where}: {lies[0].message}"
-        )
+    if not quiet or as_json:
+        show_inspect(result, as_json=as_json)  # findings are facts about the file: exit 0
 
 
 @app.command()
@@ -555,20 +629,28 @@ def run(argv: list[str] | None = None) -> int:
     from spotcheck.report.console import error_line
 
     command = typer.main.get_command(app)
+    _typed_path.clear()
     args = list(sys.argv[1:] if argv is None else argv)
+    if not args:
+        args = ["--help"]  # bare `spotcheck`: the help, exit 0
     if args and args[0] in ("digits", "verify", "locate", "scan"):
         _warn_if_no_kernel()
     try:
         rv: Any = command.main(args=args, prog_name="spotcheck", standalone_mode=False)
     except SpotcheckError as exc:
-        msg = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
+        text = str(exc)
+        if isinstance(exc, OSError) and exc.strerror:
+            text = f"{exc.filename}: {exc.strerror}" if exc.filename else exc.strerror
         if getattr(exc, "choice", None) == "labels":
-            msg += " (--labels start|end|none)"
-        error_line(msg)
+            text += " (--labels start|end|none)"
+        error_line(_as_typed(text))
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         error_line("interrupted")
         return 130
+    except BrokenPipeError:  # output closed early (`| head`): end quietly
+        _silence_stdout()
+        return EXIT_OK
     except Exception as exc:  # typer/click usage errors carry exit_code and format_message
         if hasattr(exc, "format_message") and hasattr(exc, "exit_code"):
             error_line(exc.format_message())

@@ -63,8 +63,11 @@ def digest(path: Path) -> str:
 
 def test_clean_file_passes_all_three(clean) -> None:
     before = digest(clean)
-    v = verify_file(str(clean), samples=6, seed=11)
-    assert v.exit_code == 0 and v.verdict == "match"
+    full = verify_file(str(clean), samples=6, seed=11)  # a full comparison fits the default budget
+    assert full.exit_code == 0 and full.exhaustive and full.reference == "arb"
+    assert full.covered == [(1, N)] and full.scattered_bound is None
+    v = verify_file(str(clean), samples=6, seed=11, budget=0)  # windows only
+    assert v.exit_code == 0 and v.verdict == "match" and not v.exhaustive
     assert {c.kind for c in v.checks} >= {"head", "tail", "sample", "integer-part"}
     assert v.file.constant == "pi" and v.file.count == N
     assert v.tail_position == N - 15
@@ -157,7 +160,7 @@ def test_scan_with_mpfr_reference(workdir, truth) -> None:
 
 def test_named_positions_and_budget(workdir, truth) -> None:
     small = write_hex(workdir, truth[:3000])  # cheap windows, so the budget surely draws some
-    v = verify_file(str(small), samples=0, seed=1, at=[5, 777, 2985], budget=0.5)
+    v = verify_file(str(small), samples=0, seed=1, at=[5, 777, 2985], budget=0, sample_seconds=0.5)
     assert [c.position for c in v.checks if c.kind == "user"] == [5, 777, 2985]
     assert v.random_windows >= 1  # the budget drew random windows
     assert v.exit_code == 0
@@ -232,5 +235,25 @@ def test_locate_within_a_zero_budget_explains_the_cost(workdir, truth) -> None:
     digits[777] = "0" if digits[777] != "0" else "1"
     path = write_hex(workdir, "".join(digits))
     loc = locate_file(str(path), budget=0)
-    assert loc.first_mismatch is None and loc.exit_code == 0
+    assert loc.first_mismatch is None
+    assert loc.verdict == "unconfirmed" and loc.exit_code == 3  # isolated damage is not ruled out
+    assert not loc.exhaustive and loc.covered_digits < 20_000
     assert "spotcheck scan" in loc.explanation and loc.scan_estimate_seconds is not None
+
+
+def test_locate_interrupted_keeps_what_bisection_found(workdir, truth, monkeypatch) -> None:
+    import spotcheck.checks.locate as locate_mod
+
+    digits = truth[:20_000]
+    path = write_hex(workdir, digits[:9_000] + digits[9_000:][::-1])  # every digit from 9,001 moved
+    first = next(i for i in range(9_000, 20_000) if (digits[:9_000] + digits[9_000:][::-1])[i] != digits[i])
+
+    def ctrl_c(*args, **kwargs):  # Ctrl-C during the full comparison of the digits before it
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(locate_mod, "scan_open", ctrl_c)
+    loc = locate_file(str(path), budget=600)
+    assert loc.interrupted and loc.first_mismatch == first + 1
+    assert loc.verdict == "mismatch" and loc.exit_code == 1
+    assert not loc.first_is_certain  # not confirmed as the first
+    assert "not ruled out" in loc.explanation and loc.expected and loc.expected != loc.found

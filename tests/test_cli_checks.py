@@ -38,8 +38,34 @@ def test_verify_clean_sample(capsys) -> None:
     assert code == 0
     first = out.splitlines()[0]
     assert first.startswith("MATCH") and "pi" in first and "50,000 digits" in first
+    assert "every digit compared with arb" in first  # a full comparison fits the default budget
+    code, out, _ = cli(capsys, "verify", SAMPLES / "pi-hex-clean.txt", "--seed", "42", "--budget", "0")
+    assert code == 0
+    first = out.splitlines()[0]
+    assert first.startswith("MATCH") and "windows sampled" in first and "below" in first
     assert "--seed 42" in out  # the repeat line names the seed
     assert "16^-16" in out and "95% confidence" in out
+
+
+def test_one_wrong_digit_in_a_million_is_found_by_plain_verify(capsys, tmp_path) -> None:
+    from .reference import pi_hex  # pi from mpmath (tests/reference.py)
+
+    digits = list(pi_hex(10**6))
+    digits[654_320] = "0" if digits[654_320] != "0" else "1"  # digit 654,321 wrong
+    path = tmp_path / "pi-1e6.txt"
+    path.write_text("3." + "".join(digits) + "\n")
+    code, payload = as_json(capsys, "verify", path, "--seed", "5")
+    assert code == 1 and payload["verdict"] == "mismatch"
+    assert payload["exhaustive"] and payload["covered"] == [[1, 10**6]]
+    assert payload["wrong_digits"] == 1
+    full = [c for c in payload["checks"] if c["kind"] == "full"]
+    assert full and full[0]["position"] == 654_321
+    code, out, _ = cli(capsys, "verify", path, "--seed", "5")
+    assert out.startswith("MISMATCH  1 wrong digit in 1 run, the first at position 654,321")
+    code, payload = as_json(capsys, "locate", path, "--budget", "0")
+    assert code == 3 and payload["verdict"] == "unconfirmed" and not payload["exhaustive"]
+    code, out, _ = cli(capsys, "locate", path, "--budget", "0")
+    assert code == 3 and out.startswith("NOT RULED OUT")
 
 
 def test_verify_prints_seed_it_chose(capsys) -> None:
@@ -174,20 +200,52 @@ def test_schema_command_prints_the_schema(capsys) -> None:
     jsonschema.Draft202012Validator.check_schema(REPORT_SCHEMA)
 
 
-def test_labels_that_lie(capsys, tmp_path) -> None:
-    from .reference import pi_hex
+def _labelled(digits: str, width: int = 50) -> list[str]:
+    """End-labelled lines: each line's label counts the digits through its end."""
+    return [f"{digits[i : i + width]} : {i + width}" for i in range(0, len(digits) - width + 1, width)]
+
+
+def test_labels_that_lie_are_damage(capsys, tmp_path) -> None:
+    from .reference import pi_hex  # pi from mpmath (tests/reference.py)
 
     digits = pi_hex(2000)
-    lines = [f"{digits[i : i + 50]} : {i + 50}" for i in range(0, 2000, 50)]
-    lines[10] = lines[10].replace(": 550", ": 600")  # a label that lies
+    lines = _labelled(digits)
+    lines[10] = lines[10].replace(": 550", ": 600")  # a label changed, the digits right
     path = tmp_path / "labelled.txt"
     path.write_text("3.\n" + "\n".join(lines) + "\n")
     before = digest(path)
-    for command in ("inspect", "verify", "locate", "scan"):
+    for command in ("verify", "locate", "scan"):
+        code, payload = as_json(capsys, command, path)
+        assert code == 1, command  # an inconsistent file
+        assert payload["labels_consistent"] is False
+        lf = payload["file"]["label_finding"]
+        assert lf["line"] == 12 and lf["kind"] == "label-mismatch", (command, lf)
+        assert payload["verdict"] in ("match", "unconfirmed"), command  # the digits themselves are right
         code, out, err = cli(capsys, command, path)
-        errors = [ln for ln in err.splitlines() if ln.startswith("error:")]
-        assert code == 2 and len(errors) == 1, (command, err)
-        assert "label" in errors[0] and "line 12" in errors[0]
-    code, _, _ = cli(capsys, "verify", path, "--ignore-labels", "--seed", "1")
-    assert code == 0  # the digits themselves are right
+        assert code == 1 and "LABELS DISAGREE" in out and "line 12" in out and not err.strip(), command
+    code, payload = as_json(capsys, "verify", path, "--ignore-labels", "--seed", "1")
+    assert code == 0 and payload["labels_consistent"] and payload["file"]["label_finding"] is None
+    code, out, _ = cli(capsys, "inspect", path, "--json")  # inspect lists the findings, exit 0
+    payload = json.loads(out)
+    assert code == 0 and any(f["line"] == 12 for f in payload["findings"])
     assert digest(path) == before
+
+
+def test_labels_shifted_by_a_deleted_digit(capsys, tmp_path) -> None:
+    from .reference import pi_hex  # pi from mpmath (tests/reference.py)
+
+    digits = pi_hex(3000)
+    lines = _labelled(digits)
+    lines[20] = lines[20][:7] + lines[20][8:]  # digit 1,008 deleted: the line is one short
+    path = tmp_path / "deleted.txt"
+    path.write_text("3.\n" + "\n".join(lines) + "\n")
+    code, payload = as_json(capsys, "locate", path)
+    assert code == 1 and payload["verdict"] == "mismatch"
+    assert payload["first_mismatch"] == 1008  # the first digit that moved
+    lf = payload["file"]["label_finding"]
+    assert lf is not None and lf["line"] == 22  # "3." is line 1; lines[20] is line 22
+    assert lf["position"] == 1001  # its first digit
+    code, out, _ = cli(capsys, "verify", path, "--seed", "3")
+    assert code == 1 and out.startswith("MISMATCH") and "LABELS DISAGREE  line 22" in out.splitlines()[1]
+    code, payload = as_json(capsys, "verify", path, "--ignore-labels", "--seed", "3")
+    assert code == 1 and payload["file"]["label_finding"] is None  # the digits are still wrong

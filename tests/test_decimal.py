@@ -116,3 +116,69 @@ def test_conversion_refused_when_memory_is_short(workdir, monkeypatch) -> None:
     monkeypatch.setattr(decimal_mod, "memory_budget", lambda: 1000)
     with pytest.raises(UsageError, match="--limit"):
         verify_file(str(path))
+
+
+def _cli(capsys, *args: str) -> tuple[int, str]:
+    from spotcheck.cli import run
+
+    code = run([str(a) for a in args])
+    return code, capsys.readouterr().out
+
+
+def test_verify_brackets_the_first_wrong_decimal_digit(workdir, capsys) -> None:
+    digits = list(truth())
+    digits[1233] = str((int(digits[1233]) + 3) % 10)  # digit 1,234 wrong
+    path = write_dec(workdir, "".join(digits))
+    code, out = _cli(capsys, "verify", path, "--seed", "2", "--samples", "12")
+    assert code == 1
+    first = out.splitlines()[0]
+    assert first.startswith("MISMATCH  the first wrong decimal digit")
+    v = verify_file(str(path), seed=2, samples=12)
+    assert v.first_wrong_bracket is not None
+    lo, hi = v.first_wrong_bracket
+    assert lo <= 1234 <= hi  # the bracket holds the damaged digit
+    assert f"{lo:,}" in first and f"{hi:,}" in first
+
+
+def test_decimal_report_has_hex_positions_only_in_hex_rows(workdir, capsys) -> None:
+    import re
+
+    digits = list(truth())
+    digits[2999] = str((int(digits[2999]) + 1) % 10)
+    path = write_dec(workdir, "".join(digits))
+    for command in ("verify", "locate"):
+        code, out = (
+            _cli(capsys, command, path, "--seed", "4") if command == "verify" else _cli(capsys, command, path)
+        )
+        assert code == 1
+        table = [
+            ln
+            for ln in out.splitlines()
+            if re.match(r"^(tail|head|sample|user|bisection|confirm|prefix)", ln)
+        ]
+        assert table, out
+        for row in table:
+            numbers = re.findall(
+                r"(?<![\w.])\d{1,3}(?:,\d{3})+|(?<![\w.])\d+(?![\w.])",
+                row.split()[1 if "(hex)" not in row else 2],
+            )
+            if "(hex)" in row:
+                assert " hex " in f" {row} ", row  # the position cell says hex
+            else:
+                assert "hex" not in row and numbers, row  # a decimal position
+
+
+@pytest.mark.parametrize("n", [700, 1000, 2500])
+def test_rounded_last_digit_is_named_as_rounding(workdir, capsys, n) -> None:
+    true = truth()[: n + 40]
+    # the first length >= n whose next true digit is 5..8 and last digit is not 9: rounding up changes one digit
+    m = next(k for k in range(n, n + 40) if true[k] in "5678" and true[k - 1] != "9")
+    rounded = true[: m - 1] + str(int(true[m - 1]) + 1)
+    path = write_dec(workdir, rounded)
+    v = verify_file(str(path), seed=1, samples=2)
+    assert v.exit_code == 1 and v.first_wrong_bracket == (m, m) and v.rounded_from == m
+    code, out = _cli(capsys, "verify", path, "--seed", "1", "--samples", "2")
+    assert code == 1 and "rounded up" in out.splitlines()[0]
+    truncated_wrong = true[: m - 1] + str((int(true[m - 1]) + 2) % 10)  # not a rounding
+    v = verify_file(str(write_dec(workdir, truncated_wrong)), seed=1, samples=2)
+    assert v.exit_code == 1 and v.rounded_from is None

@@ -9,10 +9,10 @@ from typing import Any
 
 from spotcheck.digitfile import DigitFile, open_digit_file
 from spotcheck.engine.api import extract, leading_digits
-from spotcheck.errors import LabelError, UsageError
+from spotcheck.errors import UsageError
 from spotcheck.formulas import get_constant
 
-from .results import FileFacts, WindowCheck
+from .results import FileFacts, LabelFinding, WindowCheck
 
 Progress = Callable[[int, int], None]
 Plan = list[tuple[str, int]]
@@ -36,17 +36,14 @@ def open_checked(
     """Open a digit file and settle the constant, or raise :class:`UsageError`.
 
     ``limit`` restricts every check to the first ``limit`` digits.  Position
-    labels that disagree with the real digit count are bad input (digits were
-    lost or gained, or the labels are wrong) unless ``ignore_labels``.
+    labels that disagree with the real digit count are damage (digits were
+    lost or gained, or a label was changed): the digits are read and checked
+    all the same, and the first such label becomes ``FileFacts.label_finding``
+    unless ``ignore_labels``.
     """
     if limit is not None and limit < 1:
         raise UsageError(f"limit must be at least 1, got {limit}")
-    try:
-        df = open_digit_file(
-            path, base=base, constant=constant, strict_labels=not ignore_labels, labels=labels
-        )
-    except LabelError as exc:
-        raise LabelError(f"{exc} (check the digits themselves with --ignore-labels)") from None
+    df = open_digit_file(path, base=base, constant=constant, strict_labels=False, labels=labels)
     if df.constant is None:
         df.close()
         raise UsageError(f"{path}: {df.constant_how} (--constant NAME; `spotcheck constants` lists them)")
@@ -65,8 +62,29 @@ def open_checked(
         formula=const.formula(formula).key,
         compression=df.compression,
         integer_part=df.integer_part,
+        label_finding=None if ignore_labels else first_label_finding(df),
     )
     return df, facts
+
+
+LABEL_KINDS = ("label-mismatch", "label-missing")
+
+
+def first_label_finding(df: DigitFile) -> LabelFinding | None:
+    """The first label finding of an opened file (by line), with the count of all of them."""
+    found = [f for f in df.findings if f.kind in LABEL_KINDS and f.line is not None]
+    if not found:
+        return None
+    first = min(found, key=lambda f: f.line or 0)
+    return LabelFinding(
+        kind=first.kind,
+        line=first.line,
+        byte_offset=first.byte_offset,
+        position=first.position,
+        expected=getattr(first, "expected", None),
+        found=getattr(first, "found", None),
+        total=len(found),
+    )
 
 
 def integer_part_check(facts: FileFacts) -> WindowCheck | None:

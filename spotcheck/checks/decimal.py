@@ -235,6 +235,10 @@ def verify_decimal(
         checks.extend(out.rows)
 
     random_windows, interrupted = run_plan(plan, check, lambda: rng.randint(lo, n), budget, progress)
+    bracket = decimal_bracket(checks, n)
+    rounded = None
+    if bracket is not None and bracket[0] == bracket[1] and not interrupted:
+        rounded = _rounded_last_digits(digits, bracket[0], oracle, w)
     return VerifyResult(
         file=facts,
         checks=checks,
@@ -246,7 +250,61 @@ def verify_decimal(
         seed=seed,
         tail_position=n,
         random_windows=random_windows,
+        first_wrong_bracket=bracket,
+        rounded_from=rounded,
     )
+
+
+def decimal_bracket(checks: Sequence[WindowCheck], n: int) -> tuple[int, int] | None:
+    """``(lo, hi)``: where the first wrong decimal digit must lie, from the prefixes checked.
+
+    A prefix passes (both its rows match) only when all its digits are right,
+    so the first wrong digit lies after the longest passing prefix and within
+    the shortest failing one; a decimal end recomputed from a matching hex
+    window names it exactly.  None when no prefix failed.
+    """
+    by_prefix: dict[int, list[WindowCheck]] = {}
+    for c in checks:
+        if c.kind == "head" and c.base == 10 and not c.match and c.first_difference is not None:
+            return c.first_difference, c.first_difference
+        if c.prefix is not None and c.kind != "integer-part":
+            by_prefix.setdefault(c.prefix, []).append(c)
+    good, bad = 0, None
+    for length, rows in by_prefix.items():
+        if all(r.match for r in rows):
+            good = max(good, length)
+        else:
+            bad = length if bad is None else min(bad, length)
+            for r in rows:
+                if r.base == 10 and not r.match and r.first_difference is not None:
+                    return r.first_difference, r.first_difference
+    if bad is None:
+        return None
+    return good + 1, min(bad, n)
+
+
+def _rounded_last_digits(digits: str, first: int, oracle: HexOracle, w: int) -> int | None:
+    """``first`` when digits ``first..n`` are the true ones rounded up at the last digit, else None.
+
+    Digits ``1..first-1`` are known right; the true digits ``first..n+1`` are
+    recomputed from them and engine digits, and the file's ``first..n`` must
+    equal the true ``first..n`` plus one, with true digit ``n+1`` at least 5.
+    """
+    n = len(digits)
+    if n - first + 2 > w or first < 1:
+        return None
+    out = prefix_check(digits + "0", oracle, max(w, n - first + 2), "confirm", basis=first - 1)
+    end = out.end
+    if end is None or end.position > first:
+        return None
+    true = end.expected[first - end.position : first - end.position + n - first + 2]
+    if len(true) != n - first + 2:
+        return None
+    upper, next_digit = true[:-1], int(true[-1])
+    found = digits[first - 1 :]
+    if next_digit >= 5 and int(found) == int(upper) + 1 and len(str(int(upper) + 1)) <= len(found):
+        return first
+    return None
 
 
 def locate_decimal(
@@ -279,6 +337,7 @@ def locate_decimal(
     interrupted = False
     first: int | None = None
     bad_end: WindowCheck | None = None
+    good, bad = 0, 0
     try:
         whole = prefix_check(digits, oracle, w, "tail")
         checks.extend(whole.rows)
@@ -311,9 +370,18 @@ def locate_decimal(
             if expected
             else "the expected digit could not be recomputed locally (the value sits too close to a decimal boundary)"
         )
+        passing = (
+            f"the first {first - 1:,} digits convert to hex digits that match the engine, the first {first:,} do not"
+            if first > 1
+            else "the first digit alone converts to hex digits that differ from the engine's"
+        )
+        explanation = f"first wrong decimal digit at position {first:,}: {passing}; {how_expected}"
+        rest = None
+    elif interrupted and bad:
+        expected = found = ""
         explanation = (
-            f"first wrong decimal digit at position {first:,}: the first {first - 1:,} digits convert to "
-            f"hex digits that match the engine, the first {first:,} do not; {how_expected}"
+            f"interrupted during the bisection: the first wrong decimal digit lies between positions "
+            f"{good + 1:,} and {bad:,} (the first {good:,} digits are right, the first {bad:,} are not)"
         )
         rest = None
     elif interrupted:
@@ -341,4 +409,5 @@ def locate_decimal(
         how="prefix bisection" if first is not None else "none",
         explanation=explanation,
         first_is_certain=first is not None,
+        first_wrong_bracket=(good + 1, bad) if first is None and bad else None,
     )

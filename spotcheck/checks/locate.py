@@ -88,6 +88,9 @@ class _HexLocator:
     checks: list[WindowCheck] = field(default_factory=list)
     t0: float = field(default_factory=time.perf_counter)
     scans: int = 0
+    full_through: int = 0
+    found_by_bisection: int | None = None
+    """A wrong digit bisection found, before a full comparison confirmed it is the first."""
 
     def __post_init__(self) -> None:
         self.n = self.facts.checked
@@ -108,9 +111,19 @@ class _HexLocator:
     def scan_before(self, upto: int | None) -> int | None:
         """First wrong digit among the first ``upto`` (all when None) by a full comparison."""
         self.scans += 1
-        scan = scan_open(self.df, self.facts, reference=self.reference, stop_at_first=True, upto=upto)
+        scan = scan_open(
+            self.df,
+            self.facts,
+            reference=self.reference,
+            stop_at_first=True,
+            upto=upto,
+            progress=self.progress,
+        )
         if scan.interrupted:
             raise KeyboardInterrupt
+        self.full_through = max(
+            self.full_through, scan.runs[0].start - 1 if scan.runs else scan.digits_compared
+        )
         return scan.runs[0].start if scan.runs else None
 
     def result(
@@ -126,8 +139,16 @@ class _HexLocator:
     ) -> LocateResult:
         expected = found = ""
         if first is not None:
-            span = min(self.w, self.n - first + 1)
-            expected, found = self.oracle.digits(first, span), self.df.read(first, span)
+            known = [
+                c.expected[first - c.position :]
+                for c in self.checks
+                if c.base == 16 and c.position <= first < c.position + len(c.expected)
+            ]
+            if known:  # certified digits already at hand (no engine call after Ctrl-C)
+                expected = max(known, key=len)[: self.w]
+            else:
+                expected = self.oracle.digits(first, min(self.w, self.n - first + 1))
+            found = self.df.read(first, len(expected))
         return LocateResult(
             file=self.facts,
             checks=self.checks,
@@ -143,6 +164,7 @@ class _HexLocator:
             explanation=explanation,
             scan_estimate_seconds=scan_estimate,
             first_is_certain=certain and first is not None,
+            full_through_value=self.full_through,
         )
 
     def scan_cost(self, seconds: float, upto: int | None) -> str:
@@ -165,7 +187,20 @@ class _HexLocator:
             assert tail.first_difference is not None
             return self.tail_wrong(tail)
         except KeyboardInterrupt:
-            return self.result(None, "none", "interrupted before a wrong digit was found", interrupted=True)
+            first = self.found_by_bisection
+            if first is None:
+                return self.result(
+                    None, "none", "interrupted before a wrong digit was found", interrupted=True
+                )
+            return self.result(
+                first,
+                "bisection",
+                f"bisection found a wrong digit at position {first:,} (the window just before it matches); "
+                f"interrupted before a full comparison of the {first - 1:,} digits before it could confirm "
+                "that it is the first: an earlier isolated wrong digit is not ruled out",
+                rest=rest_after(self.checks),
+                interrupted=True,
+            )
 
     def bisect(self, hi: int) -> int:
         """First wrong digit, given digit ``hi`` is wrong and an error, once made, persists.
@@ -194,6 +229,7 @@ class _HexLocator:
         if first is None:
             assert tail.first_difference is not None
             first = self.bisect(tail.first_difference)
+            self.found_by_bisection = first
             if first > 1:
                 a = max(1, first - w)
                 self.step("confirm", a, first - a, note="the window just before the first wrong digit")

@@ -15,6 +15,7 @@ import os
 import time
 from collections.abc import Callable
 from functools import lru_cache
+from typing import Any
 
 from spotcheck.errors import UsageError
 
@@ -31,6 +32,9 @@ BYTES_PER_BIT = 2.0
 CALIBRATION_BITS = 1 << 18
 # Share of available memory a scan may plan to use.
 MEMORY_SHARE = 0.7
+# Digits beyond which the computation runs in a child process (stoppable by
+# Ctrl-C); below, starting a process costs more than the computation.
+CHILD_DIGITS = 100_000
 # ---------------------------------------------------------------------------
 
 
@@ -76,21 +80,21 @@ def supported(constant: str) -> bool:
     return constant in ("pi", "log2", "log3", "pi-squared", "catalan", "zeta3", "arctan-half")
 
 
-def _floor_scaled_arb(name: str, base: int, n: int, bits: int) -> int | None:
+def _floor_scaled_arb(name: str, base: int, n: int, bits: int, threads: int = 1) -> int | None:
     from flint import arb, ctx
 
-    old = ctx.prec
-    ctx.prec = bits
+    old, old_threads = ctx.prec, ctx.threads
+    ctx.prec, ctx.threads = bits, max(1, threads)
     try:
         x = _arb_value(name)()
         y = (x * arb(base) ** n).floor()  # type: ignore[operator]
         v = y.unique_fmpz()
         return None if v is None else int(v)
     finally:
-        ctx.prec = old
+        ctx.prec, ctx.threads = old, old_threads
 
 
-def _floor_scaled_mpfr(name: str, base: int, n: int, bits: int) -> int | None:
+def _floor_scaled_mpfr(name: str, base: int, n: int, bits: int, threads: int = 1) -> int | None:  # noqa: ARG001 - MPFR runs on one thread
     import gmpy2
 
     with gmpy2.context(precision=bits):
@@ -105,15 +109,83 @@ def _floor_scaled_mpfr(name: str, base: int, n: int, bits: int) -> int | None:
     return int(a) if a == b else None
 
 
-def reference_digits(constant: str, base: int, n: int, reference: str = "arb") -> tuple[str, str]:
-    """``(integer_part, digits)``: the first ``n`` certified digits after the point."""
+def reference_digits(
+    constant: str,
+    base: int,
+    n: int,
+    reference: str = "arb",
+    threads: int = 1,
+    tick: Callable[[float], None] | None = None,
+) -> tuple[str, str]:
+    """``(integer_part, digits)``: the first ``n`` certified digits after the point.
+
+    ``threads``: threads Arb may use (MPFR uses one).  Beyond
+    :data:`CHILD_DIGITS` digits the computation runs in a child process, so
+    that Ctrl-C (``KeyboardInterrupt`` in the caller) stops it at once: Arb and
+    MPFR hold the interpreter lock for the whole computation.  ``tick`` is
+    called with the seconds elapsed about ten times a second meanwhile.
+    """
     if reference not in REFERENCES:
         raise UsageError(f"unknown reference {reference!r} (choose from {', '.join(REFERENCES)})")
     require_supported(constant)
+    if n < CHILD_DIGITS or os.environ.get("SPOTCHECK_REFERENCE_INLINE"):
+        return _compute_digits(constant, base, n, reference, threads)
+    result: tuple[str, str] = run_in_child(_compute_digits, (constant, base, n, reference, threads), tick)
+    return result
+
+
+def run_in_child(
+    target: Callable[..., Any], args: tuple[Any, ...], tick: Callable[[float], None] | None
+) -> Any:
+    """``target(*args)`` in a child process that an interruption of the caller terminates."""
+    import multiprocessing as mp
+
+    method = "fork" if "fork" in mp.get_all_start_methods() else "spawn"
+    mpc: Any = mp.get_context(method)
+    recv, send = mpc.Pipe(duplex=False)
+    proc = mpc.Process(target=_child_main, args=(send, target, args), daemon=True)
+    proc.start()
+    send.close()
+    t0 = time.perf_counter()
+    try:
+        while not recv.poll(0.1):
+            if not proc.is_alive() and not recv.poll(0):
+                raise RuntimeError(f"the reference computation stopped (exit code {proc.exitcode})")
+            if tick is not None:
+                tick(time.perf_counter() - t0)
+        status, value = recv.recv()
+    except BaseException:
+        proc.terminate()
+        proc.join(1)
+        if proc.is_alive():
+            proc.kill()
+            proc.join()
+        raise
+    finally:
+        recv.close()
+    proc.join()
+    if status == "error":
+        raise value
+    return value
+
+
+def _child_main(send: Any, target: Callable[..., Any], args: tuple[Any, ...]) -> None:
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent decides; it terminates this process
+    try:
+        send.send(("ok", target(*args)))
+    except BaseException as exc:  # handed to the parent, which raises it
+        send.send(("error", exc))
+    finally:
+        send.close()
+
+
+def _compute_digits(constant: str, base: int, n: int, reference: str, threads: int) -> tuple[str, str]:
     bits = int(n * math.log2(base)) + GUARD_BITS
     floor_scaled = _floor_scaled_arb if reference == "arb" else _floor_scaled_mpfr
     while True:
-        v = floor_scaled(constant, base, n, bits)
+        v = floor_scaled(constant, base, n, bits, threads)
         if v is not None:
             break
         bits += 64

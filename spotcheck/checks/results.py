@@ -12,9 +12,41 @@ from typing import Any
 
 from .stats import false_match_chance, scattered_damage_bound
 
-__all__ = ["FileFacts", "WindowCheck", "VerifyResult", "LocateResult", "MismatchRun", "ScanResult"]
+__all__ = [
+    "LabelFinding",
+    "FileFacts",
+    "WindowCheck",
+    "VerifyResult",
+    "LocateResult",
+    "MismatchRun",
+    "ScanResult",
+]
 
-MATCH, MISMATCH, INCOMPLETE = "match", "mismatch", "incomplete"
+MATCH, MISMATCH, INCOMPLETE, UNCONFIRMED = "match", "mismatch", "incomplete", "unconfirmed"
+EXIT_UNCONFIRMED = 3
+"""``locate`` found no wrong digit but compared only windows: isolated damage is not ruled out."""
+
+
+@dataclass(frozen=True)
+class LabelFinding:
+    """The first position label that disagrees with the digits read: damage, not bad input.
+
+    A user who deleted or inserted digits by accident has such a file; the
+    digits are still checked, and the file is reported inconsistent (exit 1).
+    """
+
+    kind: str
+    """``label-mismatch`` (the label has the wrong value) or ``label-missing``."""
+    line: int | None
+    byte_offset: int | None
+    position: int | None
+    """Position of the first digit of the line the label sits on."""
+    expected: int | None
+    """The value the digit count implies."""
+    found: str | None
+    """The label as written."""
+    total: int = 1
+    """Label findings in the file (the first is described above)."""
 
 
 @dataclass(frozen=True)
@@ -33,6 +65,8 @@ class FileFacts:
     formula: str
     compression: str | None
     integer_part: str | None
+    label_finding: LabelFinding | None = None
+    """The first label that disagrees with the digits (None: labels consistent, absent or ignored)."""
 
 
 @dataclass(frozen=True)
@@ -70,9 +104,52 @@ class _Common:
     def any_mismatch(self) -> bool:
         return any(not c.match for c in self.checks)
 
+    full_through_value = 0  # overridden by results that ran a full comparison from digit 1
+
+    @property
+    def full_through(self) -> int:
+        """Digits 1..N compared with a full computation (0: none)."""
+        return self.full_through_value
+
+    @property
+    def covered(self) -> list[tuple[int, int]]:
+        """Merged ``(first, last)`` ranges of digits (in the file's base) that were compared."""
+        spans: list[tuple[int, int]] = []
+        if self.full_through:
+            spans.append((1, self.full_through))
+        for c in self.checks:
+            if c.position < 1:
+                continue
+            if c.base != self.file.base:
+                if c.prefix:  # a radix conversion of the prefix: every decimal digit of it
+                    spans.append((1, min(c.prefix, self.file.checked)))
+                continue
+            spans.append((c.position, c.position + max(len(c.found), 1) - 1))
+        spans.sort()
+        out: list[tuple[int, int]] = []
+        for a, b in spans:
+            if out and a <= out[-1][1] + 1:
+                out[-1] = (out[-1][0], max(out[-1][1], b))
+            else:
+                out.append((a, b))
+        return out
+
+    @property
+    def covered_digits(self) -> int:
+        return sum(b - a + 1 for a, b in self.covered)
+
+    @property
+    def exhaustive(self) -> bool:
+        """True when every digit under check was compared."""
+        return self.covered == [(1, self.file.checked)]
+
+    @property
+    def labels_consistent(self) -> bool:
+        return self.file.label_finding is None
+
     @property
     def exit_code(self) -> int:
-        return 1 if self.any_mismatch else 0
+        return 1 if self.any_mismatch or not self.labels_consistent else 0
 
     @property
     def verdict(self) -> str:
@@ -91,6 +168,10 @@ class _Common:
             "seconds": round(self.seconds, 3),
             "evaluations": self.evaluations,
             "interrupted": self.interrupted,
+            "labels_consistent": self.labels_consistent,
+            "exhaustive": self.exhaustive,
+            "covered": [list(r) for r in self.covered],
+            "covered_digits": self.covered_digits,
         }
 
 
@@ -101,6 +182,18 @@ class VerifyResult(_Common):
     tail_position: int | None
     """Where the tail check landed: a match there rules out a persistent error before it."""
     random_windows: int = 0
+    full_through_value: int = 0
+    """Digits 1..N compared with a full computation (0: sampled windows only)."""
+    reference: str | None = None
+    """The full computation's library, when one ran."""
+    wrong_digits: int | None = None
+    """Wrong digits the full comparison found (None when none ran)."""
+    wrong_runs: int | None = None
+    """Runs of wrong digits the full comparison found (None when none ran)."""
+    first_wrong_bracket: tuple[int, int] | None = None
+    """Decimal files: the first wrong decimal digit lies in ``lo..hi`` (from the prefixes checked)."""
+    rounded_from: int | None = None
+    """Decimal files: the wrong digits from this position to the end are the true ones rounded up."""
 
     @property
     def false_match_chance(self) -> float:
@@ -110,7 +203,9 @@ class VerifyResult(_Common):
     @property
     def scattered_bound(self) -> float | None:
         """95% upper bound on the damaged fraction from the clean random windows (None if any differs)."""
-        return None if self.any_mismatch else scattered_damage_bound(self.random_windows)
+        if self.any_mismatch or self.exhaustive:
+            return None
+        return scattered_damage_bound(self.random_windows)
 
     def to_dict(self) -> dict[str, Any]:
         out = self._base_dict("verify")
@@ -121,6 +216,11 @@ class VerifyResult(_Common):
             tail_position=self.tail_position,
             scattered_bound=self.scattered_bound,
             random_windows=self.random_windows,
+            reference=self.reference,
+            wrong_digits=self.wrong_digits,
+            wrong_runs=self.wrong_runs,
+            first_wrong_bracket=list(self.first_wrong_bracket) if self.first_wrong_bracket else None,
+            rounded_from=self.rounded_from,
         )
         return out
 
@@ -141,16 +241,24 @@ class LocateResult(_Common):
     first_is_certain: bool = False
     """True when every digit before ``first_mismatch`` is known right (up to the
     false-match chance and, for bisection, the persistent-error model)."""
+    full_through_value: int = 0
+    """Digits 1..N compared with a full computation (0: none)."""
+    first_wrong_bracket: tuple[int, int] | None = None
+    """Decimal files, interrupted bisection: the first wrong digit lies in ``lo..hi``."""
 
     @property
     def verdict(self) -> str:
-        if self.first_mismatch is not None:
+        if self.first_mismatch is not None or self.first_wrong_bracket is not None:
             return MISMATCH
-        return INCOMPLETE if self.interrupted else MATCH
+        if self.interrupted:
+            return INCOMPLETE
+        return MATCH if self.exhaustive else UNCONFIRMED
 
     @property
     def exit_code(self) -> int:
-        return 1 if self.first_mismatch is not None else 0
+        if self.verdict == MISMATCH or not self.labels_consistent:
+            return 1
+        return EXIT_UNCONFIRMED if self.verdict == UNCONFIRMED else 0
 
     def to_dict(self) -> dict[str, Any]:
         out = self._base_dict("locate")
@@ -163,6 +271,7 @@ class LocateResult(_Common):
             explanation=self.explanation,
             scan_estimate_seconds=self.scan_estimate_seconds,
             first_is_certain=self.first_is_certain,
+            first_wrong_bracket=list(self.first_wrong_bracket) if self.first_wrong_bracket else None,
         )
         return out
 
@@ -195,6 +304,10 @@ class ScanResult(_Common):
     @property
     def first_mismatch(self) -> int | None:
         return self.runs[0].start if self.runs else None
+
+    @property
+    def full_through(self) -> int:
+        return self.digits_compared
 
     def to_dict(self) -> dict[str, Any]:
         out = self._base_dict("scan")

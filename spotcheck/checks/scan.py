@@ -84,6 +84,7 @@ def scan_open(
     progress: Progress | None = None,
     stop_at_first: bool = False,
     upto: int | None = None,
+    threads: int = 1,
 ) -> ScanResult:
     """Scan an already opened file, or its first ``upto`` digits (``locate`` reuses this)."""
     if reference not in REFERENCES:
@@ -102,14 +103,24 @@ def scan_open(
     ip = integer_part_check(facts)
     if ip is not None:
         checks.append(ip)
+    share = seconds / (seconds + n / 50e6) if seconds > 0 else 0.0
+
+    def tick(elapsed: float) -> None:
+        # the computation's share of the bar, from its estimate; then the comparison's
+        if progress:
+            progress(int(1000 * share * min(0.99, elapsed / max(seconds, 1e-3))), 1000)
+
     if progress:
-        progress(0, n)
-    _, ref = reference_digits(facts.constant, facts.base, n, reference)
+        progress(0, 1000)
     raw: list[tuple[int, int, int]] = []
     compared = 0
     interrupted = False
     try:
-        for pos, chunk in df.iter_chunks(CHUNK_DIGITS):
+        _, ref = reference_digits(facts.constant, facts.base, n, reference, threads, tick)
+    except KeyboardInterrupt:
+        interrupted, ref = True, ""
+    try:
+        for pos, chunk in df.iter_chunks(CHUNK_DIGITS) if not interrupted else ():
             if pos > n:
                 break
             chunk = chunk[: n - pos + 1]
@@ -121,7 +132,7 @@ def scan_open(
                     raw.append((first, last, last - first + 1))
             compared = pos - 1 + len(chunk)
             if progress:
-                progress(compared, n)
+                progress(int(1000 * (share + (1 - share) * compared / n)), 1000)
             if stop_at_first and raw:
                 break
     except KeyboardInterrupt:
@@ -161,9 +172,13 @@ def scan_file(
     limit: int | None = None,
     ignore_labels: bool = False,
     labels: str | None = None,
+    workers: int = 1,
     progress: Progress | None = None,
 ) -> ScanResult:
-    """Compare every digit of the file with a full computation (Arb by default, or MPFR)."""
+    """Compare every digit of the file with a full computation (Arb by default, or MPFR).
+
+    ``workers``: threads the Arb computation may use.
+    """
     df, facts = open_checked(
         path,
         base=base,
@@ -174,6 +189,6 @@ def scan_file(
         labels=labels,
     )
     try:
-        return scan_open(df, facts, reference=reference, progress=progress)
+        return scan_open(df, facts, reference=reference, progress=progress, threads=workers)
     finally:
         df.close()

@@ -28,6 +28,21 @@ _FILE = {
         "formula": {"type": "string", "description": "engine formula key"},
         "compression": _STR_OR_NULL,
         "integer_part": _STR_OR_NULL,
+        "label_finding": {
+            "type": ["object", "null"],
+            "description": "the first position label that disagrees with the digits (damage: exit 1); "
+            "null when the labels agree, the file has none, or --ignore-labels",
+            "required": ["kind", "line", "position", "expected", "found"],
+            "properties": {
+                "kind": {"enum": ["label-mismatch", "label-missing"]},
+                "line": _INT_OR_NULL,
+                "byte_offset": _INT_OR_NULL,
+                "position": {**_INT_OR_NULL, "description": "first digit of the labelled line"},
+                "expected": {**_INT_OR_NULL, "description": "the label the digit count implies"},
+                "found": {**_STR_OR_NULL, "description": "the label as written"},
+                "total": {"type": "integer", "minimum": 1, "description": "label findings listed"},
+            },
+        },
     },
 }
 
@@ -46,6 +61,7 @@ _CHECK = {
                 "confirm",
                 "after",
                 "prefix",
+                "full",
             ]
         },
         "position": {
@@ -72,17 +88,40 @@ _COMMON_REQUIRED = [
     "seconds",
     "evaluations",
     "interrupted",
+    "labels_consistent",
+    "exhaustive",
+    "covered",
     "repeat",
 ]
 _COMMON = {
     "command": {"enum": ["verify", "locate", "scan"]},
-    "verdict": {"enum": ["match", "mismatch", "incomplete"]},
+    "verdict": {
+        "enum": ["match", "mismatch", "incomplete", "unconfirmed"],
+        "description": "match (exit 0): every digit compared agrees; mismatch (exit 1); incomplete: "
+        "interrupted before anything was established (exit 130); unconfirmed (locate only, exit 3): "
+        "no wrong digit found, but only windows were compared, so isolated damage is not ruled out",
+    },
     "file": _FILE,
     "method": {"type": "string"},
     "checks": {"type": "array", "items": _CHECK},
     "seconds": {"type": "number", "minimum": 0},
     "evaluations": {"type": "integer", "minimum": 0},
-    "interrupted": {"type": "boolean"},
+    "interrupted": {
+        "type": "boolean",
+        "description": "stopped by Ctrl-C; the report says what was established",
+    },
+    "labels_consistent": {"type": "boolean", "description": "false when file.label_finding is set"},
+    "exhaustive": {
+        "type": "boolean",
+        "description": "true when every digit under check was compared (with the full computation or, "
+        "for decimal files, by radix conversion of the whole file)",
+    },
+    "covered": {
+        "type": "array",
+        "description": "digit ranges [first, last] (1-based, in the file's base) that were compared",
+        "items": {"type": "array", "items": {"type": "integer", "minimum": 1}, "minItems": 2, "maxItems": 2},
+    },
+    "covered_digits": {"type": "integer", "minimum": 0, "description": "digits inside `covered`"},
     "repeat": {"type": "string", "description": "a command line that repeats the run"},
 }
 
@@ -98,6 +137,23 @@ VERIFY_SCHEMA: dict[str, Any] = {
         "tail_position": _INT_OR_NULL,
         "scattered_bound": {"type": ["number", "null"]},
         "random_windows": {"type": "integer", "minimum": 0},
+        "reference": {
+            "enum": ["arb", "mpfr", None],
+            "description": "the full computation every digit was compared with, or null (windows only)",
+        },
+        "wrong_digits": {**_INT_OR_NULL, "description": "wrong digits the full comparison found"},
+        "wrong_runs": {**_INT_OR_NULL, "description": "runs of wrong digits the full comparison found"},
+        "first_wrong_bracket": {
+            "type": ["array", "null"],
+            "items": {"type": "integer", "minimum": 1},
+            "minItems": 2,
+            "maxItems": 2,
+            "description": "decimal files: [lo, hi], the first wrong decimal digit lies in lo..hi",
+        },
+        "rounded_from": {
+            **_INT_OR_NULL,
+            "description": "decimal files: the digits from here to the end are the true ones rounded up",
+        },
     },
 }
 
@@ -115,6 +171,13 @@ LOCATE_SCHEMA: dict[str, Any] = {
         "first_is_certain": {"type": "boolean"},
         "explanation": {"type": "string"},
         "scan_estimate_seconds": {"type": ["number", "null"]},
+        "first_wrong_bracket": {
+            "type": ["array", "null"],
+            "items": {"type": "integer", "minimum": 1},
+            "minItems": 2,
+            "maxItems": 2,
+            "description": "decimal files: [lo, hi], the first wrong decimal digit lies in lo..hi",
+        },
     },
 }
 

@@ -22,9 +22,14 @@ from .common import (
 )
 from .results import FileFacts, VerifyResult, WindowCheck
 
-__all__ = ["verify_file", "MAX_SAMPLES"]
+__all__ = ["verify_file", "MAX_SAMPLES", "DEFAULT_FULL_BUDGET"]
 
 MAX_SAMPLES = 100_000
+# Seconds a full comparison may take before verify falls back to sampled
+# windows.  A minute covers hex files of about 3*10^7 digits on a slow
+# machine (the reference computation runs at roughly 10^6 hex digits per
+# second); beyond that a full comparison is `scan`'s job.
+DEFAULT_FULL_BUDGET = 60.0
 
 
 def _seed(seed: int | None) -> int:
@@ -41,7 +46,9 @@ def verify_file(
     seed: int | None = None,
     at: Sequence[int] = (),
     window: int = DEFAULT_WINDOW,
-    budget: float | None = None,
+    budget: float = DEFAULT_FULL_BUDGET,
+    sample_seconds: float | None = None,
+    reference: str = "arb",
     workers: int = 1,
     limit: int | None = None,
     ignore_labels: bool = False,
@@ -50,17 +57,23 @@ def verify_file(
     checkpoint: bool = False,
     progress: Progress | None = None,
 ) -> VerifyResult:
-    """Check a digit file's tail, head, ``samples`` random windows and the positions ``at``.
+    """Check a digit file: every digit when a full comparison fits ``budget`` seconds, else windows.
 
-    Hexadecimal files are compared window by window with certified engine
-    digits; decimal files go through radix conversion
+    Hexadecimal files: the tail, the head and the positions ``at`` are
+    compared with certified engine digits; then, when the estimated time of a
+    full comparison with ``reference`` (Arb or MPFR) fits ``budget``, every
+    digit is compared with it (as ``scan`` does); otherwise ``samples`` random
+    windows are drawn, and more while ``sample_seconds`` allow.  Decimal
+    files go through radix conversion, which covers every digit
     (:func:`spotcheck.checks.decimal.verify_decimal`).  ``cluster`` and
     ``checkpoint`` serve deep windows (see :func:`spotcheck.engine.api.extract`).
     """
     if not 0 <= samples <= MAX_SAMPLES:
         raise UsageError(f"samples must be between 0 and {MAX_SAMPLES}, got {samples}")
-    if budget is not None and budget <= 0:
-        raise UsageError(f"budget must be a positive number of seconds, got {budget}")
+    if budget < 0:
+        raise UsageError(f"budget must be zero or more seconds, got {budget}")
+    if sample_seconds is not None and sample_seconds <= 0:
+        raise UsageError(f"sample time must be a positive number of seconds, got {sample_seconds}")
     seed = _seed(seed)
     df, facts = open_checked(
         path,
@@ -86,13 +99,38 @@ def verify_file(
                 seed=seed,
                 at=at,
                 window=window,
-                budget=budget,
+                budget=sample_seconds,
                 oracle=oracle,
                 progress=progress,
             )
-        return _verify_hex(df, facts, samples, seed, at, window, budget, oracle, progress)
+        full = _full_fits(facts, reference, budget)
+        return _verify_hex(
+            df,
+            facts,
+            samples,
+            seed,
+            at,
+            window,
+            sample_seconds,
+            oracle,
+            progress,
+            reference if full else None,
+        )
     finally:
         df.close()
+
+
+def _full_fits(facts: FileFacts, reference: str, budget: float) -> bool:
+    """Whether a full comparison is possible and its estimate fits ``budget`` seconds and memory."""
+    from .reference import REFERENCES, memory_budget, supported
+    from .scan import estimate_scan
+
+    if reference not in REFERENCES:
+        raise UsageError(f"unknown reference {reference!r} (choose from {', '.join(REFERENCES)})")
+    if not supported(facts.constant) or budget <= 0:
+        return False
+    seconds, memory = estimate_scan(facts, reference)
+    return seconds <= budget and memory <= memory_budget()
 
 
 def _verify_hex(
@@ -105,6 +143,7 @@ def _verify_hex(
     budget: float | None,
     oracle: HexOracle,
     progress: Progress | None,
+    full_reference: str | None,
 ) -> VerifyResult:
     t0 = time.perf_counter()
     w = clamp_window(window, facts.checked)
@@ -112,7 +151,8 @@ def _verify_hex(
     last_start = facts.checked - w + 1
     plan: list[tuple[str, int]] = [("head", 1), ("tail", last_start)]
     plan += [("user", p) for p in at]
-    plan += sorted(("sample", rng.randint(1, last_start)) for _ in range(samples))
+    if full_reference is None:
+        plan += sorted(("sample", rng.randint(1, last_start)) for _ in range(samples))
     checks: list[WindowCheck] = []
     ip = integer_part_check(facts)
     if ip is not None:
@@ -121,16 +161,46 @@ def _verify_hex(
     def check(kind: str, position: int) -> None:
         checks.append(oracle.compare(df, kind, position, w))
 
-    random_windows, interrupted = run_plan(plan, check, lambda: rng.randint(1, last_start), budget, progress)
+    random_windows, interrupted = run_plan(
+        plan,
+        check,
+        lambda: rng.randint(1, last_start),
+        budget if full_reference is None else None,
+        progress,
+    )
+    full_through, wrong, runs, evaluations = 0, None, None, oracle.evaluations
+    if full_reference is not None and not interrupted:
+        from .scan import scan_open
+
+        scan = scan_open(df, facts, reference=full_reference, progress=progress)
+        interrupted = scan.interrupted
+        full_through, wrong, evaluations = scan.digits_compared, scan.wrong_digits, evaluations + 1
+        runs = scan.runs_total
+        for run in scan.runs[:1]:
+            checks.append(
+                WindowCheck(
+                    kind="full",
+                    position=run.start,
+                    expected=run.expected,
+                    found=run.found,
+                    match=False,
+                    first_difference=run.start,
+                    note=f"first of {scan.runs_total} wrong runs found by the full comparison",
+                )
+            )
     return VerifyResult(
         file=facts,
         checks=checks,
         method="digit extraction",
         seconds=time.perf_counter() - t0,
-        evaluations=oracle.evaluations,
+        evaluations=evaluations,
         interrupted=interrupted,
         window=w,
         seed=seed,
         tail_position=last_start,
         random_windows=random_windows,
+        full_through_value=full_through,
+        reference=full_reference,
+        wrong_digits=wrong,
+        wrong_runs=runs,
     )

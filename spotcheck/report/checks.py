@@ -33,28 +33,127 @@ def result_payload(result: CheckResult, repeat: str) -> dict[str, Any]:
     return out
 
 
+def plural(n: int, word: str, many: str | None = None) -> str:
+    """``1 wrong digit``, ``2 wrong digits``.
+
+    >>> plural(1, "run"), plural(3, "run"), plural(2, "prefix", "prefixes")
+    ('1 run', '3 runs', '2 prefixes')
+    """
+    return f"{n:,} {word if n == 1 else (many or word + 's')}"
+
+
+def coverage_phrase(result: CheckResult) -> str:
+    """What was compared: every digit, or how many windows (with the damage bound)."""
+    if isinstance(result, VerifyResult) and result.file.base == 10 and result.exhaustive:
+        return "every digit covered by radix conversion of the whole file"
+    if result.full_through and result.exhaustive:
+        ref = getattr(result, "reference", None) or "a full computation"
+        return f"every digit compared with {ref}"
+    windows = sum(1 for c in result.checks if c.position >= 1)
+    text = f"{plural(windows, 'window')} sampled ({result.covered_digits:,} digits)"
+    if isinstance(result, VerifyResult) and result.scattered_bound is not None:
+        text += f"; damaged fraction below {result.scattered_bound:.2%} at 95%"
+    return text
+
+
 def _verdict_line(result: CheckResult) -> tuple[str, str]:
     f = result.file
     what = f"{f.constant} in base {f.base}, {f.checked:,} digits"
     if f.checked != f.count:
         what += f" of {f.count:,}"
+    stop = "; interrupted" if result.interrupted else ""
     if result.verdict == "mismatch":
         if isinstance(result, LocateResult) and result.first_mismatch is not None:
-            return f"MISMATCH  first wrong digit at position {result.first_mismatch:,} ({what})", STYLE_BAD
-        if isinstance(result, ScanResult):
+            if result.interrupted and not result.first_is_certain:
+                return (
+                    f"MISMATCH  wrong digit at position {result.first_mismatch:,}, not confirmed as the first "
+                    f"({what}); interrupted",
+                    STYLE_BAD,
+                )
             return (
-                f"MISMATCH  {result.wrong_digits:,} wrong digits in {result.runs_total:,} runs ({what})",
+                f"MISMATCH  first wrong digit at position {result.first_mismatch:,} ({what}){stop}",
+                STYLE_BAD,
+            )
+        wrong_digits = getattr(result, "wrong_digits", None)
+        if wrong_digits:
+            runs = (
+                result.runs_total if isinstance(result, ScanResult) else getattr(result, "wrong_runs", None)
+            )
+            first = result.first_mismatch if isinstance(result, ScanResult) else None
+            if first is None:
+                first = next((c.position for c in result.checks if c.kind == "full"), None)
+            in_runs = f" in {plural(runs, 'run')}" if runs else ""
+            at = f", the first at position {first:,}" if first else ""
+            span = (
+                "every digit compared" if result.exhaustive else f"{result.covered_digits:,} digits compared"
+            )
+            return (
+                f"MISMATCH  {plural(wrong_digits, 'wrong digit')}{in_runs}{at}, {span} ({what}){stop}",
+                STYLE_BAD,
+            )
+        if isinstance(result, VerifyResult) and result.first_wrong_bracket is not None:
+            lo, hi = result.first_wrong_bracket
+            if result.rounded_from is not None:
+                where = (
+                    f"the last digit is the true expansion rounded up (digit {f.checked:,}), not a truncation"
+                    if result.rounded_from == f.checked
+                    else f"digits {result.rounded_from:,} to {f.checked:,} are the true ones rounded up at the "
+                    "last digit, not a truncation"
+                )
+            elif lo == hi:
+                where = f"the first wrong decimal digit is at position {lo:,}"
+            else:
+                where = f"the first wrong decimal digit lies between positions {lo:,} and {hi:,}"
+            return f"MISMATCH  {where} ({what}){stop}", STYLE_BAD
+        if isinstance(result, LocateResult) and result.first_wrong_bracket is not None:
+            lo, hi = result.first_wrong_bracket
+            return (
+                f"MISMATCH  the first wrong decimal digit lies between positions {lo:,} and {hi:,} ({what}){stop}",
                 STYLE_BAD,
             )
         wrong = sum(not c.match for c in result.checks)
-        return f"MISMATCH  {wrong} of {len(result.checks)} checks differ ({what})", STYLE_BAD
+        return (
+            f"MISMATCH  {wrong} of {plural(len(result.checks), 'check')} differ; {coverage_phrase(result)} "
+            f"({what}){stop}",
+            STYLE_BAD,
+        )
     if result.verdict == "incomplete":
-        return f"INCOMPLETE  interrupted; nothing wrong found so far ({what})", STYLE_WARN
+        return f"INCOMPLETE  interrupted before anything was established ({what})", STYLE_WARN
+    if result.verdict == "unconfirmed":
+        return (
+            f"NOT RULED OUT  no wrong digit found, but isolated damage is not ruled out: "
+            f"{coverage_phrase(result)} ({what})",
+            STYLE_WARN,
+        )
     if isinstance(result, ScanResult):
         return f"MATCH  every one of {result.digits_compared:,} digits agrees ({what})", STYLE_OK
     if isinstance(result, LocateResult):
-        return f"NO WRONG DIGIT FOUND  ({what})", STYLE_OK
-    return f"MATCH  all {len(result.checks)} checks agree with certified digits ({what})", STYLE_OK
+        return f"NO WRONG DIGIT  {coverage_phrase(result)} ({what})", STYLE_OK
+    return (
+        f"MATCH  all {plural(len(result.checks), 'check')} agree; {coverage_phrase(result)} ({what}){stop}",
+        STYLE_OK,
+    )
+
+
+def label_sentence(result: CheckResult) -> str | None:
+    """One line on the first position label that disagrees with the digits, or None."""
+    lf = result.file.label_finding
+    if lf is None:
+        return None
+    where = f"line {lf.line:,}" if lf.line is not None else "a line"
+    if lf.kind == "label-missing":
+        what = f"{where}: no position label, unlike the lines around it"
+    elif lf.found is not None and lf.expected is not None:
+        what = f"{where}: labelled {lf.found}, but the digits before it imply {lf.expected:,}"
+    else:
+        what = f"{where}: its position label disagrees with the digit count"
+    if lf.position is not None:
+        what += f" (its first digit is digit {lf.position:,})"
+    more = f"; {lf.total:,} label findings in all" if lf.total > 1 else ""
+    return (
+        f"LABELS DISAGREE  {what}{more}: digits were lost or gained before it, or a label was changed "
+        "(--ignore-labels drops this finding)"
+    )
 
 
 def file_map(result: CheckResult, width: int) -> tuple[str, list[tuple[int, int, str]]]:
@@ -88,12 +187,13 @@ def file_map(result: CheckResult, width: int) -> tuple[str, list[tuple[int, int,
     for c in result.checks:
         if c.position < 1:
             continue
-        # A hex window of a decimal file sits at about position * log10(16) in decimal digits.
-        i = cell(
-            c.position
-            if c.base == result.file.base
-            else round(c.position * math.log(c.base, result.file.base))
-        )
+        # A hex window of a decimal file is evidence about the decimal prefix it was converted from.
+        if c.base == result.file.base:
+            i = cell(c.position)
+        elif c.prefix is not None:
+            i = cell(c.prefix)
+        else:
+            i = cell(round(c.position * math.log(c.base, result.file.base)))
         if not c.match:
             cells[i], styles[i] = MAP_MISMATCH, STYLE_BAD
         elif cells[i] != MAP_MISMATCH:
@@ -117,18 +217,25 @@ def _meaning(result: CheckResult) -> list[str]:
             lines.append(
                 "Radix conversion: each decimal prefix checked (the whole file for the tail) was converted "
                 "to hexadecimal; the hex digits it determines were compared with certified engine digits "
-                "(base 16 rows), and its last decimal digits were recomputed exactly (base 10 rows)."
+                "(rows marked hex: the engine's evidence, in hex positions), and its last decimal digits were "
+                "recomputed exactly (the other rows, in decimal positions)."
             )
             if result.any_mismatch:
                 lines.append(
-                    "A differing row means that some decimal digit of that prefix is wrong, not necessarily "
-                    "at the position shown; `spotcheck locate` finds the first wrong decimal digit."
+                    "A differing hex row means that some decimal digit of the prefix it was converted from is "
+                    "wrong; the verdict line brackets the first wrong decimal digit from the prefixes that "
+                    "pass and fail, and `spotcheck locate` finds it exactly."
                 )
         tail = next((c for c in result.checks if c.kind == "tail"), None)
         if tail is not None and tail.match:
             lines.append(
                 f"Persistent-error model: the matching tail rules out any error before it that stayed wrong "
                 f"to the end (chance of an accidental match {result.false_match_chance:.1e}, 16^-{w})."
+            )
+        if result.reference is not None and result.full_through:
+            lines.append(
+                f"Full comparison: {result.full_through:,} digits compared with an independent computation "
+                f"({result.reference}), which shares nothing with the digit-extraction engine."
             )
         if result.scattered_bound is not None:
             lines.append(
@@ -147,11 +254,19 @@ def _meaning(result: CheckResult) -> list[str]:
     return lines
 
 
-def _row_result(c: WindowCheck) -> str:
+def _row_result(c: WindowCheck, file_base: int) -> str:
     if c.match:
         return f"[{STYLE_OK}]match[/]"
-    where = f" at {c.first_difference:,}" if c.first_difference else ""
+    hex_row = c.base != file_base
+    where = f" at {'hex ' if hex_row else ''}{c.first_difference:,}" if c.first_difference else ""
     return f"[{STYLE_BAD}]✗{where}[/]"
+
+
+def _row_cells(c: WindowCheck, file_base: int) -> tuple[str, str]:
+    """The check and position cells; hex rows of a decimal file are labelled as the engine's evidence."""
+    if c.base == file_base:
+        return c.kind, f"{c.position:,}"
+    return f"{c.kind} (hex)", f"hex {c.position:,}"
 
 
 def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool) -> None:
@@ -167,6 +282,9 @@ def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool)
     con = stdout_console()
     line, style = _verdict_line(result)
     con.print(line, style=style)
+    labels = label_sentence(result)
+    if labels is not None:
+        con.print(labels, style=STYLE_BAD)
     f = result.file
     con.print(
         f"{f.path}: {f.size_bytes:,} bytes{', ' + f.compression if f.compression else ''}; "
@@ -181,7 +299,7 @@ def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool)
             table.add_row(f"{r.start:,}", f"{r.length:,}", f"{r.wrong:,}", r.expected, r.found)
         con.print(table)
     elif result.checks:
-        mixed = any(c.base != f.base for c in result.checks)
+        mixed = False  # hex rows of a decimal file say "hex" in their check and position cells
         table = Table(box=box.SIMPLE_HEAD, pad_edge=False, show_edge=False, collapse_padding=True)
         table.add_column("check", no_wrap=True)
         if mixed:
@@ -196,7 +314,8 @@ def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool)
             shown = (bad + [c for c in shown if c.match])[:MAX_TABLE_ROWS]
         for c in shown:
             base_cell = [str(c.base)] if mixed else []
-            table.add_row(c.kind, *base_cell, f"{c.position:,}", c.expected, c.found, _row_result(c))
+            kind_cell, position_cell = _row_cells(c, f.base)
+            table.add_row(kind_cell, *base_cell, position_cell, c.expected, c.found, _row_result(c, f.base))
         con.print(table)
         if len(shown) < len(result.checks):
             con.print(f"({len(result.checks) - len(shown)} more matching checks not shown)", style=STYLE_DIM)

@@ -23,7 +23,12 @@ PROGRESS_DELAY = 1.0
 def stdout_console() -> Any:
     from rich.console import Console
 
-    return Console(highlight=False, soft_wrap=True)
+    class _PipeConsole(Console):
+        def on_broken_pipe(self) -> None:
+            # rich's default exits with code 1; the CLI ends with the verdict's code instead.
+            raise BrokenPipeError
+
+    return _PipeConsole(highlight=False, soft_wrap=True)
 
 
 def stderr_console() -> Any:

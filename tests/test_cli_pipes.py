@@ -1,0 +1,88 @@
+"""The command line as a shell user meets it: pipes, help, one set of options, paths as typed."""
+
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from spotcheck.cli import run
+
+ROOT = Path(__file__).resolve().parent.parent
+SAMPLES = ROOT / "samples"
+
+
+def shell(command: str) -> subprocess.CompletedProcess[str]:
+    """Run ``command`` under bash with pipefail, spotcheck being this interpreter's module."""
+    spot = f"{sys.executable} -m spotcheck"
+    env = {**os.environ, "COLUMNS": "80"}
+    return subprocess.run(
+        ["bash", "-o", "pipefail", "-c", command.replace("spotcheck", spot)],
+        capture_output=True,
+        text=True,
+        cwd=ROOT,
+        env=env,
+        timeout=120,
+    )
+
+
+@pytest.mark.parametrize(
+    ("command", "code"),
+    [
+        ("spotcheck verify samples/pi-hex-clean.txt --seed 1 | head -1", 0),
+        ("spotcheck verify samples/pi-hex-astray.txt --seed 1 | head -1", 1),
+        ("spotcheck constants | head -1", 0),
+        ("spotcheck verify samples/pi-hex-clean.txt --seed 1 --json | head -c 10", 0),
+    ],
+)
+def test_a_closed_pipe_ends_quietly_with_the_verdicts_code(command: str, code: int) -> None:
+    done = shell(command)
+    assert done.returncode == code, done.stderr
+    assert "Traceback" not in done.stderr and "Exception" not in done.stderr
+    assert done.stdout  # head got its line
+
+
+def test_bare_spotcheck_prints_help_and_exits_0(capsys) -> None:
+    assert run([]) == 0
+    out, err = capsys.readouterr()
+    assert "verify" in out and "locate" in out and "error" not in err
+
+
+@pytest.mark.parametrize("command", ["verify", "locate", "scan", "inspect", "digits", "constants"])
+def test_dash_h_is_help_and_flags_look_like_flags(capsys, command: str) -> None:
+    assert run([command, "-h"]) == 0
+    out, _ = capsys.readouterr()
+    assert "Usage" in out and "<bool>" not in out
+
+
+@pytest.mark.parametrize("command", ["verify", "locate", "scan"])
+@pytest.mark.parametrize(
+    "options",
+    [["--workers", "1"], ["--quiet"], ["--json"], ["--formula-file", "samples/formulas/ridgeview.toml"]],
+)
+def test_one_set_of_options(capsys, command: str, options: list[str]) -> None:
+    formula_files = sorted((SAMPLES / "formulas").glob("*.toml"))
+    if "--formula-file" in options:
+        options = ["--formula-file", str(formula_files[0])]
+    code = run([command, str(SAMPLES / "pi-hex-clean.txt"), *options])
+    capsys.readouterr()
+    assert code == 0, (command, options)
+
+
+def test_inspect_takes_quiet(capsys) -> None:
+    assert run(["inspect", str(SAMPLES / "pi-hex-clean.txt"), "--quiet"]) == 0
+    out, _ = capsys.readouterr()
+    assert out == ""
+
+
+def test_errors_name_the_path_as_typed(capsys, tmp_path, monkeypatch) -> None:
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "sub").mkdir()
+    (tmp_path / "sub" / "empty.txt").write_text("")
+    for command in ("verify", "locate", "scan", "inspect"):
+        assert run([command, "./sub/../sub/empty.txt"]) == 2
+        _, err = capsys.readouterr()
+        assert "./sub/../sub/empty.txt" in err, (command, err)
