@@ -10,7 +10,7 @@ import jsonschema
 import pytest
 
 from spotcheck.checks import compare as cmp
-from spotcheck.checks.schema import COMPARE_SCHEMA
+from spotcheck.checks.schema import COMPARE_SCHEMA, REPORT_SCHEMA
 from spotcheck.cli import run
 from tests.reference import pi_decimal, pi_hex
 
@@ -42,6 +42,8 @@ def test_differing_pair_exit_1_and_keep_sentence(tmp_path: Path, capsys) -> None
     code, out, _ = cli(capsys, "compare", b, a, "--json")
     payload = json.loads(out)
     jsonschema.validate(payload, COMPARE_SCHEMA)
+    jsonschema.validate(payload, REPORT_SCHEMA)  # what `spotcheck schema` prints
+    jsonschema.Draft202012Validator.check_schema(REPORT_SCHEMA)
     assert code == 1 and payload["keep"] == "B" and payload["runs"][0]["start"] == 1234
     assert payload["repeat"] == f"spotcheck compare {b} {a}"
 

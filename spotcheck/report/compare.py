@@ -118,6 +118,6 @@ def show_compare(result: CompareResult, repeat: str, *, as_json: bool, quiet: bo
         )
     timing = ""
     if result.arbitration_seconds:
-        timing = f", arbitration {sum(result.arbitration_seconds):.2f} s for {len(result.arbitration_seconds)} runs"
-    con.print(f"{result.evaluations} evaluations in {result.seconds:.2f} s{timing}", style=STYLE_DIM)
+        timing = f", arbitration {sum(result.arbitration_seconds):.2f} s for {_n(len(result.arbitration_seconds), 'run')}"
+    con.print(f"{_n(result.evaluations, 'evaluation')} in {result.seconds:.2f} s{timing}", style=STYLE_DIM)
     con.print(f"repeat: {repeat}", style=STYLE_DIM)
