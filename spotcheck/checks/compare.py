@@ -387,7 +387,7 @@ def _arbitrate(
         ip["certified"] = expected
         ra, rb = ((ip[k].upper().lstrip("0") or "0") == expected for k in ("a", "b"))
         ip["right"] = A if ra else B if rb else BOTH_WRONG
-    oracle = HexOracle(name, get_constant(name).formula(formula).key, workers=workers)
+    oracle = HexOracle(name, get_constant(name).method_key(formula), workers=workers)
     if result.base == 16:
         _arbitrate_hex(result, da, db, oracle)
     else:
