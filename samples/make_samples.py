@@ -92,6 +92,19 @@ def files() -> dict[str, bytes]:
     _, log2_hex = fraction_digits(gmpy2.const_log2, 16, 20_000)
     out["log2-hex.txt"] = ("\n".join(lines(log2_hex.lower(), 80)) + "\n").encode()
 
+    # The club's web mirror of log2-hex.txt: re-laid out (upper case, groups of
+    # eight, 72 digits a line, gzip) and damaged in transit: a burst of six
+    # wrong digits and one flipped digit.  `spotcheck compare` arbitrates.
+    mirror = list(log2_hex)
+    for k, p in enumerate(range(7_001, 7_007)):
+        mirror[p - 1] = altered(mirror[p - 1], 16, k)
+    mirror[15_550 - 1] = altered(mirror[15_550 - 1], 16, 9)
+    text = ["# Ridgeview club web mirror: log 2, hexadecimal"] + lines("".join(mirror), 72, 8)
+    buf = io.BytesIO()
+    with gzip.GzipFile(fileobj=buf, mode="wb", mtime=0) as gz:
+        gz.write(("\n".join(text) + "\n").encode())
+    out["log2-hex-mirror.txt.gz"] = buf.getvalue()
+
     # Catalan's constant in hex, one damaged digit.
     ipc, cat_hex = fraction_digits(gmpy2.const_catalan, 16, 20_000)
     cat = cat_hex[:9_999] + altered(cat_hex[9_999], 16, 5) + cat_hex[10_000:]

@@ -615,6 +615,56 @@ def schema() -> None:
     emit_json(REPORT_SCHEMA)
 
 
+@app.command()
+def compare(
+    file_a: Annotated[
+        Path, typer.Argument(metavar="A", help="One copy (plain, gzip, bzip2 or xz; hex or decimal).")
+    ],
+    file_b: Annotated[Path, typer.Argument(metavar="B", help="The other copy (any layout).")],
+    constant: ConstantOpt = None,
+    base: BaseOpt = None,
+    formula: FormulaOpt = None,
+    ignore_labels: IgnoreLabelsOpt = False,
+    formula_file: FormulaFileOpt = None,
+    workers: WorkersOpt = None,
+    as_json: JsonOpt = False,
+    quiet: QuietOpt = False,
+) -> None:
+    """Compare two copies A and B digit by digit; certified digits say which is right where they differ."""
+    import shlex
+
+    from spotcheck.checks.compare import compare_files
+    from spotcheck.report.compare import show_compare
+    from spotcheck.report.console import progress_bar
+
+    _load_formula_files(formula_file)
+    with progress_bar("compare", enabled=not (quiet or as_json)) as cb:
+        result = compare_files(
+            str(file_a),
+            str(file_b),
+            base=_base(base),
+            constant=constant,
+            formula=formula,
+            ignore_labels=ignore_labels,
+            workers=_workers(workers),
+            progress=cb,
+        )
+    repeat = _repeat(
+        "compare",
+        file_a,
+        constant=constant,
+        base=base,
+        formula=formula,
+        ignore_labels=ignore_labels,
+        formula_file=formula_file,
+    ).replace(shlex.quote(str(file_a)), shlex.quote(str(file_a)) + " " + shlex.quote(str(file_b)), 1)
+    show_compare(result, repeat, as_json=as_json, quiet=quiet)
+    code = result.exit_code
+    if code == EXIT_OK and result.interrupted:
+        code = 130
+    raise typer.Exit(code)
+
+
 def _warn_if_no_kernel() -> None:
     from spotcheck.engine import backend
 

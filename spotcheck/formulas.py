@@ -22,7 +22,9 @@ from spotcheck.errors import FormulaError, UsageError
 __all__ = [
     "Formula",
     "Constant",
+    "Evaluation",
     "BUILTIN_CONSTANTS",
+    "FULL_CONSTANTS",
     "get_constant",
     "register_constant",
     "constant_names",
@@ -105,17 +107,65 @@ def validate_formula_shape(s: object, base: object, m: object, coefficients: obj
 
 
 @dataclass(frozen=True)
+class Evaluation:
+    """A constant with no digit-extraction formula, computed in full to the precision a request needs.
+
+    The engine evaluates ``expression`` with python-flint's Arb (a ball, so
+    digits are certified where both ends agree) and, where ``mpfr`` is given,
+    gmpy2's MPFR serves as the second, independent reference.
+    """
+
+    key: str
+    """``"arb"``: the method key (what a formula key is for the other constants)."""
+    expression: str
+    """The value in words, e.g. ``exp(1)``."""
+    arb: str
+    """How Arb computes it (python-flint call)."""
+    mpfr: str | None
+    """How MPFR computes it (gmpy2 call), when it can."""
+    source: str
+    """Published definition and a table of its digits."""
+
+    def notation(self) -> str:
+        second = f"; MPFR {self.mpfr} as the second reference" if self.mpfr else ""
+        return f"full evaluation of {self.expression}: Arb {self.arb}{second}"
+
+
+@dataclass(frozen=True)
 class Constant:
-    """A named constant with one or more BBP-type formulas."""
+    """A named constant with one or more BBP-type formulas, or a full evaluation (``evaluation``)."""
 
     name: str
     title: str
     formulas: tuple[Formula, ...]
     origin: str = "built-in"
     aliases: tuple[str, ...] = field(default=())
+    evaluation: Evaluation | None = None
+    """For constants with no digit-extraction formula (``formulas`` is empty)."""
+
+    @property
+    def method(self) -> str:
+        """``digit extraction`` or ``full evaluation``."""
+        return "full evaluation" if self.evaluation is not None else "digit extraction"
+
+    def method_key(self, key: str | None = None) -> str:
+        """The formula key (see :meth:`formula`), or the evaluation's key for a full-evaluation constant."""
+        if self.evaluation is not None:
+            if key not in (None, self.evaluation.key):
+                raise UsageError(
+                    f"{self.name} has no digit-extraction formula (it is evaluated in full: "
+                    f"{self.evaluation.notation()}); the only method key is {self.evaluation.key!r}"
+                )
+            return self.evaluation.key
+        return self.formula(key).key
 
     def formula(self, key: str | None = None) -> Formula:
         """The formula named ``key``, or the cheapest one when ``key`` is None."""
+        if self.evaluation is not None:
+            raise UsageError(
+                f"{self.name} has no digit-extraction formula: it is evaluated in full "
+                f"({self.evaluation.notation()})"
+            )
         if key is None:
             return min(self.formulas, key=lambda f: f.cost_per_bit)
         for f in self.formulas:
@@ -307,12 +357,92 @@ BUILTIN_CONSTANTS: dict[str, Constant] = {
     )
 }
 
-_registry: dict[str, Constant] = dict(BUILTIN_CONSTANTS)
+
+def _full(
+    name: str, title: str, expression: str, arb: str, mpfr: str | None, source: str, *aliases: str
+) -> Constant:
+    return Constant(
+        name, title, (), aliases=aliases, evaluation=Evaluation("arb", expression, arb, mpfr, source)
+    )
+
+
+# Constants with no known BBP-type formula in base 2^e: the engine evaluates
+# them in full (spotcheck/engine/full.py).  Sources: the definition, and the
+# OEIS table of the decimal expansion that the tests check the first digits against.
+FULL_CONSTANTS: dict[str, Constant] = {
+    c.name: c
+    for c in (
+        _full(
+            "e",
+            "Euler's number, the base of the natural logarithm",
+            "exp(1) = sum 1/k!",
+            "arb(1).exp()",
+            "exp(1)",
+            "L. Euler, Introductio in analysin infinitorum (1748), ch. 7; OEIS A001113",
+            "euler-number",
+        ),
+        _full(
+            "sqrt2",
+            "square root of 2",
+            "sqrt(2)",
+            "arb(2).sqrt()",
+            "sqrt(2)",
+            "OEIS A002193 (decimal expansion of the square root of 2)",
+            "sqrt(2)",
+        ),
+        _full(
+            "sqrt3",
+            "square root of 3",
+            "sqrt(3)",
+            "arb(3).sqrt()",
+            "sqrt(3)",
+            "OEIS A002194 (decimal expansion of the square root of 3)",
+            "sqrt(3)",
+        ),
+        _full(
+            "golden-ratio",
+            "the golden ratio (1 + sqrt 5)/2",
+            "(1 + sqrt(5))/2",
+            "(1 + arb(5).sqrt())/2",
+            "(1 + sqrt(5))/2",
+            "Euclid, Elements VI, definition 3 (extreme and mean ratio); OEIS A001622",
+            "phi",
+        ),
+        _full(
+            "euler-gamma",
+            "the Euler-Mascheroni constant gamma",
+            "lim (H_n - log n)",
+            "arb.const_euler()",
+            "const_euler()",
+            "L. Euler, 'De progressionibus harmonicis observationes' (1734/35); OEIS A001620",
+            "gamma",
+        ),
+        _full(
+            "log10",
+            "natural logarithm of 10",
+            "log(10)",
+            "arb(10).log()",
+            "log(10)",
+            "OEIS A002392 (decimal expansion of the natural logarithm of 10)",
+            "ln10",
+        ),
+        _full(
+            "zeta5",
+            "zeta(5), the Riemann zeta function at 5",
+            "zeta(5) = sum 1/k^5",
+            "arb(5).zeta()",
+            "zeta(5)",
+            "L. Euler (the zeta series); OEIS A013663 (decimal expansion of zeta(5))",
+        ),
+    )
+}
+
+_registry: dict[str, Constant] = dict(BUILTIN_CONSTANTS) | FULL_CONSTANTS
 
 
 def register_constant(constant: Constant) -> None:
     """Make a user-defined constant available by name (e.g. from a formula file)."""
-    if constant.name in BUILTIN_CONSTANTS:
+    if constant.name in BUILTIN_CONSTANTS or constant.name in FULL_CONSTANTS:
         raise FormulaError(f"{constant.name!r} is a built-in constant; choose another name")
     _registry[constant.name] = constant
 

@@ -266,8 +266,8 @@ def test_get_constant_names_and_aliases(alias: str, name: str) -> None:
 
 
 def test_get_constant_unknown_lists_known_names() -> None:
-    with pytest.raises(UsageError, match=r"unknown constant 'e'.*pi, log2"):
-        get_constant("e")
+    with pytest.raises(UsageError, match=r"unknown constant 'feigenbaum'.*pi, log2"):
+        get_constant("feigenbaum")  # e is known since issue 15 (full evaluation)
 
 
 @pytest.mark.parametrize(

@@ -59,7 +59,7 @@ def open_checked(
         checked=min(df.count, limit) if limit else df.count,
         constant=const.name,
         constant_how=df.constant_how,
-        formula=const.formula(formula).key,
+        formula=const.method_key(formula),
         compression=df.compression,
         integer_part=df.integer_part,
         label_finding=None if ignore_labels else first_label_finding(df),

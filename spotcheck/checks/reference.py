@@ -17,6 +17,7 @@ from collections.abc import Callable
 from functools import lru_cache
 from typing import Any
 
+from spotcheck.engine.full import FULL_NAMES, arb_value, mpfr_value
 from spotcheck.errors import UsageError
 
 __all__ = ["REFERENCES", "reference_digits", "estimate_reference", "available_memory"]
@@ -50,6 +51,8 @@ def _arb_value(name: str) -> Callable[[], object]:
         "zeta3": lambda: arb(3).zeta(),
         "arctan-half": lambda: (arb(1) / 2).atan(),
     }
+    if name in FULL_NAMES:  # constants without a formula: the engine's own Arb expression
+        return arb_value(name)
     return table[name]
 
 
@@ -65,6 +68,8 @@ def _mpfr_value(name: str) -> Callable[[], object]:
         "zeta3": lambda: gmpy2.zeta(3),
         "arctan-half": lambda: gmpy2.atan(gmpy2.mpfr(1) / 2),
     }
+    if name in FULL_NAMES:  # MPFR: independent of the Arb evaluation the engine uses
+        return mpfr_value(name)
     return table[name]
 
 
@@ -77,7 +82,9 @@ def require_supported(constant: str) -> None:
 
 
 def supported(constant: str) -> bool:
-    return constant in ("pi", "log2", "log3", "pi-squared", "catalan", "zeta3", "arctan-half")
+    return constant in ("pi", "log2", "log3", "pi-squared", "catalan", "zeta3", "arctan-half") or (
+        constant in FULL_NAMES
+    )
 
 
 def _floor_scaled_arb(name: str, base: int, n: int, bits: int, threads: int = 1) -> int | None:

@@ -214,3 +214,122 @@ REPORT_SCHEMA: dict[str, Any] = {
     "schema_version": SCHEMA_VERSION,
     "oneOf": [VERIFY_SCHEMA, LOCATE_SCHEMA, SCAN_SCHEMA],
 }
+
+# --- compare (``spotcheck compare A B --json``): a report of its own -------------
+_COPY = {
+    "type": "object",
+    "required": ["path", "size_bytes", "base", "count", "layout"],
+    "properties": {
+        "path": {"type": "string"},
+        "size_bytes": {"type": "integer", "minimum": 0},
+        "compression": _STR_OR_NULL,
+        "base": {"enum": [10, 16]},
+        "count": {"type": "integer", "minimum": 0, "description": "digits after the point"},
+        "integer_part": _STR_OR_NULL,
+        "layout": {"type": "string", "description": "short description of the layout"},
+    },
+}
+
+_RIGHT = {
+    "enum": ["A", "B", "both wrong", None],
+    "description": "which copy agrees with the certified digits",
+}
+
+_DIFF_RUN = {
+    "type": "object",
+    "required": ["start", "length", "differing", "a", "b", "right"],
+    "properties": {
+        "start": {
+            "type": "integer",
+            "minimum": 1,
+            "description": "1-based position of the run's first digit",
+        },
+        "length": {"type": "integer", "minimum": 1},
+        "differing": {
+            "type": "integer",
+            "minimum": 1,
+            "description": "positions in the run where the copies differ",
+        },
+        "a": {"type": "string", "description": "copy A's digits from start"},
+        "b": {"type": "string", "description": "copy B's digits from start"},
+        "certified": {**_STR_OR_NULL, "description": "certified digits from start (hex files)"},
+        "right": _RIGHT,
+        "note": {"type": "string"},
+    },
+}
+
+COMPARE_SCHEMA: dict[str, Any] = {
+    "type": "object",
+    "required": [
+        "command",
+        "verdict",
+        "a",
+        "b",
+        "base",
+        "constant",
+        "method",
+        "digits_compared",
+        "differing_digits",
+        "runs",
+        "runs_total",
+        "extra",
+        "keep",
+        "seconds",
+        "evaluations",
+        "interrupted",
+        "repeat",
+    ],
+    "properties": {
+        "command": {"const": "compare"},
+        "verdict": {"enum": ["identical", "differ", "incomplete"]},
+        "schema_version": {"type": "integer"},
+        "a": _COPY,
+        "b": _COPY,
+        "base": {"enum": [10, 16]},
+        "constant": _STR_OR_NULL,
+        "constant_how": {"type": "string"},
+        "method": {"enum": ["digit extraction", "radix conversion", "none"]},
+        "digits_compared": {
+            "type": "integer",
+            "minimum": 0,
+            "description": "positions both copies have, compared",
+        },
+        "differing_digits": {"type": "integer", "minimum": 0},
+        "runs": {"type": "array", "items": _DIFF_RUN, "description": "the first runs (all, up to 1000)"},
+        "runs_total": {"type": "integer", "minimum": 0},
+        "extra": {
+            "type": ["object", "null"],
+            "required": ["longer", "start", "length", "digits", "right"],
+            "properties": {
+                "longer": {"enum": ["A", "B"]},
+                "start": {"type": "integer", "minimum": 1},
+                "length": {"type": "integer", "minimum": 1},
+                "digits": {"type": "string"},
+                "certified": _STR_OR_NULL,
+                "right": {"type": ["boolean", "null"]},
+                "note": {"type": "string"},
+            },
+        },
+        "integer_parts": {
+            "type": ["object", "null"],
+            "properties": {
+                "a": {"type": "string"},
+                "b": {"type": "string"},
+                "certified": _STR_OR_NULL,
+                "right": _RIGHT,
+            },
+        },
+        "keep": {
+            "enum": ["A", "B", "either", "neither", None],
+            "description": "the copy to keep; null when not every difference could be arbitrated",
+        },
+        "seconds": {"type": "number", "minimum": 0},
+        "arbitration_seconds": {"type": "array", "items": {"type": "number", "minimum": 0}},
+        "evaluations": {"type": "integer", "minimum": 0},
+        "interrupted": {"type": "boolean"},
+        "repeat": {"type": "string"},
+    },
+}
+
+# `spotcheck schema` prints REPORT_SCHEMA: a compare report is one of its kinds.
+REPORT_SCHEMA["oneOf"].append(COMPARE_SCHEMA)

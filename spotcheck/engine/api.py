@@ -233,6 +233,12 @@ def extract(
     '243F6A88'
     """
     p, n = check_request(position, count)
+    if (
+        isinstance(constant, str) and get_constant(constant).evaluation is not None
+    ):  # no formula: evaluate in full
+        from spotcheck.engine.full import extract_fields
+
+        return DigitResult(**extract_fields(get_constant(constant), p, n, formula))
     name, f = resolve_formula(constant, formula)
     series = series_of(f)
     block_k = _check_block_k(block_k)
@@ -388,6 +394,12 @@ def leading_digits(constant: str | Formula, base: int, count: int) -> tuple[str,
         raise UsageError(f"base must be 10 or 16, got {base}")
     if not 1 <= count <= 2000:
         raise UsageError("leading_digits serves 1 to 2000 digits")
+    if (
+        isinstance(constant, str) and get_constant(constant).evaluation is not None
+    ):  # no formula: evaluate in full
+        from spotcheck.engine.full import leading
+
+        return leading(get_constant(constant), base, count)
     _, f = resolve_formula(constant)
     series = series_of(f)
     bits = int(count * math.log2(base)) + 32

@@ -198,6 +198,13 @@ def show_digits(
                 con.print(f"  {r.formula:>10}  {group(r.digits)}")
 
 
+def _evaluation(c: Constant) -> dict[str, Any] | None:
+    ev = c.evaluation
+    if ev is None:
+        return None
+    return {"key": ev.key, "notation": ev.notation(), "arb": ev.arb, "mpfr": ev.mpfr, "source": ev.source}
+
+
 def constants_payload(constants: list[Constant]) -> dict[str, Any]:
     return {
         "constants": [
@@ -206,7 +213,9 @@ def constants_payload(constants: list[Constant]) -> dict[str, Any]:
                 "title": c.title,
                 "origin": c.origin,
                 "aliases": list(c.aliases),
-                "default_formula": c.formula().key,
+                "method": c.method,
+                "default_formula": c.method_key(),
+                "evaluation": _evaluation(c),
                 "formulas": [
                     {
                         "key": f.key,
@@ -232,6 +241,11 @@ def show_constants(constants: list[Constant], *, as_json: bool) -> None:
         origin = "" if c.origin == "built-in" else f"  [{STYLE_DIM}](from {c.origin})[/]"
         aliases = f"  [{STYLE_DIM}]also: {', '.join(c.aliases)}[/]" if c.aliases else ""
         con.print(f"[bold]{c.name}[/]  {c.title}{aliases}{origin}")
+        if c.evaluation is not None:
+            con.print(f"  {c.evaluation.key}: {c.evaluation.notation()}")
+            con.print(f"    [{STYLE_DIM}]no digit-extraction formula: every request evaluates it in full[/]")
+            con.print(f"    [{STYLE_DIM}]source: {c.evaluation.source}[/]")
+            continue
         default = c.formula().key
         for f in c.formulas:
             label = f"{f.key} (default)" if f.key == default and len(c.formulas) > 1 else f.key

@@ -1,0 +1,507 @@
+"""``compare``: two copies of one digit file, side by side, and which copy is right.
+
+Both files are read through the digit-file layer (any layout, either may be
+compressed), streamed together in chunks of ``CHUNK_DIGITS`` (bounded memory
+whatever their size), and every run of positions where they differ is listed:
+start, length, both copies' digits at its start.  Runs are merged across short
+gaps of coincidental agreement (``merge_runs``, as ``scan`` does).
+
+Arbitration: only the differing runs (and the longer copy's extra digits) need
+certified digits.
+
+* hex files: the engine's certified digits at each run's start
+  (``ARBITRATE_DIGITS`` of them at most) against both copies' digits there;
+* decimal files: a prefix check through radix conversion
+  (:func:`spotcheck.checks.decimal.prefix_check`).  The copies agree before a
+  run's start, except at earlier runs, where the digits of the copy found
+  right there are spliced in; each candidate prefix ``common + copy's digits of
+  the run`` is then checked whole.  A run after one where neither copy was
+  right is not arbitrated (there is no known-good prefix to build on).
+
+A copy is "right" at a run when its digits there equal the certified digits;
+"both wrong" when neither does.  Only the differing digits are examined: where
+the copies agree they may still both be wrong (``verify`` each to know).
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from dataclasses import asdict, dataclass, field
+from typing import Any
+
+from spotcheck.digitfile import DigitFile, open_digit_file
+from spotcheck.engine.api import leading_digits
+from spotcheck.errors import LabelError, UsageError
+from spotcheck.formulas import get_constant
+
+from .common import DEFAULT_WINDOW, HexOracle
+from .scan import diff_runs, merge_runs
+
+__all__ = ["compare_files", "compare_open", "CompareResult", "CopyFacts", "DiffRun", "ExtraDigits"]
+
+Progress = Callable[[int, int], None]
+
+# --- tuning -----------------------------------------------------------------
+CHUNK_DIGITS = 1 << 21  # digits of each copy held at a time
+ARBITRATE_DIGITS = 64  # certified digits compared at a run's start (at most)
+SAMPLE_DIGITS = 16  # digits of each copy shown per run
+MAX_RUNS_KEPT = 1000  # runs listed in the result; more are counted
+MAX_ARBITRATED_HEX = 100  # hex runs arbitrated (each costs one engine window)
+MAX_ARBITRATED_DECIMAL = 8  # decimal runs arbitrated (each costs two radix conversions)
+# ---------------------------------------------------------------------------
+
+A, B, BOTH_WRONG = "A", "B", "both wrong"
+
+
+@dataclass(frozen=True)
+class CopyFacts:
+    """What the report names about one copy."""
+
+    path: str
+    size_bytes: int
+    compression: str | None
+    base: int
+    count: int
+    integer_part: str | None
+    layout: str
+    """A short description of the layout (kind, line width, grouping, labels)."""
+
+
+@dataclass
+class DiffRun:
+    """A run of positions where the copies differ (short gaps of agreement merged in)."""
+
+    start: int
+    length: int
+    differing: int
+    """Positions inside the run where the copies differ."""
+    a: str
+    """Copy A's digits from ``start`` (at most ``ARBITRATE_DIGITS``)."""
+    b: str
+    certified: str | None = None
+    """Certified digits from ``start`` (hex files), when arbitrated."""
+    right: str | None = None
+    """``"A"``, ``"B"``, ``"both wrong"``, or None when not arbitrated."""
+    note: str = ""
+
+
+@dataclass
+class ExtraDigits:
+    """Digits one copy has past the other's end."""
+
+    longer: str
+    """``"A"`` or ``"B"``."""
+    start: int
+    length: int
+    digits: str
+    """The longer copy's first extra digits (at most ``SAMPLE_DIGITS``)."""
+    certified: str | None = None
+    right: bool | None = None
+    """True when the checked extra digits equal the certified ones; None when not arbitrated."""
+    note: str = ""
+
+
+@dataclass
+class CompareResult:
+    a: CopyFacts
+    b: CopyFacts
+    base: int
+    constant: str | None
+    constant_how: str
+    method: str
+    """``digit extraction`` (hex), ``radix conversion`` (decimal) or ``none`` (constant unknown)."""
+    digits_compared: int
+    differing_digits: int
+    runs: list[DiffRun] = field(default_factory=list)
+    runs_total: int = 0
+    extra: ExtraDigits | None = None
+    integer_parts: dict[str, Any] | None = None
+    """When the integer parts differ: ``{"a", "b", "certified", "right"}``."""
+    seconds: float = 0.0
+    arbitration_seconds: list[float] = field(default_factory=list)
+    """Seconds spent arbitrating each arbitrated run, in order (the extra digits last)."""
+    evaluations: int = 0
+    interrupted: bool = False
+
+    @property
+    def identical(self) -> bool:
+        return (
+            not self.interrupted
+            and self.runs_total == 0
+            and self.extra is None
+            and self.integer_parts is None
+            and self.a.count == self.b.count
+        )
+
+    @property
+    def keep(self) -> str | None:
+        """``"A"``, ``"B"``, ``"either"`` (identical), ``"neither"``, or None (cannot say)."""
+        if self.identical:
+            return "either"
+        if self.interrupted:
+            return None
+        verdicts = [r.right for r in self.runs]
+        if self.integer_parts is not None:
+            verdicts.append(self.integer_parts["right"])
+        if len(self.runs) < self.runs_total or any(v is None for v in verdicts):
+            return None
+        ok = {c: all(v == c for v in verdicts) for c in (A, B)}
+        if self.extra is not None:
+            if self.extra.right is None:
+                return None
+            longer, shorter = self.extra.longer, B if self.extra.longer == A else A
+            if ok[longer] and ok[shorter]:  # no run: the copies differ in length only
+                return longer if self.extra.right else shorter
+            if ok[longer] and not self.extra.right:
+                return "neither"
+        if ok[A] and ok[B]:
+            return "either"
+        for c in (A, B):
+            if ok[c]:
+                return c
+        return "neither"
+
+    @property
+    def verdict(self) -> str:
+        if self.identical:
+            return "identical"
+        if self.interrupted and self.runs_total == 0 and self.integer_parts is None:
+            return "incomplete"
+        return "differ"
+
+    @property
+    def exit_code(self) -> int:
+        return {"identical": 0, "differ": 1}.get(self.verdict, 0)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "command": "compare",
+            "verdict": self.verdict,
+            "schema_version": 1,
+            "a": asdict(self.a),
+            "b": asdict(self.b),
+            "base": self.base,
+            "constant": self.constant,
+            "constant_how": self.constant_how,
+            "method": self.method,
+            "digits_compared": self.digits_compared,
+            "differing_digits": self.differing_digits,
+            "runs": [asdict(r) for r in self.runs],
+            "runs_total": self.runs_total,
+            "extra": asdict(self.extra) if self.extra is not None else None,
+            "integer_parts": self.integer_parts,
+            "keep": self.keep,
+            "seconds": round(self.seconds, 3),
+            "arbitration_seconds": [round(s, 4) for s in self.arbitration_seconds],
+            "evaluations": self.evaluations,
+            "interrupted": self.interrupted,
+        }
+
+
+def _describe_layout(df: DigitFile) -> str:
+    lay = df.layout
+    if lay.kind == "packed":
+        return "packed binary"
+    parts = [f"{lay.line_width} digits per line" if lay.line_width else "irregular lines"]
+    if lay.group_size:
+        parts.append(f"groups of {lay.group_size}")
+    if lay.labels:
+        parts.append(f"labels at line {lay.labels}")
+    return ", ".join(parts)
+
+
+def _facts(df: DigitFile) -> CopyFacts:
+    return CopyFacts(
+        path=df.path,
+        size_bytes=df.size_bytes,
+        compression=df.compression,
+        base=df.base,
+        count=df.count,
+        integer_part=df.integer_part,
+        layout=_describe_layout(df),
+    )
+
+
+def _open(
+    path: str, base: int | None, constant: str | None, ignore_labels: bool, progress: Progress | None
+) -> DigitFile:
+    try:
+        return open_digit_file(
+            path, base=base, constant=constant, strict_labels=not ignore_labels, progress=progress
+        )
+    except LabelError as exc:
+        raise LabelError(f"{exc} (compare the digits themselves with --ignore-labels)") from None
+
+
+def compare_files(
+    path_a: str,
+    path_b: str,
+    *,
+    base: int | None = None,
+    constant: str | None = None,
+    formula: str | None = None,
+    ignore_labels: bool = False,
+    workers: int = 1,
+    progress: Progress | None = None,
+) -> CompareResult:
+    """Compare two copies of a digit file and say, with certified digits, which is right where they differ."""
+    da = _open(path_a, base, constant, ignore_labels, progress)
+    try:
+        db = _open(path_b, base, constant, ignore_labels, progress)
+        try:
+            return compare_open(
+                da, db, constant=constant, formula=formula, workers=workers, progress=progress
+            )
+        finally:
+            db.close()
+    finally:
+        da.close()
+
+
+def _settle_constant(da: DigitFile, db: DigitFile, constant: str | None) -> tuple[str | None, str]:
+    if constant is not None:
+        return get_constant(constant).name, "given with --constant"
+    ca, cb = da.constant, db.constant
+    if ca is not None and cb is not None and ca != cb:
+        raise UsageError(
+            f"the copies look like different constants: {da.path} is {ca}, {db.path} is {cb} "
+            "(name the constant with --constant if they are copies of one file)"
+        )
+    if ca is not None:
+        return ca, f"copy A: {da.constant_how}"
+    if cb is not None:
+        return cb, f"copy B: {db.constant_how}"
+    return None, f"neither copy's leading digits match a known constant ({da.constant_how})"
+
+
+class _Runs:
+    """Differing runs collected chunk by chunk, merged across short gaps, kept up to a cap."""
+
+    def __init__(self) -> None:
+        self.done: list[DiffRun] = []
+        self.total = 0
+        self.differing = 0
+        self.pending: DiffRun | None = None
+
+    def add(self, a: str, b: str, start: int) -> None:
+        found = [(f, last, last - f + 1) for f, last in diff_runs(a, b, start)]
+        if not found:
+            return
+        self.differing += sum(w for _, _, w in found)
+        carried = []
+        if self.pending is not None:
+            p = self.pending
+            carried = [(p.start, p.start + p.length - 1, p.differing)]
+        merged = merge_runs(carried + found)
+        for i, (f, last, w) in enumerate(merged):
+            if carried and i == 0 and f == carried[0][0]:
+                assert self.pending is not None
+                run = self.pending
+                run.length, run.differing = last - f + 1, w
+            else:
+                k = f - start
+                run = DiffRun(f, last - f + 1, w, a[k : k + ARBITRATE_DIGITS], b[k : k + ARBITRATE_DIGITS])
+            if i < len(merged) - 1:
+                self._finish(run)
+            else:
+                self.pending = run
+
+    def _finish(self, run: DiffRun) -> None:
+        self.total += 1
+        if len(self.done) < MAX_RUNS_KEPT:
+            self.done.append(run)
+
+    def flush(self) -> None:
+        if self.pending is not None:
+            self._finish(self.pending)
+            self.pending = None
+
+
+def compare_open(
+    da: DigitFile,
+    db: DigitFile,
+    *,
+    constant: str | None = None,
+    formula: str | None = None,
+    workers: int = 1,
+    progress: Progress | None = None,
+) -> CompareResult:
+    """Compare two opened copies (see :func:`compare_files`)."""
+    t0 = time.perf_counter()
+    if da.base != db.base:
+        raise UsageError(
+            f"the copies are in different bases ({da.path}: base {da.base}, {db.path}: base {db.base}), "
+            "so their digits cannot be compared; check each against the constant with `spotcheck verify`"
+        )
+    name, how = _settle_constant(da, db, constant)
+    method = "none" if name is None else ("digit extraction" if da.base == 16 else "radix conversion")
+    result = CompareResult(
+        a=_facts(da),
+        b=_facts(db),
+        base=da.base,
+        constant=name,
+        constant_how=how,
+        method=method,
+        digits_compared=0,
+        differing_digits=0,
+    )
+    common = min(da.count, db.count)
+    runs = _Runs()
+    try:
+        p = 1
+        while p <= common:
+            n = min(CHUNK_DIGITS, common - p + 1)
+            a, b = da.read(p, n), db.read(p, n)
+            if a != b:
+                runs.add(a, b, p)
+            p += n
+            result.digits_compared = p - 1
+            if progress:
+                progress(p - 1, common)
+    except KeyboardInterrupt:
+        result.interrupted = True
+    runs.flush()
+    result.runs, result.runs_total, result.differing_digits = runs.done, runs.total, runs.differing
+    if not result.interrupted and da.count != db.count:
+        longer, df = (A, da) if da.count > db.count else (B, db)
+        result.extra = ExtraDigits(longer, common + 1, df.count - common, df.read(common + 1, SAMPLE_DIGITS))
+    ia, ib = da.integer_part, db.integer_part
+    if ia is not None and ib is not None and (ia.lstrip("0") or "0") != (ib.lstrip("0") or "0"):
+        result.integer_parts = {"a": ia, "b": ib, "certified": None, "right": None}
+    if name is not None and not result.interrupted:
+        try:
+            _arbitrate(result, da, db, name, formula, workers)
+        except KeyboardInterrupt:
+            result.interrupted = True
+    result.seconds = time.perf_counter() - t0
+    return result
+
+
+def _arbitrate(
+    result: CompareResult, da: DigitFile, db: DigitFile, name: str, formula: str | None, workers: int
+) -> None:
+    if result.integer_parts is not None:
+        expected, _ = leading_digits(name, result.base, 1)
+        ip = result.integer_parts
+        ip["certified"] = expected
+        ra, rb = ((ip[k].upper().lstrip("0") or "0") == expected for k in ("a", "b"))
+        ip["right"] = A if ra else B if rb else BOTH_WRONG
+    oracle = HexOracle(name, get_constant(name).method_key(formula), workers=workers)
+    if result.base == 16:
+        _arbitrate_hex(result, da, db, oracle)
+    else:
+        _arbitrate_decimal(result, da, db, oracle)
+    result.evaluations = oracle.evaluations
+
+
+def _full_sample(df: DigitFile, run: DiffRun, have: str) -> str:
+    w = min(run.length, ARBITRATE_DIGITS)
+    return have if len(have) >= w else df.read(run.start, w)
+
+
+def _judge(a_ok: bool, b_ok: bool) -> str:
+    return A if a_ok else B if b_ok else BOTH_WRONG
+
+
+def _arbitrate_hex(result: CompareResult, da: DigitFile, db: DigitFile, oracle: HexOracle) -> None:
+    for i, run in enumerate(result.runs):
+        if i >= MAX_ARBITRATED_HEX:
+            run.note = f"not arbitrated: only the first {MAX_ARBITRATED_HEX} runs are"
+            continue
+        t = time.perf_counter()
+        w = min(run.length, ARBITRATE_DIGITS)
+        run.a, run.b = _full_sample(da, run, run.a)[:w], _full_sample(db, run, run.b)[:w]
+        run.certified = oracle.digits(run.start, w)
+        run.right = _judge(run.a == run.certified, run.b == run.certified)
+        if run.length > w:
+            run.note = f"the first {w} of the run's {run.length:,} digits were checked"
+        result.arbitration_seconds.append(time.perf_counter() - t)
+    extra = result.extra
+    if extra is not None:
+        t = time.perf_counter()
+        df = da if extra.longer == A else db
+        w = min(extra.length, ARBITRATE_DIGITS)
+        head = df.read(extra.start, w)
+        end_pos = extra.start + extra.length - w
+        tail = df.read(end_pos, w) if end_pos > extra.start else ""
+        extra.certified = oracle.digits(extra.start, w)
+        extra.right = head == extra.certified and (not tail or tail == oracle.digits(end_pos, w))
+        extra.note = (
+            f"the first and last {w} extra digits were checked"
+            if tail
+            else f"all {w} extra digits were checked"
+        )
+        result.arbitration_seconds.append(time.perf_counter() - t)
+
+
+def _arbitrate_decimal(result: CompareResult, da: DigitFile, db: DigitFile, oracle: HexOracle) -> None:
+    from .decimal import estimate_conversion_bytes, prefix_check
+    from .reference import memory_budget
+
+    def spliced(upto: int) -> str | None:
+        """Digits 1..upto-1 with each earlier run taken from the copy found right there."""
+        parts: list[str] = []
+        p = 1
+        for run in result.runs:
+            if run.start >= upto:
+                break
+            if run.right not in (A, B):
+                return None
+            parts.append(da.read(p, run.start - p) if run.start > p else "")
+            src = da if run.right == A else db
+            parts.append(src.read(run.start, run.length))
+            p = run.start + run.length
+        if upto > p:
+            parts.append(da.read(p, upto - p))
+        return "".join(parts)
+
+    def check(prefix: str) -> bool:
+        return prefix_check(prefix, oracle, DEFAULT_WINDOW, "compare").match
+
+    blocked = False
+    for i, run in enumerate(result.runs):
+        end = run.start + min(run.length, ARBITRATE_DIGITS) - 1
+        if blocked or i >= MAX_ARBITRATED_DECIMAL:
+            run.note = (
+                "not arbitrated: an earlier run had no right copy"
+                if blocked
+                else f"not arbitrated: only the first {MAX_ARBITRATED_DECIMAL} runs of a decimal pair are"
+            )
+            continue
+        need = estimate_conversion_bytes(end)
+        if need > memory_budget():
+            run.note = (
+                f"not arbitrated: radix conversion of {end:,} digits needs about {need / 2**30:.1f} GiB"
+            )
+            blocked = True
+            continue
+        t = time.perf_counter()
+        basis = spliced(run.start)
+        if basis is None:
+            blocked = True
+            run.note = "not arbitrated: an earlier run had no right copy"
+            continue
+        w = end - run.start + 1
+        run.a, run.b = _full_sample(da, run, run.a)[:w], _full_sample(db, run, run.b)[:w]
+        run.right = _judge(check(basis + run.a), check(basis + run.b))
+        run.note = f"prefixes of {end:,} digits converted to hex and checked against the engine"
+        blocked = run.right == BOTH_WRONG
+        result.arbitration_seconds.append(time.perf_counter() - t)
+    extra = result.extra
+    if extra is not None:
+        end = extra.start + min(extra.length, DEFAULT_WINDOW) - 1
+        if blocked or len(result.runs) < result.runs_total or any(r.right is None for r in result.runs):
+            extra.note = "not arbitrated: a differing run before it has no right copy or was not arbitrated"
+            return
+        if estimate_conversion_bytes(end) > memory_budget():
+            extra.note = f"not arbitrated: radix conversion of {end:,} digits does not fit in memory"
+            return
+        t = time.perf_counter()
+        basis = spliced(extra.start)
+        df = da if extra.longer == A else db
+        if basis is None:
+            return
+        extra.right = check(basis + df.read(extra.start, end - extra.start + 1))
+        extra.note = f"a prefix of {end:,} digits converted to hex and checked against the engine"
+        result.arbitration_seconds.append(time.perf_counter() - t)

@@ -1,0 +1,93 @@
+"""compare through the CLI: exit codes, the verdict sentence, JSON schema, bad input, Ctrl-C."""
+
+from __future__ import annotations
+
+import gzip
+import json
+from pathlib import Path
+
+import jsonschema
+import pytest
+
+from spotcheck.checks import compare as cmp
+from spotcheck.checks.schema import COMPARE_SCHEMA, REPORT_SCHEMA
+from spotcheck.cli import run
+from tests.reference import pi_decimal, pi_hex
+
+HEX = pi_hex(3000)
+
+
+def cli(capsys, *args: object) -> tuple[int, str, str]:
+    code = run([str(a) for a in args])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def _pair(tmp_path: Path) -> tuple[Path, Path]:
+    a = tmp_path / "a.txt"
+    a.write_text("3." + HEX + "\n")
+    bad = HEX[:1233] + ("0" if HEX[1233] != "0" else "1") + HEX[1234:]
+    b = tmp_path / "b.txt.gz"
+    b.write_bytes(
+        gzip.compress(("3.\n" + "\n".join(bad[i : i + 50] for i in range(0, 3000, 50)) + "\n").encode())
+    )
+    return a, b
+
+
+def test_differing_pair_exit_1_and_keep_sentence(tmp_path: Path, capsys) -> None:
+    a, b = _pair(tmp_path)
+    code, out, err = cli(capsys, "compare", a, b)
+    assert code == 1, err
+    assert "keep A" in out and "A is right" in out and "1,234" in out
+    code, out, _ = cli(capsys, "compare", b, a, "--json")
+    payload = json.loads(out)
+    jsonschema.validate(payload, COMPARE_SCHEMA)
+    jsonschema.validate(payload, REPORT_SCHEMA)  # what `spotcheck schema` prints
+    jsonschema.Draft202012Validator.check_schema(REPORT_SCHEMA)
+    assert code == 1 and payload["keep"] == "B" and payload["runs"][0]["start"] == 1234
+    assert payload["repeat"] == f"spotcheck compare {b} {a}"
+
+
+def test_identical_exit_0_and_quiet(tmp_path: Path, capsys) -> None:
+    a, _ = _pair(tmp_path)
+    c = tmp_path / "c.txt"
+    c.write_text("3.\n" + "\n".join(HEX[i : i + 64] for i in range(0, 3000, 64)) + "\n")
+    code, out, _ = cli(capsys, "compare", a, c, "--quiet")
+    assert code == 0 and out == ""
+    code, out, _ = cli(capsys, "compare", a, c)
+    assert code == 0 and "IDENTICAL" in out
+
+
+def test_base_mismatch_is_one_error_line(tmp_path: Path, capsys) -> None:
+    a, _ = _pair(tmp_path)
+    d = tmp_path / "d.txt"
+    d.write_text("3." + pi_decimal(500) + "\n")
+    code, out, err = cli(capsys, "compare", a, d)
+    assert code == 2 and out == ""
+    assert err.count("\n") == 1 and err.startswith("error:") and "different bases" in err and "verify" in err
+
+
+def test_missing_file_is_bad_input(tmp_path: Path, capsys) -> None:
+    a, _ = _pair(tmp_path)
+    code, _, err = cli(capsys, "compare", a, tmp_path / "nope.txt")
+    assert code == 2 and err.startswith("error:")
+
+
+def test_ctrl_c_reports_what_was_established(tmp_path: Path, capsys, monkeypatch: pytest.MonkeyPatch) -> None:
+    a, b = _pair(tmp_path)
+    monkeypatch.setattr(cmp, "CHUNK_DIGITS", 1000)
+    calls = {"n": 0}
+    real = cmp.DigitFile.read
+
+    def interrupting(self, position: int, count: int) -> str:
+        calls["n"] += 1
+        if position > 2000 and count == 1000:
+            raise KeyboardInterrupt
+        return real(self, position, count)
+
+    monkeypatch.setattr(cmp.DigitFile, "read", interrupting)
+    code, out, _ = cli(capsys, "compare", a, b, "--json")
+    payload = json.loads(out)
+    jsonschema.validate(payload, COMPARE_SCHEMA)
+    assert payload["interrupted"] is True and payload["digits_compared"] == 2000
+    assert payload["runs"][0]["start"] == 1234 and payload["keep"] is None and code == 1
