@@ -265,6 +265,18 @@ def _as_typed(message: str) -> str:
     return message
 
 
+def _hint(exc: Exception) -> str:
+    """The option that resolves a library error, named the way the user types it."""
+    parameter, value = getattr(exc, "parameter", None), getattr(exc, "value", None)
+    hints = {
+        "constant": " (--constant NAME; `spotcheck constants` lists them)",
+        "limit": f" (--limit {value})",
+        "windows": "; use `spotcheck verify --budget 0` or `spotcheck locate` instead",
+        "at": " (--at)",
+    }
+    return hints.get(parameter or "", "")
+
+
 def _repeat(command: str, path: str, **options: Any) -> str:
     import shlex
 
@@ -554,7 +566,7 @@ def run(argv: list[str] | None = None) -> int:
     try:
         rv: Any = command.main(args=args, prog_name="spotcheck", standalone_mode=False)
     except SpotcheckError as exc:
-        text = str(exc)
+        text = str(exc) + _hint(exc)
         if isinstance(exc, OSError) and exc.strerror:
             text = f"{exc.filename}: {exc.strerror}" if exc.filename else exc.strerror
         error_line(_as_typed(text))

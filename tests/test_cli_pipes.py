@@ -78,6 +78,20 @@ def test_inspect_takes_quiet(capsys) -> None:
     assert out == ""
 
 
+def test_the_cli_names_the_option_that_resolves_a_library_error(capsys, tmp_path) -> None:
+    path = tmp_path / "noise.txt"
+    path.write_text("0." + "0123456789ABCDEF" * 100 + "\n")
+    assert run(["verify", str(path)]) == 2
+    _, err = capsys.readouterr()
+    assert "--constant NAME" in err and len(err.strip().splitlines()) == 1
+
+
+def test_locate_names_scan_and_budget_when_the_comparison_does_not_fit(capsys) -> None:
+    code = run(["locate", str(SAMPLES / "pi-hex-taperot.txt.gz"), "--budget", "0"])
+    out, _ = capsys.readouterr()
+    assert code == 3 and "spotcheck scan" in out and "--budget" in out
+
+
 def test_errors_name_the_path_as_typed(capsys, tmp_path, monkeypatch) -> None:
     monkeypatch.chdir(tmp_path)
     (tmp_path / "sub").mkdir()

@@ -114,8 +114,9 @@ def test_decimal_samples_and_limit(workdir) -> None:
 def test_conversion_refused_when_memory_is_short(workdir, monkeypatch) -> None:
     path = write_dec(workdir, truth()[:5000])
     monkeypatch.setattr(decimal_mod, "memory_budget", lambda: 1000)
-    with pytest.raises(UsageError, match="--limit"):
+    with pytest.raises(UsageError, match="a prefix of") as info:
         verify_file(str(path))
+    assert info.value.parameter == "limit" and info.value.value >= 1 and "--" not in str(info.value)
 
 
 def _cli(capsys, *args: str) -> tuple[int, str]:

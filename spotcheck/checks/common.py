@@ -45,7 +45,7 @@ def open_checked(
     df = open_digit_file(path, base=base, constant=constant, strict_labels=False)
     if df.constant is None:
         df.close()
-        raise UsageError(f"{path}: {df.constant_how} (--constant NAME; `spotcheck constants` lists them)")
+        raise needs(f"{path}: {df.constant_how}", "constant")
     if df.count < 1:
         df.close()
         raise UsageError(f"{path}: no digits after the point")
@@ -84,6 +84,19 @@ def first_label_finding(df: DigitFile) -> LabelFinding | None:
         found=getattr(first, "found", None),
         total=len(found),
     )
+
+
+def needs(message: str, parameter: str, value: object = None) -> UsageError:
+    """A :class:`UsageError` that says which parameter would resolve it (the CLI names the option).
+
+    >>> exc = needs("x: no constant recognised", "constant")
+    >>> str(exc), exc.parameter, exc.value
+    ('x: no constant recognised', 'constant', None)
+    """
+    exc = UsageError(message)
+    exc.parameter = parameter  # type: ignore[attr-defined]
+    exc.value = value  # type: ignore[attr-defined]
+    return exc
 
 
 def integer_part_check(facts: FileFacts) -> WindowCheck | None:

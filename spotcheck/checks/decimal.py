@@ -34,7 +34,6 @@ import gmpy2
 
 from spotcheck.digitfile import DigitFile
 from spotcheck.engine.api import leading_digits
-from spotcheck.errors import UsageError
 
 from .common import (
     DEFAULT_WINDOW,
@@ -43,6 +42,7 @@ from .common import (
     clamp_window,
     first_difference,
     integer_part_check,
+    needs,
     run_plan,
 )
 from .reference import memory_budget
@@ -70,9 +70,11 @@ def _check_memory(n: int) -> None:
     need, have = estimate_conversion_bytes(n), memory_budget()
     if need > have:
         fits = max(1, (have - (64 << 20)) // BYTES_PER_DIGIT)
-        raise UsageError(
+        raise needs(
             f"radix conversion of {n:,} decimal digits needs about {need / 2**30:.1f} GiB of memory "
-            f"(available: {have / 2**30:.1f} GiB); check a prefix with --limit {fits:,} or less"
+            f"(available: {have / 2**30:.1f} GiB); a prefix of {fits:,} digits or less fits",
+            "limit",
+            fits,
         )
 
 

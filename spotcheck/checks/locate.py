@@ -165,10 +165,9 @@ class _HexLocator:
         if seconds == float("inf"):
             return f"there is no independent full computation of {self.facts.constant} to compare with"
         what = f"the first {upto:,} digits" if upto else "the whole file"
-        limit = f" --limit {upto}" if upto else ""
         return (
             f"comparing {what} with a full computation would take about {seconds:.0f} s, beyond the "
-            f"budget of {self.budget:.0f} s (run `spotcheck scan{limit}`, or raise --budget)"
+            f"budget of {self.budget:.0f} s"
         )
 
     # -- the search -----------------------------------------------------------

@@ -17,6 +17,7 @@ from .common import (
     Progress,
     clamp_window,
     integer_part_check,
+    needs,
     open_checked,
     run_plan,
 )
@@ -81,7 +82,7 @@ def verify_file(
     try:
         for p in at:
             if not 1 <= p <= facts.checked:
-                raise UsageError(f"--at {p} is outside the file (digits 1..{facts.checked})")
+                raise needs(f"position {p} is outside the file (digits 1..{facts.checked})", "at", p)
         if facts.base == 10:
             from .decimal import verify_decimal
 

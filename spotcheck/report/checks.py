@@ -244,6 +244,18 @@ def _meaning(result: CheckResult) -> list[str]:
             )
     elif isinstance(result, LocateResult):
         lines.append(result.explanation[0].upper() + result.explanation[1:] + ".")
+        estimate = result.scan_estimate_seconds
+        if (
+            not result.exhaustive
+            and not result.first_is_certain
+            and estimate is not None
+            and estimate != math.inf
+        ):
+            upto = result.first_mismatch - 1 if result.first_mismatch else None
+            limit = f" --limit {upto}" if upto else ""
+            lines.append(
+                f"To settle it: `spotcheck scan{limit}` (about {estimate:.0f} s), or raise --budget."
+            )
         if result.first_mismatch is not None and result.expected:
             lines.append(f"expected from {result.first_mismatch:,}: {result.expected}")
             lines.append(f"found    from {result.first_mismatch:,}: {result.found}")
