@@ -295,6 +295,25 @@ def _repeat(command: str, path: str, **options: Any) -> str:
     return " ".join(parts)
 
 
+def _repeat_from(ctx: Any, command: str, path: str, **chosen: Any) -> str:
+    """A command line that repeats the run: the options the user gave, plus values chosen for them.
+
+    Built from the parsed parameters, so every option of the command is
+    covered; ``chosen`` adds values decided during the run (the random seed).
+    """
+    options: dict[str, Any] = {}
+    for param in ctx.command.params:
+        name = param.name
+        if name is None or param.param_type_name != "option" or name in ("as_json", "quiet"):
+            continue
+        source = ctx.get_parameter_source(name)
+        if name in chosen:
+            options[name] = chosen[name]
+        elif source is not None and source.name != "DEFAULT":
+            options[name] = ctx.params.get(name)
+    return _repeat(command, path, **options)
+
+
 def _finish(result: Any, repeat: str, as_json: bool, quiet: bool) -> None:
     from spotcheck.report.checks import show_result
 
@@ -321,6 +340,7 @@ def _silence_stdout() -> None:
 
 @app.command()
 def verify(
+    ctx: typer.Context,
     file: FileArg,
     samples: Annotated[int, typer.Option("--samples", "-s", help="Random windows to check.")] = 8,
     seed: Annotated[
@@ -387,30 +407,13 @@ def verify(
             checkpoint=_window_checkpoint(checkpoint),
             progress=cb,
         )
-    repeat = _repeat(
-        "verify",
-        file,
-        samples=samples,
-        seed=seed,
-        at=at,
-        budget=budget,
-        sample_seconds=sample_seconds,
-        reference=reference,
-        window=window,
-        constant=constant,
-        base=base,
-        formula=formula,
-        limit=limit,
-        ignore_labels=ignore_labels,
-        formula_file=formula_file,
-        cluster=cluster,
-        checkpoint=checkpoint,
-    )
+    repeat = _repeat_from(ctx, "verify", file, seed=seed)
     _finish(result, repeat, as_json, quiet)
 
 
 @app.command()
 def locate(
+    ctx: typer.Context,
     file: FileArg,
     budget: Annotated[
         float, typer.Option("--budget", help="Seconds a full comparison may take when the tail matches.")
@@ -451,26 +454,13 @@ def locate(
             checkpoint=_window_checkpoint(checkpoint),
             progress=cb,
         )
-    repeat = _repeat(
-        "locate",
-        file,
-        budget=budget,
-        reference=reference,
-        window=window,
-        constant=constant,
-        base=base,
-        formula=formula,
-        limit=limit,
-        ignore_labels=ignore_labels,
-        formula_file=formula_file,
-        cluster=cluster,
-        checkpoint=checkpoint,
-    )
+    repeat = _repeat_from(ctx, "locate", file)
     _finish(result, repeat, as_json, quiet)
 
 
 @app.command()
 def scan(
+    ctx: typer.Context,
     file: FileArg,
     reference: ReferenceOpt = "arb",
     constant: ConstantOpt = None,
@@ -499,16 +489,7 @@ def scan(
             workers=_workers(workers),
             progress=cb,
         )
-    repeat = _repeat(
-        "scan",
-        file,
-        reference=reference,
-        constant=constant,
-        base=base,
-        limit=limit,
-        ignore_labels=ignore_labels,
-        formula_file=formula_file,
-    )
+    repeat = _repeat_from(ctx, "scan", file)
     _finish(result, repeat, as_json, quiet)
 
 

@@ -100,3 +100,19 @@ def test_errors_name_the_path_as_typed(capsys, tmp_path, monkeypatch) -> None:
         assert run([command, "./sub/../sub/empty.txt"]) == 2
         _, err = capsys.readouterr()
         assert "./sub/../sub/empty.txt" in err, (command, err)
+
+
+def test_the_repeat_line_is_built_from_the_parsed_options(capsys) -> None:
+    import json
+    import shlex
+
+    args = ["locate", str(SAMPLES / "pi-hex-astray.txt"), "--window", "12", "--limit", "40000"]
+    args += ["--reference", "mpfr", "--budget", "5", "--json"]
+    run(args)
+    payload = json.loads(capsys.readouterr().out)
+    again = shlex.split(payload["repeat"])
+    for option, value in [("--window", "12"), ("--limit", "40000"), ("--reference", "mpfr")]:
+        assert again[again.index(option) + 1] == value
+    assert float(again[again.index("--budget") + 1]) == 5
+    run([*again[1:], "--json"])
+    assert json.loads(capsys.readouterr().out)["first_mismatch"] == payload["first_mismatch"]
