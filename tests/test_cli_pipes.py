@@ -116,3 +116,23 @@ def test_the_repeat_line_is_built_from_the_parsed_options(capsys) -> None:
     assert float(again[again.index("--budget") + 1]) == 5
     run([*again[1:], "--json"])
     assert json.loads(capsys.readouterr().out)["first_mismatch"] == payload["first_mismatch"]
+
+
+def test_a_truncated_labelled_file_is_reported_by_verify_and_inspect_shows_its_end(capsys, tmp_path) -> None:
+    from .reference import pi_hex  # pi from mpmath (tests/reference.py)
+
+    digits = pi_hex(2000)
+    lines = [f"{digits[i : i + 50]} : {i + 50}" for i in range(0, 2000, 50)]
+    body = "3.\n" + "\n".join(lines) + "\n"
+    path = tmp_path / "cut.txt"
+    path.write_text(body[: body.rindex(" : ") - 20] + "\n")  # cut inside the last line: its label is gone
+    for command in ("verify", "locate"):
+        assert run([command, str(path)]) == 1
+        out, _ = capsys.readouterr()
+        assert "LABELS DISAGREE  line 41: no position label" in out and "cut short" in out
+    assert run([command, str(path), "--ignore-labels"]) == 0
+    capsys.readouterr()
+    assert run(["inspect", str(path)]) == 0
+    out, _ = capsys.readouterr()
+    last = next(ln for ln in out.splitlines() if "last digits" in ln)
+    assert digits[1980 - 8 : 1980] in last  # the file's real last digits (1,980 of them), not its middle

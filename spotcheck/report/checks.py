@@ -150,10 +150,12 @@ def label_sentence(result: CheckResult) -> str | None:
     if lf.position is not None:
         what += f" (its first digit is digit {lf.position:,})"
     more = f"; {lf.total:,} label findings in all" if lf.total > 1 else ""
-    return (
-        f"LABELS DISAGREE  {what}{more}: digits were lost or gained before it, or a label was changed "
-        "(--ignore-labels drops this finding)"
+    cause = (
+        "the file may have been cut short there, or the label removed"
+        if lf.kind == "label-missing"
+        else "digits were lost or gained before it, or a label was changed"
     )
+    return f"LABELS DISAGREE  {what}{more}: {cause} (--ignore-labels drops this finding)"
 
 
 def file_map(result: CheckResult, width: int) -> tuple[str, list[tuple[int, int, str]]]:
@@ -385,9 +387,12 @@ def show_inspect(result: InspectResult, *, as_json: bool) -> None:
         ("first digits", result.first_digits),
         ("last digits", result.last_digits),
     ]
-    for k, v in rows:
-        table.add_row(k, v)
     con = stdout_console()
+    room = max(16, con.width - 30)  # the value column's width, about
+    for k, v in rows:
+        if k == "last digits" and len(v) > room:
+            v = "…" + v[-(room - 1) :]  # the end of the file is what "last" means
+        table.add_row(k, v)
     con.print(table)
     for finding in result.findings:
         where = f" (line {finding.line})" if finding.line else ""
