@@ -129,7 +129,8 @@ def prefix_check(
     basis = n if basis is None else basis
     whole = gmpy2.mpz(digits)
     v = whole if basis == n else gmpy2.mpz(digits[:basis] or "0")
-    p10 = gmpy2.mpz(10) ** basis
+    p10_basis = gmpy2.mpz(10) ** basis
+    p10 = p10_basis
     h = int(basis * _LOG2_10) // 4 + 2
     a, r = divmod(v << (4 * h), p10)  # one big division serves both ends
     b = a + (r + (1 << (4 * h))) // p10
@@ -142,7 +143,7 @@ def prefix_check(
     # Enough engine digits past the determined ones to pin x far below 10^-n.
     m = CONTINUATION_DIGITS + max(0, math.ceil(n * _LOG2_10 / 4) - big_l)
     win: WindowCheck | None = None
-    p10 = gmpy2.mpz(10) ** n
+    p10 = p10_basis if basis == n else gmpy2.mpz(10) ** n  # 10^n once for a whole-file check
     while True:
         engine = oracle.digits(big_l - w + 1, w + m)
         if w:
