@@ -116,6 +116,47 @@ def integer_part_check(facts: FileFacts) -> WindowCheck | None:
     )
 
 
+def common_rows(facts: FileFacts) -> list[WindowCheck]:
+    """The rows every check report starts with: the integer part's comparison, when the file has one."""
+    ip = integer_part_check(facts)
+    return [] if ip is None else [ip]
+
+
+@dataclass
+class CheckRun:
+    """One check's set-up: the opened file, its facts and the engine oracle.  Closes the file on exit."""
+
+    df: DigitFile
+    facts: FileFacts
+    oracle: HexOracle
+
+    def __enter__(self) -> CheckRun:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.df.close()
+
+
+def open_run(
+    path: str,
+    *,
+    base: int | None,
+    constant: str | None,
+    formula: str | None,
+    limit: int | None = None,
+    ignore_labels: bool = False,
+    workers: int = 1,
+    cluster: Any = None,
+    checkpoint: bool = False,
+) -> CheckRun:
+    """Open a file for a check (:func:`open_checked`) with an oracle for its constant and formula."""
+    df, facts = open_checked(
+        path, base=base, constant=constant, formula=formula, limit=limit, ignore_labels=ignore_labels
+    )
+    oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, checkpoint=checkpoint)
+    return CheckRun(df, facts, oracle)
+
+
 def first_difference(expected: str, found: str, position: int) -> int | None:
     for i, (a, b) in enumerate(zip(expected, found)):
         if a != b:

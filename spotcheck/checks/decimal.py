@@ -40,8 +40,8 @@ from .common import (
     HexOracle,
     Progress,
     clamp_window,
+    common_rows,
     first_difference,
-    integer_part_check,
     needs,
     run_plan,
 )
@@ -223,9 +223,7 @@ def verify_decimal(
     w = clamp_window(window, n)
     rng = random.Random(seed)
     checks: list[WindowCheck] = []
-    ip = integer_part_check(facts)
-    if ip is not None:
-        checks.append(ip)
+    checks.extend(common_rows(facts))
     checks.append(_head_check(facts, df, w))
     digits = _read_prefix(df, n)
     plan: list[tuple[str, int]] = [("tail", n)]
@@ -332,9 +330,7 @@ def locate_decimal(
     _check_memory(n)
     w = clamp_window(window, n)
     checks: list[WindowCheck] = []
-    ip = integer_part_check(facts)
-    if ip is not None:
-        checks.append(ip)
+    checks.extend(common_rows(facts))
     digits = _read_prefix(df, n)
     steps = max(1, n.bit_length() + 1)
     interrupted = False

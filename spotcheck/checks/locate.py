@@ -8,7 +8,7 @@ from typing import Any
 
 from spotcheck.digitfile import DigitFile
 
-from .common import DEFAULT_WINDOW, HexOracle, Progress, clamp_window, integer_part_check, open_checked
+from .common import DEFAULT_WINDOW, HexOracle, Progress, clamp_window, common_rows, open_run
 from .results import FileFacts, LocateResult, WindowCheck
 from .scan import estimate_scan, scan_open
 
@@ -37,11 +37,19 @@ def locate_file(
     progress: Progress | None = None,
 ) -> LocateResult:
     """Find the first wrong digit of a digit file (1-based position), or say what was ruled out."""
-    df, facts = open_checked(
-        path, base=base, constant=constant, formula=formula, limit=limit, ignore_labels=ignore_labels
+    run = open_run(
+        path,
+        base=base,
+        constant=constant,
+        formula=formula,
+        limit=limit,
+        ignore_labels=ignore_labels,
+        workers=workers,
+        cluster=cluster,
+        checkpoint=checkpoint,
     )
-    oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, checkpoint=checkpoint)
-    try:
+    df, facts, oracle = run.df, run.facts, run.oracle
+    with run:
         if facts.base == 10:
             from .decimal import locate_decimal
 
@@ -55,8 +63,6 @@ def locate_file(
                 progress=progress,
             )
         return _HexLocator(df, facts, window, budget, reference, oracle, progress).run()
-    finally:
-        df.close()
 
 
 def rest_after(checks: list[WindowCheck]) -> str | None:
@@ -89,9 +95,7 @@ class _HexLocator:
         self.n = self.facts.checked
         self.w = clamp_window(self.window, self.n)
         self.steps_total = max(1, (self.n // self.w).bit_length() + 2 + AFTER_SAMPLES)
-        ip = integer_part_check(self.facts)
-        if ip is not None:
-            self.checks.append(ip)
+        self.checks.extend(common_rows(self.facts))
 
     # -- plumbing -------------------------------------------------------------
     def step(self, kind: str, position: int, count: int, note: str = "") -> WindowCheck:

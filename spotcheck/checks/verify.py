@@ -16,9 +16,9 @@ from .common import (
     HexOracle,
     Progress,
     clamp_window,
-    integer_part_check,
+    common_rows,
     needs,
-    open_checked,
+    open_run,
     run_plan,
 )
 from .results import FileFacts, VerifyResult, WindowCheck
@@ -75,11 +75,19 @@ def verify_file(
     if sample_seconds is not None and sample_seconds <= 0:
         raise UsageError(f"sample time must be a positive number of seconds, got {sample_seconds}")
     seed = _seed(seed)
-    df, facts = open_checked(
-        path, base=base, constant=constant, formula=formula, limit=limit, ignore_labels=ignore_labels
+    run = open_run(
+        path,
+        base=base,
+        constant=constant,
+        formula=formula,
+        limit=limit,
+        ignore_labels=ignore_labels,
+        workers=workers,
+        cluster=cluster,
+        checkpoint=checkpoint,
     )
-    oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, checkpoint=checkpoint)
-    try:
+    df, facts, oracle = run.df, run.facts, run.oracle
+    with run:
         for p in at:
             if not 1 <= p <= facts.checked:
                 raise needs(f"position {p} is outside the file (digits 1..{facts.checked})", "at", p)
@@ -110,8 +118,6 @@ def verify_file(
             progress,
             reference if full else None,
         )
-    finally:
-        df.close()
 
 
 def _full_fits(facts: FileFacts, reference: str, budget: float) -> bool:
@@ -148,9 +154,7 @@ def _verify_hex(
     if full_reference is None:
         plan += sorted(("sample", rng.randint(1, last_start)) for _ in range(samples))
     checks: list[WindowCheck] = []
-    ip = integer_part_check(facts)
-    if ip is not None:
-        checks.append(ip)
+    checks.extend(common_rows(facts))
 
     def check(kind: str, position: int) -> None:
         checks.append(oracle.compare(df, kind, position, w))
