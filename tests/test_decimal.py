@@ -98,7 +98,9 @@ def test_rounded_last_digit_is_reported_as_that_digit(workdir) -> None:
     loc = locate_file(str(path := write_dec(workdir, rounded)))
     assert loc.first_mismatch == 761
     assert loc.expected.startswith(digits[760:766]) and loc.found.startswith(rounded[760:766])
-    assert verify_file(str(path), samples=0, seed=1).exit_code == 1
+    assert loc.rounded_from == 761  # named as rounding: 760 right, then ...+1 carried through the 9s
+    v = verify_file(str(path), samples=0, seed=1)
+    assert v.exit_code == 1 and v.rounded_from == 761
 
 
 def test_decimal_samples_and_limit(workdir) -> None:
@@ -180,6 +182,8 @@ def test_rounded_last_digit_is_named_as_rounding(workdir, capsys, n) -> None:
     assert v.exit_code == 1 and v.first_wrong_bracket == (m, m) and v.rounded_from == m
     code, out = _cli(capsys, "verify", path, "--seed", "1", "--samples", "2")
     assert code == 1 and "rounded up" in out.splitlines()[0]
+    code, out = _cli(capsys, "locate", path)
+    assert code == 1 and out.startswith(f"MISMATCH  first wrong digit at position {m:,}") and "rounded up" in out
     truncated_wrong = true[: m - 1] + str((int(true[m - 1]) + 2) % 10)  # not a rounding
     v = verify_file(str(write_dec(workdir, truncated_wrong)), seed=1, samples=2)
     assert v.exit_code == 1 and v.rounded_from is None

@@ -409,4 +409,7 @@ def locate_decimal(
         explanation=explanation,
         first_is_certain=first is not None,
         first_wrong_bracket=(good + 1, bad) if first is None and bad else None,
+        rounded_from=_rounded_last_digits(digits, first, oracle, w)
+        if first is not None and not interrupted
+        else None,
     )

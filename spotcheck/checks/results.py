@@ -245,6 +245,8 @@ class LocateResult(_Common):
     """Digits 1..N compared with a full computation (0: none)."""
     first_wrong_bracket: tuple[int, int] | None = None
     """Decimal files, interrupted bisection: the first wrong digit lies in ``lo..hi``."""
+    rounded_from: int | None = None
+    """Decimal files: the wrong digits from this position to the end are the true ones rounded up."""
 
     @property
     def verdict(self) -> str:
@@ -272,6 +274,7 @@ class LocateResult(_Common):
             scan_estimate_seconds=self.scan_estimate_seconds,
             first_is_certain=self.first_is_certain,
             first_wrong_bracket=list(self.first_wrong_bracket) if self.first_wrong_bracket else None,
+            rounded_from=self.rounded_from,
         )
         return out
 

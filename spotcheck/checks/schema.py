@@ -171,6 +171,10 @@ LOCATE_SCHEMA: dict[str, Any] = {
         "first_is_certain": {"type": "boolean"},
         "explanation": {"type": "string"},
         "scan_estimate_seconds": {"type": ["number", "null"]},
+        "rounded_from": {
+            **_INT_OR_NULL,
+            "description": "decimal files: the digits from here to the end are the true ones rounded up",
+        },
         "first_wrong_bracket": {
             "type": ["array", "null"],
             "items": {"type": "integer", "minimum": 1},

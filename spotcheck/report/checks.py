@@ -70,8 +70,13 @@ def _verdict_line(result: CheckResult) -> tuple[str, str]:
                     f"({what}); interrupted",
                     STYLE_BAD,
                 )
+            rounding = (
+                ": the last digits are the true expansion rounded up, not truncated"
+                if result.rounded_from is not None
+                else ""
+            )
             return (
-                f"MISMATCH  first wrong digit at position {result.first_mismatch:,} ({what}){stop}",
+                f"MISMATCH  first wrong digit at position {result.first_mismatch:,} ({what}){rounding}{stop}",
                 STYLE_BAD,
             )
         wrong_digits = getattr(result, "wrong_digits", None)
