@@ -217,9 +217,9 @@ WindowCheckpointOpt = Annotated[
     str | None,
     typer.Option(
         "--checkpoint",
-        metavar="auto",
-        help="Keep each window's finished head-sum blocks under the user's cache directory, so a rerun "
-        "resumes ('auto' is the only value: a check evaluates several windows).",
+        metavar="DIR|auto",
+        help="Keep each window's finished head-sum blocks, so a rerun resumes: one file per window in DIR, "
+        "or under the user's cache directory with 'auto'.",
     ),
 ]
 IgnoreLabelsOpt = Annotated[
@@ -242,13 +242,19 @@ def _base(base: int | None) -> int | None:
     return base
 
 
-def _window_checkpoint(value: str | None) -> bool:
-    if value not in (None, "auto"):
+def _window_checkpoint(value: str | None) -> bool | str:
+    """``auto`` -> the cache directory; a path -> a directory of per-window files (a check has several)."""
+    if value is None:
+        return False
+    if value == "auto":
+        return True
+    if os.path.exists(value) and not os.path.isdir(value):
         raise typer.BadParameter(
-            "checks evaluate several windows, one checkpoint file each: use --checkpoint auto",
+            f"{value} is a file; a check evaluates several windows and keeps one checkpoint file each "
+            "in a directory (give a directory, or auto)",
             param_hint="--checkpoint",
         )
-    return value == "auto"
+    return value
 
 
 _typed_path: list[str] = []  # the FILE argument of the running command, as the user typed it

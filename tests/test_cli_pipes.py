@@ -136,3 +136,18 @@ def test_a_truncated_labelled_file_is_reported_by_verify_and_inspect_shows_its_e
     out, _ = capsys.readouterr()
     last = next(ln for ln in out.splitlines() if "last digits" in ln)
     assert digits[1980 - 8 : 1980] in last  # the file's real last digits (1,980 of them), not its middle
+
+
+@pytest.mark.parametrize("command", ["verify", "locate"])
+def test_checkpoint_takes_a_directory_or_auto(capsys, tmp_path, command: str) -> None:
+    where = tmp_path / "ck"
+    args = [command, str(SAMPLES / "pi-hex-astray.txt"), "--budget", "0", "--checkpoint", str(where)]
+    assert run(args) == 1
+    capsys.readouterr()
+    kept = sorted(where.glob("*.json"))
+    assert kept  # one file per window
+    assert run(args) == 1  # the rerun reads them back and reaches the same verdict
+    capsys.readouterr()
+    assert run([command, str(SAMPLES / "pi-hex-clean.txt"), "--checkpoint", str(kept[0])]) == 2
+    _, err = capsys.readouterr()
+    assert "directory" in err

@@ -183,7 +183,9 @@ def test_rounded_last_digit_is_named_as_rounding(workdir, capsys, n) -> None:
     code, out = _cli(capsys, "verify", path, "--seed", "1", "--samples", "2")
     assert code == 1 and "rounded up" in out.splitlines()[0]
     code, out = _cli(capsys, "locate", path)
-    assert code == 1 and out.startswith(f"MISMATCH  first wrong digit at position {m:,}") and "rounded up" in out
+    assert (
+        code == 1 and out.startswith(f"MISMATCH  first wrong digit at position {m:,}") and "rounded up" in out
+    )
     truncated_wrong = true[: m - 1] + str((int(true[m - 1]) + 2) % 10)  # not a rounding
     v = verify_file(str(write_dec(workdir, truncated_wrong)), seed=1, samples=2)
     assert v.exit_code == 1 and v.rounded_from is None

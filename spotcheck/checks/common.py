@@ -147,7 +147,7 @@ def open_run(
     ignore_labels: bool = False,
     workers: int = 1,
     cluster: Any = None,
-    checkpoint: bool = False,
+    checkpoint: bool | str = False,
 ) -> CheckRun:
     """Open a file for a check (:func:`open_checked`) with an oracle for its constant and formula."""
     df, facts = open_checked(
@@ -175,8 +175,9 @@ class HexOracle:
     workers: int = 1
     cluster: Any = None
     """A Dask scheduler address (or Client) for the head sums of deep windows."""
-    checkpoint: bool = False
-    """Keep each window's finished head-sum blocks under the cache directory."""
+    checkpoint: bool | str = False
+    """Keep each window's finished head-sum blocks: True under the cache directory, or a
+    directory path (one file per window, named as under the cache directory)."""
     evaluations: int = 0
     engine_seconds: float = 0.0
     _cache: dict[tuple[int, int], str] = field(default_factory=dict)
@@ -192,12 +193,25 @@ class HexOracle:
                 formula=self.formula,
                 workers=self.workers,
                 cluster=self.cluster,
-                checkpoint=True if self.checkpoint else None,
+                checkpoint=self._checkpoint_path(position, count),
             )
             self.engine_seconds += time.perf_counter() - t0
             self.evaluations += 1
             self._cache[key] = r.digits
         return self._cache[key]
+
+    def _checkpoint_path(self, position: int, count: int) -> bool | str | None:
+        if not self.checkpoint:
+            return None
+        if self.checkpoint is True:
+            return True
+        import os
+
+        from spotcheck.engine.api import default_checkpoint_path
+
+        name = default_checkpoint_path(self.constant, position, count, formula=self.formula).name
+        os.makedirs(self.checkpoint, exist_ok=True)
+        return os.path.join(str(self.checkpoint), name)
 
     def compare(self, df: DigitFile, kind: str, position: int, count: int, note: str = "") -> WindowCheck:
         count = min(count, df.count - position + 1)

@@ -33,7 +33,7 @@ def locate_file(
     limit: int | None = None,
     ignore_labels: bool = False,
     cluster: Any = None,
-    checkpoint: bool = False,
+    checkpoint: bool | str = False,
     progress: Progress | None = None,
 ) -> LocateResult:
     """Find the first wrong digit of a digit file (1-based position), or say what was ruled out."""

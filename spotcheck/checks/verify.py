@@ -54,7 +54,7 @@ def verify_file(
     limit: int | None = None,
     ignore_labels: bool = False,
     cluster: Any = None,
-    checkpoint: bool = False,
+    checkpoint: bool | str = False,
     progress: Progress | None = None,
 ) -> VerifyResult:
     """Check a digit file: every digit when a full comparison fits ``budget`` seconds, else windows.
