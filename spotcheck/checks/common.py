@@ -250,12 +250,17 @@ def run_plan(
     """
     t0 = time.perf_counter()
     random_windows = 0
+    # Progress in units of work: a window's cost grows with its position (a prefix's with its
+    # length), so counting checks would make the ETA far too short when deep windows come last.
+    weights = [max(where, 1_000) for _, where in plan]
+    total, done = sum(weights), 0
     try:
-        for i, (kind, where) in enumerate(plan):
+        for (kind, where), weight in zip(plan, weights):
             check(kind, where)
             random_windows += kind == "sample"
+            done += weight
             if progress:
-                progress(i + 1, len(plan))
+                progress(done, total)
         if budget is not None:
             # Keep drawing while the next check is expected to fit.
             per = (time.perf_counter() - t0) / max(1, len(plan))
