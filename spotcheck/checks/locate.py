@@ -112,6 +112,7 @@ class _HexLocator:
             self.df,
             self.facts,
             reference=self.reference,
+            threads=self.oracle.workers,
             stop_at_first=True,
             upto=upto,
             progress=self.progress,

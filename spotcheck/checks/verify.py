@@ -170,7 +170,7 @@ def _verify_hex(
     if full_reference is not None and not interrupted:
         from .scan import scan_open
 
-        scan = scan_open(df, facts, reference=full_reference, progress=progress)
+        scan = scan_open(df, facts, reference=full_reference, progress=progress, threads=oracle.workers)
         interrupted = scan.interrupted
         full_through, wrong, evaluations = scan.digits_compared, scan.wrong_digits, evaluations + 1
         runs = scan.runs_total
