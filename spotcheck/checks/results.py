@@ -10,6 +10,7 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
+from .schema import SCHEMA_VERSION
 from .stats import false_match_chance, scattered_damage_bound
 
 __all__ = [
@@ -161,7 +162,7 @@ class _Common:
         return {
             "command": command,
             "verdict": self.verdict,
-            "schema_version": 1,
+            "schema_version": SCHEMA_VERSION,
             "file": asdict(self.file),
             "method": self.method,
             "checks": [asdict(c) for c in self.checks],
