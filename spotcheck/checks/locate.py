@@ -171,8 +171,8 @@ class _HexLocator:
             return f"there is no independent full computation of {self.facts.constant} to compare with"
         what = f"the first {upto:,} digits" if upto else "the whole file"
         return (
-            f"comparing {what} with a full computation would take about {seconds:.0f} s, beyond the "
-            f"budget of {self.budget:.0f} s"
+            f"comparing {what} with a full computation would take "
+            f"{'under 1 s' if seconds < 1 else f'about {seconds:.0f} s'}, beyond the budget of {self.budget:g} s"
         )
 
     # -- the search -----------------------------------------------------------

@@ -50,7 +50,8 @@ def coverage_phrase(result: CheckResult) -> str:
         ref = getattr(result, "reference", None) or "a full computation"
         return f"every digit compared with {ref}"
     windows = sum(1 for c in result.checks if c.position >= 1)
-    text = f"{plural(windows, 'window')} sampled ({result.covered_digits:,} digits)"
+    how = "compared" if isinstance(result, LocateResult) else "sampled"
+    text = f"{plural(windows, 'window')} {how} ({result.covered_digits:,} digits)"
     if isinstance(result, VerifyResult) and result.scattered_bound is not None:
         text += f"; damaged fraction below {result.scattered_bound:.2%} at 95%"
     return text
@@ -260,9 +261,8 @@ def _meaning(result: CheckResult) -> list[str]:
         ):
             upto = result.first_mismatch - 1 if result.first_mismatch else None
             limit = f" --limit {upto}" if upto else ""
-            lines.append(
-                f"To settle it: `spotcheck scan{limit}` (about {estimate:.0f} s), or raise --budget."
-            )
+            took = "under 1 s" if estimate < 1 else f"about {estimate:.0f} s"
+            lines.append(f"To settle it: `spotcheck scan{limit}` ({took}), or raise --budget.")
         if result.first_mismatch is not None and result.expected:
             lines.append(f"expected from {result.first_mismatch:,}: {result.expected}")
             lines.append(f"found    from {result.first_mismatch:,}: {result.found}")
