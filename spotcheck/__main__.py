@@ -1,3 +1,4 @@
 from spotcheck.cli import main
 
-main()
+if __name__ == "__main__":  # not again in a spawned child process (checks/reference.py)
+    main()

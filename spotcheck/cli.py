@@ -285,9 +285,9 @@ WindowCheckpointOpt = Annotated[
     str | None,
     typer.Option(
         "--checkpoint",
-        metavar="auto",
-        help="Keep each window's finished head-sum blocks under the user's cache directory, so a rerun "
-        "resumes ('auto' is the only value: a check evaluates several windows).",
+        metavar="DIR|auto",
+        help="Keep each window's finished head-sum blocks, so a rerun resumes: one file per window in DIR, "
+        "or under the user's cache directory with 'auto'.",
     ),
 ]
 IgnoreLabelsOpt = Annotated[
@@ -316,13 +316,19 @@ def _base(base: int | None) -> int | None:
     return base
 
 
-def _window_checkpoint(value: str | None) -> bool:
-    if value not in (None, "auto"):
+def _window_checkpoint(value: str | None) -> bool | str:
+    """``auto`` -> the cache directory; a path -> a directory of per-window files (a check has several)."""
+    if value is None:
+        return False
+    if value == "auto":
+        return True
+    if os.path.exists(value) and not os.path.isdir(value):
         raise typer.BadParameter(
-            "checks evaluate several windows, one checkpoint file each: use --checkpoint auto",
+            f"{value} is a file; a check evaluates several windows and keeps one checkpoint file each "
+            "in a directory (give a directory, or auto)",
             param_hint="--checkpoint",
         )
-    return value == "auto"
+    return value
 
 
 _typed_path: list[str] = []  # the FILE argument of the running command, as the user typed it
@@ -337,6 +343,20 @@ def _as_typed(message: str) -> str:
         if other != typed and message.startswith(other + ":"):
             return typed + message[len(other) :]
     return message
+
+
+def _hint(exc: Exception) -> str:
+    """The option that resolves a library error, named the way the user types it."""
+    parameter = getattr(exc, "parameter", None) or getattr(exc, "choice", None)
+    value = getattr(exc, "value", None)
+    hints = {
+        "constant": " (--constant NAME; `spotcheck constants` lists them)",
+        "limit": f" (--limit {value})",
+        "windows": "; use `spotcheck verify --budget 0` or `spotcheck locate` instead",
+        "at": " (--at)",
+        "labels": " (--labels start|end|none)",
+    }
+    return hints.get(parameter or "", "")
 
 
 def _repeat(command: str, path: str, **options: Any) -> str:
@@ -355,6 +375,25 @@ def _repeat(command: str, path: str, **options: Any) -> str:
         else:
             parts += [flag, shlex.quote(str(value))]
     return " ".join(parts)
+
+
+def _repeat_from(ctx: Any, command: str, path: str, **chosen: Any) -> str:
+    """A command line that repeats the run: the options the user gave, plus values chosen for them.
+
+    Built from the parsed parameters, so every option of the command is
+    covered; ``chosen`` adds values decided during the run (the random seed).
+    """
+    options: dict[str, Any] = {}
+    for param in ctx.command.params:
+        name = param.name
+        if name is None or param.param_type_name != "option" or name in ("as_json", "quiet"):
+            continue
+        source = ctx.get_parameter_source(name)
+        if name in chosen:
+            options[name] = chosen[name]
+        elif source is not None and source.name != "DEFAULT":
+            options[name] = ctx.params.get(name)
+    return _repeat(command, path, **options)
 
 
 def _finish(result: Any, repeat: str, as_json: bool, quiet: bool) -> None:
@@ -383,6 +422,7 @@ def _silence_stdout() -> None:
 
 @app.command()
 def verify(
+    ctx: typer.Context,
     file: FileArg,
     samples: Annotated[int, typer.Option("--samples", "-s", help="Random windows to check.")] = 8,
     seed: Annotated[
@@ -451,31 +491,13 @@ def verify(
             checkpoint=_window_checkpoint(checkpoint),
             progress=cb,
         )
-    repeat = _repeat(
-        "verify",
-        file,
-        samples=samples,
-        seed=seed,
-        at=at,
-        budget=budget,
-        sample_seconds=sample_seconds,
-        reference=reference,
-        window=window,
-        constant=constant,
-        base=base,
-        formula=formula,
-        limit=limit,
-        ignore_labels=ignore_labels,
-        labels=labels,
-        formula_file=formula_file,
-        cluster=cluster,
-        checkpoint=checkpoint,
-    )
+    repeat = _repeat_from(ctx, "verify", file, seed=seed)
     _finish(result, repeat, as_json, quiet)
 
 
 @app.command()
 def locate(
+    ctx: typer.Context,
     file: FileArg,
     budget: Annotated[
         float, typer.Option("--budget", help="Seconds a full comparison may take when the tail matches.")
@@ -518,27 +540,13 @@ def locate(
             checkpoint=_window_checkpoint(checkpoint),
             progress=cb,
         )
-    repeat = _repeat(
-        "locate",
-        file,
-        budget=budget,
-        reference=reference,
-        window=window,
-        constant=constant,
-        base=base,
-        formula=formula,
-        limit=limit,
-        ignore_labels=ignore_labels,
-        labels=labels,
-        formula_file=formula_file,
-        cluster=cluster,
-        checkpoint=checkpoint,
-    )
+    repeat = _repeat_from(ctx, "locate", file)
     _finish(result, repeat, as_json, quiet)
 
 
 @app.command()
 def scan(
+    ctx: typer.Context,
     file: FileArg,
     reference: ReferenceOpt = "arb",
     constant: ConstantOpt = None,
@@ -569,17 +577,7 @@ def scan(
             workers=_workers(workers),
             progress=cb,
         )
-    repeat = _repeat(
-        "scan",
-        file,
-        reference=reference,
-        constant=constant,
-        base=base,
-        limit=limit,
-        ignore_labels=ignore_labels,
-        labels=labels,
-        formula_file=formula_file,
-    )
+    repeat = _repeat_from(ctx, "scan", file)
     _finish(result, repeat, as_json, quiet)
 
 
@@ -688,11 +686,9 @@ def run(argv: list[str] | None = None) -> int:
     try:
         rv: Any = command.main(args=args, prog_name="spotcheck", standalone_mode=False)
     except SpotcheckError as exc:
-        text = str(exc)
+        text = str(exc) + _hint(exc)
         if isinstance(exc, OSError) and exc.strerror:
             text = f"{exc.filename}: {exc.strerror}" if exc.filename else exc.strerror
-        if getattr(exc, "choice", None) == "labels":
-            text += " (--labels start|end|none)"
         error_line(_as_typed(text))
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:

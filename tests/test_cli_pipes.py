@@ -78,6 +78,20 @@ def test_inspect_takes_quiet(capsys) -> None:
     assert out == ""
 
 
+def test_the_cli_names_the_option_that_resolves_a_library_error(capsys, tmp_path) -> None:
+    path = tmp_path / "noise.txt"
+    path.write_text("0." + "0123456789ABCDEF" * 100 + "\n")
+    assert run(["verify", str(path)]) == 2
+    _, err = capsys.readouterr()
+    assert "--constant NAME" in err and len(err.strip().splitlines()) == 1
+
+
+def test_locate_names_scan_and_budget_when_the_comparison_does_not_fit(capsys) -> None:
+    code = run(["locate", str(SAMPLES / "pi-hex-taperot.txt.gz"), "--budget", "0"])
+    out, _ = capsys.readouterr()
+    assert code == 3 and "spotcheck scan" in out and "--budget" in out
+
+
 def test_errors_name_the_path_as_typed(capsys, tmp_path, monkeypatch) -> None:
     monkeypatch.chdir(tmp_path)
     (tmp_path / "sub").mkdir()
@@ -86,3 +100,54 @@ def test_errors_name_the_path_as_typed(capsys, tmp_path, monkeypatch) -> None:
         assert run([command, "./sub/../sub/empty.txt"]) == 2
         _, err = capsys.readouterr()
         assert "./sub/../sub/empty.txt" in err, (command, err)
+
+
+def test_the_repeat_line_is_built_from_the_parsed_options(capsys) -> None:
+    import json
+    import shlex
+
+    args = ["locate", str(SAMPLES / "pi-hex-astray.txt"), "--window", "12", "--limit", "40000"]
+    args += ["--reference", "mpfr", "--budget", "5", "--json"]
+    run(args)
+    payload = json.loads(capsys.readouterr().out)
+    again = shlex.split(payload["repeat"])
+    for option, value in [("--window", "12"), ("--limit", "40000"), ("--reference", "mpfr")]:
+        assert again[again.index(option) + 1] == value
+    assert float(again[again.index("--budget") + 1]) == 5
+    run([*again[1:], "--json"])
+    assert json.loads(capsys.readouterr().out)["first_mismatch"] == payload["first_mismatch"]
+
+
+def test_a_truncated_labelled_file_is_reported_by_verify_and_inspect_shows_its_end(capsys, tmp_path) -> None:
+    from .reference import pi_hex  # pi from mpmath (tests/reference.py)
+
+    digits = pi_hex(2000)
+    lines = [f"{digits[i : i + 50]} : {i + 50}" for i in range(0, 2000, 50)]
+    body = "3.\n" + "\n".join(lines) + "\n"
+    path = tmp_path / "cut.txt"
+    path.write_text(body[: body.rindex(" : ") - 20] + "\n")  # cut inside the last line: its label is gone
+    for command in ("verify", "locate"):
+        assert run([command, str(path)]) == 1
+        out, _ = capsys.readouterr()
+        assert "LABELS DISAGREE  line 41: no position label" in out and "cut short" in out
+    assert run([command, str(path), "--ignore-labels"]) == 0
+    capsys.readouterr()
+    assert run(["inspect", str(path)]) == 0
+    out, _ = capsys.readouterr()
+    last = next(ln for ln in out.splitlines() if "last digits" in ln)
+    assert digits[1980 - 8 : 1980] in last  # the file's real last digits (1,980 of them), not its middle
+
+
+@pytest.mark.parametrize("command", ["verify", "locate"])
+def test_checkpoint_takes_a_directory_or_auto(capsys, tmp_path, command: str) -> None:
+    where = tmp_path / "ck"
+    args = [command, str(SAMPLES / "pi-hex-astray.txt"), "--budget", "0", "--checkpoint", str(where)]
+    assert run(args) == 1
+    capsys.readouterr()
+    kept = sorted(where.glob("*.json"))
+    assert kept  # one file per window
+    assert run(args) == 1  # the rerun reads them back and reaches the same verdict
+    capsys.readouterr()
+    assert run([command, str(SAMPLES / "pi-hex-clean.txt"), "--checkpoint", str(kept[0])]) == 2
+    _, err = capsys.readouterr()
+    assert "directory" in err

@@ -98,7 +98,9 @@ def test_rounded_last_digit_is_reported_as_that_digit(workdir) -> None:
     loc = locate_file(str(path := write_dec(workdir, rounded)))
     assert loc.first_mismatch == 761
     assert loc.expected.startswith(digits[760:766]) and loc.found.startswith(rounded[760:766])
-    assert verify_file(str(path), samples=0, seed=1).exit_code == 1
+    assert loc.rounded_from == 761  # named as rounding: 760 right, then ...+1 carried through the 9s
+    v = verify_file(str(path), samples=0, seed=1)
+    assert v.exit_code == 1 and v.rounded_from == 761
 
 
 def test_decimal_samples_and_limit(workdir) -> None:
@@ -114,8 +116,9 @@ def test_decimal_samples_and_limit(workdir) -> None:
 def test_conversion_refused_when_memory_is_short(workdir, monkeypatch) -> None:
     path = write_dec(workdir, truth()[:5000])
     monkeypatch.setattr(decimal_mod, "memory_budget", lambda: 1000)
-    with pytest.raises(UsageError, match="--limit"):
+    with pytest.raises(UsageError, match="a prefix of") as info:
         verify_file(str(path))
+    assert info.value.parameter == "limit" and info.value.value >= 1 and "--" not in str(info.value)
 
 
 def _cli(capsys, *args: str) -> tuple[int, str]:
@@ -179,6 +182,10 @@ def test_rounded_last_digit_is_named_as_rounding(workdir, capsys, n) -> None:
     assert v.exit_code == 1 and v.first_wrong_bracket == (m, m) and v.rounded_from == m
     code, out = _cli(capsys, "verify", path, "--seed", "1", "--samples", "2")
     assert code == 1 and "rounded up" in out.splitlines()[0]
+    code, out = _cli(capsys, "locate", path)
+    assert (
+        code == 1 and out.startswith(f"MISMATCH  first wrong digit at position {m:,}") and "rounded up" in out
+    )
     truncated_wrong = true[: m - 1] + str((int(true[m - 1]) + 2) % 10)  # not a rounding
     v = verify_file(str(write_dec(workdir, truncated_wrong)), seed=1, samples=2)
     assert v.exit_code == 1 and v.rounded_from is None

@@ -46,7 +46,7 @@ def open_checked(
     df = open_digit_file(path, base=base, constant=constant, strict_labels=False, labels=labels)
     if df.constant is None:
         df.close()
-        raise UsageError(f"{path}: {df.constant_how} (--constant NAME; `spotcheck constants` lists them)")
+        raise needs(f"{path}: {df.constant_how}", "constant")
     if df.count < 1:
         df.close()
         raise UsageError(f"{path}: no digits after the point")
@@ -87,6 +87,19 @@ def first_label_finding(df: DigitFile) -> LabelFinding | None:
     )
 
 
+def needs(message: str, parameter: str, value: object = None) -> UsageError:
+    """A :class:`UsageError` that says which parameter would resolve it (the CLI names the option).
+
+    >>> exc = needs("x: no constant recognised", "constant")
+    >>> str(exc), exc.parameter, exc.value
+    ('x: no constant recognised', 'constant', None)
+    """
+    exc = UsageError(message)
+    exc.parameter = parameter  # type: ignore[attr-defined]
+    exc.value = value  # type: ignore[attr-defined]
+    return exc
+
+
 def integer_part_check(facts: FileFacts) -> WindowCheck | None:
     """Compare the file's integer part (if it has one) with the constant's."""
     if facts.integer_part is None:
@@ -102,6 +115,54 @@ def integer_part_check(facts: FileFacts) -> WindowCheck | None:
         note="digits before the point",
         base=facts.base,
     )
+
+
+def common_rows(facts: FileFacts) -> list[WindowCheck]:
+    """The rows every check report starts with: the integer part's comparison, when the file has one."""
+    ip = integer_part_check(facts)
+    return [] if ip is None else [ip]
+
+
+@dataclass
+class CheckRun:
+    """One check's set-up: the opened file, its facts and the engine oracle.  Closes the file on exit."""
+
+    df: DigitFile
+    facts: FileFacts
+    oracle: HexOracle
+
+    def __enter__(self) -> CheckRun:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.df.close()
+
+
+def open_run(
+    path: str,
+    *,
+    base: int | None,
+    constant: str | None,
+    formula: str | None,
+    limit: int | None = None,
+    ignore_labels: bool = False,
+    labels: str | None = None,
+    workers: int = 1,
+    cluster: Any = None,
+    checkpoint: bool | str = False,
+) -> CheckRun:
+    """Open a file for a check (:func:`open_checked`) with an oracle for its constant and formula."""
+    df, facts = open_checked(
+        path,
+        base=base,
+        constant=constant,
+        formula=formula,
+        limit=limit,
+        ignore_labels=ignore_labels,
+        labels=labels,
+    )
+    oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, checkpoint=checkpoint)
+    return CheckRun(df, facts, oracle)
 
 
 def first_difference(expected: str, found: str, position: int) -> int | None:
@@ -122,8 +183,9 @@ class HexOracle:
     workers: int = 1
     cluster: Any = None
     """A Dask scheduler address (or Client) for the head sums of deep windows."""
-    checkpoint: bool = False
-    """Keep each window's finished head-sum blocks under the cache directory."""
+    checkpoint: bool | str = False
+    """Keep each window's finished head-sum blocks: True under the cache directory, or a
+    directory path (one file per window, named as under the cache directory)."""
     evaluations: int = 0
     engine_seconds: float = 0.0
     _cache: dict[tuple[int, int], str] = field(default_factory=dict)
@@ -139,12 +201,25 @@ class HexOracle:
                 formula=self.formula,
                 workers=self.workers,
                 cluster=self.cluster,
-                checkpoint=True if self.checkpoint else None,
+                checkpoint=self._checkpoint_path(position, count),
             )
             self.engine_seconds += time.perf_counter() - t0
             self.evaluations += 1
             self._cache[key] = r.digits
         return self._cache[key]
+
+    def _checkpoint_path(self, position: int, count: int) -> bool | str | None:
+        if not self.checkpoint:
+            return None
+        if self.checkpoint is True:
+            return True
+        import os
+
+        from spotcheck.engine.api import default_checkpoint_path
+
+        name = default_checkpoint_path(self.constant, position, count, formula=self.formula).name
+        os.makedirs(self.checkpoint, exist_ok=True)
+        return os.path.join(str(self.checkpoint), name)
 
     def compare(self, df: DigitFile, kind: str, position: int, count: int, note: str = "") -> WindowCheck:
         count = min(count, df.count - position + 1)
@@ -183,12 +258,17 @@ def run_plan(
     """
     t0 = time.perf_counter()
     random_windows = 0
+    # Progress in units of work: a window's cost grows with its position (a prefix's with its
+    # length), so counting checks would make the ETA far too short when deep windows come last.
+    weights = [max(where, 1_000) for _, where in plan]
+    total, done = sum(weights), 0
     try:
-        for i, (kind, where) in enumerate(plan):
+        for (kind, where), weight in zip(plan, weights):
             check(kind, where)
             random_windows += kind == "sample"
+            done += weight
             if progress:
-                progress(i + 1, len(plan))
+                progress(done, total)
         if budget is not None:
             # Keep drawing while the next check is expected to fit.
             per = (time.perf_counter() - t0) / max(1, len(plan))

@@ -34,15 +34,15 @@ import gmpy2
 
 from spotcheck.digitfile import DigitFile
 from spotcheck.engine.api import leading_digits
-from spotcheck.errors import UsageError
 
 from .common import (
     DEFAULT_WINDOW,
     HexOracle,
     Progress,
     clamp_window,
+    common_rows,
     first_difference,
-    integer_part_check,
+    needs,
     run_plan,
 )
 from .reference import memory_budget
@@ -70,9 +70,11 @@ def _check_memory(n: int) -> None:
     need, have = estimate_conversion_bytes(n), memory_budget()
     if need > have:
         fits = max(1, (have - (64 << 20)) // BYTES_PER_DIGIT)
-        raise UsageError(
+        raise needs(
             f"radix conversion of {n:,} decimal digits needs about {need / 2**30:.1f} GiB of memory "
-            f"(available: {have / 2**30:.1f} GiB); check a prefix with --limit {fits:,} or less"
+            f"(available: {have / 2**30:.1f} GiB); a prefix of {fits:,} digits or less fits",
+            "limit",
+            fits,
         )
 
 
@@ -127,7 +129,8 @@ def prefix_check(
     basis = n if basis is None else basis
     whole = gmpy2.mpz(digits)
     v = whole if basis == n else gmpy2.mpz(digits[:basis] or "0")
-    p10 = gmpy2.mpz(10) ** basis
+    p10_basis = gmpy2.mpz(10) ** basis
+    p10 = p10_basis
     h = int(basis * _LOG2_10) // 4 + 2
     a, r = divmod(v << (4 * h), p10)  # one big division serves both ends
     b = a + (r + (1 << (4 * h))) // p10
@@ -140,7 +143,7 @@ def prefix_check(
     # Enough engine digits past the determined ones to pin x far below 10^-n.
     m = CONTINUATION_DIGITS + max(0, math.ceil(n * _LOG2_10 / 4) - big_l)
     win: WindowCheck | None = None
-    p10 = gmpy2.mpz(10) ** n
+    p10 = p10_basis if basis == n else gmpy2.mpz(10) ** n  # 10^n once for a whole-file check
     while True:
         engine = oracle.digits(big_l - w + 1, w + m)
         if w:
@@ -220,9 +223,7 @@ def verify_decimal(
     w = clamp_window(window, n)
     rng = random.Random(seed)
     checks: list[WindowCheck] = []
-    ip = integer_part_check(facts)
-    if ip is not None:
-        checks.append(ip)
+    checks.extend(common_rows(facts))
     checks.append(_head_check(facts, df, w))
     digits = _read_prefix(df, n)
     plan: list[tuple[str, int]] = [("tail", n)]
@@ -329,9 +330,7 @@ def locate_decimal(
     _check_memory(n)
     w = clamp_window(window, n)
     checks: list[WindowCheck] = []
-    ip = integer_part_check(facts)
-    if ip is not None:
-        checks.append(ip)
+    checks.extend(common_rows(facts))
     digits = _read_prefix(df, n)
     steps = max(1, n.bit_length() + 1)
     interrupted = False
@@ -410,4 +409,7 @@ def locate_decimal(
         explanation=explanation,
         first_is_certain=first is not None,
         first_wrong_bracket=(good + 1, bad) if first is None and bad else None,
+        rounded_from=_rounded_last_digits(digits, first, oracle, w)
+        if first is not None and not interrupted
+        else None,
     )

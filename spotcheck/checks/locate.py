@@ -8,7 +8,7 @@ from typing import Any
 
 from spotcheck.digitfile import DigitFile
 
-from .common import DEFAULT_WINDOW, HexOracle, Progress, clamp_window, integer_part_check, open_checked
+from .common import DEFAULT_WINDOW, HexOracle, Progress, clamp_window, common_rows, open_run
 from .results import FileFacts, LocateResult, WindowCheck
 from .scan import estimate_scan, scan_open
 
@@ -34,11 +34,11 @@ def locate_file(
     ignore_labels: bool = False,
     labels: str | None = None,
     cluster: Any = None,
-    checkpoint: bool = False,
+    checkpoint: bool | str = False,
     progress: Progress | None = None,
 ) -> LocateResult:
     """Find the first wrong digit of a digit file (1-based position), or say what was ruled out."""
-    df, facts = open_checked(
+    run = open_run(
         path,
         base=base,
         constant=constant,
@@ -46,9 +46,12 @@ def locate_file(
         limit=limit,
         ignore_labels=ignore_labels,
         labels=labels,
+        workers=workers,
+        cluster=cluster,
+        checkpoint=checkpoint,
     )
-    oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, checkpoint=checkpoint)
-    try:
+    df, facts, oracle = run.df, run.facts, run.oracle
+    with run:
         if facts.base == 10:
             from .decimal import locate_decimal
 
@@ -62,8 +65,6 @@ def locate_file(
                 progress=progress,
             )
         return _HexLocator(df, facts, window, budget, reference, oracle, progress).run()
-    finally:
-        df.close()
 
 
 def rest_after(checks: list[WindowCheck]) -> str | None:
@@ -96,9 +97,7 @@ class _HexLocator:
         self.n = self.facts.checked
         self.w = clamp_window(self.window, self.n)
         self.steps_total = max(1, (self.n // self.w).bit_length() + 2 + AFTER_SAMPLES)
-        ip = integer_part_check(self.facts)
-        if ip is not None:
-            self.checks.append(ip)
+        self.checks.extend(common_rows(self.facts))
 
     # -- plumbing -------------------------------------------------------------
     def step(self, kind: str, position: int, count: int, note: str = "") -> WindowCheck:
@@ -115,6 +114,7 @@ class _HexLocator:
             self.df,
             self.facts,
             reference=self.reference,
+            threads=self.oracle.workers,
             stop_at_first=True,
             upto=upto,
             progress=self.progress,
@@ -172,10 +172,9 @@ class _HexLocator:
         if seconds == float("inf"):
             return f"there is no independent full computation of {self.facts.constant} to compare with"
         what = f"the first {upto:,} digits" if upto else "the whole file"
-        limit = f" --limit {upto}" if upto else ""
         return (
-            f"comparing {what} with a full computation would take about {seconds:.0f} s, beyond the "
-            f"budget of {self.budget:.0f} s (run `spotcheck scan{limit}`, or raise --budget)"
+            f"comparing {what} with a full computation would take "
+            f"{'under 1 s' if seconds < 1 else f'about {seconds:.0f} s'}, beyond the budget of {self.budget:g} s"
         )
 
     # -- the search -----------------------------------------------------------

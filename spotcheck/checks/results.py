@@ -10,6 +10,7 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
+from .schema import SCHEMA_VERSION
 from .stats import false_match_chance, scattered_damage_bound
 
 __all__ = [
@@ -161,7 +162,7 @@ class _Common:
         return {
             "command": command,
             "verdict": self.verdict,
-            "schema_version": 1,
+            "schema_version": SCHEMA_VERSION,
             "file": asdict(self.file),
             "method": self.method,
             "checks": [asdict(c) for c in self.checks],
@@ -245,6 +246,8 @@ class LocateResult(_Common):
     """Digits 1..N compared with a full computation (0: none)."""
     first_wrong_bracket: tuple[int, int] | None = None
     """Decimal files, interrupted bisection: the first wrong digit lies in ``lo..hi``."""
+    rounded_from: int | None = None
+    """Decimal files: the wrong digits from this position to the end are the true ones rounded up."""
 
     @property
     def verdict(self) -> str:
@@ -272,6 +275,7 @@ class LocateResult(_Common):
             scan_estimate_seconds=self.scan_estimate_seconds,
             first_is_certain=self.first_is_certain,
             first_wrong_bracket=list(self.first_wrong_bracket) if self.first_wrong_bracket else None,
+            rounded_from=self.rounded_from,
         )
         return out
 

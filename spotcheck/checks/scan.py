@@ -8,7 +8,7 @@ from collections.abc import Iterator
 from spotcheck.digitfile import DigitFile
 from spotcheck.errors import UsageError
 
-from .common import Progress, integer_part_check, open_checked
+from .common import Progress, common_rows, needs, open_checked
 from .reference import REFERENCES, estimate_reference, memory_budget, reference_digits, require_supported
 from .results import FileFacts, MismatchRun, ScanResult, WindowCheck
 
@@ -95,14 +95,13 @@ def scan_open(
     seconds, memory = estimate_scan(facts, reference, upto=n)
     budget = memory_budget()
     if memory > budget:
-        raise UsageError(
+        raise needs(
             f"a full scan of {n:,} digits needs about {memory / 2**30:.1f} GiB of memory "
-            f"(available: {budget / 2**30:.1f} GiB); use `spotcheck verify` or `spotcheck locate` instead"
+            f"(available: {budget / 2**30:.1f} GiB)",
+            "windows",
         )
     checks: list[WindowCheck] = []
-    ip = integer_part_check(facts)
-    if ip is not None:
-        checks.append(ip)
+    checks.extend(common_rows(facts))
     share = seconds / (seconds + n / 50e6) if seconds > 0 else 0.0
 
     def tick(elapsed: float) -> None:

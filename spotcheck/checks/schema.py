@@ -9,7 +9,9 @@ from __future__ import annotations
 
 from typing import Any
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
+"""2: ``locate`` says ``match`` only after every digit was compared (``unconfirmed`` otherwise);
+label findings are damage (``labels_consistent``); ``exhaustive`` and ``covered`` in every report."""
 
 _INT_OR_NULL = {"type": ["integer", "null"]}
 _STR_OR_NULL = {"type": ["string", "null"]}
@@ -106,6 +108,7 @@ _COMMON = {
     "checks": {"type": "array", "items": _CHECK},
     "seconds": {"type": "number", "minimum": 0},
     "evaluations": {"type": "integer", "minimum": 0},
+    "schema_version": {"const": SCHEMA_VERSION},
     "interrupted": {
         "type": "boolean",
         "description": "stopped by Ctrl-C; the report says what was established",
@@ -171,6 +174,10 @@ LOCATE_SCHEMA: dict[str, Any] = {
         "first_is_certain": {"type": "boolean"},
         "explanation": {"type": "string"},
         "scan_estimate_seconds": {"type": ["number", "null"]},
+        "rounded_from": {
+            **_INT_OR_NULL,
+            "description": "decimal files: the digits from here to the end are the true ones rounded up",
+        },
         "first_wrong_bracket": {
             "type": ["array", "null"],
             "items": {"type": "integer", "minimum": 1},

@@ -16,8 +16,9 @@ from .common import (
     HexOracle,
     Progress,
     clamp_window,
-    integer_part_check,
-    open_checked,
+    common_rows,
+    needs,
+    open_run,
     run_plan,
 )
 from .results import FileFacts, VerifyResult, WindowCheck
@@ -54,7 +55,7 @@ def verify_file(
     ignore_labels: bool = False,
     labels: str | None = None,
     cluster: Any = None,
-    checkpoint: bool = False,
+    checkpoint: bool | str = False,
     progress: Progress | None = None,
 ) -> VerifyResult:
     """Check a digit file: every digit when a full comparison fits ``budget`` seconds, else windows.
@@ -75,7 +76,7 @@ def verify_file(
     if sample_seconds is not None and sample_seconds <= 0:
         raise UsageError(f"sample time must be a positive number of seconds, got {sample_seconds}")
     seed = _seed(seed)
-    df, facts = open_checked(
+    run = open_run(
         path,
         base=base,
         constant=constant,
@@ -83,12 +84,15 @@ def verify_file(
         limit=limit,
         ignore_labels=ignore_labels,
         labels=labels,
+        workers=workers,
+        cluster=cluster,
+        checkpoint=checkpoint,
     )
-    oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, checkpoint=checkpoint)
-    try:
+    df, facts, oracle = run.df, run.facts, run.oracle
+    with run:
         for p in at:
             if not 1 <= p <= facts.checked:
-                raise UsageError(f"--at {p} is outside the file (digits 1..{facts.checked})")
+                raise needs(f"position {p} is outside the file (digits 1..{facts.checked})", "at", p)
         if facts.base == 10:
             from .decimal import verify_decimal
 
@@ -116,8 +120,6 @@ def verify_file(
             progress,
             reference if full else None,
         )
-    finally:
-        df.close()
 
 
 def _full_fits(facts: FileFacts, reference: str, budget: float) -> bool:
@@ -154,9 +156,7 @@ def _verify_hex(
     if full_reference is None:
         plan += sorted(("sample", rng.randint(1, last_start)) for _ in range(samples))
     checks: list[WindowCheck] = []
-    ip = integer_part_check(facts)
-    if ip is not None:
-        checks.append(ip)
+    checks.extend(common_rows(facts))
 
     def check(kind: str, position: int) -> None:
         checks.append(oracle.compare(df, kind, position, w))
@@ -172,7 +172,7 @@ def _verify_hex(
     if full_reference is not None and not interrupted:
         from .scan import scan_open
 
-        scan = scan_open(df, facts, reference=full_reference, progress=progress)
+        scan = scan_open(df, facts, reference=full_reference, progress=progress, threads=oracle.workers)
         interrupted = scan.interrupted
         full_through, wrong, evaluations = scan.digits_compared, scan.wrong_digits, evaluations + 1
         runs = scan.runs_total

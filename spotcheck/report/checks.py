@@ -50,7 +50,8 @@ def coverage_phrase(result: CheckResult) -> str:
         ref = getattr(result, "reference", None) or "a full computation"
         return f"every digit compared with {ref}"
     windows = sum(1 for c in result.checks if c.position >= 1)
-    text = f"{plural(windows, 'window')} sampled ({result.covered_digits:,} digits)"
+    how = "compared" if isinstance(result, LocateResult) else "sampled"
+    text = f"{plural(windows, 'window')} {how} ({result.covered_digits:,} digits)"
     if isinstance(result, VerifyResult) and result.scattered_bound is not None:
         text += f"; damaged fraction below {result.scattered_bound:.2%} at 95%"
     return text
@@ -70,8 +71,13 @@ def _verdict_line(result: CheckResult) -> tuple[str, str]:
                     f"({what}); interrupted",
                     STYLE_BAD,
                 )
+            rounding = (
+                ": the last digits are the true expansion rounded up, not truncated"
+                if result.rounded_from is not None
+                else ""
+            )
             return (
-                f"MISMATCH  first wrong digit at position {result.first_mismatch:,} ({what}){stop}",
+                f"MISMATCH  first wrong digit at position {result.first_mismatch:,} ({what}){rounding}{stop}",
                 STYLE_BAD,
             )
         wrong_digits = getattr(result, "wrong_digits", None)
@@ -150,10 +156,12 @@ def label_sentence(result: CheckResult) -> str | None:
     if lf.position is not None:
         what += f" (its first digit is digit {lf.position:,})"
     more = f"; {lf.total:,} label findings in all" if lf.total > 1 else ""
-    return (
-        f"LABELS DISAGREE  {what}{more}: digits were lost or gained before it, or a label was changed "
-        "(--ignore-labels drops this finding)"
+    cause = (
+        "the file may have been cut short there, or the label removed"
+        if lf.kind == "label-missing"
+        else "digits were lost or gained before it, or a label was changed"
     )
+    return f"LABELS DISAGREE  {what}{more}: {cause} (--ignore-labels drops this finding)"
 
 
 def file_map(result: CheckResult, width: int) -> tuple[str, list[tuple[int, int, str]]]:
@@ -244,6 +252,17 @@ def _meaning(result: CheckResult) -> list[str]:
             )
     elif isinstance(result, LocateResult):
         lines.append(result.explanation[0].upper() + result.explanation[1:] + ".")
+        estimate = result.scan_estimate_seconds
+        if (
+            not result.exhaustive
+            and not result.first_is_certain
+            and estimate is not None
+            and estimate != math.inf
+        ):
+            upto = result.first_mismatch - 1 if result.first_mismatch else None
+            limit = f" --limit {upto}" if upto else ""
+            took = "under 1 s" if estimate < 1 else f"about {estimate:.0f} s"
+            lines.append(f"To settle it: `spotcheck scan{limit}` ({took}), or raise --budget.")
         if result.first_mismatch is not None and result.expected:
             lines.append(f"expected from {result.first_mismatch:,}: {result.expected}")
             lines.append(f"found    from {result.first_mismatch:,}: {result.found}")
@@ -373,9 +392,12 @@ def show_inspect(result: InspectResult, *, as_json: bool) -> None:
         ("first digits", result.first_digits),
         ("last digits", result.last_digits),
     ]
-    for k, v in rows:
-        table.add_row(k, v)
     con = stdout_console()
+    room = max(16, con.width - 30)  # the value column's width, about
+    for k, v in rows:
+        if k == "last digits" and len(v) > room:
+            v = "…" + v[-(room - 1) :]  # the end of the file is what "last" means
+        table.add_row(k, v)
     con.print(table)
     for finding in result.findings:
         where = f" (line {finding.line})" if finding.line else ""

@@ -96,6 +96,12 @@ def progress_bar(description: str, *, enabled: bool = True) -> Iterator[Progress
             bar.start()
             state["bar"] = bar
             state["task"] = bar.add_task(description, total=total)
+            state["total"] = total
+        if total != state.get("total"):
+            # A new phase (e.g. the full comparison after the engine windows): its ETA
+            # comes from its own measured rate, not from the phase before.
+            state["bar"].reset(state["task"], total=total, completed=done)
+            state["total"] = total
         state["bar"].update(state["task"], completed=done, total=total)
 
     try:
