@@ -49,6 +49,9 @@ SAMPLE_DIGITS = 16  # digits of each copy shown per run
 MAX_RUNS_KEPT = 1000  # runs listed in the result; more are counted
 MAX_ARBITRATED_HEX = 100  # hex runs arbitrated (each costs one engine window)
 MAX_ARBITRATED_DECIMAL = 8  # decimal runs arbitrated (each costs two radix conversions)
+SHIFT_PROBE = 4096  # a run this long, mostly differing, is probed for lost or extra digits
+MAX_SHIFT = 64  # digits lost or gained that the probe looks for
+SHIFT_MATCH = 256  # digits that must agree after the shift
 # ---------------------------------------------------------------------------
 
 A, B, BOTH_WRONG = "A", "B", "both wrong"
@@ -117,6 +120,9 @@ class CompareResult:
     runs_total: int = 0
     extra: ExtraDigits | None = None
     integer_parts: dict[str, Any] | None = None
+    shift: dict[str, Any] | None = None
+    """When one copy lost digits: ``{"position", "digits", "missing_in"}``; comparing
+    position by position stops there (every later position would differ)."""
     """When the integer parts differ: ``{"a", "b", "certified", "right"}``."""
     seconds: float = 0.0
     arbitration_seconds: list[float] = field(default_factory=list)
@@ -191,6 +197,7 @@ class CompareResult:
             "runs_total": self.runs_total,
             "extra": asdict(self.extra) if self.extra is not None else None,
             "integer_parts": self.integer_parts,
+            "shift": self.shift,
             "keep": self.keep,
             "seconds": round(self.seconds, 3),
             "arbitration_seconds": [round(s, 4) for s in self.arbitration_seconds],
@@ -359,6 +366,18 @@ def compare_open(
             result.digits_compared = p - 1
             if progress:
                 progress(p - 1, common)
+            run = runs.pending
+            if run is not None and run.length >= SHIFT_PROBE and run.differing > 0.75 * run.length:
+                result.shift = _find_shift(da, db, run.start)
+                if result.shift is not None:
+                    k = result.shift["digits"]
+                    run.note = (
+                        f"copy {result.shift['missing_in']} lacks {k} digit{'s' if k > 1 else ''} that the other "
+                        f"has (or the other has {k} extra) at or before this position: from here on the copies "
+                        "are shifted, so the comparison stops"
+                    )
+                    run.length = common - run.start + 1
+                    break
     except KeyboardInterrupt:
         result.interrupted = True
     runs.flush()
@@ -376,6 +395,17 @@ def compare_open(
             result.interrupted = True
     result.seconds = time.perf_counter() - t0
     return result
+
+
+def _find_shift(da: DigitFile, db: DigitFile, start: int) -> dict[str, Any] | None:
+    """Lost or extra digits: the copies agree again once one is shifted by ``k <= MAX_SHIFT``."""
+    a, b = da.read(start, SHIFT_MATCH + MAX_SHIFT), db.read(start, SHIFT_MATCH + MAX_SHIFT)
+    for k in range(1, MAX_SHIFT + 1):
+        if len(a) >= k + SHIFT_MATCH and a[k : k + SHIFT_MATCH] == b[:SHIFT_MATCH]:
+            return {"position": start, "digits": k, "missing_in": B}
+        if len(b) >= k + SHIFT_MATCH and b[k : k + SHIFT_MATCH] == a[:SHIFT_MATCH]:
+            return {"position": start, "digits": k, "missing_in": A}
+    return None
 
 
 def _arbitrate(

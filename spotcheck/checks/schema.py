@@ -256,6 +256,15 @@ COMPARE_SCHEMA: dict[str, Any] = {
                 "right": _RIGHT,
             },
         },
+        "shift": {
+            "type": ["object", "null"],
+            "description": "one copy lost digits: where, how many, which copy; the comparison stops there",
+            "properties": {
+                "position": {"type": "integer", "minimum": 1},
+                "digits": {"type": "integer", "minimum": 1},
+                "missing_in": {"enum": ["A", "B"]},
+            },
+        },
         "keep": {
             "enum": ["A", "B", "either", "neither", None],
             "description": "the copy to keep; null when not every difference could be arbitrated",
