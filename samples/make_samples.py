@@ -107,8 +107,8 @@ def files() -> dict[str, bytes]:
 
     # e in decimal from the club's 1970s punched-card archive (no BBP-type
     # formula: spotcheck evaluates e in full to check it).
-    ipe, e_dec = fraction_digits(lambda: gmpy2.exp(1), 10, 10_000)
-    text = ["# Ridgeview club card archive: e to 10,000 decimal places", f"{ipe}."] + lines(e_dec, 100, 10)
+    ipe, e_dec = fraction_digits(lambda: gmpy2.exp(1), 10, 20_000)
+    text = ["# Ridgeview club card archive: e to 20,000 decimal places", f"{ipe}."] + lines(e_dec, 100, 10)
     out["e-decimal.txt"] = ("\n".join(text) + "\n").encode()
 
     # Catalan's constant in hex, one damaged digit.

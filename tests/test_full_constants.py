@@ -242,3 +242,27 @@ def test_full_comparison_refused_above_the_estimate(tmp_path: Path, monkeypatch:
     monkeypatch.setattr(checks_full, "memory_budget", lambda: 1000)
     with df, pytest.raises(UsageError, match=r"evaluating it in full: about .* GiB .*--limit"):
         checks_full.verify_full(df, facts)
+
+
+def test_compare_decimal_copies_of_e_directly(tmp_path: Path) -> None:
+    whole, dec = mpfr_digits("e", 10, 4000)
+
+    def flip(d: str, p: int, step: int = 1) -> str:
+        return d[: p - 1] + str((int(d[p - 1]) + step) % 10) + d[p:]
+
+    a = _decimal_file(tmp_path, "a", flip(dec, 3500), whole)
+    b = _decimal_file(tmp_path, "b", flip(flip(dec, 100), 3500, 2), whole)
+    r = compare_files(a, b)
+    assert r.method == "full evaluation"
+    assert [(run.start, run.right, run.certified) for run in r.runs] == [
+        (100, "A", dec[99]),
+        (3500, "both wrong", dec[3499]),
+    ]
+    assert r.keep == "neither"
+    # Truncated inside a run of 9s: the longer copy's extra digits are certified right.
+    _, dec2 = mpfr_digits("sqrt2", 10, 20000)
+    start, length = _run_of(dec2, "9")
+    short = _decimal_file(tmp_path, "short", dec2[: start - 1], 1)
+    cut = _decimal_file(tmp_path, "cut", dec2[: start + length - 2], 1)
+    r = compare_files(short, cut)
+    assert r.extra is not None and r.extra.right is True and r.keep == "B"

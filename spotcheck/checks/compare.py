@@ -11,7 +11,9 @@ certified digits.
 
 * hex files: the engine's certified digits at each run's start
   (``ARBITRATE_DIGITS`` of them at most) against both copies' digits there;
-* decimal files: a prefix check through radix conversion
+* decimal files of a constant evaluated in full (e, sqrt(2), ...): the
+  certified decimal digits at each run's start, directly (no hex detour);
+* other decimal files: a prefix check through radix conversion
   (:func:`spotcheck.checks.decimal.prefix_check`).  The copies agree before a
   run's start, except at earlier runs, where the digits of the copy found
   right there are spliced in; each candidate prefix ``common + copy's digits of
@@ -343,6 +345,8 @@ def compare_open(
         )
     name, how = _settle_constant(da, db, constant)
     method = "none" if name is None else ("digit extraction" if da.base == 16 else "radix conversion")
+    if name is not None and get_constant(name).evaluation is not None:
+        method = "full evaluation"
     result = CompareResult(
         a=_facts(da),
         b=_facts(db),
@@ -419,7 +423,15 @@ def _arbitrate(
         ip["right"] = A if ra else B if rb else BOTH_WRONG
     oracle = HexOracle(name, get_constant(name).method_key(formula), workers=workers)
     if result.base == 16:
-        _arbitrate_hex(result, da, db, oracle)
+        _arbitrate_direct(result, da, db, oracle.digits)
+    elif get_constant(name).evaluation is not None:  # the decimal expansion directly, no hex detour
+        from spotcheck.engine.full import certified_digits
+
+        def decimal_digits(position: int, count: int) -> str:
+            oracle.evaluations += 1
+            return certified_digits(name, 10, position, count)[1]
+
+        _arbitrate_direct(result, da, db, decimal_digits)
     else:
         _arbitrate_decimal(result, da, db, oracle)
     result.evaluations = oracle.evaluations
@@ -434,7 +446,10 @@ def _judge(a_ok: bool, b_ok: bool) -> str:
     return A if a_ok else B if b_ok else BOTH_WRONG
 
 
-def _arbitrate_hex(result: CompareResult, da: DigitFile, db: DigitFile, oracle: HexOracle) -> None:
+def _arbitrate_direct(
+    result: CompareResult, da: DigitFile, db: DigitFile, certified: Callable[[int, int], str]
+) -> None:
+    """Each run's digits against ``certified(position, count)`` digits in the files' base."""
     for i, run in enumerate(result.runs):
         if i >= MAX_ARBITRATED_HEX:
             run.note = f"not arbitrated: only the first {MAX_ARBITRATED_HEX} runs are"
@@ -442,7 +457,7 @@ def _arbitrate_hex(result: CompareResult, da: DigitFile, db: DigitFile, oracle: 
         t = time.perf_counter()
         w = min(run.length, ARBITRATE_DIGITS)
         run.a, run.b = _full_sample(da, run, run.a)[:w], _full_sample(db, run, run.b)[:w]
-        run.certified = oracle.digits(run.start, w)
+        run.certified = certified(run.start, w)
         run.right = _judge(run.a == run.certified, run.b == run.certified)
         if run.length > w:
             run.note = f"the first {w} of the run's {run.length:,} digits were checked"
@@ -455,8 +470,8 @@ def _arbitrate_hex(result: CompareResult, da: DigitFile, db: DigitFile, oracle: 
         head = df.read(extra.start, w)
         end_pos = extra.start + extra.length - w
         tail = df.read(end_pos, w) if end_pos > extra.start else ""
-        extra.certified = oracle.digits(extra.start, w)
-        extra.right = head == extra.certified and (not tail or tail == oracle.digits(end_pos, w))
+        extra.certified = certified(extra.start, w)
+        extra.right = head == extra.certified and (not tail or tail == certified(end_pos, w))
         extra.note = (
             f"the first and last {w} extra digits were checked"
             if tail

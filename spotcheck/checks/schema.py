@@ -225,7 +225,7 @@ COMPARE_SCHEMA: dict[str, Any] = {
         "base": {"enum": [10, 16]},
         "constant": _STR_OR_NULL,
         "constant_how": {"type": "string"},
-        "method": {"enum": ["digit extraction", "radix conversion", "none"]},
+        "method": {"enum": ["digit extraction", "radix conversion", "full evaluation", "none"]},
         "digits_compared": {
             "type": "integer",
             "minimum": 0,
