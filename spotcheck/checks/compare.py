@@ -442,6 +442,10 @@ def _full_sample(df: DigitFile, run: DiffRun, have: str) -> str:
     return have if len(have) >= w else df.read(run.start, w)
 
 
+def _add_note(note: str, more: str) -> str:
+    return f"{note}; {more}" if note else more
+
+
 def _judge(a_ok: bool, b_ok: bool) -> str:
     return A if a_ok else B if b_ok else BOTH_WRONG
 
@@ -452,7 +456,7 @@ def _arbitrate_direct(
     """Each run's digits against ``certified(position, count)`` digits in the files' base."""
     for i, run in enumerate(result.runs):
         if i >= MAX_ARBITRATED_HEX:
-            run.note = f"not arbitrated: only the first {MAX_ARBITRATED_HEX} runs are"
+            run.note = _add_note(run.note, f"not arbitrated: only the first {MAX_ARBITRATED_HEX} runs are")
             continue
         t = time.perf_counter()
         w = min(run.length, ARBITRATE_DIGITS)
@@ -460,7 +464,7 @@ def _arbitrate_direct(
         run.certified = certified(run.start, w)
         run.right = _judge(run.a == run.certified, run.b == run.certified)
         if run.length > w:
-            run.note = f"the first {w} of the run's {run.length:,} digits were checked"
+            run.note = _add_note(run.note, f"the first {w} of the run's {run.length:,} digits were checked")
         result.arbitration_seconds.append(time.perf_counter() - t)
     extra = result.extra
     if extra is not None:
@@ -473,9 +477,7 @@ def _arbitrate_direct(
         extra.certified = certified(extra.start, w)
         extra.right = head == extra.certified and (not tail or tail == certified(end_pos, w))
         extra.note = (
-            f"the first and last {w} extra digits were checked"
-            if tail
-            else f"all {w} extra digits were checked"
+            f"the first and last {w} extra digits were checked" if tail else f"all {w} extra digit(s) checked"
         )
         result.arbitration_seconds.append(time.perf_counter() - t)
 
@@ -508,16 +510,20 @@ def _arbitrate_decimal(result: CompareResult, da: DigitFile, db: DigitFile, orac
     for i, run in enumerate(result.runs):
         end = run.start + min(run.length, ARBITRATE_DIGITS) - 1
         if blocked or i >= MAX_ARBITRATED_DECIMAL:
-            run.note = (
-                "not arbitrated: an earlier run had no right copy"
-                if blocked
-                else f"not arbitrated: only the first {MAX_ARBITRATED_DECIMAL} runs of a decimal pair are"
+            run.note = _add_note(
+                run.note,
+                (
+                    "not arbitrated: an earlier run had no right copy"
+                    if blocked
+                    else f"not arbitrated: only the first {MAX_ARBITRATED_DECIMAL} runs of a decimal pair are"
+                ),
             )
             continue
         need = estimate_conversion_bytes(end)
         if need > memory_budget():
-            run.note = (
-                f"not arbitrated: radix conversion of {end:,} digits needs about {need / 2**30:.1f} GiB"
+            run.note = _add_note(
+                run.note,
+                (f"not arbitrated: radix conversion of {end:,} digits needs about {need / 2**30:.1f} GiB"),
             )
             blocked = True
             continue
@@ -525,12 +531,14 @@ def _arbitrate_decimal(result: CompareResult, da: DigitFile, db: DigitFile, orac
         basis = spliced(run.start)
         if basis is None:
             blocked = True
-            run.note = "not arbitrated: an earlier run had no right copy"
+            run.note = _add_note(run.note, "not arbitrated: an earlier run had no right copy")
             continue
         w = end - run.start + 1
         run.a, run.b = _full_sample(da, run, run.a)[:w], _full_sample(db, run, run.b)[:w]
         run.right = _judge(check(basis + run.a), check(basis + run.b))
-        run.note = f"prefixes of {end:,} digits converted to hex and checked against the engine"
+        run.note = _add_note(
+            run.note, f"prefixes of {end:,} digits converted to hex and checked against the engine"
+        )
         blocked = run.right == BOTH_WRONG
         result.arbitration_seconds.append(time.perf_counter() - t)
     extra = result.extra
