@@ -216,3 +216,11 @@ def test_decimal_copy_with_extra_digits_is_a_shift(tmp_path: Path, monkeypatch: 
     r = compare_files(a, b)
     assert r.shift is not None and (r.shift["digits"], r.shift["missing_in"]) == (2, "B")
     assert r.runs[0].right == "B" and r.keep == "B"
+
+
+@pytest.mark.parametrize("position", [1, 2, 17, 3000])
+def test_decimal_difference_at_the_edges(tmp_path: Path, position: int) -> None:
+    a = _write(tmp_path / "a.txt", _damage(DEC, [position], "0123456789"))
+    b = _write(tmp_path / "b.txt", DEC, width=30)
+    r = compare_files(a, b, constant="pi")  # damage at digit 1 defeats the guess
+    assert [(run.start, run.right) for run in r.runs] == [(position, "B")] and r.keep == "B"
