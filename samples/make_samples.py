@@ -105,6 +105,12 @@ def files() -> dict[str, bytes]:
         gz.write(("\n".join(text) + "\n").encode())
     out["log2-hex-mirror.txt.gz"] = buf.getvalue()
 
+    # e in decimal from the club's 1970s punched-card archive (no BBP-type
+    # formula: spotcheck evaluates e in full to check it).
+    ipe, e_dec = fraction_digits(lambda: gmpy2.exp(1), 10, 20_000)
+    text = ["# Ridgeview club card archive: e to 20,000 decimal places", f"{ipe}."] + lines(e_dec, 100, 10)
+    out["e-decimal.txt"] = ("\n".join(text) + "\n").encode()
+
     # Catalan's constant in hex, one damaged digit.
     ipc, cat_hex = fraction_digits(gmpy2.const_catalan, 16, 20_000)
     cat = cat_hex[:9_999] + altered(cat_hex[9_999], 16, 5) + cat_hex[10_000:]

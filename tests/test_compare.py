@@ -197,3 +197,30 @@ def test_unknown_constant_lists_runs_without_arbitration(tmp_path: Path) -> None
     r = compare_files(a, b, base=16)
     assert r.constant is None and r.method == "none"
     assert [(run.start, run.right) for run in r.runs] == [(300, None)] and r.keep is None and r.exit_code == 1
+
+
+def test_a_lost_digit_is_reported_as_a_shift(tmp_path: Path) -> None:
+    a = _write(tmp_path / "a.txt", HEX)
+    b = _write(tmp_path / "b.txt", HEX[:1499] + HEX[1500:], width=64)  # B lost digit 1500
+    r = compare_files(a, b)
+    assert r.shift is not None and (r.shift["digits"], r.shift["missing_in"]) == (1, "B")
+    assert 1500 <= r.shift["position"] <= 1510 and len(r.runs) == 1 and r.runs[0].right == "A"
+    assert r.extra is not None and r.extra.longer == "A" and r.keep == "A"
+    jsonschema.validate(r.to_dict() | {"repeat": "x"}, COMPARE_SCHEMA)
+
+
+def test_decimal_copy_with_extra_digits_is_a_shift(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setattr(cmp, "SHIFT_PROBE", 500)
+    a = _write(tmp_path / "a.txt", DEC[:1000] + "12" + DEC[1000:])  # A gained two digits after 1000
+    b = _write(tmp_path / "b.txt", DEC)
+    r = compare_files(a, b)
+    assert r.shift is not None and (r.shift["digits"], r.shift["missing_in"]) == (2, "B")
+    assert r.runs[0].right == "B" and r.keep == "B"
+
+
+@pytest.mark.parametrize("position", [1, 2, 17, 3000])
+def test_decimal_difference_at_the_edges(tmp_path: Path, position: int) -> None:
+    a = _write(tmp_path / "a.txt", _damage(DEC, [position], "0123456789"))
+    b = _write(tmp_path / "b.txt", DEC, width=30)
+    r = compare_files(a, b, constant="pi")  # damage at digit 1 defeats the guess
+    assert [(run.start, run.right) for run in r.runs] == [(position, "B")] and r.keep == "B"

@@ -193,3 +193,76 @@ def test_constants_json_lists_the_method(capsys) -> None:
     assert by_name["e"]["method"] == "full evaluation" and by_name["e"]["formulas"] == []
     assert "A001113" in by_name["e"]["evaluation"]["source"]
     assert by_name["pi"]["method"] == "digit extraction"
+
+
+# --- full comparison for verify/locate (spotcheck/checks/full.py) -------------
+
+
+def _decimal_file(tmp_path: Path, name: str, digits: str, whole: int) -> str:
+    path = tmp_path / f"{name}.txt"
+    path.write_text(f"{whole}." + "\n".join(digits[i : i + 100] for i in range(0, len(digits), 100)) + "\n")
+    return str(path)
+
+
+def test_full_verify_and_locate_find_every_wrong_digit(tmp_path: Path) -> None:
+    from spotcheck.checks import full as checks_full
+    from spotcheck.checks.common import open_checked
+
+    whole, dec = mpfr_digits("euler-gamma", 10, 5000)
+    bad = dec[:2999] + ("0" if dec[2999] != "0" else "1") + dec[3000:]
+    path = _decimal_file(tmp_path, "gamma", bad, whole)
+    df, facts = open_checked(path, base=None, constant=None, formula=None)
+    with df:
+        assert checks_full.is_full(facts.constant)
+        v = checks_full.verify_full(df, facts)
+        loc = checks_full.locate_full(df, facts)
+    assert v.exit_code == 1 and [c.position for c in v.checks if not c.match] == [3000]
+    assert loc.first_mismatch == 3000 and loc.first_is_certain and loc.rest == "right-again"
+    assert loc.expected[0] == dec[2999] and loc.found[0] == bad[2999]
+
+
+def test_full_verify_truncated_inside_nines_matches(tmp_path: Path) -> None:
+    from spotcheck.checks import full as checks_full
+    from spotcheck.checks.common import open_checked
+
+    whole, dec = mpfr_digits("sqrt2", 10, 20000)
+    start, length = _run_of(dec, "9")
+    path = _decimal_file(tmp_path, "sqrt2-cut", dec[: start + length - 2], whole)  # ends inside the 9s
+    df, facts = open_checked(path, base=None, constant=None, formula=None)
+    with df:
+        assert checks_full.verify_full(df, facts).exit_code == 0
+
+
+def test_full_comparison_refused_above_the_estimate(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    from spotcheck.checks import full as checks_full
+    from spotcheck.checks.common import open_checked
+
+    whole, dec = mpfr_digits("e", 10, 3000)
+    df, facts = open_checked(_decimal_file(tmp_path, "e", dec, whole), base=None, constant=None, formula=None)
+    monkeypatch.setattr(checks_full, "memory_budget", lambda: 1000)
+    with df, pytest.raises(UsageError, match=r"evaluating it in full: about .* GiB .*--limit"):
+        checks_full.verify_full(df, facts)
+
+
+def test_compare_decimal_copies_of_e_directly(tmp_path: Path) -> None:
+    whole, dec = mpfr_digits("e", 10, 4000)
+
+    def flip(d: str, p: int, step: int = 1) -> str:
+        return d[: p - 1] + str((int(d[p - 1]) + step) % 10) + d[p:]
+
+    a = _decimal_file(tmp_path, "a", flip(dec, 3500), whole)
+    b = _decimal_file(tmp_path, "b", flip(flip(dec, 100), 3500, 2), whole)
+    r = compare_files(a, b)
+    assert r.method == "full evaluation"
+    assert [(run.start, run.right, run.certified) for run in r.runs] == [
+        (100, "A", dec[99]),
+        (3500, "both wrong", dec[3499]),
+    ]
+    assert r.keep == "neither"
+    # Truncated inside a run of 9s: the longer copy's extra digits are certified right.
+    _, dec2 = mpfr_digits("sqrt2", 10, 20000)
+    start, length = _run_of(dec2, "9")
+    short = _decimal_file(tmp_path, "short", dec2[: start - 1], 1)
+    cut = _decimal_file(tmp_path, "cut", dec2[: start + length - 2], 1)
+    r = compare_files(short, cut)
+    assert r.extra is not None and r.extra.right is True and r.keep == "B"

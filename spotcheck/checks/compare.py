@@ -11,7 +11,9 @@ certified digits.
 
 * hex files: the engine's certified digits at each run's start
   (``ARBITRATE_DIGITS`` of them at most) against both copies' digits there;
-* decimal files: a prefix check through radix conversion
+* decimal files of a constant evaluated in full (e, sqrt(2), ...): the
+  certified decimal digits at each run's start, directly (no hex detour);
+* other decimal files: a prefix check through radix conversion
   (:func:`spotcheck.checks.decimal.prefix_check`).  The copies agree before a
   run's start, except at earlier runs, where the digits of the copy found
   right there are spliced in; each candidate prefix ``common + copy's digits of
@@ -49,6 +51,9 @@ SAMPLE_DIGITS = 16  # digits of each copy shown per run
 MAX_RUNS_KEPT = 1000  # runs listed in the result; more are counted
 MAX_ARBITRATED_HEX = 100  # hex runs arbitrated (each costs one engine window)
 MAX_ARBITRATED_DECIMAL = 8  # decimal runs arbitrated (each costs two radix conversions)
+SHIFT_PROBE = 4096  # a run this long, mostly differing, is probed for lost or extra digits
+MAX_SHIFT = 64  # digits lost or gained that the probe looks for
+SHIFT_MATCH = 256  # digits that must agree after the shift
 # ---------------------------------------------------------------------------
 
 A, B, BOTH_WRONG = "A", "B", "both wrong"
@@ -117,6 +122,9 @@ class CompareResult:
     runs_total: int = 0
     extra: ExtraDigits | None = None
     integer_parts: dict[str, Any] | None = None
+    shift: dict[str, Any] | None = None
+    """When one copy lost digits: ``{"position", "digits", "missing_in"}``; comparing
+    position by position stops there (every later position would differ)."""
     """When the integer parts differ: ``{"a", "b", "certified", "right"}``."""
     seconds: float = 0.0
     arbitration_seconds: list[float] = field(default_factory=list)
@@ -191,6 +199,7 @@ class CompareResult:
             "runs_total": self.runs_total,
             "extra": asdict(self.extra) if self.extra is not None else None,
             "integer_parts": self.integer_parts,
+            "shift": self.shift,
             "keep": self.keep,
             "seconds": round(self.seconds, 3),
             "arbitration_seconds": [round(s, 4) for s in self.arbitration_seconds],
@@ -336,6 +345,8 @@ def compare_open(
         )
     name, how = _settle_constant(da, db, constant)
     method = "none" if name is None else ("digit extraction" if da.base == 16 else "radix conversion")
+    if name is not None and get_constant(name).evaluation is not None:
+        method = "full evaluation"
     result = CompareResult(
         a=_facts(da),
         b=_facts(db),
@@ -359,6 +370,18 @@ def compare_open(
             result.digits_compared = p - 1
             if progress:
                 progress(p - 1, common)
+            run = runs.pending
+            if run is not None and run.length >= SHIFT_PROBE and run.differing > 0.75 * run.length:
+                result.shift = _find_shift(da, db, run.start)
+                if result.shift is not None:
+                    k = result.shift["digits"]
+                    run.note = (
+                        f"copy {result.shift['missing_in']} lacks {k} digit{'s' if k > 1 else ''} that the other "
+                        f"has (or the other has {k} extra) at or before this position: from here on the copies "
+                        "are shifted, so the comparison stops"
+                    )
+                    run.length = common - run.start + 1
+                    break
     except KeyboardInterrupt:
         result.interrupted = True
     runs.flush()
@@ -378,6 +401,17 @@ def compare_open(
     return result
 
 
+def _find_shift(da: DigitFile, db: DigitFile, start: int) -> dict[str, Any] | None:
+    """Lost or extra digits: the copies agree again once one is shifted by ``k <= MAX_SHIFT``."""
+    a, b = da.read(start, SHIFT_MATCH + MAX_SHIFT), db.read(start, SHIFT_MATCH + MAX_SHIFT)
+    for k in range(1, MAX_SHIFT + 1):
+        if len(a) >= k + SHIFT_MATCH and a[k : k + SHIFT_MATCH] == b[:SHIFT_MATCH]:
+            return {"position": start, "digits": k, "missing_in": B}
+        if len(b) >= k + SHIFT_MATCH and b[k : k + SHIFT_MATCH] == a[:SHIFT_MATCH]:
+            return {"position": start, "digits": k, "missing_in": A}
+    return None
+
+
 def _arbitrate(
     result: CompareResult, da: DigitFile, db: DigitFile, name: str, formula: str | None, workers: int
 ) -> None:
@@ -389,7 +423,15 @@ def _arbitrate(
         ip["right"] = A if ra else B if rb else BOTH_WRONG
     oracle = HexOracle(name, get_constant(name).method_key(formula), workers=workers)
     if result.base == 16:
-        _arbitrate_hex(result, da, db, oracle)
+        _arbitrate_direct(result, da, db, oracle.digits)
+    elif get_constant(name).evaluation is not None:  # the decimal expansion directly, no hex detour
+        from spotcheck.engine.full import certified_digits
+
+        def decimal_digits(position: int, count: int) -> str:
+            oracle.evaluations += 1
+            return certified_digits(name, 10, position, count)[1]
+
+        _arbitrate_direct(result, da, db, decimal_digits)
     else:
         _arbitrate_decimal(result, da, db, oracle)
     result.evaluations = oracle.evaluations
@@ -400,22 +442,29 @@ def _full_sample(df: DigitFile, run: DiffRun, have: str) -> str:
     return have if len(have) >= w else df.read(run.start, w)
 
 
+def _add_note(note: str, more: str) -> str:
+    return f"{note}; {more}" if note else more
+
+
 def _judge(a_ok: bool, b_ok: bool) -> str:
     return A if a_ok else B if b_ok else BOTH_WRONG
 
 
-def _arbitrate_hex(result: CompareResult, da: DigitFile, db: DigitFile, oracle: HexOracle) -> None:
+def _arbitrate_direct(
+    result: CompareResult, da: DigitFile, db: DigitFile, certified: Callable[[int, int], str]
+) -> None:
+    """Each run's digits against ``certified(position, count)`` digits in the files' base."""
     for i, run in enumerate(result.runs):
         if i >= MAX_ARBITRATED_HEX:
-            run.note = f"not arbitrated: only the first {MAX_ARBITRATED_HEX} runs are"
+            run.note = _add_note(run.note, f"not arbitrated: only the first {MAX_ARBITRATED_HEX} runs are")
             continue
         t = time.perf_counter()
         w = min(run.length, ARBITRATE_DIGITS)
         run.a, run.b = _full_sample(da, run, run.a)[:w], _full_sample(db, run, run.b)[:w]
-        run.certified = oracle.digits(run.start, w)
+        run.certified = certified(run.start, w)
         run.right = _judge(run.a == run.certified, run.b == run.certified)
         if run.length > w:
-            run.note = f"the first {w} of the run's {run.length:,} digits were checked"
+            run.note = _add_note(run.note, f"the first {w} of the run's {run.length:,} digits were checked")
         result.arbitration_seconds.append(time.perf_counter() - t)
     extra = result.extra
     if extra is not None:
@@ -425,12 +474,10 @@ def _arbitrate_hex(result: CompareResult, da: DigitFile, db: DigitFile, oracle: 
         head = df.read(extra.start, w)
         end_pos = extra.start + extra.length - w
         tail = df.read(end_pos, w) if end_pos > extra.start else ""
-        extra.certified = oracle.digits(extra.start, w)
-        extra.right = head == extra.certified and (not tail or tail == oracle.digits(end_pos, w))
+        extra.certified = certified(extra.start, w)
+        extra.right = head == extra.certified and (not tail or tail == certified(end_pos, w))
         extra.note = (
-            f"the first and last {w} extra digits were checked"
-            if tail
-            else f"all {w} extra digits were checked"
+            f"the first and last {w} extra digits were checked" if tail else f"all {w} extra digit(s) checked"
         )
         result.arbitration_seconds.append(time.perf_counter() - t)
 
@@ -463,16 +510,20 @@ def _arbitrate_decimal(result: CompareResult, da: DigitFile, db: DigitFile, orac
     for i, run in enumerate(result.runs):
         end = run.start + min(run.length, ARBITRATE_DIGITS) - 1
         if blocked or i >= MAX_ARBITRATED_DECIMAL:
-            run.note = (
-                "not arbitrated: an earlier run had no right copy"
-                if blocked
-                else f"not arbitrated: only the first {MAX_ARBITRATED_DECIMAL} runs of a decimal pair are"
+            run.note = _add_note(
+                run.note,
+                (
+                    "not arbitrated: an earlier run had no right copy"
+                    if blocked
+                    else f"not arbitrated: only the first {MAX_ARBITRATED_DECIMAL} runs of a decimal pair are"
+                ),
             )
             continue
         need = estimate_conversion_bytes(end)
         if need > memory_budget():
-            run.note = (
-                f"not arbitrated: radix conversion of {end:,} digits needs about {need / 2**30:.1f} GiB"
+            run.note = _add_note(
+                run.note,
+                (f"not arbitrated: radix conversion of {end:,} digits needs about {need / 2**30:.1f} GiB"),
             )
             blocked = True
             continue
@@ -480,12 +531,14 @@ def _arbitrate_decimal(result: CompareResult, da: DigitFile, db: DigitFile, orac
         basis = spliced(run.start)
         if basis is None:
             blocked = True
-            run.note = "not arbitrated: an earlier run had no right copy"
+            run.note = _add_note(run.note, "not arbitrated: an earlier run had no right copy")
             continue
         w = end - run.start + 1
         run.a, run.b = _full_sample(da, run, run.a)[:w], _full_sample(db, run, run.b)[:w]
         run.right = _judge(check(basis + run.a), check(basis + run.b))
-        run.note = f"prefixes of {end:,} digits converted to hex and checked against the engine"
+        run.note = _add_note(
+            run.note, f"prefixes of {end:,} digits converted to hex and checked against the engine"
+        )
         blocked = run.right == BOTH_WRONG
         result.arbitration_seconds.append(time.perf_counter() - t)
     extra = result.extra

@@ -295,7 +295,7 @@ COMPARE_SCHEMA: dict[str, Any] = {
         "base": {"enum": [10, 16]},
         "constant": _STR_OR_NULL,
         "constant_how": {"type": "string"},
-        "method": {"enum": ["digit extraction", "radix conversion", "none"]},
+        "method": {"enum": ["digit extraction", "radix conversion", "full evaluation", "none"]},
         "digits_compared": {
             "type": "integer",
             "minimum": 0,
@@ -324,6 +324,15 @@ COMPARE_SCHEMA: dict[str, Any] = {
                 "b": {"type": "string"},
                 "certified": _STR_OR_NULL,
                 "right": _RIGHT,
+            },
+        },
+        "shift": {
+            "type": ["object", "null"],
+            "description": "one copy lost digits: where, how many, which copy; the comparison stops there",
+            "properties": {
+                "position": {"type": "integer", "minimum": 1},
+                "digits": {"type": "integer", "minimum": 1},
+                "missing_in": {"enum": ["A", "B"]},
             },
         },
         "keep": {

@@ -34,7 +34,7 @@ def keep_sentence(result: CompareResult) -> str:
         return f"INCOMPLETE  interrupted after {result.digits_compared:,} digits; no difference found so far"
     what = f"{_n(result.runs_total, 'differing run')}, {_n(result.differing_digits, 'differing digit')}"
     if result.extra is not None:
-        what += f"; {result.extra.longer} has {result.extra.length:,} more digits"
+        what += f"; {result.extra.longer} has {_n(result.extra.length, 'more digit')}"
     if keep in ("A", "B"):
         path = result.a.path if keep == "A" else result.b.path
         return f"DIFFER  keep {keep} ({path}): it agrees with the certified digits wherever the copies differ ({what})"
@@ -76,6 +76,13 @@ def show_compare(result: CompareResult, repeat: str, *, as_json: bool, quiet: bo
         f"arbitration: {result.method}",
         style=STYLE_DIM,
     )
+    if result.shift is not None:
+        sh = result.shift
+        con.print(
+            f"shifted copies: {sh['missing_in']} lacks {_n(sh['digits'], 'digit')} that the other has (or the other "
+            f"has extra ones) at or before position {sh['position']:,}; the comparison stops there",
+            style=STYLE_WARN,
+        )
     if result.integer_parts is not None:
         ip = result.integer_parts
         con.print(
@@ -107,7 +114,7 @@ def show_compare(result: CompareResult, repeat: str, *, as_json: bool, quiet: bo
     if e is not None:
         state = "right" if e.right else "wrong" if e.right is False else "not arbitrated"
         con.print(
-            f"{e.longer} is longer: {e.length:,} extra digits from position {e.start:,} ({e.digits}...): {state}"
+            f"{e.longer} is longer: {_n(e.length, 'extra digit')} from position {e.start:,} ({e.digits}...): {state}"
             + (f"; {e.note}" if e.note else "")
         )
     if result.verdict != "identical":
