@@ -395,6 +395,8 @@ def _score(p: _Parse, forced: bool = False) -> None:
     for mean in MEANINGS:
         if (mean.kind == "through") != (p.syntax.where == "end"):
             continue  # a start label says where its line starts, an end label where it ends
+        if mean.unit == 2 and p.syntax.radix != 16:
+            continue  # byte offsets are written in hex
         vals = [(p.syntax.value(lab), b, n) if lab is not None else None for lab, b, n in rows]
         agree = sum(1 for v in vals if v is not None and v[0] == mean.expect(v[1], v[2]))
         steps = steps_ok = 0
@@ -667,15 +669,23 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
     )
 
 
+_TRAILING_DIGITS = re.compile(rb"[0-9A-Fa-f \t.]*\Z")
+
+
 def _check_merged_header(lines: list[tuple[int, bytes]], first: int, name: str) -> None:
-    """Refuse a header line that ends in as many digits as a digit line holds (a lost line break)."""
+    """Refuse a last header line that ends in digits enough for a digit line.
+
+    A lost line break (or a ``#`` typed over the first digit) makes the first
+    digit line part of the header, and every position after it would shift.
+    """
     last = lines[first - 1][1].rstrip(b" \t\r")
-    run = len(last) - len(last.rstrip(HEX))
-    width = len(lines[first][1].translate(None, b" \t\r"))
-    if width >= 8 and run >= width:
+    m = _TRAILING_DIGITS.search(last)
+    run = len(m.group().translate(None, b" \t.")) if m else 0
+    width = len(lines[first][1].translate(None, b" \t\r."))
+    if run >= max(4, width // 2):
         raise DigitFileError(
-            f"{name}: line {first} is header text that ends in {run} digits, as many as a digit line "
-            "holds: a line break may be missing there"
+            f"{name}: line {first} is header text that ends in {run} digits, enough for a digit line: "
+            "a line break may be missing, or a digit line damaged there"
         )
 
 

@@ -22,7 +22,7 @@ def labels(draw, base: int, width: int | None, lines: int, n: int) -> Label | No
         unit = 2
     return Label(
         where=where,
-        radix=draw(st.sampled_from((10, 16))),
+        radix=16 if unit == 2 else draw(st.sampled_from((10, 16))),
         sep=sep,
         kind=draw(st.sampled_from(("before", "first"))) if where == "start" else "through",
         unit=unit,
