@@ -164,14 +164,11 @@ class LabelSyntax:
 
     def split_first(self, text: bytes) -> tuple[bytes | None, int, int]:
         """Like :meth:`split_line` for the first digit line, whose label may use any separator."""
-        got = self.split_line(text)
-        if got[0] is None:
-            for sep in SEPARATORS:
-                if sep != self.sep:
-                    got = LabelSyntax(self.where, self.radix, sep).split_line(text)
-                    if got[0] is not None:
-                        break
-        return got
+        for sep in SEPARATORS:  # ':' or '|' first: it is the more specific
+            got = (self if sep == self.sep else LabelSyntax(self.where, self.radix, sep)).split_line(text)
+            if got[0] is not None:
+                return got
+        return None, 0, len(text)
 
     def value(self, label: bytes) -> int:
         return int(label, self.radix)  # at most MAX_LABEL_CHARS characters by the pattern
@@ -395,8 +392,8 @@ def _score(p: _Parse, forced: bool = False) -> None:
     for mean in MEANINGS:
         if (mean.kind == "through") != (p.syntax.where == "end"):
             continue  # a start label says where its line starts, an end label where it ends
-        if mean.unit == 2 and p.syntax.radix != 16:
-            continue  # byte offsets are written in hex
+        if (mean.unit == 2) != (p.syntax.radix == 16):
+            continue  # hex labels are byte offsets; decimal labels count digits
         vals = [(p.syntax.value(lab), b, n) if lab is not None else None for lab, b, n in rows]
         agree = sum(1 for v in vals if v is not None and v[0] == mean.expect(v[1], v[2]))
         steps = steps_ok = 0
@@ -520,16 +517,7 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
         lines.append((pos, head[pos:nl]))
         pos = nl + 1
     first = 0
-    while first < len(lines):
-        off, text = lines[first]
-        inner = text.rstrip(b"\r").rfind(b"\r")
-        if inner >= 0 and _is_header(text[:inner]) and not _is_header(text[inner + 1 :]):
-            # A lone CR inside a header line of an LF/CRLF file ends a line too.
-            lines[first : first + 1] = [(off, text[:inner]), (off + inner + 1, text[inner + 1 :])]
-            first += 1
-            break
-        if not _is_header(text):
-            break
+    while first < len(lines) and _is_header(lines[first][1]):
         first += 1
     if first >= len(lines) or first > MAX_HEADER_LINES:
         raise DigitFileError(

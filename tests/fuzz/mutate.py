@@ -35,7 +35,7 @@ def random_spec(rng: random.Random, max_digits: int = 400) -> Spec:
         where = rng.choice(("start", "end"))
         label = Label(
             where,
-            16 if unit == 2 else rng.choice((10, 16)),
+            16 if unit == 2 else 10,
             rng.choice(seps),
             rng.choice(("before", "first")) if where == "start" else "through",
             unit,

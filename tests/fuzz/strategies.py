@@ -22,7 +22,7 @@ def labels(draw, base: int, width: int | None, lines: int, n: int) -> Label | No
         unit = 2
     return Label(
         where=where,
-        radix=16 if unit == 2 else draw(st.sampled_from((10, 16))),
+        radix=16 if unit == 2 else 10,
         sep=sep,
         kind=draw(st.sampled_from(("before", "first"))) if where == "start" else "through",
         unit=unit,
@@ -31,10 +31,10 @@ def labels(draw, base: int, width: int | None, lines: int, n: int) -> Label | No
 
 
 @st.composite
-def specs(draw, max_digits: int = 700) -> Spec:
+def specs(draw, max_digits: int = 700, min_digits: int = 1) -> Spec:
     base = draw(st.sampled_from((10, 16)))
     alphabet = "0123456789" if base == 10 else "0123456789ABCDEF"
-    n = draw(st.integers(1, max_digits))
+    n = draw(st.integers(min_digits, max_digits))
     digits = draw(st.text(alphabet, min_size=n, max_size=n))
     if base == 16 and not any(c in "ABCDEF" for c in digits[:200]):
         at = draw(st.integers(0, min(n, 200) - 1))
