@@ -38,6 +38,7 @@ __all__ = ["IndexResult", "build_index", "line_of", "Progress", "CHUNK_BYTES", "
 
 # --- tuning -----------------------------------------------------------------
 CHUNK_BYTES = 8 << 20  # bytes examined per step of the pass
+LABELLED_CHUNK_BYTES = 2 << 20  # bytes of labelled lines examined per step
 INDEX_STEP = 64 << 10  # bytes between sparse index entries (a window read parses at most this much)
 TAIL_DIGITS = 64  # last digits kept for inspect
 MAX_FINDINGS = 20  # findings of one kind kept in full; the rest are counted
@@ -278,15 +279,16 @@ def _scan_labelled(
     digit_bytes = digit_set(base)
     off, pos, line = plan.seg_end, d1, plan.first_line_no + 1
     last_index = -INDEX_STEP
+    chunk = min(CHUNK_BYTES, LABELLED_CHUNK_BYTES)  # line lists cost ~5 times the chunk in memory
     while True:
-        data = src.read_at(off, CHUNK_BYTES)
+        data = src.read_at(off, chunk)
         if not data:
             break
-        if len(data) == CHUNK_BYTES:
+        if len(data) == chunk:
             cut = data.rfind(b"\n") + 1
             if cut == 0:
                 raise DigitFileError(
-                    f"{name}: a labelled line at byte {off} is longer than {CHUNK_BYTES} bytes"
+                    f"{name}: a labelled line at byte {off} is longer than {chunk} bytes"
                 )
             data = data[:cut]
         cleaned, found = syntax.split(data)
