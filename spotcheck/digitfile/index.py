@@ -43,6 +43,31 @@ INDEX_STEP = 64 << 10  # bytes between sparse index entries (a window read parse
 TAIL_DIGITS = 64  # last digits kept for inspect
 MAX_FINDINGS = 20  # findings of one kind kept in full; the rest are counted
 
+
+def first_mismatch_py(data: bytes, units: bytes, table: bytes) -> int:
+    """Index of the first byte of ``data`` whose class (``table``) differs from ``units``, or -1."""
+    classes = data.translate(table)
+    if classes == units[: len(data)]:
+        return -1
+    for i, (a, b) in enumerate(zip(classes, units, strict=False)):
+        if a != b:
+            return i
+    return len(data)  # units shorter than data: not reached by the pass
+
+
+first_mismatch = first_mismatch_py
+FIRST_PASS = "python"
+if os.environ.get("SPOTCHECK_PURE", "").strip().lower() not in ("1", "true", "yes", "on"):
+    try:
+        from spotcheck.digitfile._index import (  # type: ignore[import-not-found]
+            first_mismatch as _first_mismatch_c,
+        )
+    except ImportError:  # the optional extension was not built: the Python twin serves
+        pass
+    else:
+        first_mismatch = _first_mismatch_c
+        FIRST_PASS = "c"
+
 Progress = Callable[[int, int], None]
 """``progress(done, total)`` in bytes of the file as stored: for a compressed
 file, the compressed bytes consumed so far out of the file's size."""
@@ -198,7 +223,7 @@ def build_index(
         keep = (TAIL_DIGITS // width + 2) * p  # bytes of the previous chunk that hold the last digits
         while True:
             data = src.read_at(off, n)
-            if len(data) == n and data.translate(table) == units:
+            if len(data) == n and first_mismatch(data, units, table) < 0:
                 pos += k * width
                 off += n
                 prev = data
@@ -287,9 +312,7 @@ def _scan_labelled(
         if len(data) == chunk:
             cut = data.rfind(b"\n") + 1
             if cut == 0:
-                raise DigitFileError(
-                    f"{name}: a labelled line at byte {off} is longer than {chunk} bytes"
-                )
+                raise DigitFileError(f"{name}: a labelled line at byte {off} is longer than {chunk} bytes")
             data = data[:cut]
         cleaned, found = syntax.split(data)
         if cleaned.translate(None, allowed):
