@@ -323,6 +323,7 @@ class _Parse:
     body: tuple[int, int] = (0, 0)  # first line's body span (absolute offsets)
     first_only: bool = False
     first_own_sep: bool = False
+    first_blank_sep: bool = False  # a blank between the first line's ':'/'|' and its digits
     meaning: LabelMeaning | None = None
     steps: int = 0
     steps_ok: int = 0
@@ -345,6 +346,7 @@ def _parse(syntax: LabelSyntax | None, lines: list[tuple[int, bytes]], first: in
             label, b0, b1 = syntax.split_first(text) if i == first else syntax.split_line(text)
             if i == first:
                 out.first_own_sep = syntax.split_line(text)[0] is not None
+                out.first_blank_sep = _blank_beside_mark(syntax, text)
         body = text[b0:b1]
         if i == first:
             m = _FIRST_BODY.match(body)
@@ -368,6 +370,16 @@ def _parse(syntax: LabelSyntax | None, lines: list[tuple[int, bytes]], first: in
         out.labels.append((i, label, before, nd))
         before += nd
     return out
+
+
+def _blank_beside_mark(syntax: LabelSyntax, text: bytes) -> bool:
+    """True when the first line's label separator has a blank on the digits' side of its mark."""
+    rx: re.Pattern[bytes] = LabelSyntax(syntax.where, syntax.radix, "mark")._line  # type: ignore[attr-defined]
+    if syntax.where == "start":
+        m = rx.match(text)
+        return bool(m) and text[m.end() - 1 : m.end()] in (b" ", b"\t")  # type: ignore[union-attr]
+    m = rx.search(text)
+    return bool(m) and text[m.start() : m.start() + 1] in (b" ", b"\t")  # type: ignore[union-attr]
 
 
 def _score(p: _Parse, forced: bool = False) -> None:
@@ -413,9 +425,10 @@ def _score(p: _Parse, forced: bool = False) -> None:
             best = key
             p.meaning, p.steps, p.steps_ok, p.agree = mean, steps, steps_ok, agree
             p.log_chance = evidence + math.log10(math.comb(steps, steps_ok)) if steps else 0.0
-    if p.first_only:
-        # A label on the first line alone must say what such a label says: 0, 1 or the line's count.
-        p.ok = p.agree >= 1
+    if p.first_only or p.steps == 0:
+        # A label on a line alone must say what such a label says (0, 1 or the line's count) and
+        # be set off from the digits by a blank as well: one damaged byte cannot make both.
+        p.ok = p.agree >= 1 and (p.syntax.sep == "blank" or p.first_blank_sep)
     p.labelled = p.ok
     if p.first_only:
         return
@@ -546,6 +559,16 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
     for p in parses:
         if p.ok and p.syntax is not None:
             _score(p, forced=labels in ("start", "end"))
+    for p in parses:
+        if p.ok and p.first_only:
+            # Not when the other lines carry labels set off by blanks: the first line is damaged.
+            for other in SYNTAXES:
+                if other.sep == "blank":
+                    q = _parse(other, examined, first + 1)
+                    if q.ok:
+                        _score(q)
+                        if q.steps_ok and q.log_chance <= AMBIGUOUS_LOG_CHANCE:
+                            p.ok = p.labelled = False
     chosen = _choose(parses, labels, name, examined)
     syntax = chosen.syntax
     first_label = first_label_text = None

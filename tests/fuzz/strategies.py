@@ -8,6 +8,7 @@ from hypothesis import strategies as st
 from tests.fuzz.writer import HEADERS, Label, Spec
 
 MARK_SEPS = (":", ": ", " : ", "|", " | ", "\t|\t")
+LONE_SEPS = (" : ", " | ", "\t|\t")  # a label on a line alone has a blank beside its mark
 BLANK_SEPS = (" ", "  ", "\t")
 
 
@@ -16,6 +17,8 @@ def labels(draw, base: int, width: int | None, lines: int, n: int) -> Label | No
     blank_ok = lines >= 8  # blank-separated labels are told from digits by their progression
     where = draw(st.sampled_from(("start", "end")))
     seps = MARK_SEPS + (BLANK_SEPS if blank_ok else ())
+    if lines == 1:
+        seps = LONE_SEPS
     sep = draw(st.sampled_from(seps))
     unit = 1
     if base == 16 and width is not None and width % 2 == 0 and n % 2 == 0 and draw(st.booleans()):
