@@ -37,7 +37,9 @@ def judge(spec: Spec, seed: int) -> None:
 
 
 @settings(max_examples=200, deadline=None)
-@given(specs(max_digits=400), st.integers(0, 2**32))
+# At least 8 digits: in a file of one or two digits, a mutated label can make another valid file
+# (``0:     1`` -> ``0:8    1``) that no reader could tell from a written one.
+@given(specs(max_digits=400, min_digits=8), st.integers(0, 2**32))
 def test_mutated_file_is_refused_or_read_where_it_was_hit(spec: Spec, seed: int) -> None:
     judge(spec, seed)
 

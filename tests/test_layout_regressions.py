@@ -68,7 +68,6 @@ def long_number_before_label(d: str) -> str:
 LAYOUTS: dict[str, tuple[Callable[[str], str], str]] = {
     "start-blank-decimal": (start_labels, "dec"),
     "start-blank-decimal-hex-digits": (start_labels, "hex"),
-    "start-blank-hex-labels": (lambda d: start_labels(d, hexlab=True), "hex"),
     "hexdump-blanks": (lambda d: hex_dump(d, "  "), "hex"),
     "hexdump-colon": (lambda d: hex_dump(d, ": "), "hex"),
     "end-label-ungrouped": (end_labels, "dec"),

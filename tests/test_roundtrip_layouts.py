@@ -35,9 +35,7 @@ EXAMPLES = {
     "start hex byte offsets ':'": Spec(
         H, 16, None, width=32, group=8, label=Label("start", 16, ": ", "before", 2, 8)
     ),
-    "start decimal byte offsets 1-based": Spec(
-        H, 16, None, width=40, label=Label("start", 10, ": ", "first", 2)
-    ),
+    "start hex byte offsets 1-based": Spec(H, 16, None, width=40, label=Label("start", 16, ": ", "first", 2)),
     "end labels grouped": Spec(D, 10, "3", width=50, group=10, label=Label("end", 10, " : ", "through")),
     "end labels ungrouped": Spec(D, 10, None, width=50, label=Label("end", 10, " : ", "through")),
     "end labels blank": Spec(D, 10, None, width=50, group=5, label=Label("end", 10, "  ", "through")),

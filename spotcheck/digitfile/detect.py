@@ -164,14 +164,11 @@ class LabelSyntax:
 
     def split_first(self, text: bytes) -> tuple[bytes | None, int, int]:
         """Like :meth:`split_line` for the first digit line, whose label may use any separator."""
-        got = self.split_line(text)
-        if got[0] is None:
-            for sep in SEPARATORS:
-                if sep != self.sep:
-                    got = LabelSyntax(self.where, self.radix, sep).split_line(text)
-                    if got[0] is not None:
-                        break
-        return got
+        for sep in SEPARATORS:  # ':' or '|' first: it is the more specific
+            got = (self if sep == self.sep else LabelSyntax(self.where, self.radix, sep)).split_line(text)
+            if got[0] is not None:
+                return got
+        return None, 0, len(text)
 
     def value(self, label: bytes) -> int:
         return int(label, self.radix)  # at most MAX_LABEL_CHARS characters by the pattern
@@ -326,6 +323,7 @@ class _Parse:
     body: tuple[int, int] = (0, 0)  # first line's body span (absolute offsets)
     first_only: bool = False
     first_own_sep: bool = False
+    first_blank_sep: bool = False  # a blank between the first line's ':'/'|' and its digits
     meaning: LabelMeaning | None = None
     steps: int = 0
     steps_ok: int = 0
@@ -348,6 +346,7 @@ def _parse(syntax: LabelSyntax | None, lines: list[tuple[int, bytes]], first: in
             label, b0, b1 = syntax.split_first(text) if i == first else syntax.split_line(text)
             if i == first:
                 out.first_own_sep = syntax.split_line(text)[0] is not None
+                out.first_blank_sep = _blank_beside_mark(syntax, text)
         body = text[b0:b1]
         if i == first:
             m = _FIRST_BODY.match(body)
@@ -373,6 +372,16 @@ def _parse(syntax: LabelSyntax | None, lines: list[tuple[int, bytes]], first: in
     return out
 
 
+def _blank_beside_mark(syntax: LabelSyntax, text: bytes) -> bool:
+    """True when the first line's label separator has a blank on the digits' side of its mark."""
+    rx: re.Pattern[bytes] = LabelSyntax(syntax.where, syntax.radix, "mark")._line  # type: ignore[attr-defined]
+    if syntax.where == "start":
+        m = rx.match(text)
+        return bool(m) and text[m.end() - 1 : m.end()] in (b" ", b"\t")  # type: ignore[union-attr]
+    m = rx.search(text)
+    return bool(m) and text[m.start() : m.start() + 1] in (b" ", b"\t")  # type: ignore[union-attr]
+
+
 def _score(p: _Parse, forced: bool = False) -> None:
     """Pick the meaning whose progression the labels follow best."""
     assert p.syntax is not None
@@ -395,6 +404,8 @@ def _score(p: _Parse, forced: bool = False) -> None:
     for mean in MEANINGS:
         if (mean.kind == "through") != (p.syntax.where == "end"):
             continue  # a start label says where its line starts, an end label where it ends
+        if (mean.unit == 2) != (p.syntax.radix == 16):
+            continue  # hex labels are byte offsets; decimal labels count digits
         vals = [(p.syntax.value(lab), b, n) if lab is not None else None for lab, b, n in rows]
         agree = sum(1 for v in vals if v is not None and v[0] == mean.expect(v[1], v[2]))
         steps = steps_ok = 0
@@ -414,9 +425,10 @@ def _score(p: _Parse, forced: bool = False) -> None:
             best = key
             p.meaning, p.steps, p.steps_ok, p.agree = mean, steps, steps_ok, agree
             p.log_chance = evidence + math.log10(math.comb(steps, steps_ok)) if steps else 0.0
-    if p.first_only:
-        # A label on the first line alone must say what such a label says: 0, 1 or the line's count.
-        p.ok = p.agree >= 1
+    if p.first_only or p.steps == 0:
+        # A label on a line alone must say what such a label says (0, 1 or the line's count) and
+        # be set off from the digits by a blank as well: one damaged byte cannot make both.
+        p.ok = p.agree >= 1 and (p.syntax.sep == "blank" or p.first_blank_sep)
     p.labelled = p.ok
     if p.first_only:
         return
@@ -518,16 +530,7 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
         lines.append((pos, head[pos:nl]))
         pos = nl + 1
     first = 0
-    while first < len(lines):
-        off, text = lines[first]
-        inner = text.rstrip(b"\r").rfind(b"\r")
-        if inner >= 0 and _is_header(text[:inner]) and not _is_header(text[inner + 1 :]):
-            # A lone CR inside a header line of an LF/CRLF file ends a line too.
-            lines[first : first + 1] = [(off, text[:inner]), (off + inner + 1, text[inner + 1 :])]
-            first += 1
-            break
-        if not _is_header(text):
-            break
+    while first < len(lines) and _is_header(lines[first][1]):
         first += 1
     if first >= len(lines) or first > MAX_HEADER_LINES:
         raise DigitFileError(
@@ -556,6 +559,16 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
     for p in parses:
         if p.ok and p.syntax is not None:
             _score(p, forced=labels in ("start", "end"))
+    for p in parses:
+        if p.ok and p.first_only:
+            # Not when the other lines carry labels set off by blanks: the first line is damaged.
+            for other in SYNTAXES:
+                if other.sep == "blank":
+                    q = _parse(other, examined, first + 1)
+                    if q.ok:
+                        _score(q)
+                        if q.steps_ok and q.log_chance <= AMBIGUOUS_LOG_CHANCE:
+                            p.ok = p.labelled = False
     chosen = _choose(parses, labels, name, examined)
     syntax = chosen.syntax
     first_label = first_label_text = None
@@ -667,15 +680,23 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
     )
 
 
+_TRAILING_DIGITS = re.compile(rb"[0-9A-Fa-f \t.]*\Z")
+
+
 def _check_merged_header(lines: list[tuple[int, bytes]], first: int, name: str) -> None:
-    """Refuse a header line that ends in as many digits as a digit line holds (a lost line break)."""
+    """Refuse a last header line that ends in digits enough for a digit line.
+
+    A lost line break (or a ``#`` typed over the first digit) makes the first
+    digit line part of the header, and every position after it would shift.
+    """
     last = lines[first - 1][1].rstrip(b" \t\r")
-    run = len(last) - len(last.rstrip(HEX))
-    width = len(lines[first][1].translate(None, b" \t\r"))
-    if width >= 8 and run >= width:
+    m = _TRAILING_DIGITS.search(last)
+    run = len(m.group().translate(None, b" \t.")) if m else 0
+    width = len(lines[first][1].translate(None, b" \t\r."))
+    if run >= max(4, width // 2):
         raise DigitFileError(
-            f"{name}: line {first} is header text that ends in {run} digits, as many as a digit line "
-            "holds: a line break may be missing there"
+            f"{name}: line {first} is header text that ends in {run} digits, enough for a digit line: "
+            "a line break may be missing, or a digit line damaged there"
         )
 
 

@@ -38,9 +38,35 @@ __all__ = ["IndexResult", "build_index", "line_of", "Progress", "CHUNK_BYTES", "
 
 # --- tuning -----------------------------------------------------------------
 CHUNK_BYTES = 8 << 20  # bytes examined per step of the pass
+LABELLED_CHUNK_BYTES = 2 << 20  # bytes of labelled lines examined per step
 INDEX_STEP = 64 << 10  # bytes between sparse index entries (a window read parses at most this much)
 TAIL_DIGITS = 64  # last digits kept for inspect
 MAX_FINDINGS = 20  # findings of one kind kept in full; the rest are counted
+
+
+def first_mismatch_py(data: bytes, units: bytes, table: bytes) -> int:
+    """Index of the first byte of ``data`` whose class (``table``) differs from ``units``, or -1."""
+    classes = data.translate(table)
+    if classes == units[: len(data)]:
+        return -1
+    for i, (a, b) in enumerate(zip(classes, units, strict=False)):
+        if a != b:
+            return i
+    return len(data)  # units shorter than data: not reached by the pass
+
+
+first_mismatch = first_mismatch_py
+FIRST_PASS = "python"
+if os.environ.get("SPOTCHECK_PURE", "").strip().lower() not in ("1", "true", "yes", "on"):
+    try:
+        from spotcheck.digitfile._index import (  # type: ignore[import-not-found]
+            first_mismatch as _first_mismatch_c,
+        )
+    except ImportError:  # the optional extension was not built: the Python twin serves
+        pass
+    else:
+        first_mismatch = _first_mismatch_c
+        FIRST_PASS = "c"
 
 Progress = Callable[[int, int], None]
 """``progress(done, total)`` in bytes of the file as stored: for a compressed
@@ -197,7 +223,7 @@ def build_index(
         keep = (TAIL_DIGITS // width + 2) * p  # bytes of the previous chunk that hold the last digits
         while True:
             data = src.read_at(off, n)
-            if len(data) == n and data.translate(table) == units:
+            if len(data) == n and first_mismatch(data, units, table) < 0:
                 pos += k * width
                 off += n
                 prev = data
@@ -278,16 +304,15 @@ def _scan_labelled(
     digit_bytes = digit_set(base)
     off, pos, line = plan.seg_end, d1, plan.first_line_no + 1
     last_index = -INDEX_STEP
+    chunk = min(CHUNK_BYTES, LABELLED_CHUNK_BYTES)  # line lists cost ~5 times the chunk in memory
     while True:
-        data = src.read_at(off, CHUNK_BYTES)
+        data = src.read_at(off, chunk)
         if not data:
             break
-        if len(data) == CHUNK_BYTES:
+        if len(data) == chunk:
             cut = data.rfind(b"\n") + 1
             if cut == 0:
-                raise DigitFileError(
-                    f"{name}: a labelled line at byte {off} is longer than {CHUNK_BYTES} bytes"
-                )
+                raise DigitFileError(f"{name}: a labelled line at byte {off} is longer than {chunk} bytes")
             data = data[:cut]
         cleaned, found = syntax.split(data)
         if cleaned.translate(None, allowed):

@@ -14,6 +14,7 @@ from tests.fuzz.oracle import acceptable_mutation, place_named, read_back, truth
 from tests.fuzz.writer import HEADERS, Label, Spec, write
 
 MARK_SEPS = (":", ": ", " : ", "|", " | ", "\t|\t")
+LONE_SEPS = (" : ", " | ", "\t|\t")  # a label on a line alone has a blank beside its mark
 BLANK_SEPS = (" ", "  ", "\t")
 HANG_SECONDS = 5.0
 
@@ -31,11 +32,13 @@ def random_spec(rng: random.Random, max_digits: int = 400) -> Spec:
     label = None
     if rng.random() < 0.6:
         seps = MARK_SEPS + (BLANK_SEPS if lines >= 8 and (width or 0) >= 2 else ())
+        if lines == 1:
+            seps = LONE_SEPS
         unit = 2 if base == 16 and width and width % 2 == 0 and n % 2 == 0 and rng.random() < 0.4 else 1
         where = rng.choice(("start", "end"))
         label = Label(
             where,
-            rng.choice((10, 16)),
+            16 if unit == 2 else 10,
             rng.choice(seps),
             rng.choice(("before", "first")) if where == "start" else "through",
             unit,

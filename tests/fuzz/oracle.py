@@ -67,13 +67,9 @@ def acceptable_mutation(orig: str, got: str, findings: list, lo: int, hi: int, i
     if got == orig:
         return True
     if "." in got and "." not in orig:
-        # The mutation made a radix point: the digits before it are now a (short) integer part.
+        # The mutation made a radix point: the digits after it must be the original ones after it.
         ip, _, rest = got.partition(".")
-        if len(ip) > 20:
-            return False
-        zeros = len(orig) - len(orig.lstrip("0"))
-        got, orig = (ip + rest).lstrip("0"), orig.lstrip("0")
-        lo, hi, inserted = max(0, lo - zeros), max(0, hi - zeros), inserted + zeros
+        return len(ip) <= 20 and orig.endswith(rest) and lo <= len(orig) - len(rest) <= hi + 1
     orig, got = _norm(orig), _norm(got)
     if got == orig:
         return True

@@ -8,6 +8,7 @@ from hypothesis import strategies as st
 from tests.fuzz.writer import HEADERS, Label, Spec
 
 MARK_SEPS = (":", ": ", " : ", "|", " | ", "\t|\t")
+LONE_SEPS = (" : ", " | ", "\t|\t")  # a label on a line alone has a blank beside its mark
 BLANK_SEPS = (" ", "  ", "\t")
 
 
@@ -16,13 +17,15 @@ def labels(draw, base: int, width: int | None, lines: int, n: int) -> Label | No
     blank_ok = lines >= 8  # blank-separated labels are told from digits by their progression
     where = draw(st.sampled_from(("start", "end")))
     seps = MARK_SEPS + (BLANK_SEPS if blank_ok else ())
+    if lines == 1:
+        seps = LONE_SEPS
     sep = draw(st.sampled_from(seps))
     unit = 1
     if base == 16 and width is not None and width % 2 == 0 and n % 2 == 0 and draw(st.booleans()):
         unit = 2
     return Label(
         where=where,
-        radix=draw(st.sampled_from((10, 16))),
+        radix=16 if unit == 2 else 10,
         sep=sep,
         kind=draw(st.sampled_from(("before", "first"))) if where == "start" else "through",
         unit=unit,
@@ -31,10 +34,10 @@ def labels(draw, base: int, width: int | None, lines: int, n: int) -> Label | No
 
 
 @st.composite
-def specs(draw, max_digits: int = 700) -> Spec:
+def specs(draw, max_digits: int = 700, min_digits: int = 1) -> Spec:
     base = draw(st.sampled_from((10, 16)))
     alphabet = "0123456789" if base == 10 else "0123456789ABCDEF"
-    n = draw(st.integers(1, max_digits))
+    n = draw(st.integers(min_digits, max_digits))
     digits = draw(st.text(alphabet, min_size=n, max_size=n))
     if base == 16 and not any(c in "ABCDEF" for c in digits[:200]):
         at = draw(st.integers(0, min(n, 200) - 1))
