@@ -145,7 +145,9 @@ def test_first_digit_wrong_is_a_mismatch_not_an_input_error(tmp_path: Path, caps
     code, out, err = cli(capsys, "verify", path, "--samples", "2", "--seed", "1", "--json")
     assert code == 1, err
     wrong = [c for c in json.loads(out)["checks"] if not c["match"]]
-    assert [(c["kind"], c["position"] + c["first_difference"] - 1) for c in wrong] == [("head", 1)]
+    # The head window and, where it fits the budget, the full comparison both see digit 1 wrong.
+    assert {c["position"] + c["first_difference"] - 1 for c in wrong} == {1}
+    assert "head" in {c["kind"] for c in wrong}
     code, out, err = cli(capsys, "locate", path, "--json")
     assert code == 1 and json.loads(out)["first_mismatch"] == 1
     code, out, _ = cli(capsys, "inspect", path, "--json")

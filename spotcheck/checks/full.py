@@ -74,7 +74,7 @@ def _rows(scan: ScanResult) -> list[WindowCheck]:
     for r in scan.runs[:MAX_ROWS]:
         rows.append(
             WindowCheck(
-                kind="prefix",
+                kind="full",
                 position=r.start,
                 expected=r.expected,
                 found=r.found,
@@ -82,20 +82,18 @@ def _rows(scan: ScanResult) -> list[WindowCheck]:
                 first_difference=r.start,
                 note=f"{r.wrong:,} wrong digits in {r.length:,}; {note}",
                 base=f.base,
-                prefix=scan.digits_compared,
             )
         )
     if not scan.runs:
         rows.append(
             WindowCheck(
-                kind="prefix",
+                kind="full",
                 position=1,
                 expected="",
                 found="",
                 match=True,
                 note=note,
                 base=f.base,
-                prefix=scan.digits_compared,
             )
         )
     return rows
@@ -122,6 +120,10 @@ def verify_full(
         seed=0,
         tail_position=None,
         random_windows=0,
+        full_through_value=scan.digits_compared,
+        reference="arb",
+        wrong_digits=scan.wrong_digits,
+        wrong_runs=scan.runs_total,
     )
 
 
@@ -172,6 +174,7 @@ def locate_full(
         found=found,
         rest=rest,
         how="scan" if first is not None else "none",
+        full_through_value=n,
         explanation=explanation,
         first_is_certain=first is not None,
     )

@@ -9,6 +9,7 @@ from typing import Any
 from spotcheck.digitfile import DigitFile
 
 from .common import DEFAULT_WINDOW, HexOracle, Progress, clamp_window, common_rows, open_run
+from .full import is_full, locate_full
 from .results import FileFacts, LocateResult, WindowCheck
 from .scan import estimate_scan, scan_open
 
@@ -52,6 +53,8 @@ def locate_file(
     )
     df, facts, oracle = run.df, run.facts, run.oracle
     with run:
+        if is_full(facts.constant):  # no digit-extraction formula: every digit against Arb
+            return locate_full(df, facts, progress=progress)
         if facts.base == 10:
             from .decimal import locate_decimal
 

@@ -147,7 +147,9 @@ def run_in_child(
     """``target(*args)`` in a child process that an interruption of the caller terminates."""
     import multiprocessing as mp
 
-    method = "fork" if "fork" in mp.get_all_start_methods() else "spawn"
+    # Not "fork": the parent may hold threads (flint's pool, rich's refresh)
+    # whose locks a forked child would inherit without the threads.
+    method = "forkserver" if "forkserver" in mp.get_all_start_methods() else "spawn"
     mpc: Any = mp.get_context(method)
     recv, send = mpc.Pipe(duplex=False)
     proc = mpc.Process(target=_child_main, args=(send, target, args), daemon=True)

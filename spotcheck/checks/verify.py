@@ -21,6 +21,7 @@ from .common import (
     open_run,
     run_plan,
 )
+from .full import is_full, verify_full
 from .results import FileFacts, VerifyResult, WindowCheck
 
 __all__ = ["verify_file", "MAX_SAMPLES", "DEFAULT_FULL_BUDGET"]
@@ -90,6 +91,8 @@ def verify_file(
     )
     df, facts, oracle = run.df, run.facts, run.oracle
     with run:
+        if is_full(facts.constant):  # no digit-extraction formula: every digit against Arb
+            return verify_full(df, facts, progress=progress)
         for p in at:
             if not 1 <= p <= facts.checked:
                 raise needs(f"position {p} is outside the file (digits 1..{facts.checked})", "at", p)

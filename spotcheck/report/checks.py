@@ -44,7 +44,12 @@ def plural(n: int, word: str, many: str | None = None) -> str:
 
 def coverage_phrase(result: CheckResult) -> str:
     """What was compared: every digit, or how many windows (with the damage bound)."""
-    if isinstance(result, VerifyResult) and result.file.base == 10 and result.exhaustive:
+    if (
+        isinstance(result, VerifyResult)
+        and result.file.base == 10
+        and result.exhaustive
+        and not result.full_through
+    ):
         return "every digit covered by radix conversion of the whole file"
     if result.full_through and result.exhaustive:
         ref = getattr(result, "reference", None) or "a full computation"
@@ -221,7 +226,8 @@ def _meaning(result: CheckResult) -> list[str]:
     lines: list[str] = []
     if isinstance(result, VerifyResult):
         w = result.window
-        if result.file.base == 10:
+        by_evaluation = result.method.startswith("full evaluation")
+        if result.file.base == 10 and not by_evaluation:
             lines.append(
                 "Radix conversion: each decimal prefix checked (the whole file for the tail) was converted "
                 "to hexadecimal; the hex digits it determines were compared with certified engine digits "
@@ -240,7 +246,14 @@ def _meaning(result: CheckResult) -> list[str]:
                 f"Persistent-error model: the matching tail rules out any error before it that stayed wrong "
                 f"to the end (chance of an accidental match {result.false_match_chance:.1e}, 16^-{w})."
             )
-        if result.reference is not None and result.full_through:
+        if by_evaluation:
+            lines.append(
+                f"Full evaluation: {result.file.constant} has no digit-extraction formula, so all "
+                f"{result.full_through:,} digits were compared, in the file's own base, with certified digits "
+                f"of a full evaluation ({result.reference}); `spotcheck scan --reference mpfr` checks them "
+                "against a second, independent library."
+            )
+        elif result.reference is not None and result.full_through:
             lines.append(
                 f"Full comparison: {result.full_through:,} digits compared with an independent computation "
                 f"({result.reference}), which shares nothing with the digit-extraction engine."
