@@ -429,6 +429,8 @@ def _score(p: _Parse, forced: bool = False) -> None:
         # A label on a line alone must say what such a label says (0, 1 or the line's count) and
         # be set off from the digits by a blank as well: one damaged byte cannot make both.
         p.ok = p.agree >= 1 and (p.syntax.sep == "blank" or p.first_blank_sep)
+        if not p.ok:
+            return
     p.labelled = p.ok
     if p.first_only:
         return
@@ -538,7 +540,7 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
             "is a digit line (expected hex or decimal digits after an optional header)"
         )
     line_off, line = lines[first]
-    if first and first + 1 < len(lines):
+    if first:
         _check_merged_header(lines, first, name)
     ends_in_newline = line_off + len(line) < len(head)
     long_line = len(line) > MAX_FIRST_LINE or not ends_in_newline and not eof
