@@ -557,6 +557,8 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
         # Only the head of a very long line is here; the pass validates the rest.
         cut = len(line)
         examined = [(line_off, line[:cut])]
+    if base == 10:  # hex labels are byte offsets of hex digits
+        syntaxes = [s for s in syntaxes if s is None or s.radix == 10]
     parses = [_parse(s, examined, first) for s in syntaxes]
     for p in parses:
         if p.ok and p.syntax is not None:
