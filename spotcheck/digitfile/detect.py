@@ -372,6 +372,10 @@ def _parse(syntax: LabelSyntax | None, lines: list[tuple[int, bytes]], first: in
     return out
 
 
+def _has_label(p: _Parse) -> bool:
+    return p.bad_at < 0 and any(lab is not None for _, lab, _, _ in p.labels)
+
+
 def _blank_beside_mark(syntax: LabelSyntax, text: bytes) -> bool:
     """True when the first line's label separator has a blank on the digits' side of its mark."""
     rx: re.Pattern[bytes] = LabelSyntax(syntax.where, syntax.radix, "mark")._line  # type: ignore[attr-defined]
@@ -573,6 +577,15 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
                         _score(q)
                         if q.steps_ok and q.log_chance <= AMBIGUOUS_LOG_CHANCE:
                             p.ok = p.labelled = False
+    sides = {p.syntax.where for p in parses if p.syntax and p.syntax.sep == "mark" and _has_label(p)}
+    if len(sides) == 2 and max(len(p.labels) for p in parses if p.bad_at < 0) <= 1:
+        # One line with ':' or '|' beside a short number at both ends: which is the label is a guess.
+        raise AmbiguousLayoutError(
+            f"{name}: the layout is ambiguous: the one digit line could carry its label at the start or "
+            "at the end; say where the labels are",
+            "labels",
+            ("start", "end"),
+        )
     chosen = _choose(parses, labels, name, examined)
     syntax = chosen.syntax
     first_label = first_label_text = None
