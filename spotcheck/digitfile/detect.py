@@ -142,8 +142,8 @@ class LabelSyntax:
             line = rb"[ \t]*(" + lab + rb")" + sep
             bulk = rb"\n[ \t]*(" + lab + rb")" + sep
         else:
-            line = sep + rb"(" + lab + rb")[ \t]*\r?\Z"
-            bulk = sep + rb"(" + lab + rb")[ \t]*(?=\r?$)"
+            line = sep + rb"(" + lab + rb")[ \t\r]*\Z"
+            bulk = sep + rb"(" + lab + rb")[ \t]*(?=\r*$)"
         object.__setattr__(self, "_line", re.compile(line))
         object.__setattr__(self, "_bulk", re.compile(bulk, re.M))
 
