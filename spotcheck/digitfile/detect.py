@@ -707,6 +707,17 @@ def _check_merged_header(lines: list[tuple[int, bytes]], first: int, name: str) 
     digit line part of the header, and every position after it would shift.
     """
     last = lines[first - 1][1].rstrip(b" \t\r")
+    body = last.lstrip(b" \t")
+    rest = body[1:]
+    if (
+        body.startswith(b"#")
+        and not rest.translate(None, HEX + b". \t")
+        and rest.translate(None, DEC) != rest
+    ):
+        raise DigitFileError(
+            f"{name}: line {first} is a comment that holds only digits, just before the digits: "
+            "a '#' may have been typed over a digit line"
+        )
     m = _TRAILING_DIGITS.search(last)
     run = len(m.group().translate(None, b" \t.")) if m else 0
     width = len(lines[first][1].translate(None, b" \t\r."))
