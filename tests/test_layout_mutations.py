@@ -9,7 +9,7 @@ from __future__ import annotations
 import random
 import tempfile
 
-from hypothesis import given, settings
+from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from spotcheck.errors import SpotcheckError
@@ -41,6 +41,9 @@ def judge(spec: Spec, seed: int) -> None:
 # (``0:     1`` -> ``0:8    1``) that no reader could tell from a written one.
 @given(specs(max_digits=400, min_digits=8), st.integers(0, 2**32))
 def test_mutated_file_is_refused_or_read_where_it_was_hit(spec: Spec, seed: int) -> None:
+    # Digits like 00000000 are a valid label themselves: a damaged label beside them makes another
+    # valid file.  Real digit strings have more than two distinct digits.
+    assume(len(set(spec.digits)) > 2)
     judge(spec, seed)
 
 

@@ -142,8 +142,8 @@ class LabelSyntax:
             line = rb"[ \t]*(" + lab + rb")" + sep
             bulk = rb"\n[ \t]*(" + lab + rb")" + sep
         else:
-            line = sep + rb"(" + lab + rb")[ \t]*\r?\Z"
-            bulk = sep + rb"(" + lab + rb")[ \t]*(?=\r?$)"
+            line = sep + rb"(" + lab + rb")[ \t\r]*\Z"
+            bulk = sep + rb"(" + lab + rb")[ \t]*(?=\r*$)"
         object.__setattr__(self, "_line", re.compile(line))
         object.__setattr__(self, "_bulk", re.compile(bulk, re.M))
 
@@ -372,6 +372,10 @@ def _parse(syntax: LabelSyntax | None, lines: list[tuple[int, bytes]], first: in
     return out
 
 
+def _has_label(p: _Parse) -> bool:
+    return p.bad_at < 0 and any(lab is not None for _, lab, _, _ in p.labels)
+
+
 def _blank_beside_mark(syntax: LabelSyntax, text: bytes) -> bool:
     """True when the first line's label separator has a blank on the digits' side of its mark."""
     rx: re.Pattern[bytes] = LabelSyntax(syntax.where, syntax.radix, "mark")._line  # type: ignore[attr-defined]
@@ -429,6 +433,8 @@ def _score(p: _Parse, forced: bool = False) -> None:
         # A label on a line alone must say what such a label says (0, 1 or the line's count) and
         # be set off from the digits by a blank as well: one damaged byte cannot make both.
         p.ok = p.agree >= 1 and (p.syntax.sep == "blank" or p.first_blank_sep)
+        if not p.ok:
+            return
     p.labelled = p.ok
     if p.first_only:
         return
@@ -538,7 +544,7 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
             "is a digit line (expected hex or decimal digits after an optional header)"
         )
     line_off, line = lines[first]
-    if first and first + 1 < len(lines):
+    if first:
         _check_merged_header(lines, first, name)
     ends_in_newline = line_off + len(line) < len(head)
     long_line = len(line) > MAX_FIRST_LINE or not ends_in_newline and not eof
@@ -555,6 +561,8 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
         # Only the head of a very long line is here; the pass validates the rest.
         cut = len(line)
         examined = [(line_off, line[:cut])]
+    if base == 10:  # hex labels are byte offsets of hex digits
+        syntaxes = [s for s in syntaxes if s is None or s.radix == 10]
     parses = [_parse(s, examined, first) for s in syntaxes]
     for p in parses:
         if p.ok and p.syntax is not None:
@@ -569,6 +577,15 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
                         _score(q)
                         if q.steps_ok and q.log_chance <= AMBIGUOUS_LOG_CHANCE:
                             p.ok = p.labelled = False
+    sides = {p.syntax.where for p in parses if p.syntax and p.syntax.sep == "mark" and _has_label(p)}
+    if len(sides) == 2 and max(len(p.labels) for p in parses if p.bad_at < 0) <= 1:
+        # One line with ':' or '|' beside a short number at both ends: which is the label is a guess.
+        raise AmbiguousLayoutError(
+            f"{name}: the layout is ambiguous: the one digit line could carry its label at the start or "
+            "at the end; say where the labels are",
+            "labels",
+            ("start", "end"),
+        )
     chosen = _choose(parses, labels, name, examined)
     syntax = chosen.syntax
     first_label = first_label_text = None
@@ -690,6 +707,17 @@ def _check_merged_header(lines: list[tuple[int, bytes]], first: int, name: str) 
     digit line part of the header, and every position after it would shift.
     """
     last = lines[first - 1][1].rstrip(b" \t\r")
+    body = last.lstrip(b" \t")
+    rest = body[1:]
+    if (
+        body.startswith(b"#")
+        and not rest.translate(None, HEX + b". \t")
+        and rest.translate(None, DEC) != rest
+    ):
+        raise DigitFileError(
+            f"{name}: line {first} is a comment that holds only digits, just before the digits: "
+            "a '#' may have been typed over a digit line"
+        )
     m = _TRAILING_DIGITS.search(last)
     run = len(m.group().translate(None, b" \t.")) if m else 0
     width = len(lines[first][1].translate(None, b" \t\r."))

@@ -197,5 +197,6 @@ def one_input(rng: random.Random, tally: Tally, directory: str, mutate: bool) ->
         tally.bad(
             "misreads",
             f"{kind} at byte {a} (chars {lo}:{hi}, +{inserted}): got {got[:60]!r} want {w.full[:60]!r} "
-            f"content {content[:160]!r}",
+            f"content {content[:160]!r} near the mutation {content[max(0, a - 80) : a + 80]!r} "
+            f"got there {got[max(0, lo - 40) : lo + 40]!r} want there {w.full[max(0, lo - 40) : lo + 40]!r}",
         )
