@@ -150,6 +150,7 @@ def digits(
         ESTIMATE_SHOWN_SECONDS,
         TermProgress,
         estimate_line,
+        full_evaluation_line,
         infeasible_line,
         interrupted_line,
         show_digits,
@@ -158,6 +159,17 @@ def digits(
     _load_formula_files(formula_file)
     check_request(at, count)
     const = get_constant(constant)
+    if const.evaluation is not None:  # no digit-extraction formula: evaluated in full
+        if cross_check_ or checkpoint is not None or cluster is not None:
+            raise UsageError(
+                f"{const.name} is evaluated in full, not by digit extraction: "
+                "--cross-check, --checkpoint and --cluster do not apply"
+            )
+        result = extract(const.name, at, count)
+        if not (quiet or as_json):
+            info_line(full_evaluation_line(result))
+        show_digits(result, None, as_json=as_json, quiet=quiet)
+        return
     keys = [f.key for f in const.formulas] if cross_check_ else [const.formula(formula).key]
     if cross_check_ and len(keys) < 2:
         raise typer.BadParameter(
@@ -649,7 +661,7 @@ def compare(
         )
     repeat = _repeat(
         "compare",
-        file_a,
+        str(file_a),
         constant=constant,
         base=base,
         formula=formula,

@@ -160,6 +160,14 @@ def terms_summary(result: DigitResult) -> str:
     )
 
 
+def full_evaluation_line(result: DigitResult) -> str:
+    """Say that digits of a constant with no extraction formula come from a full evaluation."""
+    return (
+        f"{result.constant} has no digit-extraction formula: these digits come from a full evaluation "
+        f"({result.formula_notation}) of every digit up to position {result.position + result.count - 1:,}"
+    )
+
+
 def show_digits(
     result: DigitResult,
     cross: list[DigitResult] | None,
