@@ -550,7 +550,10 @@ def test_sigkill_campaign_gives_the_1997_table_digits(tmp_path: Path) -> None:
     # position 10^7 -> 17AF5863EFED8D).
     path = tmp_path / "cp.journal"
     rng_kills = 24
-    kills, last = kill_campaign(path, 10**7, "bbp", 1 << 15, kills=rng_kills, delay=0.0, spread=12)
+    # Each block is slowed by 10 ms in the child: the SIMD kernel finishes a
+    # block of 2^15 values of k in about a millisecond, faster than the parent
+    # can aim a kill between reports.
+    kills, last = kill_campaign(path, 10**7, "bbp", 1 << 15, kills=rng_kills, delay=0.01, spread=12)
     assert kills >= 20
     assert len(set(LEVELS)) >= 15  # the kills fell all along the run, not in one place
     assert last[1] == "17AF5863EFED8D"
