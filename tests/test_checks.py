@@ -258,3 +258,25 @@ def test_locate_interrupted_keeps_what_bisection_found(workdir, truth, monkeypat
     assert loc.verdict == "mismatch" and loc.exit_code == 1
     assert not loc.first_is_certain  # not confirmed as the first
     assert "not ruled out" in loc.explanation and loc.expected and loc.expected != loc.found
+
+
+def test_map_of_a_full_comparison_marks_every_wrong_run(tmp_path: Path) -> None:
+    # Digits from MPFR (tests/reference.py); one isolated wrong digit and a
+    # wrong stretch from 60% to the end: the map must draw both as differing
+    # and every other cell as checked, since verify compared every digit.
+    from spotcheck.report.checks import MAP_MATCH, MAP_MISMATCH, file_map
+
+    n, width = 20_000, 50
+    digits = list(pi_hex(n))
+    digits[1500] = "0" if digits[1500] != "0" else "1"
+    for i in range(12_000, n):
+        digits[i] = format((int(digits[i], 16) + 1) % 16, "X")
+    result = verify_file(str(write_hex(tmp_path, "".join(digits))), samples=0, seed=1)
+    assert result.exhaustive and result.wrong_runs == 2
+    assert result.wrong_spans == [(1501, 1501), (12_001, n)]
+    cells, _ = file_map(result, width)
+    cell = lambda p: (p - 1) * width // n  # noqa: E731
+    assert cells[cell(1501)] == MAP_MISMATCH
+    assert set(cells[cell(12_001) :]) == {MAP_MISMATCH}
+    assert set(cells[: cell(1501)]) == {MAP_MATCH}
+    assert set(cells[cell(1501) + 1 : cell(12_001)]) == {MAP_MATCH}

@@ -124,6 +124,7 @@ def verify_full(
         reference="arb",
         wrong_digits=scan.wrong_digits,
         wrong_runs=scan.runs_total,
+        wrong_spans=[(r.start, r.start + r.length - 1) for r in scan.runs],
     )
 
 

@@ -191,6 +191,8 @@ class VerifyResult(_Common):
     """Wrong digits the full comparison found (None when none ran)."""
     wrong_runs: int | None = None
     """Runs of wrong digits the full comparison found (None when none ran)."""
+    wrong_spans: list[tuple[int, int]] = field(default_factory=list)
+    """``(first, last)`` of the wrong runs the full comparison listed (for the map)."""
     first_wrong_bracket: tuple[int, int] | None = None
     """Decimal files: the first wrong decimal digit lies in ``lo..hi`` (from the prefixes checked)."""
     rounded_from: int | None = None

@@ -172,6 +172,7 @@ def _verify_hex(
         progress,
     )
     full_through, wrong, runs, evaluations = 0, None, None, oracle.evaluations
+    spans: list[tuple[int, int]] = []
     if full_reference is not None and not interrupted:
         from .scan import scan_open
 
@@ -179,6 +180,7 @@ def _verify_hex(
         interrupted = scan.interrupted
         full_through, wrong, evaluations = scan.digits_compared, scan.wrong_digits, evaluations + 1
         runs = scan.runs_total
+        spans = [(r.start, r.start + r.length - 1) for r in scan.runs]
         for run in scan.runs[:1]:
             checks.append(
                 WindowCheck(
@@ -206,4 +208,5 @@ def _verify_hex(
         reference=full_reference,
         wrong_digits=wrong,
         wrong_runs=runs,
+        wrong_spans=spans,
     )

@@ -181,6 +181,9 @@ def file_map(result: CheckResult, width: int) -> tuple[str, list[tuple[int, int,
     def cell(position: int) -> int:
         return min(width - 1, max(0, (position - 1) * width // n))
 
+    if result.full_through:  # every digit 1..full_through was compared with a full computation
+        for i in range(cell(1), cell(result.full_through) + 1):
+            cells[i], styles[i] = MAP_MATCH, STYLE_OK
     damage_from: int | None = None
     damage_to = n
     if isinstance(result, LocateResult) and result.first_mismatch is not None:
@@ -191,12 +194,12 @@ def file_map(result: CheckResult, width: int) -> tuple[str, list[tuple[int, int,
         for i in range(cell(damage_from), cell(damage_to) + 1):
             cells[i], styles[i] = MAP_DAMAGE, STYLE_BAD
     if isinstance(result, ScanResult):
-        if result.digits_compared:
-            for i in range(cell(1), cell(result.digits_compared) + 1):
-                cells[i], styles[i] = MAP_MATCH, STYLE_OK
-        for run in result.runs:
-            for i in range(cell(run.start), cell(run.start + run.length - 1) + 1):
-                cells[i], styles[i] = MAP_MISMATCH, STYLE_BAD
+        wrong = [(run.start, run.start + run.length - 1) for run in result.runs]
+    else:
+        wrong = getattr(result, "wrong_spans", [])
+    for first, last in wrong:
+        for i in range(cell(first), cell(last) + 1):
+            cells[i], styles[i] = MAP_MISMATCH, STYLE_BAD
     for c in result.checks:
         if c.position < 1:
             continue
