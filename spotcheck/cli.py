@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import os
 import sys
+from collections.abc import Callable
 from pathlib import Path
 from typing import Annotated, Any
 
@@ -357,6 +358,19 @@ def _as_typed(message: str) -> str:
     return message
 
 
+def _estimate_printer(silent: bool) -> Callable[[Any], None]:
+    """Say what a check's deepest window will cost, when that is worth saying."""
+
+    def say(est: Any) -> None:
+        from spotcheck.report.console import info_line
+        from spotcheck.report.digits import ESTIMATE_SHOWN_SECONDS, window_estimate_line
+
+        if not silent and est.cpu_seconds >= ESTIMATE_SHOWN_SECONDS:
+            info_line(window_estimate_line(est))
+
+    return say
+
+
 def _hint(exc: Exception) -> str:
     """The option that resolves a library error, named the way the user types it."""
     parameter = getattr(exc, "parameter", None) or getattr(exc, "choice", None)
@@ -368,6 +382,8 @@ def _hint(exc: Exception) -> str:
         "at": " (--at)",
         "labels": " (--labels start|end|none)",
     }
+    if getattr(exc, "hint", None) == "cluster":  # an infeasible request (InfeasibleError)
+        return "; running the head sum on a Dask cluster (--cluster ADDRESS) would make it feasible"
     return hints.get(parameter or "", "")
 
 
@@ -485,6 +501,7 @@ def verify(
     with progress_bar("verify", enabled=not (quiet or as_json)) as cb:
         result = verify_file(
             str(file),
+            on_estimate=_estimate_printer(quiet or as_json),
             base=_base(base),
             constant=constant,
             formula=formula,
@@ -538,6 +555,7 @@ def locate(
     with progress_bar("locate", enabled=not (quiet or as_json)) as cb:
         result = locate_file(
             str(file),
+            on_estimate=_estimate_printer(quiet or as_json),
             base=_base(base),
             constant=constant,
             formula=formula,

@@ -5,14 +5,15 @@ from __future__ import annotations
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, TypeVar
 
 from spotcheck.digitfile import DigitFile, open_digit_file
-from spotcheck.engine.api import extract, leading_digits
+from spotcheck.engine.api import estimate_cost, extract, leading_digits, refuse_if_infeasible
+from spotcheck.engine.plan import CostEstimate
 from spotcheck.errors import UsageError
 from spotcheck.formulas import get_constant
 
-from .results import FileFacts, LabelFinding, WindowCheck
+from .results import FileFacts, LabelFinding, LocateResult, VerifyResult, WindowCheck
 
 Progress = Callable[[int, int], None]
 Plan = list[tuple[str, int]]
@@ -130,6 +131,8 @@ class CheckRun:
     df: DigitFile
     facts: FileFacts
     oracle: HexOracle
+    estimate: CostEstimate | None = None
+    """What the deepest engine window (the tail's) costs, for hex files of a formula constant."""
 
     def __enter__(self) -> CheckRun:
         return self
@@ -150,8 +153,14 @@ def open_run(
     workers: int = 1,
     cluster: Any = None,
     checkpoint: bool | str = False,
+    on_estimate: Callable[[CostEstimate], None] | None = None,
 ) -> CheckRun:
-    """Open a file for a check (:func:`open_checked`) with an oracle for its constant and formula."""
+    """Open a file for a check (:func:`open_checked`) with an oracle for its constant and formula.
+
+    For a hex file the cost of its deepest window (the tail's) is estimated
+    before any work and handed to ``on_estimate``; a file whose tail cannot
+    be evaluated in any reasonable time is refused (:class:`InfeasibleError`).
+    """
     df, facts = open_checked(
         path,
         base=base,
@@ -162,7 +171,47 @@ def open_run(
         labels=labels,
     )
     oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, checkpoint=checkpoint)
-    return CheckRun(df, facts, oracle)
+    try:
+        estimate = tail_estimate(
+            facts, workers=workers, cluster=cluster is not None, checkpoint=bool(checkpoint)
+        )
+    except BaseException:
+        df.close()
+        raise
+    if estimate is not None and on_estimate is not None:
+        on_estimate(estimate)
+    return CheckRun(df, facts, oracle, estimate)
+
+
+ResultT = TypeVar("ResultT", VerifyResult, LocateResult)
+
+
+def with_estimate(run: CheckRun, result: ResultT) -> ResultT:
+    """``result`` with the run's tail-window estimate attached (for the JSON report)."""
+    if run.estimate is not None:
+        result.tail_estimate = run.estimate.to_dict()
+    return result
+
+
+def tail_estimate(facts: FileFacts, *, workers: int, cluster: bool, checkpoint: bool) -> CostEstimate | None:
+    """The cost of a hex file's deepest engine window (its tail), or None where no engine window runs.
+
+    Raises :class:`InfeasibleError` (carrying the estimate) when that window
+    cannot finish.
+    """
+    if facts.base != 16 or get_constant(facts.constant).evaluation is not None:
+        return None
+    est = estimate_cost(
+        facts.constant,
+        max(1, facts.checked - 15),
+        16,
+        formula=facts.formula,
+        workers=workers,
+        cluster=cluster,
+        checkpoint=checkpoint,
+    )
+    refuse_if_infeasible(est, facts.constant)
+    return est
 
 
 def first_difference(expected: str, found: str, position: int) -> int | None:

@@ -3,12 +3,22 @@
 from __future__ import annotations
 
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
 from spotcheck.digitfile import DigitFile
+from spotcheck.engine.plan import CostEstimate
 
-from .common import DEFAULT_WINDOW, HexOracle, Progress, clamp_window, common_rows, open_run
+from .common import (
+    DEFAULT_WINDOW,
+    HexOracle,
+    Progress,
+    clamp_window,
+    common_rows,
+    open_run,
+    with_estimate,
+)
 from .full import is_full, locate_full
 from .results import FileFacts, LocateResult, WindowCheck
 from .scan import estimate_scan, scan_open
@@ -37,6 +47,7 @@ def locate_file(
     cluster: Any = None,
     checkpoint: bool | str = False,
     progress: Progress | None = None,
+    on_estimate: Callable[[CostEstimate], None] | None = None,
 ) -> LocateResult:
     """Find the first wrong digit of a digit file (1-based position), or say what was ruled out."""
     run = open_run(
@@ -50,6 +61,7 @@ def locate_file(
         workers=workers,
         cluster=cluster,
         checkpoint=checkpoint,
+        on_estimate=on_estimate,
     )
     df, facts, oracle = run.df, run.facts, run.oracle
     with run:
@@ -67,7 +79,7 @@ def locate_file(
                 oracle=oracle,
                 progress=progress,
             )
-        return _HexLocator(df, facts, window, budget, reference, oracle, progress).run()
+        return with_estimate(run, _HexLocator(df, facts, window, budget, reference, oracle, progress).run())
 
 
 def rest_after(checks: list[WindowCheck]) -> str | None:

@@ -197,6 +197,8 @@ class VerifyResult(_Common):
     """Decimal files: the first wrong decimal digit lies in ``lo..hi`` (from the prefixes checked)."""
     rounded_from: int | None = None
     """Decimal files: the wrong digits from this position to the end are the true ones rounded up."""
+    tail_estimate: dict[str, Any] | None = None
+    """The engine's cost estimate for the deepest window (hex files), made before any work."""
 
     @property
     def false_match_chance(self) -> float:
@@ -224,6 +226,7 @@ class VerifyResult(_Common):
             wrong_runs=self.wrong_runs,
             first_wrong_bracket=list(self.first_wrong_bracket) if self.first_wrong_bracket else None,
             rounded_from=self.rounded_from,
+            tail_estimate=self.tail_estimate,
         )
         return out
 
@@ -250,6 +253,8 @@ class LocateResult(_Common):
     """Decimal files, interrupted bisection: the first wrong digit lies in ``lo..hi``."""
     rounded_from: int | None = None
     """Decimal files: the wrong digits from this position to the end are the true ones rounded up."""
+    tail_estimate: dict[str, Any] | None = None
+    """The engine's cost estimate for the deepest window (hex files), made before any work."""
 
     @property
     def verdict(self) -> str:
@@ -278,6 +283,7 @@ class LocateResult(_Common):
             first_is_certain=self.first_is_certain,
             first_wrong_bracket=list(self.first_wrong_bracket) if self.first_wrong_bracket else None,
             rounded_from=self.rounded_from,
+            tail_estimate=self.tail_estimate,
         )
         return out
 

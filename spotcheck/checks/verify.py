@@ -5,10 +5,11 @@ from __future__ import annotations
 import random
 import secrets
 import time
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from typing import Any
 
 from spotcheck.digitfile import DigitFile
+from spotcheck.engine.plan import CostEstimate
 from spotcheck.errors import UsageError
 
 from .common import (
@@ -20,6 +21,7 @@ from .common import (
     needs,
     open_run,
     run_plan,
+    with_estimate,
 )
 from .full import is_full, verify_full
 from .results import FileFacts, VerifyResult, WindowCheck
@@ -58,6 +60,7 @@ def verify_file(
     cluster: Any = None,
     checkpoint: bool | str = False,
     progress: Progress | None = None,
+    on_estimate: Callable[[CostEstimate], None] | None = None,
 ) -> VerifyResult:
     """Check a digit file: every digit when a full comparison fits ``budget`` seconds, else windows.
 
@@ -88,6 +91,7 @@ def verify_file(
         workers=workers,
         cluster=cluster,
         checkpoint=checkpoint,
+        on_estimate=on_estimate,
     )
     df, facts, oracle = run.df, run.facts, run.oracle
     with run:
@@ -111,17 +115,20 @@ def verify_file(
                 progress=progress,
             )
         full = _full_fits(facts, reference, budget)
-        return _verify_hex(
-            df,
-            facts,
-            samples,
-            seed,
-            at,
-            window,
-            sample_seconds,
-            oracle,
-            progress,
-            reference if full else None,
+        return with_estimate(
+            run,
+            _verify_hex(
+                df,
+                facts,
+                samples,
+                seed,
+                at,
+                window,
+                sample_seconds,
+                oracle,
+                progress,
+                reference if full else None,
+            ),
         )
 
 

@@ -52,6 +52,11 @@ def estimate_line(est: CostEstimate, formula: str) -> str:
     )
 
 
+def window_estimate_line(est: CostEstimate) -> str:
+    """The cost of a check's deepest engine window, said before the check starts."""
+    return f"deepest window (position {est.position:,}): " + estimate_line(est, "tail").split(": ", 1)[1]
+
+
 def infeasible_line(message: str, hint: str | None) -> str:
     """The refusal of a position beyond reach, with what would make it feasible (CLI wording)."""
     if hint == "cluster":
