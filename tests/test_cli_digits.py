@@ -3,12 +3,17 @@
 from __future__ import annotations
 
 import json
+import os
+import signal
 import subprocess
 import sys
+import time
+from pathlib import Path
 
 import pytest
 
 from spotcheck.cli import run
+from spotcheck.engine import backend
 
 from .reference import pi_hex
 
@@ -136,3 +141,113 @@ def test_cluster_without_dask_says_how_to_install(capsys, monkeypatch) -> None:
     monkeypatch.setattr(builtins, "__import__", no_dask)
     code, _, err = cli(capsys, "digits", "pi", "--at", "1000", "--cluster", "tcp://127.0.0.1:9")
     assert code == 2 and "spotcheck[cluster]" in err
+
+
+# --- deep positions: the estimate, refusals, faults (issue 13) ---------------------------
+
+ENV = {**os.environ, "PYTHONPATH": str(Path(__file__).resolve().parents[1])}
+
+
+def rss_mib(pid: int) -> float:
+    with open(f"/proc/{pid}/status", encoding="ascii") as fh:
+        for line in fh:
+            if line.startswith("VmRSS:"):
+                return int(line.split()[1]) / 1024
+    raise AssertionError("no VmRSS")
+
+
+def test_position_1e15_starts_at_once_in_bounded_memory() -> None:
+    # The head has 4 * 10^14 values of k; nothing may be built up front.
+    t0 = time.monotonic()
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "spotcheck", "digits", "pi", "--at", "1000000000000000", "--count", "8"],
+        env=ENV,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+    )
+    try:
+        assert proc.stderr is not None
+        first = proc.stderr.readline()
+        started_in = time.monotonic() - t0
+        assert first.startswith("estimate [bellard]: "), first
+        assert "2,800,000,000,000,000 head terms" in first and "CPU time" in first
+        if backend.BACKEND == "c":
+            assert "path: compiled kernel" in first
+            time.sleep(1.0)  # running: its memory stays small
+            assert proc.poll() is None
+            assert rss_mib(proc.pid) < 200
+        else:  # the twin's estimate for 10^15 is close to the refusal limit; either is an answer
+            proc.wait(timeout=30)
+        assert started_in < 2.0 + 1.0  # 2 s, with room for a loaded machine's process start
+    finally:
+        if proc.poll() is None:
+            proc.send_signal(signal.SIGTERM)
+            proc.wait(timeout=30)
+    if backend.BACKEND == "c":
+        assert proc.returncode == 130
+        rest = proc.stderr.read()
+        assert "interrupted: " in rest and "Traceback" not in rest
+
+
+@pytest.mark.parametrize("position", [str(2**63), "1" + "0" * 30])
+def test_position_beyond_reach_is_refused_with_the_estimate(capsys, position: str) -> None:
+    code, out, err = cli(capsys, "digits", "pi", "--at", position, "--count", "8")
+    assert code == 2 and out == ""
+    lines = err.splitlines()
+    assert lines[0].startswith("estimate [bellard]: ") and "years of CPU time" in lines[0]
+    assert "exceeds the kernel's 64-bit limit" in lines[0]  # the path taken, and why
+    errors = [ln for ln in lines if ln.startswith("error:")]
+    assert len(errors) == 1 and errors[0] == lines[-1] and "out of reach" in errors[0]
+    assert "core-years" in errors[0] and "Traceback" not in err
+
+
+def test_refusal_names_the_cluster_when_it_would_help(capsys) -> None:
+    code, _, err = cli(capsys, "digits", "pi", "--at", str(10**17), "--count", "8")
+    assert code == 2
+    assert "--cluster" in err.splitlines()[-1]
+
+
+def test_estimate_in_json(capsys) -> None:
+    code, out, _ = cli(capsys, "digits", "pi", "--at", "100000", "--count", "8", "--json")
+    assert code == 0
+    est = json.loads(out)["estimate"]
+    assert est["path"] in ("compiled", "twin") and est["cpu_seconds"] > 0 and est["feasible"] is True
+    # bellard: scale 2^-6, base 2^10, 7 non-zero coefficients: k <= (4 (p - 1) - 6) / 10
+    assert est["terms"] == 7 * ((4 * (100000 - 1) - 6) // 10 + 1)
+
+
+def test_cluster_unreachable_is_one_line_and_nothing_after() -> None:
+    pytest.importorskip("distributed")
+    t0 = time.monotonic()
+    proc = subprocess.run(
+        [sys.executable, "-m", "spotcheck", "digits", "pi", "--at", "100", "--cluster", "not-an-address"],
+        env=ENV,
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+    assert proc.returncode == 2 and proc.stdout == ""
+    assert proc.stderr.splitlines() == [proc.stderr.splitlines()[0]]  # exactly one line
+    assert proc.stderr.startswith("error: cannot reach the Dask scheduler at not-an-address")
+    assert time.monotonic() - t0 < 15  # no late traceback after a 20 s close timeout
+
+
+def test_resumed_summary_counts_computed_and_loaded_apart(capsys, tmp_path) -> None:
+    ckpt = tmp_path / "run.journal"
+    code, out, _ = cli(capsys, "digits", "pi", "--at", "200000", "--count", "14", "--checkpoint", str(ckpt))
+    assert code == 0 and "loaded" not in out
+    lines = ckpt.read_bytes().split(b"\n")
+    blocks = [i for i, line in enumerate(lines) if line.startswith(b'{"block"')]
+    del lines[blocks[0]]  # forget one block: it is computed again, the others loaded
+    ckpt.write_bytes(b"\n".join(lines))
+    code, out, _ = cli(capsys, "digits", "pi", "--at", "200000", "--count", "14", "--checkpoint", str(ckpt))
+    assert code == 0 and out.splitlines()[0] == hex_digits_reference(200_000, 14)
+    summary = out.splitlines()[2]
+    assert " computed in " in summary and " loaded from the checkpoint " in summary
+    code, out, _ = cli(
+        capsys, "digits", "pi", "--at", "200000", "--count", "14", "--checkpoint", str(ckpt), "--json"
+    )
+    payload = json.loads(out)
+    assert payload["terms_loaded"] == payload["terms"] - payload["terms_computed"] > 0
+    assert payload["blocks_computed"] == 0 and payload["checkpoint"] == str(ckpt)
