@@ -6,6 +6,7 @@ code 2; a certified mismatch is exit code 1; all-match is 0.
 
 from __future__ import annotations
 
+import math
 import os
 import sys
 from collections.abc import Callable
@@ -358,6 +359,13 @@ def _as_typed(message: str) -> str:
     return message
 
 
+def _seconds(value: float | None) -> float | None:
+    """A time budget: a finite number of seconds, zero or more (nan and inf never end or mean nothing)."""
+    if value is not None and not (math.isfinite(value) and value >= 0):
+        raise typer.BadParameter(f"must be a finite number of seconds, zero or more (got {value})")
+    return value
+
+
 def _estimate_printer(silent: bool) -> Callable[[Any], None]:
     """Say what a check's deepest window will cost, when that is worth saying."""
 
@@ -464,6 +472,7 @@ def verify(
         typer.Option(
             "--budget",
             metavar="SECONDS",
+            callback=_seconds,
             help="Compare every digit with a full computation when its estimate fits SECONDS "
             "(0: windows only); beyond it, sample windows.",
         ),
@@ -471,7 +480,10 @@ def verify(
     sample_seconds: Annotated[
         float | None,
         typer.Option(
-            "--sample-seconds", metavar="SECONDS", help="Keep drawing random windows for this many seconds."
+            "--sample-seconds",
+            metavar="SECONDS",
+            callback=_seconds,
+            help="Keep drawing random windows for this many seconds.",
         ),
     ] = None,
     reference: ReferenceOpt = "arb",
@@ -529,7 +541,13 @@ def locate(
     ctx: typer.Context,
     file: FileArg,
     budget: Annotated[
-        float, typer.Option("--budget", help="Seconds a full comparison may take when the tail matches.")
+        float,
+        typer.Option(
+            "--budget",
+            metavar="SECONDS",
+            callback=_seconds,
+            help="Seconds a full comparison may take when the tail matches (0: none).",
+        ),
     ] = 180.0,
     reference: ReferenceOpt = "arb",
     window: WindowOpt = 16,

@@ -48,3 +48,13 @@ def test_a_tail_beyond_reach_is_refused_before_any_work(
     errors = [ln for ln in captured.err.splitlines() if ln.startswith("error:")]
     assert captured.out == "" and len(errors) == 1
     assert "--cluster" in errors[0] and "Traceback" not in captured.err
+
+
+@pytest.mark.parametrize("command", ["verify", "locate"])
+@pytest.mark.parametrize("value", ["nan", "inf", "-inf", "-1"])
+def test_budget_takes_only_finite_seconds(
+    command: str, value: str, pi_file: str, capsys: pytest.CaptureFixture[str]
+) -> None:
+    assert run([command, pi_file, "--budget", value]) == 2
+    err = capsys.readouterr().err
+    assert "finite number of seconds" in err and "Traceback" not in err
