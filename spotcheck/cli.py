@@ -729,8 +729,9 @@ def run(argv: list[str] | None = None) -> int:
     args = list(sys.argv[1:] if argv is None else argv)
     if not args:
         args = ["--help"]  # bare `spotcheck`: the help, exit 0
-    if args and args[0] in ("digits", "verify", "locate", "scan"):
+    if args and args[0] in ("digits", "verify", "locate", "scan", "compare"):
         _warn_if_no_kernel()
+    previous = _sigterm_as_interrupt()
     try:
         rv: Any = command.main(args=args, prog_name="spotcheck", standalone_mode=False)
     except SpotcheckError as exc:
@@ -753,7 +754,26 @@ def run(argv: list[str] | None = None) -> int:
             error_line("aborted")
             return 130
         raise
+    finally:
+        if previous is not None:
+            import signal
+
+            signal.signal(signal.SIGTERM, previous)
     return rv if isinstance(rv, int) else EXIT_OK
+
+
+def _sigterm_as_interrupt() -> Any:
+    """SIGTERM stops a command the way Ctrl-C does (it reports what it established); returns the old handler."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        return None
+
+    def on_term(signum: int, frame: Any) -> None:
+        raise KeyboardInterrupt
+
+    return signal.signal(signal.SIGTERM, on_term)
 
 
 def main() -> None:

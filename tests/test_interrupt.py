@@ -44,7 +44,7 @@ def files(tmp_path_factory) -> dict[str, Path]:
     return out
 
 
-def interrupted_run(*args: str) -> tuple[int, dict, float]:
+def interrupted_run(*args: str, sig: signal.Signals = signal.SIGINT) -> tuple[int, dict, float]:
     proc = subprocess.Popen(
         # one worker and MPFR (slower than Arb): the full computation surely lasts past the SIGINT
         [sys.executable, "-m", "spotcheck", *args, "--json", "--workers", "1", "--reference", "mpfr"],
@@ -56,7 +56,7 @@ def interrupted_run(*args: str) -> tuple[int, dict, float]:
     time.sleep(SETTLE)
     assert proc.poll() is None, "the run ended before it could be interrupted"
     t0 = time.perf_counter()
-    proc.send_signal(signal.SIGINT)
+    proc.send_signal(sig)
     out, err = proc.communicate(timeout=30)
     elapsed = time.perf_counter() - t0
     assert "Traceback" not in err, err
@@ -72,8 +72,9 @@ def test_scan_interrupted_in_the_reference_computation(files) -> None:
     assert payload["digits_compared"] == 0  # nothing was established
 
 
-def test_verify_interrupted_after_a_wrong_tail(files) -> None:
-    code, payload, elapsed = interrupted_run("verify", str(files["astray"]), "--seed", "1")
+@pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM], ids=["SIGINT", "SIGTERM"])
+def test_verify_interrupted_after_a_wrong_tail(files, sig: signal.Signals) -> None:
+    code, payload, elapsed = interrupted_run("verify", str(files["astray"]), "--seed", "1", sig=sig)
     assert elapsed < 2.0
     assert payload["interrupted"] and payload["verdict"] == "mismatch" and code == 1
     tail = next(c for c in payload["checks"] if c["kind"] == "tail")
