@@ -5,15 +5,12 @@ from __future__ import annotations
 from typing import Any
 
 from spotcheck.checks.compare import CompareResult
+from spotcheck.report.checks import plural
 from spotcheck.report.console import STYLE_BAD, STYLE_DIM, STYLE_OK, STYLE_WARN, emit_json, stdout_console
 
 MAX_TABLE_ROWS = 40
 
 _RIGHT = {"A": "A is right", "B": "B is right", "both wrong": "both wrong", None: "not arbitrated"}
-
-
-def _n(count: int, noun: str) -> str:
-    return f"{count:,} {noun}{'' if count == 1 else 's'}"
 
 
 def compare_payload(result: CompareResult, repeat: str) -> dict[str, Any]:
@@ -32,9 +29,11 @@ def keep_sentence(result: CompareResult) -> str:
         )
     if result.verdict == "incomplete":
         return f"INCOMPLETE  interrupted after {result.digits_compared:,} digits; no difference found so far"
-    what = f"{_n(result.runs_total, 'differing run')}, {_n(result.differing_digits, 'differing digit')}"
+    what = (
+        f"{plural(result.runs_total, 'differing run')}, {plural(result.differing_digits, 'differing digit')}"
+    )
     if result.extra is not None:
-        what += f"; {result.extra.longer} has {_n(result.extra.length, 'more digit')}"
+        what += f"; {result.extra.longer} has {plural(result.extra.length, 'more digit')}"
     if keep in ("A", "B"):
         path = result.a.path if keep == "A" else result.b.path
         return f"DIFFER  keep {keep} ({path}): it agrees with the certified digits wherever the copies differ ({what})"
@@ -79,7 +78,7 @@ def show_compare(result: CompareResult, repeat: str, *, as_json: bool, quiet: bo
     if result.shift is not None:
         sh = result.shift
         con.print(
-            f"shifted copies: {sh['missing_in']} lacks {_n(sh['digits'], 'digit')} that the other has (or the other "
+            f"shifted copies: {sh['missing_in']} lacks {plural(sh['digits'], 'digit')} that the other has (or the other "
             f"has extra ones) at or before position {sh['position']:,}; the comparison stops there",
             style=STYLE_WARN,
         )
@@ -114,7 +113,7 @@ def show_compare(result: CompareResult, repeat: str, *, as_json: bool, quiet: bo
     if e is not None:
         state = "right" if e.right else "wrong" if e.right is False else "not arbitrated"
         con.print(
-            f"{e.longer} is longer: {_n(e.length, 'extra digit')} from position {e.start:,} ({e.digits}...): {state}"
+            f"{e.longer} is longer: {plural(e.length, 'extra digit')} from position {e.start:,} ({e.digits}...): {state}"
             + (f"; {e.note}" if e.note else "")
         )
     if result.verdict != "identical":
@@ -125,6 +124,8 @@ def show_compare(result: CompareResult, repeat: str, *, as_json: bool, quiet: bo
         )
     timing = ""
     if result.arbitration_seconds:
-        timing = f", arbitration {sum(result.arbitration_seconds):.2f} s for {_n(len(result.arbitration_seconds), 'run')}"
-    con.print(f"{_n(result.evaluations, 'evaluation')} in {result.seconds:.2f} s{timing}", style=STYLE_DIM)
+        timing = f", arbitration {sum(result.arbitration_seconds):.2f} s for {plural(len(result.arbitration_seconds), 'run')}"
+    con.print(
+        f"{plural(result.evaluations, 'evaluation')} in {result.seconds:.2f} s{timing}", style=STYLE_DIM
+    )
     con.print(f"repeat: {repeat}", style=STYLE_DIM)
