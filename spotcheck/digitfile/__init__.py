@@ -20,6 +20,11 @@ decompressor; a read before the current point resumes gzip from the nearest
 checkpoint the pass kept (every 16 MiB of content) and restarts bzip2 and xz
 from the start, so read positions in increasing order (``iter_chunks`` does).
 
+:func:`open_stream` reads a file once from front to back instead: detection
+only at open, then the digits chunk by chunk, validated as they are read (the
+same errors and findings as the pass), with the count, findings and a
+:class:`DigitFile` for random access at the end.
+
 Positions follow the package convention: digit 1 is the first after the point.
 """
 
@@ -27,5 +32,15 @@ from __future__ import annotations
 
 from spotcheck.digitfile.model import Finding, InspectResult, Layout
 from spotcheck.digitfile.reader import DigitFile, inspect_file, open_digit_file
+from spotcheck.digitfile.stream import DigitStream, open_stream
 
-__all__ = ["open_digit_file", "DigitFile", "inspect_file", "InspectResult", "Layout", "Finding"]
+__all__ = [
+    "open_digit_file",
+    "open_stream",
+    "DigitFile",
+    "DigitStream",
+    "inspect_file",
+    "InspectResult",
+    "Layout",
+    "Finding",
+]

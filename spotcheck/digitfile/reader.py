@@ -320,15 +320,30 @@ def _open(
     progress: Progress | None,
     labels: str | None = None,
 ) -> DigitFile:
+    src, plan, head = detect_source(src, base, packed, labels)
+    if plan is None:
+        return _open_packed(src, head, base, constant, progress)
+    assert plan.base is not None
+    scan = build_index(src, plan, plan.base, strict_labels=strict_labels, progress=progress)
+    return text_digit_file(src, plan, scan, constant)
+
+
+def detect_source(
+    src: ByteSource, base: int | None, packed: bool | None, labels: str | None
+) -> tuple[ByteSource, Detection | None, bytes]:
+    """Detection alone: ``(source, detection, head)``; the detection is None for packed hex.
+
+    The source returned is the one every later read must use (a CR-only file is
+    seen with LF line breaks).  The read-and-check stream (``stream.py``) starts here too.
+    """
     name = os.path.basename(src.path)
     head = src.read_at(0, HEAD_BYTES)
     eof = len(head) < HEAD_BYTES
     if not head:
         what = f"its {src.compression} content is empty" if src.compression else "the file is empty"
         raise DigitFileError(f"{name}: {what}")
-    packed = packed_reading(head, src.path, packed)
-    if packed:
-        return _open_packed(src, head, base, constant, progress)
+    if packed_reading(head, src.path, packed):
+        return src, None, head
     cr_only = newline_of(head) == "\r"
     if cr_only:
         src = _CarriageReturns(src)  # type: ignore[assignment]
@@ -338,8 +353,13 @@ def _open(
         plan.newline = "\r"
     if plan.base is None:
         plan.base, plan.base_how = _resolve_base(plan)
+    return src, plan, head
+
+
+def text_digit_file(src: ByteSource, plan: Detection, scan: IndexResult, constant: str | None) -> DigitFile:
+    """The :class:`DigitFile` of a text file once its pass (``scan``) is done."""
     assert plan.base is not None
-    scan = build_index(src, plan, plan.base, strict_labels=strict_labels, progress=progress)
+    name = os.path.basename(src.path)
     src.check_unchanged()
     if scan.count == 0:
         raise DigitFileError(f"{name}: no digits after the radix point")

@@ -1,0 +1,591 @@
+"""Read a digit file once, front to back: its digits chunk by chunk, every byte checked on the way.
+
+:func:`open_digit_file` runs the index pass before the first read, so a caller
+that then streams the whole file (``compare``) reads every byte twice.  A
+:class:`DigitStream` does both in one read: it opens the file with detection
+only (the head), then yields the digits chunk by chunk while validating every
+byte exactly as the index pass does (a stray character is the same
+:class:`DigitFileError` naming byte offset, line and column; a label that
+disagrees is the same :class:`Finding`, or :class:`LabelError` with
+``strict_labels``), and builds the index on the way.  The count and the
+findings are known at the end of the stream; :meth:`DigitStream.finish` then
+hands over a :class:`DigitFile` with random access, no second pass needed.
+
+>>> import os, tempfile
+>>> path = os.path.join(tempfile.mkdtemp(), "pi.txt")
+>>> with open(path, "w") as f:
+...     _ = f.write("3.243F6A8885 A308D31319\\n8A2E037073 44A4093822\\n")
+>>> with open_stream(path) as s:
+...     (s.base, s.integer_part, s.take(8), len(s.take(100)), s.done)
+...     df = s.finish()
+(16, '3', b'243F6A88', 32, True)
+>>> with df:
+...     (df.count, df.constant, df.read(33, 8))
+(40, 'pi', 'A4093822')
+
+The inner loops are ``extract`` and ``extract_labelled`` of the optional C
+extension ``_index.c``; their Python twins ``extract_py`` and
+``extract_labelled_py`` below serve when it was not built or ``SPOTCHECK_PURE``
+is set.  Labelled lines are taken by the loop while each has the plain form of
+its layout and a label that agrees; any other line (a label that disagrees, a
+line without one, a stray byte) is read by the index pass's own line rule
+(``LabelSyntax.split_line`` and ``index._LabelCheck``), so findings and errors
+are those of the index pass.  A layout the loops do not know is read by the
+index pass first and then streamed (two reads, never a misreading).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+import re
+from array import array
+from collections.abc import Iterator
+from types import TracebackType
+
+from spotcheck.digitfile.charsets import WS, allowed_set, class_table, digit_set
+from spotcheck.digitfile.detect import Detection, LabelSyntax
+from spotcheck.digitfile.index import (
+    INDEX_STEP,
+    TAIL_DIGITS,
+    IndexResult,
+    _LabelCheck,
+    build_index,
+    stray_error,
+)
+from spotcheck.digitfile.reader import DigitFile, _open_packed, detect_source, text_digit_file
+from spotcheck.digitfile.source import ByteSource, open_source
+from spotcheck.errors import DigitFileError, UsageError
+
+__all__ = [
+    "DigitStream",
+    "open_stream",
+    "extract",
+    "extract_py",
+    "extract_labelled",
+    "extract_labelled_py",
+    "norm_table",
+    "STREAM_PASS",
+    "KIND",
+]
+
+# --- tuning -----------------------------------------------------------------
+STREAM_CHUNK_BYTES = 4 << 20  # bytes read and checked per step of the stream
+LABELLED_STREAM_CHUNK_BYTES = 2 << 20  # the same for labelled lines (a line must fit in it)
+# ---------------------------------------------------------------------------
+
+KIND = {"before": 0, "first": 1, "through": 2}
+"""The codes of ``LabelMeaning.kind`` the labelled loop takes."""
+
+# Detection fields this module reads or knows to be irrelevant to the digits.  A
+# field added later (a layout this stream does not know) that is set on a file sends
+# it through the index pass first (two reads, never a misreading).
+_KNOWN_FIELDS = frozenset(
+    "base base_how explicit_base integer_part header_lines first_line_no labels syntax meaning "
+    "first_label first_label_text digits_offset seg_end seg_cols seg_digits head_digits sample_digits "
+    "template newline letter_case whole_file_in_head notes".split()
+)
+
+
+def norm_table(base: int) -> bytes:
+    """A 256-byte table: each digit of ``base`` -> its upper-case form (other bytes unchanged)."""
+    table = bytearray(range(256))
+    if base == 16:
+        for c in b"abcdef":
+            table[c] = c - 32
+    return bytes(table)
+
+
+def extract_py(
+    data: bytes | memoryview,
+    table: bytes,
+    norm: bytes,
+    out: bytearray,
+    out_pos: int,
+    units: bytes | memoryview | None,
+) -> tuple[int, int, int, int]:
+    """Python twin of ``_index.extract``: ``(digits written, stray index or -1, LFs, regular)``."""
+    data = bytes(data)
+    if len(out) - out_pos < len(data) or (units is not None and len(units) < len(data)):
+        raise ValueError("out too short for the chunk's digits, or units shorter than data")
+    classes = data.translate(table)
+    stray = classes.find(b"?")
+    end = stray if stray >= 0 else len(data)
+    digits = data[:end].translate(norm, WS)
+    out[out_pos : out_pos + len(digits)] = digits
+    regular = -1 if units is None else int(classes[:end] == bytes(units[:end]))
+    return len(digits), stray, data.count(b"\n", 0, end), regular
+
+
+_PATTERNS: dict[tuple[int, int, int, int, int], re.Pattern[bytes]] = {}
+
+
+def _plain_line(base: int, where: int, sep: int, radix: int, most: int) -> re.Pattern[bytes]:
+    """The plain form of a labelled line (the lines the loops take; see ``parse_line`` in _index.c)."""
+    key = (base, where, sep, radix, most)
+    rx = _PATTERNS.get(key)
+    if rx is None:
+        lab = rb"([0-9]{1,%d})" % most if radix == 10 else rb"([0-9A-Fa-f]{1,%d})" % most
+        body = rb"([" + re.escape(digit_set(base)) + rb" \t]*)"
+        mark = rb"[ \t]*[:|][ \t]*"
+        if where == 0:
+            pat = rb"[ \t]*" + lab + (mark if sep == 0 else rb"[ \t]+") + body
+        elif sep == 0:
+            pat = body + mark + lab + rb"[ \t]*"
+        else:
+            pat = rb"([" + re.escape(digit_set(base)) + rb" \t]*[ \t])" + lab + rb"[ \t]*"
+        rx = _PATTERNS[key] = re.compile(pat)
+    return rx
+
+
+def extract_labelled_py(
+    data: bytes | memoryview,
+    table: bytes,
+    norm: bytes,
+    out: bytearray,
+    out_pos: int,
+    layout: tuple[int, int, int, int, int, int],
+    before: int,
+    offset: int,
+    line: int,
+    step: int,
+    last_index: int,
+) -> tuple[int, int, int, int, list[tuple[int, int, int]], int]:
+    """Python twin of ``_index.extract_labelled``:
+    ``(bytes consumed, digits written, lines, stop, index entries, last index offset)``."""
+    data = bytes(data)
+    where, sep, radix, most, kind, unit = layout
+    if (
+        len(out) - out_pos < len(data)
+        or where not in (0, 1)
+        or sep not in (0, 1)
+        or radix not in (10, 16)
+        or not 1 <= most <= (18 if radix == 10 else 16)
+        or kind not in (0, 1, 2)
+        or unit not in (1, 2)
+        or step < 1
+        or before < 0
+    ):
+        raise ValueError("extract_labelled: bad layout or buffer sizes")
+    base = 16 if table[ord("A")] == ord("d") else 10
+    rx = _plain_line(base, where, sep, radix, most)
+    lo, k, lines, pos, stop = 0, 0, 0, before, 0
+    entries: list[tuple[int, int, int]] = []
+    while lo < len(data):
+        nl = data.find(b"\n", lo)
+        if nl < 0:
+            stop = 0
+            break
+        text = data[lo:nl]
+        if text.endswith(b"\r"):
+            text = text[:-1]
+        if not text.strip(b" \t"):
+            label, body = None, b""
+        else:
+            m = rx.fullmatch(text)
+            if m is None:
+                stop = 1
+                break
+            body, label = (m.group(2), m.group(1)) if where == 0 else (m.group(1), m.group(2))
+        digits = body.translate(norm, b" \t")
+        nd = len(digits)
+        if label is not None:
+            c = pos + nd if kind == 2 else pos
+            if c % unit or int(label, radix) != c // unit + (kind == 1):
+                stop = 2
+                break
+        elif nd:
+            stop = 1
+            break
+        if nd:
+            if offset + lo - last_index >= step:
+                entries.append((pos + 1, offset + lo, line + lines))
+                last_index = offset + lo
+            out[out_pos + k : out_pos + k + nd] = digits
+            k += nd
+            pos += nd
+        lines += 1
+        lo = nl + 1
+    return lo, k, lines, stop, entries, last_index
+
+
+extract = extract_py
+extract_labelled = extract_labelled_py
+STREAM_PASS = "python"
+if os.environ.get("SPOTCHECK_PURE", "").strip().lower() not in ("1", "true", "yes", "on"):
+    try:
+        from spotcheck.digitfile._index import (  # type: ignore[import-not-found]
+            extract as _extract_c,
+        )
+        from spotcheck.digitfile._index import (
+            extract_labelled as _extract_labelled_c,
+        )
+    except ImportError:  # the optional extension was not built (or is older): the twins serve
+        pass
+    else:
+        extract, extract_labelled = _extract_c, _extract_labelled_c
+        STREAM_PASS = "c"
+
+
+def _most_label_chars(syntax: LabelSyntax) -> int | None:
+    """The most characters of a label, read off the syntax's own pattern (None: not the known shape)."""
+    rx: re.Pattern[bytes] = syntax._line  # type: ignore[attr-defined]
+    found = re.findall(rb"\]\{1,(\d+)\}\)", rx.pattern)
+    if len(found) != 1:
+        return None
+    most = int(found[0])
+    return most if 1 <= most <= (18 if syntax.radix == 10 else 16) else None
+
+
+def _streamable(plan: Detection) -> bool:
+    """True when the loops here read this layout exactly as the index pass does."""
+    for f in dataclasses.fields(plan):
+        if f.name not in _KNOWN_FIELDS and getattr(plan, f.name) not in (None, False, 0, "", [], ()):
+            return False
+    syntax = plan.syntax
+    if syntax is None:
+        return True
+    return (
+        type(syntax) is LabelSyntax
+        and syntax.where in ("start", "end")
+        and syntax.sep in ("mark", "blank")
+        and plan.meaning is not None
+        and plan.meaning.kind in KIND
+        and plan.meaning.unit in (1, 2)
+        and _most_label_chars(syntax) is not None
+    )
+
+
+class DigitStream:
+    """A digit file opened for one sequential read.  Use :func:`open_stream`.
+
+    Known at once: ``path``, ``size_bytes``, ``compression``, ``base``,
+    ``base_how``, ``integer_part``, ``head_digits``.  ``digits_read`` and
+    ``bytes_done`` grow as the stream is read; after the end, :meth:`finish`
+    gives the :class:`DigitFile` (count, findings, constant, random access).
+    """
+
+    def __init__(
+        self,
+        src: ByteSource,
+        *,
+        base: int | None = None,
+        constant: str | None = None,
+        packed: bool | None = None,
+        strict_labels: bool = False,
+        labels: str | None = None,
+    ) -> None:
+        self._src: ByteSource | None = src
+        self.path, self.size_bytes, self.compression = src.path, src.size_bytes, src.compression
+        self._constant, self._strict = constant, strict_labels
+        self._df: DigitFile | None = None
+        self._scan: IndexResult | None = None
+        self._buf, self._at = b"", 0
+        self.digits_read = 0
+        self._stored = 0
+        src, plan, head = detect_source(src, base, packed, labels)
+        self._src, self._plan = src, plan
+        if plan is None:  # packed hex: two digits per byte, nothing to validate
+            self._df = _open_packed(src, head, base, constant, None)
+            self.base, self.base_how, self.integer_part = 16, self._df.base_how, None
+            self.head_digits = head[:32].hex().upper()
+            self.how = "packed"
+            self._gen: Iterator[bytes] | None = self._from_file()
+            return
+        assert plan.base is not None
+        self.base, self.base_how, self.integer_part = plan.base, plan.base_how, plan.integer_part
+        self.head_digits = plan.head_digits.decode("ascii").upper()
+        if not _streamable(plan):
+            scan = build_index(src, plan, plan.base, strict_labels=strict_labels)
+            self._df = text_digit_file(src, plan, scan, constant)
+            self.how = "index pass, then read"
+            self._gen = self._from_file()
+        elif plan.syntax is None:
+            self.how = "read and checked in one pass"
+            self._gen = self._plain(plan)
+        else:
+            self.how = "read and checked in one pass (labelled lines)"
+            self._gen = self._labelled(plan)
+
+    # -- reading -------------------------------------------------------------
+    @property
+    def bytes_done(self) -> int:
+        """Bytes of the file as stored consumed so far (compressed bytes for a compressed file)."""
+        return self._stored
+
+    @property
+    def done(self) -> bool:
+        """True once every digit has been handed out."""
+        return self._gen is None and self._at >= len(self._buf)
+
+    def chunks(self) -> Iterator[bytes]:
+        """The remaining digits (upper-case ASCII bytes), chunk by chunk, in order."""
+        if self._at < len(self._buf):
+            rest, self._buf, self._at = self._buf[self._at :], b"", 0
+            self.digits_read += len(rest)
+            yield rest
+        while self._gen is not None:
+            try:
+                piece = next(self._gen)
+            except StopIteration:
+                self._gen = None
+                break
+            self.digits_read += len(piece)
+            yield piece
+
+    def take(self, n: int) -> bytes:
+        """The next ``n`` digits (fewer only at the end of the file)."""
+        have = len(self._buf) - self._at
+        if have < n:
+            parts = [self._buf[self._at :]]
+            while have < n and self._gen is not None:
+                try:
+                    piece = next(self._gen)
+                except StopIteration:
+                    self._gen = None
+                    break
+                parts.append(piece)
+                have += len(piece)
+            self._buf, self._at = b"".join(parts), 0
+        out = self._buf[self._at : self._at + n]
+        self._at += len(out)
+        self.digits_read += len(out)
+        return out
+
+    def drain(self) -> None:
+        """Read to the end without keeping the digits (the count, findings and index are then known)."""
+        for _ in self.chunks():
+            pass
+
+    def finish(self) -> DigitFile:
+        """The :class:`DigitFile` once every digit was read; it takes over the open file."""
+        if not self.done:
+            raise UsageError(f"{self.path}: finish() before the end of the stream")
+        if self._df is None:
+            assert self._plan is not None and self._scan is not None and self._src is not None
+            self._df = text_digit_file(self._src, self._plan, self._scan, self._constant)
+        df, self._df, self._src = self._df, None, None
+        if df is None:
+            raise UsageError(f"{self.path}: finish() was already called")
+        return df
+
+    # -- the passes ----------------------------------------------------------
+    def _from_file(self) -> Iterator[bytes]:
+        df = self._df
+        assert df is not None
+        for p, digits in df.iter_chunks(STREAM_CHUNK_BYTES):
+            self._stored = df.size_bytes * (p + len(digits) - 1) // df.count
+            yield digits.encode("ascii")
+
+    def _source(self) -> ByteSource:
+        if self._src is None:
+            raise UsageError(f"{self.path} is closed")
+        return self._src
+
+    def _plain(self, plan: Detection) -> Iterator[bytes]:
+        """Unlabelled text: every byte a digit or whitespace; regular while it follows the unit."""
+        src = self._source()
+        base = plan.base
+        assert base is not None
+        table, norm = class_table(base), norm_table(base)
+        d1 = len(plan.seg_digits)
+        tail = plan.seg_digits[-TAIL_DIGITS:].upper()
+        res = IndexResult(count=d1, regular=False, unit=None, unit_digits=0, unit_cols=[], region_start=plan.seg_end)
+        if d1:
+            yield plan.seg_digits.upper()
+        off, pos = plan.seg_end, d1
+        line = plan.first_line_no + (1 if plan.seg_end > plan.digits_offset else 0)
+        unit = plan.template
+        regular = bool(unit) and b"d" in unit and b"?" not in unit  # type: ignore[operator]
+        size = STREAM_CHUNK_BYTES
+        units = b""
+        if regular:
+            assert unit is not None
+            size = max(1, STREAM_CHUNK_BYTES // len(unit)) * len(unit)
+            units = unit * (size // len(unit))
+        out = bytearray(size)
+        uview = memoryview(units)
+        while True:
+            data = src.read_at(off, size)
+            if not data:
+                break
+            view = memoryview(data)
+            last = len(data) < size
+            k = 0
+            for i in range(0, len(data), INDEX_STEP):
+                blk = view[i : i + INDEX_STEP]
+                ask = uview[i : i + INDEX_STEP] if regular and not last else None
+                nd, stray, nl, ok = extract(blk, table, norm, out, k, ask)
+                if stray >= 0:
+                    at = off + i + stray
+                    raise stray_error(src, plan, base, at, data[i + stray])
+                if ok == 0:
+                    regular = False
+                if nd:
+                    res.index_pos.append(pos + k + 1)
+                    res.index_off.append(off + i)
+                    res.index_line.append(line)
+                k += nd
+                line += nl
+            if regular and last:
+                body = data.translate(table).rstrip(WS)
+                regular = body == units[: len(body)]
+            pos += k
+            off += len(data)
+            self._stored = src.stored_bytes_done(off)
+            if k:
+                digits = bytes(out[:k])
+                tail = (tail + digits[-TAIL_DIGITS:])[-TAIL_DIGITS:]
+                yield digits
+            if last:
+                break
+        src.check_unchanged()
+        res.count, res.last_digits, res.content_bytes = pos, tail, off
+        if regular:
+            assert unit is not None
+            res.regular, res.unit, res.unit_digits = True, unit, unit.count(b"d")
+            res.unit_cols = [i for i, c in enumerate(unit) if c == ord("d")]
+            res.index_pos, res.index_off, res.index_line = array("q"), array("q"), array("q")
+        self._scan = res
+
+    def _labelled(self, plan: Detection) -> Iterator[bytes]:
+        """Lines with position labels: the loop takes plain lines, the index pass's line rule the rest."""
+        src = self._source()
+        base, syntax, meaning = plan.base, plan.syntax, plan.meaning
+        assert base is not None and syntax is not None and meaning is not None
+        name = os.path.basename(src.path)
+        check = _LabelCheck(meaning, syntax, self._strict, name)
+        d1 = len(plan.seg_digits)
+        if plan.first_label_text is not None:
+            check.feed(plan.first_label_text.encode(), 0, d1, plan.first_line_no, plan.digits_offset)
+        elif d1:
+            check.no_label(plan.first_line_no, plan.digits_offset, 0)
+        res = IndexResult(count=d1, regular=False, unit=None, unit_digits=0, unit_cols=[], region_start=plan.seg_end)
+        tail = plan.seg_digits[-TAIL_DIGITS:].upper()
+        if d1:
+            yield plan.seg_digits.upper()
+        most = _most_label_chars(syntax)
+        assert most is not None
+        layout = (
+            0 if syntax.where == "start" else 1,
+            0 if syntax.sep == "mark" else 1,
+            syntax.radix,
+            most,
+            KIND[meaning.kind],
+            meaning.unit,
+        )
+        table, norm, allowed = class_table(base), norm_table(base), allowed_set(base)
+        off, pos, line = plan.seg_end, d1, plan.first_line_no + 1
+        last_index = -INDEX_STEP
+        size = LABELLED_STREAM_CHUNK_BYTES
+        out = bytearray(size)
+        while True:
+            data = src.read_at(off, size)
+            if not data:
+                break
+            if len(data) == size:
+                cut = data.rfind(b"\n") + 1
+                if cut == 0:
+                    raise DigitFileError(f"{name}: a labelled line at byte {off} is longer than {size} bytes")
+                data = data[:cut]
+            view = memoryview(data)
+            lo = k = 0
+            while lo < len(data):
+                used, nd, lines, _stop, entries, last_index = extract_labelled(
+                    view[lo:], table, norm, out, k, layout, pos, off + lo, line, INDEX_STEP, last_index
+                )
+                for p, o, ln in entries:
+                    res.index_pos.append(p)
+                    res.index_off.append(o)
+                    res.index_line.append(ln)
+                pos, k, line, lo = pos + nd, k + nd, line + lines, lo + used
+                if lo >= len(data):
+                    break
+                # One line the loop did not take: the index pass's own line rule reads it.
+                nl = data.find(b"\n", lo)
+                end = nl if nl >= 0 else len(data)
+                raw = data[lo:end]
+                label, b0, b1 = syntax.split_line(raw[:-1] if raw.endswith(b"\r") else raw)
+                body = raw[b0:b1]
+                bad = body.translate(None, allowed)
+                if bad:
+                    at = lo + b0 + body.find(bad[:1])
+                    raise stray_error(src, plan, base, off + at, data[at])
+                digits = body.translate(norm, WS)
+                if label is not None:
+                    check.feed(label, pos, len(digits), line, off + lo)
+                elif digits:
+                    check.no_label(line, off + lo, pos)
+                if digits:
+                    if off + lo - last_index >= INDEX_STEP:
+                        res.index_pos.append(pos + 1)
+                        res.index_off.append(off + lo)
+                        res.index_line.append(line)
+                        last_index = off + lo
+                    out[k : k + len(digits)] = digits
+                    k += len(digits)
+                    pos += len(digits)
+                if nl >= 0:
+                    line += 1
+                lo = end + 1
+            off += len(data)
+            self._stored = src.stored_bytes_done(off)
+            if k:
+                chunk = bytes(out[:k])
+                tail = (tail + chunk[-TAIL_DIGITS:])[-TAIL_DIGITS:]
+                yield chunk
+        src.check_unchanged()
+        res.findings = check.finish()
+        res.label_meaning = meaning.name
+        res.count, res.last_digits, res.content_bytes = pos, tail, off
+        self._scan = res
+
+    # -- life cycle ----------------------------------------------------------
+    def close(self) -> None:
+        """Close the file (a :class:`DigitFile` from :meth:`finish` keeps it open until its own close)."""
+        self._gen = None
+        if self._df is not None:
+            self._df.close()
+            self._df = None
+            self._src = None
+        if self._src is not None:
+            self._src.close()
+            self._src = None
+
+    def __enter__(self) -> DigitStream:
+        return self
+
+    def __exit__(
+        self, exc_type: type[BaseException] | None, exc: BaseException | None, tb: TracebackType | None
+    ) -> None:
+        self.close()  # after finish() the DigitFile owns the file: nothing left to close here
+
+    def __repr__(self) -> str:
+        return f"DigitStream({self.path!r}, base={self.base}, digits_read={self.digits_read})"
+
+
+def open_stream(
+    path: str | os.PathLike[str],
+    base: int | None = None,
+    constant: str | None = None,
+    *,
+    packed: bool | None = None,
+    strict_labels: bool = False,
+    labels: str | None = None,
+) -> DigitStream:
+    """Open a digit file read-only for one sequential read (detection only; no pass yet).
+
+    The arguments are those of :func:`open_digit_file`; the digits come from
+    :meth:`DigitStream.take` or :meth:`DigitStream.chunks`, checked as they are
+    read, and :meth:`DigitStream.finish` gives the :class:`DigitFile` at the end.
+    """
+    if base is not None and base not in (10, 16):
+        raise UsageError(f"base must be 10 or 16, got {base!r}")
+    if labels not in (None, "start", "end", "none"):
+        raise UsageError(f"labels must be start, end or none, got {labels!r}")
+    src = open_source(path)
+    try:
+        return DigitStream(src, base=base, constant=constant, packed=packed, strict_labels=strict_labels, labels=labels)
+    except BaseException:
+        src.close()
+        raise
