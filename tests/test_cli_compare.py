@@ -76,18 +76,32 @@ def test_missing_file_is_bad_input(tmp_path: Path, capsys) -> None:
 def test_ctrl_c_reports_what_was_established(tmp_path: Path, capsys, monkeypatch: pytest.MonkeyPatch) -> None:
     a, b = _pair(tmp_path)
     monkeypatch.setattr(cmp, "CHUNK_DIGITS", 1000)
-    calls = {"n": 0}
-    real = cmp.DigitFile.read
+    real = cmp.DigitStream.take
 
-    def interrupting(self, position: int, count: int) -> str:
-        calls["n"] += 1
-        if position > 2000 and count == 1000:
+    def interrupting(self, count: int) -> bytes:
+        if self.digits_read >= 2000 and count == 1000:
             raise KeyboardInterrupt
-        return real(self, position, count)
+        return real(self, count)
 
-    monkeypatch.setattr(cmp.DigitFile, "read", interrupting)
+    monkeypatch.setattr(cmp.DigitStream, "take", interrupting)
     code, out, _ = cli(capsys, "compare", a, b, "--json")
     payload = json.loads(out)
     jsonschema.validate(payload, COMPARE_SCHEMA)
     assert payload["interrupted"] is True and payload["digits_compared"] == 2000
     assert payload["runs"][0]["start"] == 1234 and payload["keep"] is None and code == 1
+    assert payload["a"]["layout"] == "interrupted before its end" and payload["a"]["count"] == 2000
+    code, out, _ = cli(capsys, "compare", a, b)
+    assert code == 1 and "interrupted" in out and "2,000 digits" in out
+
+
+def test_stray_byte_mid_file_is_one_error_line(tmp_path: Path, capsys) -> None:
+    a, _ = _pair(tmp_path)
+    c = tmp_path / "c.txt"
+    c.write_text("3.\n" + "\n".join(HEX[i : i + 64] for i in range(0, 3000, 64)) + "\n")
+    data = bytearray(c.read_bytes())
+    data[2500] = ord("z")
+    c.write_bytes(bytes(data))
+    for args in ((a, c), (c, a)):
+        code, out, err = cli(capsys, "compare", *args)
+        assert code == 2 and out == ""
+        assert err.count("\n") == 1 and "stray character 'z' at byte 2500" in err

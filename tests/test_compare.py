@@ -18,7 +18,7 @@ from hypothesis import strategies as st
 from spotcheck.checks import compare as cmp
 from spotcheck.checks.compare import compare_files
 from spotcheck.checks.schema import COMPARE_SCHEMA
-from spotcheck.errors import UsageError
+from spotcheck.errors import DigitFileError, LabelError, UsageError
 from tests.reference import pi_decimal, pi_hex
 
 HEX = pi_hex(6000)
@@ -224,3 +224,60 @@ def test_decimal_difference_at_the_edges(tmp_path: Path, position: int) -> None:
     b = _write(tmp_path / "b.txt", DEC, width=30)
     r = compare_files(a, b, constant="pi")  # damage at digit 1 defeats the guess
     assert [(run.start, run.right) for run in r.runs] == [(position, "B")] and r.keep == "B"
+
+
+def _labelled(path: Path, digits: str, width: int = 60) -> str:
+    """Start labels counting the digits before each line, set off by ':'."""
+    lines = [f"{i:>7}: {digits[i : i + width]}" for i in range(0, len(digits), width)]
+    path.write_text("3.\n" + "\n".join(lines) + "\n")
+    return str(path)
+
+
+def test_labelled_copy_against_a_grouped_one(tmp_path: Path) -> None:
+    a = _labelled(tmp_path / "a.txt", HEX)
+    b = _write(tmp_path / "b.txt", _damage(HEX, [4321], "0123456789ABCDEF"), width=64, group=8)
+    r = compare_files(a, b)
+    assert [(run.start, run.length, run.right) for run in r.runs] == [(4321, 1, "A")] and r.keep == "A"
+    assert r.a.layout == "60 digits per line, labels at line start" and r.a.count == len(HEX)
+
+
+def test_a_lying_label_stops_compare_unless_ignored(tmp_path: Path) -> None:
+    a = _labelled(tmp_path / "a.txt", HEX)
+    text = (tmp_path / "a.txt").read_text().replace("   3000: ", "   3001: ")
+    (tmp_path / "a.txt").write_text(text)
+    b = _write(tmp_path / "b.txt", HEX)
+    with pytest.raises(LabelError, match=r"line 52: .*--ignore-labels"):
+        compare_files(a, b)
+    r = compare_files(a, b, ignore_labels=True)
+    assert r.verdict == "identical"
+
+
+def test_a_stray_byte_mid_file_is_bad_input(tmp_path: Path) -> None:
+    a = _write(tmp_path / "a.txt", HEX)
+    b = Path(_write(tmp_path / "b.txt", HEX, width=64))
+    data = bytearray(b.read_bytes())
+    data[5000] = ord("#")
+    b.write_bytes(bytes(data))
+    with pytest.raises(DigitFileError, match=r"b.txt: stray character '#' at byte 5000 \(line 78, column 58\)"):
+        compare_files(a, str(b))
+
+
+def test_lost_digit_found_across_small_chunks(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setattr(cmp, "CHUNK_DIGITS", 97)
+    a = _write(tmp_path / "a.txt", HEX)
+    b = _write(tmp_path / "b.txt", HEX[:999] + HEX[1003:], width=64)  # B lost digits 1000..1003
+    r = compare_files(a, b)
+    assert r.shift is not None and (r.shift["digits"], r.shift["missing_in"]) == (4, "B")
+    assert len(r.runs) == 1 and r.runs[0].length == len(HEX) - 4 - r.runs[0].start + 1
+    assert r.extra is not None and r.extra.longer == "A" and r.keep == "A"
+
+
+def test_compare_open_on_opened_files(tmp_path: Path) -> None:
+    from spotcheck.digitfile import open_digit_file
+
+    a = _write(tmp_path / "a.txt", HEX)
+    b = _write(tmp_path / "b.txt", _damage(HEX, [10], "0123456789ABCDEF"), width=50)
+    with open_digit_file(a) as da, open_digit_file(b) as db:
+        r = cmp.compare_open(da, db)
+        assert [(run.start, run.right) for run in r.runs] == [(10, "A")] and r.keep == "A"
+        assert da.read(1, 4) == "243F"  # still open

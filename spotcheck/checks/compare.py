@@ -1,8 +1,10 @@
 """``compare``: two copies of one digit file, side by side, and which copy is right.
 
 Both files are read through the digit-file layer (any layout, either may be
-compressed), streamed together in chunks of ``CHUNK_DIGITS`` (bounded memory
-whatever their size), and every run of positions where they differ is listed:
+compressed) by its read-and-check stream (:func:`spotcheck.digitfile.open_stream`:
+each byte is read once, validated as it is read), taken together in chunks of
+``CHUNK_DIGITS`` (bounded memory whatever their size), and every run of
+positions where they differ is listed:
 start, length, both copies' digits at its start.  Runs are merged across short
 gaps of coincidental agreement (``merge_runs``, as ``scan`` does).
 
@@ -28,11 +30,12 @@ the copies agree they may still both be wrong (``verify`` each to know).
 from __future__ import annotations
 
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
-from spotcheck.digitfile import DigitFile, open_digit_file
+from spotcheck.digitfile import DigitFile, DigitStream, open_stream
 from spotcheck.engine.api import leading_digits
 from spotcheck.errors import LabelError, UsageError
 from spotcheck.formulas import get_constant
@@ -232,13 +235,10 @@ def _facts(df: DigitFile) -> CopyFacts:
     )
 
 
-def _open(
-    path: str, base: int | None, constant: str | None, ignore_labels: bool, progress: Progress | None
-) -> DigitFile:
+@contextmanager
+def _label_hint() -> Iterator[None]:
     try:
-        return open_digit_file(
-            path, base=base, constant=constant, strict_labels=not ignore_labels, progress=progress
-        )
+        yield
     except LabelError as exc:
         raise LabelError(f"{exc} (compare the digits themselves with --ignore-labels)") from None
 
@@ -254,18 +254,66 @@ def compare_files(
     workers: int = 1,
     progress: Progress | None = None,
 ) -> CompareResult:
-    """Compare two copies of a digit file and say, with certified digits, which is right where they differ."""
-    da = _open(path_a, base, constant, ignore_labels, progress)
-    try:
-        db = _open(path_b, base, constant, ignore_labels, progress)
+    """Compare two copies of a digit file and say, with certified digits, which is right where they differ.
+
+    Each copy is read once, front to back (the digit-file layer's read-and-check
+    stream); ``progress(done, total)`` counts bytes of both files as stored.
+    """
+    with _label_hint():
+        sa = open_stream(path_a, base=base, constant=constant, strict_labels=not ignore_labels)
         try:
-            return compare_open(
-                da, db, constant=constant, formula=formula, workers=workers, progress=progress
-            )
+            sb = open_stream(path_b, base=base, constant=constant, strict_labels=not ignore_labels)
+            try:
+                return _compare(
+                    sa, sb, constant=constant, formula=formula, workers=workers, progress=progress
+                )
+            finally:
+                sb.close()
         finally:
-            db.close()
-    finally:
-        da.close()
+            sa.close()
+
+
+class _FileDigits:
+    """An opened :class:`DigitFile` read front to back like a stream (for :func:`compare_open`)."""
+
+    def __init__(self, df: DigitFile) -> None:
+        self.df, self.path, self.base, self.size_bytes = df, df.path, df.base, df.size_bytes
+        self.integer_part = df.integer_part
+        self.digits_read = 0
+
+    @property
+    def bytes_done(self) -> int:
+        return self.size_bytes * self.digits_read // max(1, self.df.count)
+
+    @property
+    def done(self) -> bool:
+        return self.digits_read >= self.df.count
+
+    def take(self, n: int) -> bytes:
+        out = self.df.read(self.digits_read + 1, n).encode("ascii")
+        self.digits_read += len(out)
+        return out
+
+    def drain(self) -> None:
+        self.digits_read = self.df.count
+
+    def finish(self) -> DigitFile:
+        return self.df
+
+
+def compare_open(
+    da: DigitFile,
+    db: DigitFile,
+    *,
+    constant: str | None = None,
+    formula: str | None = None,
+    workers: int = 1,
+    progress: Progress | None = None,
+) -> CompareResult:
+    """Compare two opened copies (see :func:`compare_files`); the files stay open."""
+    return _compare(
+        _FileDigits(da), _FileDigits(db), constant=constant, formula=formula, workers=workers, progress=progress
+    )
 
 
 def _settle_constant(da: DigitFile, db: DigitFile, constant: str | None) -> tuple[str | None, str]:
@@ -327,26 +375,103 @@ class _Runs:
             self.pending = None
 
 
-def compare_open(
-    da: DigitFile,
-    db: DigitFile,
+def _interrupted_facts(s: DigitStream | _FileDigits) -> CopyFacts:
+    """Facts of a copy that was not read to its end: its count is the digits read so far."""
+    if isinstance(s, _FileDigits):
+        return _facts(s.df)
+    return CopyFacts(
+        path=s.path,
+        size_bytes=s.size_bytes,
+        compression=s.compression,
+        base=s.base,
+        count=s.digits_read,
+        integer_part=s.integer_part,
+        layout="interrupted before its end",
+    )
+
+
+def _compare(
+    sa: DigitStream | _FileDigits,
+    sb: DigitStream | _FileDigits,
     *,
-    constant: str | None = None,
-    formula: str | None = None,
-    workers: int = 1,
-    progress: Progress | None = None,
+    constant: str | None,
+    formula: str | None,
+    workers: int,
+    progress: Progress | None,
 ) -> CompareResult:
-    """Compare two opened copies (see :func:`compare_files`)."""
     t0 = time.perf_counter()
-    if da.base != db.base:
+    if sa.base != sb.base:
         raise UsageError(
-            f"the copies are in different bases ({da.path}: base {da.base}, {db.path}: base {db.base}), "
+            f"the copies are in different bases ({sa.path}: base {sa.base}, {sb.path}: base {sb.base}), "
             "so their digits cannot be compared; check each against the constant with `spotcheck verify`"
         )
+    total = sa.size_bytes + sb.size_bytes
+    runs = _Runs()
+    probe = _Probe()
+    shift: dict[str, Any] | None = None
+    shift_run: DiffRun | None = None
+    interrupted = False
+    compared = 0
+    try:
+        with _label_hint():
+            p = 1
+            while True:
+                a, b = sa.take(CHUNK_DIGITS), sb.take(CHUNK_DIGITS)
+                n = min(len(a), len(b))
+                if n < len(a) or n < len(b):
+                    a, b = a[:n], b[:n]
+                if a != b:
+                    runs.add(a.decode("ascii"), b.decode("ascii"), p)
+                probe.follow(runs.pending, a, b, p)
+                p += n
+                compared = p - 1
+                if progress:
+                    progress(sa.bytes_done + sb.bytes_done, total)
+                run = runs.pending
+                if (
+                    run is not None
+                    and run.length >= SHIFT_PROBE
+                    and run.differing > 0.75 * run.length
+                    and probe.tried != run.start
+                ):
+                    probe.tried = run.start
+                    shift = probe.shift()
+                    if shift is not None:
+                        shift_run = run
+                        break
+                if n < CHUNK_DIGITS:
+                    break
+            # The count, findings and index of each copy are known once it is read to its end.
+            sa.drain()
+            sb.drain()
+            if progress:
+                progress(total, total)
+    except KeyboardInterrupt:
+        interrupted = True
+    runs.flush()
+    if interrupted:
+        result = CompareResult(
+            a=_interrupted_facts(sa),
+            b=_interrupted_facts(sb),
+            base=sa.base,
+            constant=get_constant(constant).name if constant is not None else None,
+            constant_how="given with --constant" if constant is not None else "not settled: interrupted",
+            method="none",
+            digits_compared=compared,
+            differing_digits=runs.differing,
+            runs=runs.done,
+            runs_total=runs.total,
+            interrupted=True,
+        )
+        result.seconds = time.perf_counter() - t0
+        return result
+    with _label_hint():
+        da, db = sa.finish(), sb.finish()
     name, how = _settle_constant(da, db, constant)
     method = "none" if name is None else ("digit extraction" if da.base == 16 else "radix conversion")
     if name is not None and get_constant(name).evaluation is not None:
         method = "full evaluation"
+    common = min(da.count, db.count)
     result = CompareResult(
         a=_facts(da),
         b=_facts(db),
@@ -354,45 +479,27 @@ def compare_open(
         constant=name,
         constant_how=how,
         method=method,
-        digits_compared=0,
-        differing_digits=0,
+        digits_compared=compared,
+        differing_digits=runs.differing,
+        runs=runs.done,
+        runs_total=runs.total,
+        shift=shift,
     )
-    common = min(da.count, db.count)
-    runs = _Runs()
-    try:
-        p = 1
-        while p <= common:
-            n = min(CHUNK_DIGITS, common - p + 1)
-            a, b = da.read(p, n), db.read(p, n)
-            if a != b:
-                runs.add(a, b, p)
-            p += n
-            result.digits_compared = p - 1
-            if progress:
-                progress(p - 1, common)
-            run = runs.pending
-            if run is not None and run.length >= SHIFT_PROBE and run.differing > 0.75 * run.length:
-                result.shift = _find_shift(da, db, run.start)
-                if result.shift is not None:
-                    k = result.shift["digits"]
-                    run.note = (
-                        f"copy {result.shift['missing_in']} lacks {k} digit{'s' if k > 1 else ''} that the other "
-                        f"has (or the other has {k} extra) at or before this position: from here on the copies "
-                        "are shifted, so the comparison stops"
-                    )
-                    run.length = common - run.start + 1
-                    break
-    except KeyboardInterrupt:
-        result.interrupted = True
-    runs.flush()
-    result.runs, result.runs_total, result.differing_digits = runs.done, runs.total, runs.differing
-    if not result.interrupted and da.count != db.count:
+    if shift is not None and shift_run is not None:
+        k = shift["digits"]
+        shift_run.note = (
+            f"copy {shift['missing_in']} lacks {k} digit{'s' if k > 1 else ''} that the other "
+            f"has (or the other has {k} extra) at or before this position: from here on the copies "
+            "are shifted, so the comparison stops"
+        )
+        shift_run.length = common - shift_run.start + 1
+    if da.count != db.count:
         longer, df = (A, da) if da.count > db.count else (B, db)
         result.extra = ExtraDigits(longer, common + 1, df.count - common, df.read(common + 1, SAMPLE_DIGITS))
     ia, ib = da.integer_part, db.integer_part
     if ia is not None and ib is not None and (ia.lstrip("0") or "0") != (ib.lstrip("0") or "0"):
         result.integer_parts = {"a": ia, "b": ib, "certified": None, "right": None}
-    if name is not None and not result.interrupted:
+    if name is not None:
         try:
             _arbitrate(result, da, db, name, formula, workers)
         except KeyboardInterrupt:
@@ -401,15 +508,39 @@ def compare_open(
     return result
 
 
-def _find_shift(da: DigitFile, db: DigitFile, start: int) -> dict[str, Any] | None:
-    """Lost or extra digits: the copies agree again once one is shifted by ``k <= MAX_SHIFT``."""
-    a, b = da.read(start, SHIFT_MATCH + MAX_SHIFT), db.read(start, SHIFT_MATCH + MAX_SHIFT)
-    for k in range(1, MAX_SHIFT + 1):
-        if len(a) >= k + SHIFT_MATCH and a[k : k + SHIFT_MATCH] == b[:SHIFT_MATCH]:
-            return {"position": start, "digits": k, "missing_in": B}
-        if len(b) >= k + SHIFT_MATCH and b[k : k + SHIFT_MATCH] == a[:SHIFT_MATCH]:
-            return {"position": start, "digits": k, "missing_in": A}
-    return None
+class _Probe:
+    """The first digits of both copies at the pending run's start, for the lost-digits probe."""
+
+    def __init__(self) -> None:
+        self.start = 0
+        self.a = self.b = ""
+        self.tried = 0
+
+    def follow(self, run: DiffRun | None, a: bytes, b: bytes, p: int) -> None:
+        """Keep (or extend) the samples of ``run`` from the chunk ``a``/``b`` that starts at ``p``."""
+        need = SHIFT_MATCH + MAX_SHIFT
+        if run is None:
+            return
+        if run.start != self.start:
+            k = run.start - p
+            if k < 0:  # started before this chunk but unseen: cannot happen (runs start in a chunk)
+                return
+            self.start = run.start
+            self.a, self.b = a[k : k + need].decode("ascii"), b[k : k + need].decode("ascii")
+        elif len(self.a) < need and p == self.start + len(self.a):
+            more = need - len(self.a)
+            self.a += a[:more].decode("ascii")
+            self.b += b[:more].decode("ascii")
+
+    def shift(self) -> dict[str, Any] | None:
+        """Lost or extra digits: the copies agree again once one is shifted by ``k <= MAX_SHIFT``."""
+        a, b, start = self.a, self.b, self.start
+        for k in range(1, MAX_SHIFT + 1):
+            if len(a) >= k + SHIFT_MATCH and a[k : k + SHIFT_MATCH] == b[:SHIFT_MATCH]:
+                return {"position": start, "digits": k, "missing_in": B}
+            if len(b) >= k + SHIFT_MATCH and b[k : k + SHIFT_MATCH] == a[:SHIFT_MATCH]:
+                return {"position": start, "digits": k, "missing_in": A}
+        return None
 
 
 def _arbitrate(
