@@ -294,6 +294,10 @@ class _FileDigits:
         self.digits_read += len(out)
         return out
 
+    def chunks(self) -> Iterator[bytes]:
+        while not self.done:
+            yield self.take(CHUNK_DIGITS)
+
     def drain(self) -> None:
         self.digits_read = self.df.count
 
@@ -414,16 +418,23 @@ def _compare(
     compared = 0
     try:
         with _label_hint():
+            ita, itb = sa.chunks(), sb.chunks()
+            pa = pb = b""
+            ia = ib = 0
             p = 1
             while True:
-                a, b = sa.take(CHUNK_DIGITS), sb.take(CHUNK_DIGITS)
-                n = min(len(a), len(b))
-                if n < len(a) or n < len(b):
-                    a, b = a[:n], b[:n]
-                if a != b:
-                    runs.add(a.decode("ascii"), b.decode("ascii"), p)
-                probe.follow(runs.pending, a, b, p)
-                p += n
+                if ia >= len(pa):
+                    pa, ia = next(ita, b""), 0
+                if ib >= len(pb):
+                    pb, ib = next(itb, b""), 0
+                n = min(len(pa) - ia, len(pb) - ib, CHUNK_DIGITS)
+                if n <= 0:
+                    break  # one copy (or both) ended
+                # Equal digits cost one memcmp and no copy; differing ones are decoded.
+                if not pa.startswith(memoryview(pb)[ib : ib + n], ia):
+                    runs.add(pa[ia : ia + n].decode("ascii"), pb[ib : ib + n].decode("ascii"), p)
+                probe.follow(runs.pending, pa, ia, pb, ib, n, p)
+                ia, ib, p = ia + n, ib + n, p + n
                 compared = p - 1
                 if progress:
                     progress(sa.bytes_done + sb.bytes_done, total)
@@ -439,8 +450,6 @@ def _compare(
                     if shift is not None:
                         shift_run = run
                         break
-                if n < CHUNK_DIGITS:
-                    break
             # The count, findings and index of each copy are known once it is read to its end.
             sa.drain()
             sb.drain()
@@ -516,21 +525,22 @@ class _Probe:
         self.a = self.b = ""
         self.tried = 0
 
-    def follow(self, run: DiffRun | None, a: bytes, b: bytes, p: int) -> None:
-        """Keep (or extend) the samples of ``run`` from the chunk ``a``/``b`` that starts at ``p``."""
+    def follow(self, run: DiffRun | None, a: bytes, ia: int, b: bytes, ib: int, n: int, p: int) -> None:
+        """Keep (or extend) the samples of ``run`` from ``a[ia:ia+n]`` and ``b[ib:ib+n]``, which start at ``p``."""
         need = SHIFT_MATCH + MAX_SHIFT
         if run is None:
             return
         if run.start != self.start:
-            k = run.start - p
-            if k < 0:  # started before this chunk but unseen: cannot happen (runs start in a chunk)
+            k = run.start - p  # a run starts in the step that finds it
+            if not 0 <= k < n:
                 return
             self.start = run.start
-            self.a, self.b = a[k : k + need].decode("ascii"), b[k : k + need].decode("ascii")
+            w = min(need, n - k)
+            self.a, self.b = a[ia + k : ia + k + w].decode("ascii"), b[ib + k : ib + k + w].decode("ascii")
         elif len(self.a) < need and p == self.start + len(self.a):
-            more = need - len(self.a)
-            self.a += a[:more].decode("ascii")
-            self.b += b[:more].decode("ascii")
+            w = min(need - len(self.a), n)
+            self.a += a[ia : ia + w].decode("ascii")
+            self.b += b[ib : ib + w].decode("ascii")
 
     def shift(self) -> dict[str, Any] | None:
         """Lost or extra digits: the copies agree again once one is shifted by ``k <= MAX_SHIFT``."""

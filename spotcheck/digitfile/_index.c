@@ -14,8 +14,11 @@
  *     is none; the digits before it are written).  ``newlines`` counts LF bytes
  *     before the stop.  ``units`` is None or classes to compare with (as in
  *     first_mismatch, at least len(data) long): ``regular`` is 1 when every
- *     examined byte's class equals units[i], 0 when one differs, -1 without units.
- *     ``out`` must hold out_pos + len(data) bytes.  Twin: stream.extract_py.
+ *     examined byte that is not a digit has the class units[i], 0 when one has
+ *     not, -1 without units (with as many digits as units has 'd's, 1 means every
+ *     class equals units[i]: the caller compares the counts).  ``out`` must hold
+ *     out_pos + len(data) bytes (bytes past the digits written are scratch).
+ *     Twin: stream.extract_py.
  *
  * extract_labelled(data, table, norm, out, out_pos, layout, before, offset, line,
  *                  step, last_index) -> (consumed, digits, lines, stop, entries, last_index)
@@ -34,6 +37,8 @@
  *     line) is made at the start of a line holding digits once ``step`` bytes
  *     have passed since ``last_index``.  Twin: stream.extract_labelled_py.
  *
+ * Runs of digits are taken eight bytes at a time (digit_bits, a test on a 64-bit word), on
+ * little-endian targets with gcc or clang and the standard tables; elsewhere, byte by byte.
  * Limits: label values fit 64 bits (18 decimal or 16 hex characters); counts
  * and offsets are Py_ssize_t.  Portable C, no target-specific instructions.
  */
@@ -48,20 +53,102 @@
 #define E_STRAY 0x200u
 #define E_LF 0x400u
 
-static int make_entries(uint32_t *T, const Py_buffer *table, const Py_buffer *norm) {
+typedef struct {
+    uint32_t T[256];
+    int words; /* 1: the tables are charsets.class_table / stream.norm_table, so the word loop may run */
+    int hex;
+} Tables;
+
+static int is_blank(unsigned char c) { return c == ' ' || c == '\t'; }
+
+static int make_tables(Tables *tb, const Py_buffer *table, const Py_buffer *norm) {
     if (table->len != 256 || norm->len != 256) {
         PyErr_SetString(PyExc_ValueError, "table and norm must be 256 bytes each");
         return -1;
     }
     const unsigned char *t = (const unsigned char *)table->buf, *m = (const unsigned char *)norm->buf;
+    int hex = t['A'] == 'd', standard = 1;
     for (int c = 0; c < 256; c++) {
         uint32_t e = (uint32_t)t[c] << 16;
         if (t[c] == 'd') e |= E_DIGIT | m[c];
         else if (t[c] == '?') e |= E_STRAY;
         if (c == '\n') e |= E_LF;
-        T[c] = e;
+        tb->T[c] = e;
+        int digit = (c >= '0' && c <= '9') || (hex && ((c >= 'A' && c <= 'F') || (c >= 'a' && c <= 'f')));
+        int ws = c == ' ' || c == '\t' || c == '\r' || c == '\n';
+        int want_class = digit ? 'd' : ws ? c : '?';
+        int want_norm = (hex && c >= 'a' && c <= 'f') ? c - 32 : c;
+        if (t[c] != want_class || (digit && m[c] != want_norm)) standard = 0;
     }
+    tb->hex = hex;
+#if defined(__GNUC__) && defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
+    tb->words = standard;
+#else
+    tb->words = 0;
+    (void)standard;
+#endif
     return 0;
+}
+
+/* --- eight bytes at a time -------------------------------------------------------------------------
+ * digit_bits(x) has the high bit of each byte of the little-endian word x set when that byte is a
+ * digit ('0'-'9', and for hex 'A'-'F' and 'a'-'f'); *upper is x with 'a'-'f' turned into 'A'-'F'.
+ * Each byte is tested on its low 7 bits with the high bit forced on (x | H) before subtracting, or off
+ * (x & ~H) before adding, so no borrow or carry crosses a byte; a byte with its high bit set is never
+ * a digit.  (lo | 0x80) - 0x30 has its high bit set iff lo >= 0x30; lo + 0x46 iff lo >= 0x3A. */
+#define H8 0x8080808080808080ULL
+#define B8(c) (0x0101010101010101ULL * (uint64_t)(c))
+
+static inline uint64_t load64(const unsigned char *p) {
+    uint64_t x;
+    memcpy(&x, p, 8);
+    return x;
+}
+
+static inline void store64(unsigned char *p, uint64_t x) { memcpy(p, &x, 8); }
+
+static inline uint64_t digit_bits(uint64_t x, int hex, uint64_t *upper) {
+    uint64_t lo = x & ~H8;
+    uint64_t ok = ((lo | H8) - B8(0x30)) & ~(lo + B8(0x80 - 0x3A)) & ~x & H8;
+    *upper = x;
+    if (hex) {
+        uint64_t y = lo | B8(0x20); /* 'A'-'F' and 'a'-'f' both become 'a'-'f' */
+        uint64_t af = ((y | H8) - B8(0x61)) & ~(y + B8(0x80 - 0x67)) & ~x & H8;
+        ok |= af;
+        *upper = x ^ ((af & (x << 2)) >> 2); /* bit 5 (lower case) of each letter, cleared */
+    }
+    return ok;
+}
+
+static inline int first_byte(uint64_t bits) { return __builtin_ctzll(bits) >> 3; }
+
+/* Copy the digits of s[a..b) to o (upper case) while the bytes are digits or blanks; returns the index
+ * of the first other byte (b when there is none) and the digits copied in *nd.  Writes up to 8 bytes
+ * past the last digit copied (o must hold b - a bytes). */
+static Py_ssize_t copy_body(const unsigned char *s, Py_ssize_t a, Py_ssize_t b, unsigned char *o, const Tables *tb,
+                            Py_ssize_t *nd) {
+    Py_ssize_t i = a, k = 0;
+#if defined(__GNUC__) && defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
+    if (tb->words) {
+        while (i + 8 <= b) {
+            uint64_t up, ok = digit_bits(load64(s + i), tb->hex, &up);
+            store64(o + k, up);
+            if (ok == H8) { i += 8; k += 8; continue; }
+            int j = first_byte(~ok & H8);
+            i += j;
+            k += j;
+            if (!is_blank(s[i])) { *nd = k; return i; }
+            i++;
+        }
+    }
+#endif
+    for (; i < b; i++) {
+        uint32_t e = tb->T[s[i]];
+        if (e & E_DIGIT) o[k++] = (unsigned char)e;
+        else if (!is_blank(s[i])) break;
+    }
+    *nd = k;
+    return i;
 }
 
 static PyObject *first_mismatch(PyObject *self, PyObject *args) {
@@ -98,16 +185,6 @@ static PyObject *first_mismatch(PyObject *self, PyObject *args) {
     return PyLong_FromSsize_t(result);
 }
 
-/* One byte of the extract loop: write its digit (the slot is overwritten unless it is one). */
-#define STEP(j)                                  \
-    do {                                         \
-        uint32_t e_ = T[d[i + (j)]];             \
-        o[k] = (unsigned char)e_;                \
-        k += (e_ >> 8) & 1u;                     \
-        nl += (e_ >> 10) & 1u;                   \
-        if (u) diff |= ((e_ >> 16) & 0xFFu) ^ u[i + (j)]; \
-    } while (0)
-
 static PyObject *extract(PyObject *self, PyObject *args) {
     Py_buffer data, table, norm, out, units = {0};
     Py_ssize_t out_pos;
@@ -116,9 +193,9 @@ static PyObject *extract(PyObject *self, PyObject *args) {
     if (!PyArg_ParseTuple(args, "y*y*y*w*nO", &data, &table, &norm, &out, &out_pos, &units_obj)) return NULL;
     int have_units = units_obj != Py_None;
     PyObject *ret = NULL;
-    uint32_t T[256];
+    Tables tb;
     if (have_units && PyObject_GetBuffer(units_obj, &units, PyBUF_SIMPLE) < 0) goto done;
-    if (make_entries(T, &table, &norm) < 0) goto done;
+    if (make_tables(&tb, &table, &norm) < 0) goto done;
     if (out_pos < 0 || out.len - out_pos < data.len || (have_units && units.len < data.len)) {
         PyErr_SetString(PyExc_ValueError, "out too short for the chunk's digits, or units shorter than data");
         goto done;
@@ -126,21 +203,40 @@ static PyObject *extract(PyObject *self, PyObject *args) {
     const unsigned char *d = (const unsigned char *)data.buf;
     const unsigned char *u = have_units ? (const unsigned char *)units.buf : NULL;
     unsigned char *o = (unsigned char *)out.buf + out_pos;
+    const uint32_t *T = tb.T;
     Py_ssize_t n = data.len, i = 0, k = 0, stray = -1, nl = 0;
-    uint32_t diff = 0;
+    int ubad = 0;
     Py_BEGIN_ALLOW_THREADS
-    for (; i + 8 <= n; i += 8) {
-        uint32_t f = T[d[i]] | T[d[i + 1]] | T[d[i + 2]] | T[d[i + 3]] | T[d[i + 4]] | T[d[i + 5]] |
-                     T[d[i + 6]] | T[d[i + 7]];
-        if (f & E_STRAY) break; /* the byte-by-byte loop below finds it */
-        STEP(0); STEP(1); STEP(2); STEP(3); STEP(4); STEP(5); STEP(6); STEP(7);
+#if defined(__GNUC__) && defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
+    /* Runs of digits eight at a time; each other byte on its own. */
+    if (tb.words) {
+        while (i + 8 <= n) {
+            uint64_t up, ok = digit_bits(load64(d + i), tb.hex, &up);
+            store64(o + k, up);
+            if (ok == H8) { i += 8; k += 8; continue; }
+            int j = first_byte(~ok & H8);
+            i += j;
+            k += j;
+            uint32_t e = T[d[i]];
+            if (e & E_STRAY) { stray = i; break; }
+            nl += (e >> 10) & 1u;
+            if (u && ((e >> 16) & 0xFFu) != u[i]) ubad = 1;
+            i++;
+        }
     }
-    for (; i < n; i++) {
-        if (T[d[i]] & E_STRAY) { stray = i; break; }
-        STEP(0);
+#endif
+    for (; stray < 0 && i < n; i++) {
+        uint32_t e = T[d[i]];
+        if (e & E_STRAY) { stray = i; break; }
+        if (e & E_DIGIT) {
+            o[k++] = (unsigned char)e;
+        } else {
+            nl += (e >> 10) & 1u;
+            if (u && ((e >> 16) & 0xFFu) != u[i]) ubad = 1;
+        }
     }
     Py_END_ALLOW_THREADS
-    ret = Py_BuildValue("nnni", k, stray, nl, have_units ? (diff == 0) : -1);
+    ret = Py_BuildValue("nnni", k, stray, nl, have_units ? !ubad : -1);
 done:
     PyBuffer_Release(&data);
     PyBuffer_Release(&table);
@@ -149,15 +245,12 @@ done:
     if (have_units && units.obj != NULL) PyBuffer_Release(&units);
     return ret;
 }
-#undef STEP
 
 /* --- labelled lines -------------------------------------------------------------------------------- */
 
 typedef struct {
     int where, sep, radix, max_label, kind, unit;
 } LabelLayout;
-
-static int is_blank(unsigned char c) { return c == ' ' || c == '\t'; }
 
 static int label_value(unsigned char c, int radix) {
     if (c >= '0' && c <= '9') return c - '0';
@@ -168,7 +261,7 @@ static int label_value(unsigned char c, int radix) {
     return -1;
 }
 
-/* Parse one line s[0..e) (line break and one trailing CR removed) in its plain form:
+/* Read one line s[0..e) (line break and one trailing CR removed) in its plain form:
  *   start: [blanks] label sep body      end: body sep label [blanks]
  * where label is 1..max_label label characters, sep ':' or '|' with optional blanks
  * around it (sep 0) or one or more blanks (sep 1), and body holds only digits and
@@ -176,13 +269,15 @@ static int label_value(unsigned char c, int radix) {
  * exactly the lines on which LabelSyntax.split_line finds this label and body (its
  * patterns are greedy and a label is a maximal run of label characters ended by a
  * separator); any other line returns 0 and is left to Python's line reader.
- * Sets *has_label, *value and [*b0, *b1) (the body).  Returns 1 when plain. */
-static int parse_line(const unsigned char *s, Py_ssize_t e, const LabelLayout *L, const uint32_t *T,
-                      int *has_label, uint64_t *value, Py_ssize_t *b0, Py_ssize_t *b1) {
+ * Copies the body's digits to o (scratch unless the caller keeps them), sets
+ * *has_label, *value and *nd.  Returns 1 when the line is plain. */
+static int read_line(const unsigned char *s, Py_ssize_t e, const LabelLayout *L, const Tables *tb,
+                     unsigned char *o, int *has_label, uint64_t *value, Py_ssize_t *nd) {
     Py_ssize_t k = 0, l0, l1;
     *has_label = 0;
+    *nd = 0;
     while (k < e && is_blank(s[k])) k++;
-    if (k == e) { *b0 = *b1 = e; return 1; } /* blanks only */
+    if (k == e) return 1; /* blanks only */
     if (L->where == 0) {
         l0 = k;
         while (k < e && label_value(s[k], L->radix) >= 0) k++;
@@ -195,14 +290,10 @@ static int parse_line(const unsigned char *s, Py_ssize_t e, const LabelLayout *L
             return 0;
         }
         while (k < e && is_blank(s[k])) k++;
-        *b0 = k;
-        *b1 = e;
+        if (copy_body(s, k, e, o, tb, nd) != e) return 0;
     } else if (L->sep == 0) {
-        k = 0;
-        while (k < e && (T[s[k]] & E_DIGIT || is_blank(s[k]))) k++;
+        k = copy_body(s, 0, e, o, tb, nd);
         if (k == e || (s[k] != ':' && s[k] != '|')) return 0;
-        *b0 = 0;
-        *b1 = k;
         k++;
         while (k < e && is_blank(s[k])) k++;
         l0 = k;
@@ -217,14 +308,11 @@ static int parse_line(const unsigned char *s, Py_ssize_t e, const LabelLayout *L
         while (k > 0 && !is_blank(s[k - 1])) k--;
         l0 = k;
         if (l0 == 0) return 0; /* no blank before the last word */
-        *b0 = 0;
-        *b1 = l0;
         for (Py_ssize_t j = l0; j < l1; j++)
             if (label_value(s[j], L->radix) < 0) return 0;
+        if (copy_body(s, 0, l0, o, tb, nd) != l0) return 0;
     }
     if (l1 - l0 < 1 || l1 - l0 > L->max_label) return 0;
-    for (Py_ssize_t j = *b0; j < *b1; j++)
-        if (!(T[s[j]] & E_DIGIT) && !is_blank(s[j])) return 0;
     uint64_t v = 0;
     for (Py_ssize_t j = l0; j < l1; j++) v = v * (uint64_t)L->radix + (uint64_t)label_value(s[j], L->radix);
     *has_label = 1;
@@ -243,8 +331,8 @@ static PyObject *extract_labelled(PyObject *self, PyObject *args) {
         return NULL;
     PyObject *ret = NULL, *entries = NULL;
     Py_ssize_t *ent = NULL, n_ent = 0;
-    uint32_t T[256];
-    if (make_entries(T, &table, &norm) < 0) goto done;
+    Tables tb;
+    if (make_tables(&tb, &table, &norm) < 0) goto done;
     if (out_pos < 0 || out.len - out_pos < data.len || (L.where != 0 && L.where != 1) || (L.sep != 0 && L.sep != 1) ||
         (L.radix != 10 && L.radix != 16) || L.max_label < 1 || L.max_label > (L.radix == 10 ? 18 : 16) ||
         L.kind < 0 || L.kind > 2 || (L.unit != 1 && L.unit != 2) || step < 1 || before < 0) {
@@ -264,14 +352,12 @@ static PyObject *extract_labelled(PyObject *self, PyObject *args) {
         const unsigned char *s = d + lo;
         const unsigned char *nlp = memchr(s, '\n', (size_t)(n - lo));
         if (nlp == NULL) { stop = 0; break; }
-        Py_ssize_t len = nlp - s, e = len;
+        Py_ssize_t len = nlp - s, e = len, nd = 0;
         if (e > 0 && s[e - 1] == '\r') e--;
         int has_label;
         uint64_t value = 0;
-        Py_ssize_t b0 = 0, b1 = 0;
-        if (!parse_line(s, e, &L, T, &has_label, &value, &b0, &b1)) { stop = 1; break; }
-        Py_ssize_t nd = 0;
-        for (Py_ssize_t j = b0; j < b1; j++) nd += (T[s[j]] >> 8) & 1u;
+        /* The digits land at o + k; they count only when the line is taken. */
+        if (!read_line(s, e, &L, &tb, o + k, &has_label, &value, &nd)) { stop = 1; break; }
         if (has_label) {
             Py_ssize_t c = L.kind == 2 ? pos + nd : pos;
             if (c % L.unit != 0 || value != (uint64_t)(c / L.unit + (L.kind == 1))) { stop = 2; break; }
@@ -287,11 +373,7 @@ static PyObject *extract_labelled(PyObject *self, PyObject *args) {
                 n_ent++;
                 last_index = offset + lo;
             }
-            for (Py_ssize_t j = b0; j < b1; j++) {
-                uint32_t x = T[s[j]];
-                o[k] = (unsigned char)x;
-                k += (x >> 8) & 1u;
-            }
+            k += nd;
             pos += nd;
         }
         lines++;

@@ -96,6 +96,9 @@ def norm_table(base: int) -> bytes:
     return bytes(table)
 
 
+_NOT_DIGIT = bytes(0 if c == ord("d") else 0xFF for c in range(256))
+
+
 def extract_py(
     data: bytes | memoryview,
     table: bytes,
@@ -104,7 +107,11 @@ def extract_py(
     out_pos: int,
     units: bytes | memoryview | None,
 ) -> tuple[int, int, int, int]:
-    """Python twin of ``_index.extract``: ``(digits written, stray index or -1, LFs, regular)``."""
+    """Python twin of ``_index.extract``: ``(digits written, stray index or -1, LFs, regular)``.
+
+    ``regular`` is 1 when every byte before the stray one that is not a digit has
+    its class in ``units`` (0 when one has not, -1 without ``units``).
+    """
     data = bytes(data)
     if len(out) - out_pos < len(data) or (units is not None and len(units) < len(data)):
         raise ValueError("out too short for the chunk's digits, or units shorter than data")
@@ -113,7 +120,11 @@ def extract_py(
     end = stray if stray >= 0 else len(data)
     digits = data[:end].translate(norm, WS)
     out[out_pos : out_pos + len(digits)] = digits
-    regular = -1 if units is None else int(classes[:end] == bytes(units[:end]))
+    regular = -1
+    if units is not None:  # every byte that is not a digit has its class in units
+        mask = int.from_bytes(classes[:end].translate(_NOT_DIGIT), "big")
+        have = int.from_bytes(classes[:end], "big") & mask
+        regular = int(int.from_bytes(bytes(units[:end]), "big") & mask == have)
     return len(digits), stray, data.count(b"\n", 0, end), regular
 
 
@@ -405,6 +416,14 @@ class DigitStream:
             units = unit * (size // len(unit))
         out = bytearray(size)
         uview = memoryview(units)
+        if regular:
+            assert unit is not None
+            width = unit.count(b"d")
+            cum = [unit[:r].count(b"d") for r in range(len(unit) + 1)]
+
+            def digits_before(m: int) -> int:  # digits in units[:m]
+                q, r = divmod(m, len(unit))
+                return q * width + cum[r]
         while True:
             data = src.read_at(off, size)
             if not data:
@@ -419,7 +438,7 @@ class DigitStream:
                 if stray >= 0:
                     at = off + i + stray
                     raise stray_error(src, plan, base, at, data[i + stray])
-                if ok == 0:
+                if ask is not None and (ok == 0 or nd != digits_before(i + len(blk)) - digits_before(i)):
                     regular = False
                 if nd:
                     res.index_pos.append(pos + k + 1)
@@ -434,7 +453,7 @@ class DigitStream:
             off += len(data)
             self._stored = src.stored_bytes_done(off)
             if k:
-                digits = bytes(out[:k])
+                digits = bytes(memoryview(out)[:k])
                 tail = (tail + digits[-TAIL_DIGITS:])[-TAIL_DIGITS:]
                 yield digits
             if last:
@@ -531,7 +550,7 @@ class DigitStream:
             off += len(data)
             self._stored = src.stored_bytes_done(off)
             if k:
-                chunk = bytes(out[:k])
+                chunk = bytes(memoryview(out)[:k])
                 tail = (tail + chunk[-TAIL_DIGITS:])[-TAIL_DIGITS:]
                 yield chunk
         src.check_unchanged()
