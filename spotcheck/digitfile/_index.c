@@ -122,6 +122,12 @@ static inline uint64_t digit_bits(uint64_t x, int hex, uint64_t *upper) {
 
 static inline int first_byte(uint64_t bits) { return __builtin_ctzll(bits) >> 3; }
 
+/* The word's digits without its one other byte j, packed down (the top byte is scratch). */
+static inline uint64_t close_hole(uint64_t up, int j) {
+    uint64_t keep = ((uint64_t)1 << (8 * j)) - 1; /* bytes 0..j-1; j <= 7 */
+    return (up & keep) | ((up >> 8) & ~keep);
+}
+
 /* Copy the digits of s[a..b) to o (upper case) while the bytes are digits or blanks; returns the index
  * of the first other byte (b when there is none) and the digits copied in *nd.  Writes up to 8 bytes
  * past the last digit copied (o must hold b - a bytes). */
@@ -132,9 +138,16 @@ static Py_ssize_t copy_body(const unsigned char *s, Py_ssize_t a, Py_ssize_t b, 
     if (tb->words) {
         while (i + 8 <= b) {
             uint64_t up, ok = digit_bits(load64(s + i), tb->hex, &up);
+            uint64_t other = ~ok & H8;
+            if (other == 0) { store64(o + k, up); i += 8; k += 8; continue; }
+            int j = first_byte(other);
+            if ((other & (other - 1)) == 0 && is_blank(s[i + j])) { /* one blank: skip it in place */
+                store64(o + k, close_hole(up, j));
+                i += 8;
+                k += 7;
+                continue;
+            }
             store64(o + k, up);
-            if (ok == H8) { i += 8; k += 8; continue; }
-            int j = first_byte(~ok & H8);
             i += j;
             k += j;
             if (!is_blank(s[i])) { *nd = k; return i; }
@@ -212,16 +225,27 @@ static PyObject *extract(PyObject *self, PyObject *args) {
     if (tb.words) {
         while (i + 8 <= n) {
             uint64_t up, ok = digit_bits(load64(d + i), tb.hex, &up);
-            store64(o + k, up);
-            if (ok == H8) { i += 8; k += 8; continue; }
-            int j = first_byte(~ok & H8);
-            i += j;
-            k += j;
-            uint32_t e = T[d[i]];
-            if (e & E_STRAY) { stray = i; break; }
+            uint64_t other = ~ok & H8;
+            if (other == 0) { store64(o + k, up); i += 8; k += 8; continue; }
+            int j = first_byte(other);
+            uint32_t e = T[d[i + j]];
+            if (e & E_STRAY) {
+                store64(o + k, up);
+                k += j;
+                stray = i + j;
+                break;
+            }
             nl += (e >> 10) & 1u;
-            if (u && ((e >> 16) & 0xFFu) != u[i]) ubad = 1;
-            i++;
+            if (u && ((e >> 16) & 0xFFu) != u[i + j]) ubad = 1;
+            if ((other & (other - 1)) == 0) { /* one blank or line break: skip it in place */
+                store64(o + k, close_hole(up, j));
+                i += 8;
+                k += 7;
+                continue;
+            }
+            store64(o + k, up);
+            i += j + 1;
+            k += j;
         }
     }
 #endif
