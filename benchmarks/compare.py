@@ -1,22 +1,26 @@
 """Throughput, peak memory and arbitration time of ``compare`` (spotcheck/checks/compare.py).
 
-Writes two copies of one hex digit file in different layouts (A: 100 digits a
-line; B: 64 digits a line in groups of 8) to a temporary folder, the first
-``--true`` digits being true hex digits of pi from gmpy2/MPFR (so the copies'
-constant is recognised and the arbitration asks the engine real questions)
-and the rest random (identical in both copies, so only their reading costs).
-B carries ``--damage`` changed digits inside the true prefix.  Each run of the
-comparison is a fresh Python process (peak memory is its own); the fastest of
-``--repeat`` is reported with the highest peak.
+Writes three copies of one hex digit file in different layouts to a temporary
+folder: A, 100 digits a line; B, 64 digits a line in groups of 8; L, 100 digits
+a line after a start label (``   1234500: ``, the count of digits before the
+line).  The first ``--true`` digits are true hex digits of pi from gmpy2/MPFR
+(so the copies' constant is recognised and the arbitration asks the engine
+real questions), the rest random (identical in every copy, so only their
+reading costs).  B and L carry ``--damage`` changed digits inside the true
+prefix.  Two pairs are compared, A with B and A with L; each run is a fresh
+Python process (peak memory is its own) and the fastest of ``--repeat`` is
+reported with the highest peak.  ``cat A B > /dev/null`` runs in the same
+session, interleaved with the comparisons, as the yardstick.
 
     PYTHONPATH=. python benchmarks/compare.py                 # 10^8 digits a copy
     PYTHONPATH=. python benchmarks/compare.py --digits 1e9    # the issue's size
 
 Figures: combined input (both files' bytes) per second of wall time of the
-whole comparison, opening passes included; the streaming part alone; peak
-resident memory; seconds of arbitration per differing run.  Files were just
-written, so they come from the page cache: CPU figures.  Targets (issue 15):
-at least 500 MB/s combined, under 150 MiB.
+whole comparison (detection, the one read-and-check pass over each copy,
+arbitration); the time ``cat`` takes for the same bytes and the ratio; peak
+resident memory (``ru_maxrss``); seconds of arbitration per differing run.
+Files were just written, so they come from the page cache: CPU figures.
+Targets (issue 15): at least 500 MB/s combined, under 150 MiB.
 """
 
 from __future__ import annotations
@@ -25,6 +29,7 @@ import argparse
 import json
 import os
 import random
+import resource
 import subprocess
 import sys
 import tempfile
@@ -35,6 +40,16 @@ from machine import describe  # noqa: E402  (this folder is first on sys.path)
 MIB = 1 << 20
 TO_HEX = bytes(b"0123456789ABCDEF"[i % 16] for i in range(256))
 TARGET_MBS, TARGET_MIB = 500.0, 150.0
+FLAGS = ("sse2", "sse4_2", "avx2", "bmi2", "avx512f", "avx512bw")
+
+
+def cpu_flags() -> str:
+    try:
+        with open("/proc/cpuinfo", encoding="ascii", errors="replace") as fh:
+            have = next((ln.split(":", 1)[1].split() for ln in fh if ln.startswith("flags")), [])
+    except OSError:
+        return "flags unknown"
+    return "flags " + " ".join(f for f in FLAGS if f in have)
 
 
 def true_prefix(n: int) -> bytes:
@@ -45,7 +60,7 @@ def true_prefix(n: int) -> bytes:
     return format(v - (3 << (4 * n)), "X").zfill(n).encode()
 
 
-def write_copy(path: str, digits_of, n: int, width: int, group: int) -> int:
+def write_copy(path: str, digits_of, n: int, width: int, group: int, labels: bool = False) -> int:
     """Write ``n`` digits (``digits_of(start, count)`` gives them) in one layout; returns the size."""
     step = width * 20_000
     with open(path, "wb") as f:
@@ -58,23 +73,18 @@ def write_copy(path: str, digits_of, n: int, width: int, group: int) -> int:
                 line = block[i : i + width]
                 if group:
                     line = b" ".join(line[j : j + group] for j in range(0, len(line), group))
+                if labels:
+                    line = b"%10d: " % (p + i) + line
                 lines.append(line)
             f.write(b"\n".join(lines) + b"\n")
             p += len(block)
     return os.path.getsize(path)
 
 
-def peak_rss() -> int:
-    with open("/proc/self/status") as f:
-        for line in f:
-            if line.startswith("VmHWM:"):
-                return int(line.split()[1]) * 1024
-    return 0
-
-
 def measure(a: str, b: str) -> None:
     """Child process: one comparison, reported as JSON."""
     from spotcheck.checks.compare import compare_files
+    from spotcheck.digitfile.stream import STREAM_PASS
 
     t0 = time.perf_counter()
     r = compare_files(a, b)
@@ -83,22 +93,29 @@ def measure(a: str, b: str) -> None:
         json.dumps(
             {
                 "wall": wall,
-                "compare_seconds": r.seconds,
                 "arbitration": r.arbitration_seconds,
                 "runs": r.runs_total,
+                "starts": [run.start for run in r.runs],
                 "keep": r.keep,
                 "digits": r.digits_compared,
-                "peak": peak_rss(),
+                "peak": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024,
+                "loops": STREAM_PASS,
             }
         )
     )
+
+
+def cat_seconds(a: str, b: str) -> float:
+    t0 = time.perf_counter()
+    subprocess.run(["cat", a, b], stdout=subprocess.DEVNULL, check=True)
+    return time.perf_counter() - t0
 
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--digits", type=float, default=1e8, help="digits per copy (default 1e8)")
     ap.add_argument("--true", type=int, default=1_000_000, help="true leading hex digits of pi (default 1e6)")
-    ap.add_argument("--damage", type=int, default=5, help="changed digits in copy B (default 5)")
+    ap.add_argument("--damage", type=int, default=5, help="changed digits in copies B and L (default 5)")
     ap.add_argument("--repeat", type=int, default=3)
     ap.add_argument("--measure", nargs=2, help=argparse.SUPPRESS)
     args = ap.parse_args()
@@ -107,6 +124,7 @@ def main() -> None:
         return
     n = int(args.digits)
     print(describe())
+    print(cpu_flags())
     rng = random.Random(15)
     head = true_prefix(min(args.true, n))
     bad = bytearray(head)
@@ -137,40 +155,52 @@ def main() -> None:
         return digits_of
 
     with tempfile.TemporaryDirectory(prefix="spotcheck-compare-bench-") as d:
-        a, b = os.path.join(d, "a.txt"), os.path.join(d, "b.txt")
+        a, b, lab = (os.path.join(d, f) for f in ("a.txt", "b.txt", "l.txt"))
         t0 = time.perf_counter()
-        size = write_copy(a, source(head), n, 100, 0) + write_copy(b, source(bytes(bad)), n, 64, 8)
+        size = {
+            a: write_copy(a, source(head), n, 100, 0),
+            b: write_copy(b, source(bytes(bad)), n, 64, 8),
+            lab: write_copy(lab, source(bytes(bad)), n, 100, 0, labels=True),
+        }
         print(
-            f"wrote two copies of {n:,} digits ({size / 1e6:,.0f} MB combined) in {time.perf_counter() - t0:.0f} s"
+            f"wrote three copies of {n:,} digits ({sum(size.values()) / 1e6:,.0f} MB) in {time.perf_counter() - t0:.0f} s"
         )
-        runs = []
-        for _ in range(args.repeat):
-            out = subprocess.run(
-                [sys.executable, __file__, "--measure", a, b], capture_output=True, text=True, env=os.environ
+        for name, (x, y) in (
+            ("A (100 a line) vs B (64 a line, groups of 8)", (a, b)),
+            ("A vs L (labelled)", (a, lab)),
+        ):
+            runs, cats = [], []
+            for _ in range(args.repeat):
+                cats.append(cat_seconds(x, y))
+                out = subprocess.run(
+                    [sys.executable, __file__, "--measure", x, y],
+                    capture_output=True,
+                    text=True,
+                    env=os.environ,
+                )
+                if out.returncode != 0:
+                    sys.exit(f"compare failed:\n{out.stderr}")
+                runs.append(json.loads(out.stdout))
+            best = min(runs, key=lambda r: r["wall"])
+            total = size[x] + size[y]
+            peak = max(r["peak"] for r in runs) / MIB
+            mbs = total / 1e6 / best["wall"]
+            cat = min(cats)
+            print(f"\n{name}: {total / 1e6:,.0f} MB combined, loops: {best['loops']}")
+            print(f"  runs found: {best['runs']} (damage placed: {args.damage}); keep: {best['keep']}")
+            print(
+                f"  whole comparison: {best['wall']:.2f} s, {mbs:,.0f} MB/s combined input "
+                f"(target {TARGET_MBS:.0f}: ratio {mbs / TARGET_MBS:.2f}); "
+                f"cat of both > /dev/null: {cat:.2f} s ({total / 1e6 / cat:,.0f} MB/s), compare/cat {best['wall'] / cat:.1f} x"
             )
-            if out.returncode != 0:
-                sys.exit(f"compare failed:\n{out.stderr}")
-            runs.append(json.loads(out.stdout))
-    best = min(runs, key=lambda r: r["wall"])
-    peak = max(r["peak"] for r in runs) / MIB
-    mbs = size / 1e6 / best["wall"]
-    stream = size / 1e6 / max(best["compare_seconds"], 1e-9)
-    arb = best["arbitration"]
-    print(f"runs found: {best['runs']} (damage placed: {args.damage}); keep: {best['keep']}")
-    print(
-        f"whole comparison (both opening passes + streaming + arbitration): {best['wall']:.2f} s, "
-        f"{mbs:,.0f} MB/s combined input (target {TARGET_MBS:.0f}: ratio {mbs / TARGET_MBS:.2f})"
-    )
-    print(f"streaming side by side and arbitration only: {best['compare_seconds']:.2f} s, {stream:,.0f} MB/s")
-    print(f"peak memory: {peak:.0f} MiB (target < {TARGET_MIB:.0f} MiB)")
-    if arb:
-        print(
-            "arbitration per run: "
-            + ", ".join(f"{s * 1000:.1f} ms" for s in arb)
-            + f" (positions {', '.join(str(p + 1) for p in spots)})"
-        )
-    walls = ", ".join(f"{r['wall']:.2f}" for r in runs)
-    print(f"all walls: {walls} s")
+            print(f"  peak memory (ru_maxrss): {peak:.0f} MiB (target < {TARGET_MIB:.0f} MiB)")
+            if best["arbitration"]:
+                print(
+                    "  arbitration per run: "
+                    + ", ".join(f"{s * 1000:.1f} ms" for s in best["arbitration"])
+                    + f" (runs at {', '.join(f'{p:,}' for p in best['starts'])})"
+                )
+            print("  all walls: " + ", ".join(f"{r['wall']:.2f}" for r in runs) + " s")
 
 
 if __name__ == "__main__":

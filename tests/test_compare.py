@@ -258,7 +258,9 @@ def test_a_stray_byte_mid_file_is_bad_input(tmp_path: Path) -> None:
     data = bytearray(b.read_bytes())
     data[5000] = ord("#")
     b.write_bytes(bytes(data))
-    with pytest.raises(DigitFileError, match=r"b.txt: stray character '#' at byte 5000 \(line 78, column 58\)"):
+    with pytest.raises(
+        DigitFileError, match=r"b.txt: stray character '#' at byte 5000 \(line 78, column 58\)"
+    ):
         compare_files(a, str(b))
 
 

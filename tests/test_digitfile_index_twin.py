@@ -87,7 +87,9 @@ def _both_extract(data: bytes, base: int, units: bytes | None, out_pos: int) -> 
     st.booleans(),
     st.integers(0, 9),
 )
-def test_extract_agrees_with_python(unit: bytes, reps: int, edits, base: int, with_units: bool, out_pos: int) -> None:
+def test_extract_agrees_with_python(
+    unit: bytes, reps: int, edits, base: int, with_units: bool, out_pos: int
+) -> None:
     sample = {ord("d"): b"7", ord(" "): b" ", ord("\t"): b"\t", ord("\r"): b"\r", ord("\n"): b"\n"}
     data = bytearray(b"".join(sample[c] for c in unit) * reps)
     for at, byte in edits:
@@ -111,15 +113,20 @@ def test_extract_finds_a_stray_byte_at_every_place() -> None:
             for byte in b"x:\x00G":
                 data = clean[:at] + bytes([byte]) + clean[at + 1 :]
                 _both_extract(data, base, None, 0)
-                assert _index.extract(data, class_table(16), stream.norm_table(16), bytearray(len(data)), 0, None)[
-                    1
-                ] == at
+                assert (
+                    _index.extract(
+                        data, class_table(16), stream.norm_table(16), bytearray(len(data)), 0, None
+                    )[1]
+                    == at
+                )
 
 
 def _line_text(draw, where: str, sep: str, radix: int, base: int) -> bytes:
     digits = "0123456789ABCDEFabcdef" if base == 16 else "0123456789"
     body = draw(st.text(alphabet=digits + " \t", max_size=30))
-    label = draw(st.text(alphabet="0123456789" + ("ABCDEFabcdef" if radix == 16 else ""), min_size=0, max_size=20))
+    label = draw(
+        st.text(alphabet="0123456789" + ("ABCDEFabcdef" if radix == 16 else ""), min_size=0, max_size=20)
+    )
     s = draw(st.sampled_from((":", " : ", "|", "\t|", " ", "\t", "  ", "")))
     pad = draw(st.sampled_from(("", " ", "\t")))
     text = f"{pad}{label}{s}{body}" if where == "start" else f"{body}{s}{label}{pad}"
@@ -181,6 +188,8 @@ def test_extract_labelled_takes_plain_lines_and_stops_at_the_others() -> None:
     data = b"0: 1234\n4: 5678\n  \n8 :9\n10: 1\n"  # the last label should be 9
     for fn in (_index.extract_labelled, stream.extract_labelled_py):
         out = bytearray(len(data))
-        used, nd, lines, stop, entries, last = fn(data, table, norm, out, 0, (0, 0, 10, 18, 0, 1), 0, 0, 1, 1, -1)
+        used, nd, lines, stop, entries, last = fn(
+            data, table, norm, out, 0, (0, 0, 10, 18, 0, 1), 0, 0, 1, 1, -1
+        )
         assert (used, nd, lines, stop, bytes(out[:nd])) == (data.index(b"10:"), 9, 4, 2, b"123456789")
         assert entries == [(1, 0, 1), (5, 8, 2), (9, 19, 4)] and last == 19

@@ -316,7 +316,12 @@ def compare_open(
 ) -> CompareResult:
     """Compare two opened copies (see :func:`compare_files`); the files stay open."""
     return _compare(
-        _FileDigits(da), _FileDigits(db), constant=constant, formula=formula, workers=workers, progress=progress
+        _FileDigits(da),
+        _FileDigits(db),
+        constant=constant,
+        formula=formula,
+        workers=workers,
+        progress=progress,
     )
 
 
@@ -505,9 +510,9 @@ def _compare(
     if da.count != db.count:
         longer, df = (A, da) if da.count > db.count else (B, db)
         result.extra = ExtraDigits(longer, common + 1, df.count - common, df.read(common + 1, SAMPLE_DIGITS))
-    ia, ib = da.integer_part, db.integer_part
-    if ia is not None and ib is not None and (ia.lstrip("0") or "0") != (ib.lstrip("0") or "0"):
-        result.integer_parts = {"a": ia, "b": ib, "certified": None, "right": None}
+    int_a, int_b = da.integer_part, db.integer_part
+    if int_a is not None and int_b is not None and (int_a.lstrip("0") or "0") != (int_b.lstrip("0") or "0"):
+        result.integer_parts = {"a": int_a, "b": int_b, "certified": None, "right": None}
     if name is not None:
         try:
             _arbitrate(result, da, db, name, formula, workers)

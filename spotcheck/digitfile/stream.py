@@ -401,7 +401,9 @@ class DigitStream:
         table, norm = class_table(base), norm_table(base)
         d1 = len(plan.seg_digits)
         tail = plan.seg_digits[-TAIL_DIGITS:].upper()
-        res = IndexResult(count=d1, regular=False, unit=None, unit_digits=0, unit_cols=[], region_start=plan.seg_end)
+        res = IndexResult(
+            count=d1, regular=False, unit=None, unit_digits=0, unit_cols=[], region_start=plan.seg_end
+        )
         if d1:
             yield plan.seg_digits.upper()
         off, pos = plan.seg_end, d1
@@ -424,6 +426,7 @@ class DigitStream:
             def digits_before(m: int) -> int:  # digits in units[:m]
                 q, r = divmod(m, len(unit))
                 return q * width + cum[r]
+
         while True:
             data = src.read_at(off, size)
             if not data:
@@ -479,7 +482,9 @@ class DigitStream:
             check.feed(plan.first_label_text.encode(), 0, d1, plan.first_line_no, plan.digits_offset)
         elif d1:
             check.no_label(plan.first_line_no, plan.digits_offset, 0)
-        res = IndexResult(count=d1, regular=False, unit=None, unit_digits=0, unit_cols=[], region_start=plan.seg_end)
+        res = IndexResult(
+            count=d1, regular=False, unit=None, unit_digits=0, unit_cols=[], region_start=plan.seg_end
+        )
         tail = plan.seg_digits[-TAIL_DIGITS:].upper()
         if d1:
             yield plan.seg_digits.upper()
@@ -604,7 +609,9 @@ def open_stream(
         raise UsageError(f"labels must be start, end or none, got {labels!r}")
     src = open_source(path)
     try:
-        return DigitStream(src, base=base, constant=constant, packed=packed, strict_labels=strict_labels, labels=labels)
+        return DigitStream(
+            src, base=base, constant=constant, packed=packed, strict_labels=strict_labels, labels=labels
+        )
     except BaseException:
         src.close()
         raise
