@@ -1,7 +1,9 @@
 """The read-and-check stream (digitfile/stream.py) against the index pass (the reference).
 
 Contract: for any file, correct or damaged, ``open_stream`` followed by reading
-every digit and ``finish()`` gives exactly what ``open_digit_file`` gives: the
+every digit and ``finish()`` gives exactly what ``open_digit_file`` with the index
+pass's own loops gives (``index.USE_STREAM_LOOPS`` off; on, the index pass runs
+labelled and irregular layouts through the stream's loops, also tested here): the
 same digits, count, findings, layout and last digits, or the same error (type
 and message).  Files come from the fuzz writer (tests/fuzz: every layout family
 of the model, mutated half of the time); both the compiled loops and their
@@ -21,6 +23,7 @@ import pytest
 from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
+from spotcheck.digitfile import index as index_mod
 from spotcheck.digitfile import open_digit_file, open_stream
 from spotcheck.digitfile import stream as stream_mod
 from spotcheck.errors import DigitFileError, LabelError, SpotcheckError, UsageError
@@ -31,6 +34,13 @@ COMPILED = stream_mod.STREAM_PASS == "c"
 
 
 def _reference(path: str, base: int | None, strict: bool) -> tuple[str, object]:
+    """The index pass with its own loops (not the stream's, which it otherwise uses for some layouts)."""
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(index_mod, "USE_STREAM_LOOPS", False)
+        return _reference_read(path, base, strict)
+
+
+def _reference_read(path: str, base: int | None, strict: bool) -> tuple[str, object]:
     try:
         with open_digit_file(path, base=base, strict_labels=strict) as df:
             return "ok", (
@@ -207,3 +217,25 @@ def test_progress_and_misuse(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) ->
     with pytest.raises(DigitFileError, match="empty"):
         (tmp_path / "e.txt").write_bytes(b"")
         open_stream(tmp_path / "e.txt")
+
+
+@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(seed=st.integers(0, 2**32 - 1), mutate=st.booleans(), strict=st.booleans())
+def test_index_pass_through_the_stream_loops_is_the_same(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch, seed: int, mutate: bool, strict: bool
+) -> None:
+    if not (COMPILED and index_mod.FIRST_PASS == "c"):
+        pytest.skip("the compiled loops were not built (or SPOTCHECK_PURE is set)")
+    rng = random.Random(seed)
+    spec = random_spec(rng, max_digits=rng.choice((60, 400, 3000)))
+    w = write(spec)
+    data = w.stored
+    if mutate:
+        content, *_ = mutation(rng, spec, w.content, w.label_spans)
+        data = compress(spec, content)
+    path = tmp_path / f"i{seed}{suffix(spec)}"
+    path.write_bytes(data)
+    want = _reference(str(path), spec.base, strict)
+    _small_chunks(monkeypatch, seed)
+    monkeypatch.setattr(index_mod, "USE_STREAM_LOOPS", True)
+    assert _reference_read(str(path), spec.base, strict) == want, (spec, data[:200])

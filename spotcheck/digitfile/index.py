@@ -68,6 +68,11 @@ if os.environ.get("SPOTCHECK_PURE", "").strip().lower() not in ("1", "true", "ye
         first_mismatch = _first_mismatch_c
         FIRST_PASS = "c"
 
+USE_STREAM_LOOPS = FIRST_PASS == "c"
+"""Labelled and irregular layouts go through the compiled loops of the read-and-check
+stream (``stream.index_pass``, same rules, same findings and errors); False keeps
+the loops below for every layout (the tests' reference)."""
+
 Progress = Callable[[int, int], None]
 """``progress(done, total)`` in bytes of the file as stored: for a compressed
 file, the compressed bytes consumed so far out of the file's size."""
@@ -200,6 +205,13 @@ def build_index(
     progress: Progress | None = None,
 ) -> IndexResult:
     """Run the pass from ``plan.seg_end`` to the end of the content."""
+    unit = plan.template
+    if USE_STREAM_LOOPS and (plan.syntax is not None or not (unit and b"d" in unit and b"?" not in unit)):
+        from spotcheck.digitfile.stream import index_pass  # imported here: stream.py imports this module
+
+        fast = index_pass(src, plan, strict_labels=strict_labels, progress=progress)
+        if fast is not None:
+            return fast
     total = src.size_bytes
     d1 = len(plan.seg_digits)
     tail = plan.seg_digits[-TAIL_DIGITS:]

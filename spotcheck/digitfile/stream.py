@@ -49,6 +49,7 @@ from spotcheck.digitfile.index import (
     INDEX_STEP,
     TAIL_DIGITS,
     IndexResult,
+    Progress,
     _LabelCheck,
     build_index,
     stray_error,
@@ -60,6 +61,7 @@ from spotcheck.errors import DigitFileError, UsageError
 __all__ = [
     "DigitStream",
     "open_stream",
+    "index_pass",
     "extract",
     "extract_py",
     "extract_labelled",
@@ -267,135 +269,30 @@ def _streamable(plan: Detection) -> bool:
     )
 
 
-class DigitStream:
-    """A digit file opened for one sequential read.  Use :func:`open_stream`.
-
-    Known at once: ``path``, ``size_bytes``, ``compression``, ``base``,
-    ``base_how``, ``integer_part``, ``head_digits``.  ``digits_read`` and
-    ``bytes_done`` grow as the stream is read; after the end, :meth:`finish`
-    gives the :class:`DigitFile` (count, findings, constant, random access).
-    """
+class _Pass:
+    """One read-and-check pass over a text file: the digits (when ``emit``) and, at the end, ``scan``."""
 
     def __init__(
         self,
         src: ByteSource,
+        plan: Detection,
+        strict: bool,
         *,
-        base: int | None = None,
-        constant: str | None = None,
-        packed: bool | None = None,
-        strict_labels: bool = False,
-        labels: str | None = None,
+        emit: bool = True,
+        progress: Progress | None = None,
     ) -> None:
-        self._src: ByteSource | None = src
-        self.path, self.size_bytes, self.compression = src.path, src.size_bytes, src.compression
-        self._constant, self._strict = constant, strict_labels
-        self._df: DigitFile | None = None
-        self._scan: IndexResult | None = None
-        self._buf, self._at = b"", 0
-        self.digits_read = 0
-        self._stored = 0
-        src, plan, head = detect_source(src, base, packed, labels)
-        self._src, self._plan = src, plan
-        if plan is None:  # packed hex: two digits per byte, nothing to validate
-            self._df = _open_packed(src, head, base, constant, None)
-            self.base, self.base_how, self.integer_part = 16, self._df.base_how, None
-            self.head_digits = head[:32].hex().upper()
-            self.how = "packed"
-            self._gen: Iterator[bytes] | None = self._from_file()
-            return
-        assert plan.base is not None
-        self.base, self.base_how, self.integer_part = plan.base, plan.base_how, plan.integer_part
-        self.head_digits = plan.head_digits.decode("ascii").upper()
-        if not _streamable(plan):
-            scan = build_index(src, plan, plan.base, strict_labels=strict_labels)
-            self._df = text_digit_file(src, plan, scan, constant)
-            self.how = "index pass, then read"
-            self._gen = self._from_file()
-        elif plan.syntax is None:
-            self.how = "read and checked in one pass"
-            self._gen = self._plain(plan)
-        else:
-            self.how = "read and checked in one pass (labelled lines)"
-            self._gen = self._labelled(plan)
+        self.src, self.plan, self.strict, self.emit, self.progress = src, plan, strict, emit, progress
+        self.stored = 0
+        """Bytes of the file as stored consumed so far."""
+        self.scan: IndexResult | None = None
+        """What the index pass returns, once the pass is at the end."""
 
-    # -- reading -------------------------------------------------------------
-    @property
-    def bytes_done(self) -> int:
-        """Bytes of the file as stored consumed so far (compressed bytes for a compressed file)."""
-        return self._stored
+    def run(self) -> Iterator[bytes]:
+        return self.plain() if self.plan.syntax is None else self.labelled()
 
-    @property
-    def done(self) -> bool:
-        """True once every digit has been handed out."""
-        return self._gen is None and self._at >= len(self._buf)
-
-    def chunks(self) -> Iterator[bytes]:
-        """The remaining digits (upper-case ASCII bytes), chunk by chunk, in order."""
-        if self._at < len(self._buf):
-            rest, self._buf, self._at = self._buf[self._at :], b"", 0
-            self.digits_read += len(rest)
-            yield rest
-        while self._gen is not None:
-            try:
-                piece = next(self._gen)
-            except StopIteration:
-                self._gen = None
-                break
-            self.digits_read += len(piece)
-            yield piece
-
-    def take(self, n: int) -> bytes:
-        """The next ``n`` digits (fewer only at the end of the file)."""
-        have = len(self._buf) - self._at
-        if have < n:
-            parts = [self._buf[self._at :]]
-            while have < n and self._gen is not None:
-                try:
-                    piece = next(self._gen)
-                except StopIteration:
-                    self._gen = None
-                    break
-                parts.append(piece)
-                have += len(piece)
-            self._buf, self._at = b"".join(parts), 0
-        out = self._buf[self._at : self._at + n]
-        self._at += len(out)
-        self.digits_read += len(out)
-        return out
-
-    def drain(self) -> None:
-        """Read to the end without keeping the digits (the count, findings and index are then known)."""
-        for _ in self.chunks():
-            pass
-
-    def finish(self) -> DigitFile:
-        """The :class:`DigitFile` once every digit was read; it takes over the open file."""
-        if not self.done:
-            raise UsageError(f"{self.path}: finish() before the end of the stream")
-        if self._df is None:
-            assert self._plan is not None and self._scan is not None and self._src is not None
-            self._df = text_digit_file(self._src, self._plan, self._scan, self._constant)
-        df, self._df, self._src = self._df, None, None
-        if df is None:
-            raise UsageError(f"{self.path}: finish() was already called")
-        return df
-
-    # -- the passes ----------------------------------------------------------
-    def _from_file(self) -> Iterator[bytes]:
-        df = self._df
-        assert df is not None
-        for p, digits in df.iter_chunks(STREAM_CHUNK_BYTES):
-            self._stored = df.size_bytes * (p + len(digits) - 1) // df.count
-            yield digits.encode("ascii")
-
-    def _source(self) -> ByteSource:
-        if self._src is None:
-            raise UsageError(f"{self.path} is closed")
-        return self._src
-
-    def _plain(self, plan: Detection) -> Iterator[bytes]:
+    def plain(self) -> Iterator[bytes]:
         """Unlabelled text: every byte a digit or whitespace; regular while it follows the unit."""
-        src = self._source()
+        src, plan = self.src, self.plan
         base = plan.base
         assert base is not None
         table, norm = class_table(base), norm_table(base)
@@ -404,7 +301,7 @@ class DigitStream:
         res = IndexResult(
             count=d1, regular=False, unit=None, unit_digits=0, unit_cols=[], region_start=plan.seg_end
         )
-        if d1:
+        if d1 and self.emit:
             yield plan.seg_digits.upper()
         off, pos = plan.seg_end, d1
         line = plan.first_line_no + (1 if plan.seg_end > plan.digits_offset else 0)
@@ -454,11 +351,13 @@ class DigitStream:
                 regular = body == units[: len(body)]
             pos += k
             off += len(data)
-            self._stored = src.stored_bytes_done(off)
+            self.stored = src.stored_bytes_done(off)
+            if self.progress:
+                self.progress(self.stored, src.size_bytes)
             if k:
-                digits = bytes(memoryview(out)[:k])
-                tail = (tail + digits[-TAIL_DIGITS:])[-TAIL_DIGITS:]
-                yield digits
+                tail = (tail + bytes(out[max(0, k - TAIL_DIGITS) : k]))[-TAIL_DIGITS:]
+                if self.emit:
+                    yield bytes(memoryview(out)[:k])
             if last:
                 break
         src.check_unchanged()
@@ -468,15 +367,15 @@ class DigitStream:
             res.regular, res.unit, res.unit_digits = True, unit, unit.count(b"d")
             res.unit_cols = [i for i, c in enumerate(unit) if c == ord("d")]
             res.index_pos, res.index_off, res.index_line = array("q"), array("q"), array("q")
-        self._scan = res
+        self.scan = res
 
-    def _labelled(self, plan: Detection) -> Iterator[bytes]:
+    def labelled(self) -> Iterator[bytes]:
         """Lines with position labels: the loop takes plain lines, the index pass's line rule the rest."""
-        src = self._source()
+        src, plan = self.src, self.plan
         base, syntax, meaning = plan.base, plan.syntax, plan.meaning
         assert base is not None and syntax is not None and meaning is not None
         name = os.path.basename(src.path)
-        check = _LabelCheck(meaning, syntax, self._strict, name)
+        check = _LabelCheck(meaning, syntax, self.strict, name)
         d1 = len(plan.seg_digits)
         if plan.first_label_text is not None:
             check.feed(plan.first_label_text.encode(), 0, d1, plan.first_line_no, plan.digits_offset)
@@ -486,7 +385,7 @@ class DigitStream:
             count=d1, regular=False, unit=None, unit_digits=0, unit_cols=[], region_start=plan.seg_end
         )
         tail = plan.seg_digits[-TAIL_DIGITS:].upper()
-        if d1:
+        if d1 and self.emit:
             yield plan.seg_digits.upper()
         most = _most_label_chars(syntax)
         assert most is not None
@@ -553,16 +452,157 @@ class DigitStream:
                     line += 1
                 lo = end + 1
             off += len(data)
-            self._stored = src.stored_bytes_done(off)
+            self.stored = src.stored_bytes_done(off)
+            if self.progress:
+                self.progress(self.stored, src.size_bytes)
             if k:
-                chunk = bytes(memoryview(out)[:k])
-                tail = (tail + chunk[-TAIL_DIGITS:])[-TAIL_DIGITS:]
-                yield chunk
+                tail = (tail + bytes(out[max(0, k - TAIL_DIGITS) : k]))[-TAIL_DIGITS:]
+                if self.emit:
+                    yield bytes(memoryview(out)[:k])
         src.check_unchanged()
         res.findings = check.finish()
         res.label_meaning = meaning.name
         res.count, res.last_digits, res.content_bytes = pos, tail, off
-        self._scan = res
+        self.scan = res
+
+
+
+def index_pass(
+    src: ByteSource,
+    plan: Detection,
+    *,
+    strict_labels: bool = False,
+    progress: Progress | None = None,
+) -> IndexResult | None:
+    """The index pass through the compiled loops (``build_index`` calls it), or None when they do not
+    serve: not built, or a layout they do not know."""
+    if STREAM_PASS != "c" or not _streamable(plan):
+        return None
+    one = _Pass(src, plan, strict_labels, emit=False, progress=progress)
+    for _ in one.run():
+        pass
+    return one.scan
+
+
+class DigitStream:
+    """A digit file opened for one sequential read.  Use :func:`open_stream`.
+
+    Known at once: ``path``, ``size_bytes``, ``compression``, ``base``,
+    ``base_how``, ``integer_part``, ``head_digits``.  ``digits_read`` and
+    ``bytes_done`` grow as the stream is read; after the end, :meth:`finish`
+    gives the :class:`DigitFile` (count, findings, constant, random access).
+    """
+
+    def __init__(
+        self,
+        src: ByteSource,
+        *,
+        base: int | None = None,
+        constant: str | None = None,
+        packed: bool | None = None,
+        strict_labels: bool = False,
+        labels: str | None = None,
+    ) -> None:
+        self._src: ByteSource | None = src
+        self.path, self.size_bytes, self.compression = src.path, src.size_bytes, src.compression
+        self._constant, self._strict = constant, strict_labels
+        self._df: DigitFile | None = None
+        self._pass: _Pass | None = None
+        self._buf, self._at = b"", 0
+        self.digits_read = 0
+        self._stored = 0
+        src, plan, head = detect_source(src, base, packed, labels)
+        self._src, self._plan = src, plan
+        if plan is None:  # packed hex: two digits per byte, nothing to validate
+            self._df = _open_packed(src, head, base, constant, None)
+            self.base, self.base_how, self.integer_part = 16, self._df.base_how, None
+            self.head_digits = head[:32].hex().upper()
+            self.how = "packed"
+            self._gen: Iterator[bytes] | None = self._from_file()
+            return
+        assert plan.base is not None
+        self.base, self.base_how, self.integer_part = plan.base, plan.base_how, plan.integer_part
+        self.head_digits = plan.head_digits.decode("ascii").upper()
+        if not _streamable(plan):
+            scan = build_index(src, plan, plan.base, strict_labels=strict_labels)
+            self._df = text_digit_file(src, plan, scan, constant)
+            self.how = "index pass, then read"
+            self._gen = self._from_file()
+        else:
+            self._pass = _Pass(src, plan, strict_labels)
+            self.how = "read and checked in one pass"
+            self._gen = self._pass.run()
+
+    # -- reading -------------------------------------------------------------
+    @property
+    def bytes_done(self) -> int:
+        """Bytes of the file as stored consumed so far (compressed bytes for a compressed file)."""
+        return self._pass.stored if self._pass is not None else self._stored
+
+    @property
+    def done(self) -> bool:
+        """True once every digit has been handed out."""
+        return self._gen is None and self._at >= len(self._buf)
+
+    def chunks(self) -> Iterator[bytes]:
+        """The remaining digits (upper-case ASCII bytes), chunk by chunk, in order."""
+        if self._at < len(self._buf):
+            rest, self._buf, self._at = self._buf[self._at :], b"", 0
+            self.digits_read += len(rest)
+            yield rest
+        while self._gen is not None:
+            try:
+                piece = next(self._gen)
+            except StopIteration:
+                self._gen = None
+                break
+            self.digits_read += len(piece)
+            yield piece
+
+    def take(self, n: int) -> bytes:
+        """The next ``n`` digits (fewer only at the end of the file)."""
+        have = len(self._buf) - self._at
+        if have < n:
+            parts = [self._buf[self._at :]]
+            while have < n and self._gen is not None:
+                try:
+                    piece = next(self._gen)
+                except StopIteration:
+                    self._gen = None
+                    break
+                parts.append(piece)
+                have += len(piece)
+            self._buf, self._at = b"".join(parts), 0
+        out = self._buf[self._at : self._at + n]
+        self._at += len(out)
+        self.digits_read += len(out)
+        return out
+
+    def drain(self) -> None:
+        """Read to the end without keeping the digits (the count, findings and index are then known)."""
+        for _ in self.chunks():
+            pass
+
+    def finish(self) -> DigitFile:
+        """The :class:`DigitFile` once every digit was read; it takes over the open file."""
+        if not self.done:
+            raise UsageError(f"{self.path}: finish() before the end of the stream")
+        if self._df is None:
+            assert self._plan is not None and self._pass is not None and self._src is not None
+            assert self._pass.scan is not None
+            self._df = text_digit_file(self._src, self._plan, self._pass.scan, self._constant)
+        df, self._df, self._src = self._df, None, None
+        if df is None:
+            raise UsageError(f"{self.path}: finish() was already called")
+        return df
+
+    # -- the passes ----------------------------------------------------------
+    def _from_file(self) -> Iterator[bytes]:
+        df = self._df
+        assert df is not None
+        for p, digits in df.iter_chunks(STREAM_CHUNK_BYTES):
+            self._stored = df.size_bytes * (p + len(digits) - 1) // df.count
+            yield digits.encode("ascii")
 
     # -- life cycle ----------------------------------------------------------
     def close(self) -> None:
