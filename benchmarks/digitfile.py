@@ -9,8 +9,10 @@ pass's speed does not depend on which digits it reads.
     PYTHONPATH=. python benchmarks/digitfile.py --gib 4    # larger
 
 Layouts measured: regular lines (100 digits in groups of 10, the fast loop),
-irregular line lengths (the indexed loop), labelled lines (the line-by-line
-loop, on a smaller file) and gzip (on a smaller file).  The files were just
+irregular line lengths and labelled lines (on a smaller file), both through
+the compiled loops of the read-and-check stream, and gzip (on a smaller file);
+for the first four, also the read-and-check stream itself (``open_stream``,
+every digit handed out, then ``finish()``).  The files were just
 written, so they are read from the page cache: these are CPU figures.  Each
 file is opened three times (a fresh process each time) and the fastest pass is
 reported, with the highest peak memory of the three.
@@ -115,12 +117,19 @@ def peak_rss() -> int:
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
 
 
-def measure(path: str) -> None:
-    """Child process: open the file once and report."""
-    from spotcheck.digitfile import open_digit_file
+def measure(path: str, stream: bool = False) -> None:
+    """Child process: open the file once (or read it once through the stream) and report."""
+    from spotcheck.digitfile import open_digit_file, open_stream
 
     t0 = time.perf_counter()
-    with open_digit_file(path, constant="pi") as df:
+    if stream:  # the read-and-check stream: every digit handed out, then the file for random access
+        with open_stream(path, constant="pi") as s:
+            for _ in s.chunks():
+                pass
+            opened = s.finish()
+    else:
+        opened = open_digit_file(path, constant="pi")
+    with opened as df:
         seconds = time.perf_counter() - t0
         n, access = df.count, df.layout.access
         # a few random windows, to show the reads after the pass
@@ -148,10 +157,11 @@ def measure(path: str) -> None:
 REPEAT = 3  # passes per file; the fastest is reported (the machine may be shared)
 
 
-def run_child(path: str) -> dict[str, float]:
+def run_child(path: str, stream: bool = False) -> dict[str, float]:
     runs = []
     for _ in range(REPEAT):
-        out = subprocess.run([sys.executable, __file__, "--measure", path], capture_output=True, text=True)
+        flag = "--measure-stream" if stream else "--measure"
+        out = subprocess.run([sys.executable, __file__, flag, path], capture_output=True, text=True)
         if out.returncode != 0:
             sys.exit(f"measuring {path} failed:\n{out.stderr}")
         runs.append(json.loads(out.stdout))
@@ -186,9 +196,10 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     ap.add_argument("--gib", type=float, default=1.0, help="size of the large files in GiB (default 1)")
     ap.add_argument("--measure", help=argparse.SUPPRESS)
+    ap.add_argument("--measure-stream", help=argparse.SUPPRESS)
     args = ap.parse_args()
-    if args.measure:
-        measure(args.measure)
+    if args.measure or args.measure_stream:
+        measure(args.measure or args.measure_stream, stream=bool(args.measure_stream))
         return
     size = int(args.gib * 2**30)
     rng = random.Random(2026)
@@ -201,15 +212,20 @@ def main() -> None:
             ("irregular lines (indexed)", block_irregular(rng, 64 * MIB)),
         ):
             write_file(path, size, block)
-            report(label, run_child(path), wc=wc_seconds(path))
+            wc = wc_seconds(path)
+            report(label, run_child(path), wc=wc)
+            report("  the same, stream", run_child(path, stream=True), wc=wc)
             os.remove(path)
         small = min(size, 256 * MIB)
-        write_labelled(path, small, rng)
-        report("labelled lines (':')", run_child(path), wc=wc_seconds(path))
-        os.remove(path)
-        write_blank_labelled(path, small, rng)
-        report("labelled lines (blanks)", run_child(path), wc=wc_seconds(path))
-        os.remove(path)
+        for label, writer in (
+            ("labelled lines (':')", write_labelled),
+            ("labelled lines (blanks)", write_blank_labelled),
+        ):
+            writer(path, small, rng)
+            wc = wc_seconds(path)
+            report(label, run_child(path), wc=wc)
+            report("  the same, stream", run_child(path, stream=True), wc=wc)
+            os.remove(path)
         gz = path + ".gz"
         with gzip.open(gz, "wb", compresslevel=1) as f:
             f.write(b"3.")
