@@ -98,7 +98,7 @@ def _small_chunks(monkeypatch: pytest.MonkeyPatch, seed: int) -> None:
     rng = random.Random(seed)
     monkeypatch.setattr(stream_mod, "STREAM_CHUNK_BYTES", rng.choice((1, 7, 64, 300, 4 << 20)))
     monkeypatch.setattr(stream_mod, "LABELLED_STREAM_CHUNK_BYTES", rng.choice((1000, 4096, 2 << 20)))
-    monkeypatch.setattr(stream_mod, "INDEX_STEP", rng.choice((1, 5, 64, 64 << 10)))
+    monkeypatch.setattr(index_mod, "INDEX_STEP", rng.choice((1, 5, 64, 64 << 10)))
 
 
 @settings(max_examples=250, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
@@ -166,7 +166,7 @@ def test_a_stray_byte_anywhere_is_the_index_pass_error(
         "grouped": lambda i, d: " ".join(d[j : j + 8] for j in range(0, len(d), 8)),
     }[where]
     clean = Path(_labelled(tmp_path / "c.txt", digits, 64, fmt)).read_bytes()
-    monkeypatch.setattr(stream_mod, "INDEX_STEP", 100)
+    monkeypatch.setattr(index_mod, "INDEX_STEP", 100)
     for at in sorted(rng.sample(range(200, len(clean)), 25)) + [len(clean) - 2]:
         if clean[at] in b"\n\r":
             continue

@@ -69,8 +69,9 @@ if os.environ.get("SPOTCHECK_PURE", "").strip().lower() not in ("1", "true", "ye
         FIRST_PASS = "c"
 
 USE_STREAM_LOOPS = FIRST_PASS == "c"
-"""Labelled and irregular layouts go through the compiled loops of the read-and-check
-stream (``stream.index_pass``, same rules, same findings and errors); False keeps
+"""The pass goes through the compiled loops of the read-and-check stream
+(``stream.index_pass``: the same rules, findings and errors; a regular chunk is
+still checked by ``first_mismatch`` alone) when they know the layout; False keeps
 the loops below for every layout (the tests' reference)."""
 
 Progress = Callable[[int, int], None]
@@ -205,8 +206,7 @@ def build_index(
     progress: Progress | None = None,
 ) -> IndexResult:
     """Run the pass from ``plan.seg_end`` to the end of the content."""
-    unit = plan.template
-    if USE_STREAM_LOOPS and (plan.syntax is not None or not (unit and b"d" in unit and b"?" not in unit)):
+    if USE_STREAM_LOOPS:
         from spotcheck.digitfile.stream import index_pass  # imported here: stream.py imports this module
 
         fast = index_pass(src, plan, strict_labels=strict_labels, progress=progress)

@@ -43,15 +43,16 @@ from array import array
 from collections.abc import Iterator
 from types import TracebackType
 
+from spotcheck.digitfile import index as _index_module
 from spotcheck.digitfile.charsets import WS, allowed_set, class_table, digit_set
 from spotcheck.digitfile.detect import Detection, LabelSyntax
 from spotcheck.digitfile.index import (
-    INDEX_STEP,
     TAIL_DIGITS,
     IndexResult,
     Progress,
     _LabelCheck,
     build_index,
+    first_mismatch,
     stray_error,
 )
 from spotcheck.digitfile.reader import DigitFile, _open_packed, detect_source, text_digit_file
@@ -296,6 +297,7 @@ class _Pass:
         base = plan.base
         assert base is not None
         table, norm = class_table(base), norm_table(base)
+        step = _index_module.INDEX_STEP  # bytes between index entries: the index pass's own setting
         d1 = len(plan.seg_digits)
         tail = plan.seg_digits[-TAIL_DIGITS:].upper()
         res = IndexResult(
@@ -324,16 +326,41 @@ class _Pass:
                 q, r = divmod(m, len(unit))
                 return q * width + cum[r]
 
+            per_unit = unit.count(b"\n")
+            cum_lf = [unit[:r].count(b"\n") for r in range(len(unit) + 1)]
+            keep = (TAIL_DIGITS // max(1, width) + 2) * len(unit)  # bytes that hold the last digits
+
+            def breaks_before(m: int) -> int:  # line breaks in units[:m]
+                q, r = divmod(m, len(unit))
+                return q * per_unit + cum_lf[r]
+
         while True:
             data = src.read_at(off, size)
             if not data:
                 break
             view = memoryview(data)
             last = len(data) < size
+            was_regular = regular
             k = 0
-            for i in range(0, len(data), INDEX_STEP):
-                blk = view[i : i + INDEX_STEP]
-                ask = uview[i : i + INDEX_STEP] if regular and not last else None
+            if regular and not last and not self.emit and first_mismatch(data, units, table) < 0:
+                # The index pass on a chunk that follows the unit: nothing to copy, counts by arithmetic.
+                for i in range(0, len(data), step):
+                    end = min(len(data), i + step)
+                    if digits_before(end) > digits_before(i):
+                        res.index_pos.append(pos + digits_before(i) + 1)
+                        res.index_off.append(off + i)
+                        res.index_line.append(line + breaks_before(i))
+                pos += digits_before(len(data))
+                line += breaks_before(len(data))
+                off += len(data)
+                tail = (tail + data[-keep:].translate(None, WS).upper())[-TAIL_DIGITS:]
+                self.stored = src.stored_bytes_done(off)
+                if self.progress:
+                    self.progress(self.stored, src.size_bytes)
+                continue
+            for i in range(0, len(data), step):
+                blk = view[i : i + step]
+                ask = uview[i : i + step] if regular and not last else None
                 nd, stray, nl, ok = extract(blk, table, norm, out, k, ask)
                 if stray >= 0:
                     at = off + i + stray
@@ -346,6 +373,9 @@ class _Pass:
                     res.index_line.append(line)
                 k += nd
                 line += nl
+            if was_regular and not regular and not last and not src.read_at(off + len(data), 1):
+                last = True  # a full chunk that ends the file: trailing blank lines are allowed there too
+                regular = True
             if regular and last:
                 body = data.translate(table).rstrip(WS)
                 regular = body == units[: len(body)]
@@ -372,6 +402,7 @@ class _Pass:
     def labelled(self) -> Iterator[bytes]:
         """Lines with position labels: the loop takes plain lines, the index pass's line rule the rest."""
         src, plan = self.src, self.plan
+        step = _index_module.INDEX_STEP  # bytes between index entries: the index pass's own setting
         base, syntax, meaning = plan.base, plan.syntax, plan.meaning
         assert base is not None and syntax is not None and meaning is not None
         name = os.path.basename(src.path)
@@ -399,7 +430,7 @@ class _Pass:
         )
         table, norm, allowed = class_table(base), norm_table(base), allowed_set(base)
         off, pos, line = plan.seg_end, d1, plan.first_line_no + 1
-        last_index = -INDEX_STEP
+        last_index = -step
         size = LABELLED_STREAM_CHUNK_BYTES
         out = bytearray(size)
         while True:
@@ -415,7 +446,7 @@ class _Pass:
             lo = k = 0
             while lo < len(data):
                 used, nd, lines, _stop, entries, last_index = extract_labelled(
-                    view[lo:], table, norm, out, k, layout, pos, off + lo, line, INDEX_STEP, last_index
+                    view[lo:], table, norm, out, k, layout, pos, off + lo, line, step, last_index
                 )
                 for p, o, ln in entries:
                     res.index_pos.append(p)
@@ -440,7 +471,7 @@ class _Pass:
                 elif digits:
                     check.no_label(line, off + lo, pos)
                 if digits:
-                    if off + lo - last_index >= INDEX_STEP:
+                    if off + lo - last_index >= step:
                         res.index_pos.append(pos + 1)
                         res.index_off.append(off + lo)
                         res.index_line.append(line)
@@ -464,7 +495,6 @@ class _Pass:
         res.label_meaning = meaning.name
         res.count, res.last_digits, res.content_bytes = pos, tail, off
         self.scan = res
-
 
 
 def index_pass(
