@@ -294,7 +294,7 @@ class _FileDigits:
         self.digits_read += len(out)
         return out
 
-    def chunks(self) -> Iterator[bytes]:
+    def chunks(self, copy: bool = True) -> Iterator[bytes]:
         while not self.done:
             yield self.take(CHUNK_DIGITS)
 
@@ -423,7 +423,7 @@ def _compare(
     compared = 0
     try:
         with _label_hint():
-            ita, itb = sa.chunks(), sb.chunks()
+            ita, itb = sa.chunks(copy=False), sb.chunks(copy=False)  # each chunk is done with before the next
             pa = pb = b""
             ia = ib = 0
             p = 1

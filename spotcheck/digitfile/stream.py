@@ -287,9 +287,26 @@ class _Pass:
         """Bytes of the file as stored consumed so far."""
         self.scan: IndexResult | None = None
         """What the index pass returns, once the pass is at the end."""
+        self.reuse = False
+        """Hand out the pass's own buffer (valid until the next chunk is asked for) instead of copies."""
+        self._pad = b""
 
     def run(self) -> Iterator[bytes]:
         return self.plain() if self.plan.syntax is None else self.labelled()
+
+    def _hand_out(self, out: bytearray, k: int) -> Iterator[bytes]:
+        """The first ``k`` bytes of ``out``: a copy, or with ``reuse`` the buffer itself, cut to ``k``
+        bytes until the consumer asks for more (no new buffer each chunk: fresh pages cost as
+        much as the copy loop)."""
+        if not self.reuse:
+            yield bytes(memoryview(out)[:k])
+            return
+        full = len(out)
+        if len(self._pad) < full:
+            self._pad = bytes(full)
+        del out[k:]
+        yield out  # type: ignore[misc]  # a bytearray, which the caller may not keep
+        out.extend(memoryview(self._pad)[: full - k])  # back to its size, in place
 
     def plain(self) -> Iterator[bytes]:
         """Unlabelled text: every byte a digit or whitespace; regular while it follows the unit."""
@@ -387,7 +404,7 @@ class _Pass:
             if k:
                 tail = (tail + bytes(out[max(0, k - TAIL_DIGITS) : k]))[-TAIL_DIGITS:]
                 if self.emit:
-                    yield bytes(memoryview(out)[:k])
+                    yield from self._hand_out(out, k)
             if last:
                 break
         src.check_unchanged()
@@ -489,7 +506,7 @@ class _Pass:
             if k:
                 tail = (tail + bytes(out[max(0, k - TAIL_DIGITS) : k]))[-TAIL_DIGITS:]
                 if self.emit:
-                    yield bytes(memoryview(out)[:k])
+                    yield from self._hand_out(out, k)
         src.check_unchanged()
         res.findings = check.finish()
         res.label_meaning = meaning.name
@@ -574,8 +591,15 @@ class DigitStream:
         """True once every digit has been handed out."""
         return self._gen is None and self._at >= len(self._buf)
 
-    def chunks(self) -> Iterator[bytes]:
-        """The remaining digits (upper-case ASCII bytes), chunk by chunk, in order."""
+    def chunks(self, copy: bool = True) -> Iterator[bytes]:
+        """The remaining digits (upper-case ASCII bytes), chunk by chunk, in order.
+
+        With ``copy=False`` a chunk may be the stream's own buffer (a ``bytearray``),
+        valid only until the next chunk is asked for: for callers done with each
+        chunk before they take the next, it saves a copy and fresh memory per chunk.
+        """
+        if self._pass is not None:
+            self._pass.reuse = not copy
         if self._at < len(self._buf):
             rest, self._buf, self._at = self._buf[self._at :], b"", 0
             self.digits_read += len(rest)
@@ -592,6 +616,8 @@ class DigitStream:
     def take(self, n: int) -> bytes:
         """The next ``n`` digits (fewer only at the end of the file)."""
         have = len(self._buf) - self._at
+        if self._pass is not None:
+            self._pass.reuse = False  # the pieces are joined after the next ones are read
         if have < n:
             parts = [self._buf[self._at :]]
             while have < n and self._gen is not None:
