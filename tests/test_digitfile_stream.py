@@ -241,3 +241,33 @@ def test_index_pass_through_the_stream_loops_is_the_same(
     _small_chunks(monkeypatch, seed)
     monkeypatch.setattr(index_mod, "USE_STREAM_LOOPS", True)
     assert _reference_read(str(path), spec.base, strict) == want, (spec, data[:200])
+
+
+def test_a_layout_the_loops_do_not_know_is_read_by_the_index_pass(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # A Detection field added later (say, labels at both ends) that is set on a file: the stream
+    # must not guess; it runs the index pass first and streams from the opened file.
+    from spotcheck.digitfile.detect import Detection
+
+    @dataclasses.dataclass
+    class Later(Detection):
+        end_labels: object = None
+
+    plan = Later(**{f.name: None for f in dataclasses.fields(Detection)})
+    plan.syntax = None
+    assert stream_mod._streamable(plan)
+    plan.end_labels = "something"
+    assert not stream_mod._streamable(plan)
+    # The fallback reads what the index pass reads.
+    monkeypatch.setattr(stream_mod, "_streamable", lambda plan: False)
+    rng = random.Random(8)
+    digits = "".join(rng.choice("0123456789") for _ in range(5000))
+    path = tmp_path / "f.txt"
+    path.write_text("3.\n" + "\n".join(f"{i:>6}: {digits[i : i + 50]}" for i in range(0, 5000, 50)) + "\n")
+    with open_stream(path) as s:
+        assert s.how == "index pass, then read"
+        assert b"".join(s.chunks()).decode() == digits
+        df = s.finish()
+    with df:
+        assert df.count == 5000 and df.layout.labels == "start"
