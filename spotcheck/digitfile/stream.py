@@ -535,7 +535,9 @@ class DigitStream:
     """A digit file opened for one sequential read.  Use :func:`open_stream`.
 
     Known at once: ``path``, ``size_bytes``, ``compression``, ``base``,
-    ``base_how``, ``integer_part``, ``head_digits``.  ``digits_read`` and
+    ``base_how``, ``integer_part``, ``head_digits``, and ``how`` the digits are
+    read (in one pass; or, for packed hex and layouts the loops do not know,
+    from a :class:`DigitFile` opened by the index pass).  ``digits_read`` and
     ``bytes_done`` grow as the stream is read; after the end, :meth:`finish`
     gives the :class:`DigitFile` (count, findings, constant, random access).
     """
@@ -552,7 +554,7 @@ class DigitStream:
     ) -> None:
         self._src: ByteSource | None = src
         self.path, self.size_bytes, self.compression = src.path, src.size_bytes, src.compression
-        self._constant, self._strict = constant, strict_labels
+        self._constant = constant
         self._df: DigitFile | None = None
         self._pass: _Pass | None = None
         self._buf, self._at = b"", 0
