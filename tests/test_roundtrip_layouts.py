@@ -9,11 +9,13 @@ from __future__ import annotations
 
 import tempfile
 
+import pytest
 from hypothesis import HealthCheck, example, given, settings
 
+from spotcheck.digitfile import open_digit_file
 from tests.fuzz.oracle import round_trip
 from tests.fuzz.strategies import specs
-from tests.fuzz.writer import HEADERS, Label, Spec, write
+from tests.fuzz.writer import HEADERS, Label, Spec, suffix, write
 from tests.reference import pi_decimal, pi_hex
 
 H = pi_hex(1200)
@@ -51,6 +53,70 @@ EXAMPLES = {
     "tabs between groups": Spec(H, 16, "3", width=40, group=10, group_sep="\t"),
 }
 
+# Labels at both ends of every line: each column must follow its own progression.
+BOTH_EXAMPLES = {
+    "both ':' decimal 1-based, grouped": Spec(
+        D, 10, None, width=30, group=10, label=Label("both", 10, ": ", "first", end_sep=" : ")
+    ),
+    "both ':' decimal 1-based, integer part": Spec(
+        D, 10, "3", width=50, label=Label("both", 10, ": ", "first", end_sep=" : ")
+    ),
+    "both hex byte offsets, blanks (hex dump)": Spec(
+        H, 16, None, width=16, group=8, label=Label("both", 16, "  ", "before", 2, 8, "  ", 8)
+    ),
+    "both hex byte offsets ':' 1-based": Spec(
+        H, 16, None, width=40, label=Label("both", 16, ": ", "first", 2, end_sep=": ")
+    ),
+    "both blanks decimal, right-aligned": Spec(
+        D, 10, None, width=20, label=Label("both", 10, "  ", "first", pad=6, end_sep="  ")
+    ),
+    "both '|' 0-based, decimal labels on hex digits": Spec(
+        H, 16, None, width=24, label=Label("both", 10, " | ", "before", pad=4, end_sep=" | ")
+    ),
+    "both tabs": Spec(D, 10, None, width=50, group=10, label=Label("both", 10, "\t", "before", end_sep="\t")),
+    "both ':' at the start, blanks at the end": Spec(
+        D, 10, None, width=50, group=10, label=Label("both", 10, ": ", "first", pad=5, end_sep="  ")
+    ),
+    "both blanks at the start, '|' at the end": Spec(
+        H, 16, None, width=32, group=8, label=Label("both", 16, " ", "before", 2, 8, "|")
+    ),
+    "both CRLF": Spec(
+        D, 10, "3", width=50, group=10, newline="\r\n", label=Label("both", 10, ": ", "first", end_sep=" : ")
+    ),
+    "both CR, lower case": Spec(
+        H,
+        16,
+        None,
+        width=32,
+        newline="\r",
+        lower=True,
+        label=Label("both", 16, ": ", "before", 2, end_sep=" : "),
+    ),
+    "both gzip": Spec(
+        H,
+        16,
+        "3",
+        width=64,
+        group=16,
+        compression="gzip",
+        label=Label("both", 10, " | ", "first", end_sep=" | "),
+    ),
+    "both xz, header": Spec(
+        D,
+        10,
+        None,
+        width=60,
+        compression="xz",
+        header=HEADERS[:2],
+        label=Label("both", 10, ":", "before", end_sep=":"),
+    ),
+    "both one line": Spec(D[:100], 10, "3", label=Label("both", 10, " : ", "before", end_sep=" : ")),
+    "both no final newline": Spec(
+        D, 10, None, width=70, final_newline=False, label=Label("both", 10, " ", "first", end_sep=" ")
+    ),
+}
+EXAMPLES.update(BOTH_EXAMPLES)
+
 
 def check(spec: Spec) -> None:
     w = write(spec)
@@ -75,3 +141,26 @@ def test_round_trip(spec: Spec) -> None:
 
 def test_examples_cover_the_families() -> None:
     assert len(EXAMPLES) >= 12
+    kinds = {(s.label.radix, s.label.unit, s.label.kind) for s in BOTH_EXAMPLES.values() if s.label}
+    assert kinds >= {(10, 1, "first"), (10, 1, "before"), (16, 2, "first"), (16, 2, "before")}
+
+
+@given(specs(where="both"))
+@settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+def test_round_trip_both_ends(spec: Spec) -> None:
+    check(spec)
+
+
+@pytest.mark.parametrize("name", list(BOTH_EXAMPLES))
+def test_layout_says_both_ends(name: str, tmp_path) -> None:
+    """The layout read is the one written: labels at both ends, each with its own meaning."""
+    spec = BOTH_EXAMPLES[name]
+    assert spec.label is not None
+    w = write(spec)
+    path = tmp_path / ("x" + suffix(spec))
+    path.write_bytes(w.stored)
+    with open_digit_file(path, base=spec.base) as df:
+        lay = df.layout
+    start = spec.label.kind if spec.label.unit == 1 else f"bytes-{spec.label.kind}"
+    through = "through" if spec.label.unit == 1 else "bytes-through"
+    assert (lay.labels, lay.label_meaning, lay.end_label_meaning) == ("both", start, through)

@@ -543,7 +543,9 @@ def _score_both(p: _Parse, forced: bool = False) -> None:
     best: tuple[int, int, int] | None = None
     for mean in (m for m in MEANINGS if m.unit == unit and m.kind != "through"):
         agree = sum(
-            1 for v in vals if v is not None and v[0] == mean.expect(v[2], v[3]) and v[1] == through.expect(v[2], v[3])
+            1
+            for v in vals
+            if v is not None and v[0] == mean.expect(v[2], v[3]) and v[1] == through.expect(v[2], v[3])
         )
         steps = steps_ok = 0
         evidence = 0.0
@@ -710,7 +712,9 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
     parses = [_parse(s, examined, first) for s in syntaxes]
     for p in parses:
         if p.ok and p.syntax is not None:
-            (_score_both if p.syntax.where == "both" else _score)(p, forced=labels in ("start", "end", "both"))
+            (_score_both if p.syntax.where == "both" else _score)(
+                p, forced=labels in ("start", "end", "both")
+            )
     for p in parses:
         if p.ok and p.first_only:
             # Not when the other lines carry labels set off by blanks: the first line is damaged.

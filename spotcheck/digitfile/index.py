@@ -185,7 +185,9 @@ class _LabelCheck:
             raise LabelError(f"{self.name}: line {line}: {msg}")
         if self.missing <= MAX_FINDINGS:
             self.findings.append(
-                Finding("label-missing", msg, line=line, byte_offset=offset, position=before + 1, end=self.side)
+                Finding(
+                    "label-missing", msg, line=line, byte_offset=offset, position=before + 1, end=self.side
+                )
             )
 
     def finish(self) -> list[Finding]:
