@@ -245,7 +245,13 @@ def test_changed_end_label_is_a_finding_and_exit_1(command: str, tmp_path: Path,
     assert code == 1, err
     payload = json.loads(out)
     lf = payload["file"]["label_finding"]
-    assert (lf["kind"], lf["line"], lf["expected"], lf["found"]) == ("label-mismatch", 41, 1230, "1231")
+    assert (lf["kind"], lf["line"], lf["end"], lf["expected"], lf["found"]) == (
+        "label-mismatch",
+        41,
+        "end",
+        1230,
+        "1231",
+    )
     assert payload["labels_consistent"] is False
     if command == "locate":
         assert payload["first_mismatch"] is None  # the digits are right: only the label is damaged
@@ -253,6 +259,8 @@ def test_changed_end_label_is_a_finding_and_exit_1(command: str, tmp_path: Path,
     assert code == 0
     findings = json.loads(out)["findings"]
     assert [(f["line"], f["end"], f["expected"]) for f in findings] == [(41, "end", 1230)]
+    code, out, _ = cli(capsys, command, path)
+    assert code == 1 and "line 41: its end label says 1231, but the digits through it imply 1,230" in out
     code, _, _ = cli(capsys, command, path, "--ignore-labels")
     assert code == 0
 

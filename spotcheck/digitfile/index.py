@@ -309,15 +309,17 @@ def _scan_labelled(
     syntax, meaning = plan.syntax, plan.meaning
     assert syntax is not None and meaning is not None
     both = syntax.where == "both"
-    meanings = (meaning, plan.end_meaning) if both else (meaning,)
-    assert None not in meanings
+    meanings: tuple[LabelMeaning, ...] = (meaning,)
+    if both:
+        assert plan.end_meaning is not None
+        meanings = (meaning, plan.end_meaning)
     # One check per label column: the start and the end labels for "both", else the one column.
-    checks = [_LabelCheck(m, s, strict, name, both) for m, s in zip(meanings, syntax.ends, strict=True)]  # type: ignore[arg-type]
+    checks = [_LabelCheck(m, s, strict, name, both) for m, s in zip(meanings, syntax.ends, strict=True)]
     d1 = len(plan.seg_digits)
     first_texts = (plan.first_label_text, plan.first_end_label_text) if both else (plan.first_label_text,)
-    for check, text in zip(checks, first_texts, strict=True):
-        if text is not None:
-            check.feed(text.encode(), 0, d1, plan.first_line_no, plan.digits_offset)
+    for check, first_text in zip(checks, first_texts, strict=True):
+        if first_text is not None:
+            check.feed(first_text.encode(), 0, d1, plan.first_line_no, plan.digits_offset)
         elif d1:
             check.no_label(plan.first_line_no, plan.digits_offset, 0)
     allowed = allowed_set(base)

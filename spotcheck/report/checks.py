@@ -154,6 +154,8 @@ def label_sentence(result: CheckResult) -> str | None:
     where = f"line {lf.line:,}" if lf.line is not None else "a line"
     if lf.kind == "label-missing":
         what = f"{where}: no position label, unlike the lines around it"
+    elif lf.found is not None and lf.expected is not None and lf.end == "end":
+        what = f"{where}: its end label says {lf.found}, but the digits through it imply {lf.expected:,}"
     elif lf.found is not None and lf.expected is not None:
         what = f"{where}: labelled {lf.found}, but the digits before it imply {lf.expected:,}"
     else:
