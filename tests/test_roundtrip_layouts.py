@@ -7,12 +7,15 @@ independent of the reader.  Example digits are pi from gmpy2/MPFR
 
 from __future__ import annotations
 
+import re
 import tempfile
 
 import pytest
 from hypothesis import HealthCheck, example, given, settings
+from hypothesis import strategies as st
 
 from spotcheck.digitfile import open_digit_file
+from spotcheck.digitfile.detect import BOTH_SYNTAXES, SEPARATORS, SYNTAXES
 from tests.fuzz.oracle import round_trip
 from tests.fuzz.strategies import specs
 from tests.fuzz.writer import HEADERS, Label, Spec, suffix, write
@@ -164,3 +167,47 @@ def test_layout_says_both_ends(name: str, tmp_path) -> None:
     start = spec.label.kind if spec.label.unit == 1 else f"bytes-{spec.label.kind}"
     through = "through" if spec.label.unit == 1 else "bytes-through"
     assert (lay.labels, lay.label_meaning, lay.end_label_meaning) == ("both", start, through)
+
+
+# --- the bulk patterns (whole chunks) and the line patterns read the same labels ---------------
+_LINE = st.lists(
+    st.sampled_from(["1", "2", "9", "0", "10", "123", "a", "F", "0000000f", ":", "|", " ", "  ", "\t", "x"]),
+    max_size=8,
+).map("".join)
+_CHUNK = st.tuples(
+    st.lists(_LINE, min_size=1, max_size=6), st.sampled_from(["\n", "\r\n"]), st.booleans()
+).map(lambda t: t[1].join(t[0]) + (t[1] if t[2] else ""))
+ALL_SYNTAXES = SYNTAXES + BOTH_SYNTAXES
+
+
+@given(_CHUNK)
+@settings(max_examples=300, deadline=None)
+def test_end_labels_reversed_split_agrees_with_the_forward_pattern(text: str) -> None:
+    """The end-label split runs on the reversed chunk; forwards it is ``sep (label) blanks`` before ``CR* $``."""
+    data = text.encode()
+    for syntax in (s for s in SYNTAXES if s.where == "end"):
+        lab = rb"[0-9]{1,18}" if syntax.radix == 10 else rb"[0-9A-Fa-f]{1,16}"
+        forward = re.compile(SEPARATORS[syntax.sep] + rb"(" + lab + rb")[ \t]*(?=\r*$)", re.M)
+        parts = forward.split(data)
+        assert syntax.split(data) == (b"".join(parts[0::2]), parts[1::2]), syntax
+        assert syntax.strip(data) == b"".join(parts[0::2])
+
+
+@given(_CHUNK)
+@settings(max_examples=300, deadline=None)
+def test_bulk_and_line_patterns_read_the_same_labels(text: str) -> None:
+    """What the pass's list-level check sees (``split_all``) is what its line loop sees (``split_labels``)."""
+    data = text.encode()
+    for syntax in ALL_SYNTAXES:
+        cleaned, found = syntax.split_all(data)
+        lines = data.split(b"\n")
+        if data.endswith(b"\n"):
+            lines.pop()
+        per_line = [syntax.split_labels(t[:-1] if t.endswith(b"\r") else t) for t in lines]
+        for k in range(len(syntax.ends)):
+            assert found[k] == [labels[k] for labels, _, _ in per_line if labels[k] is not None], syntax
+        bodies = [t[b0:b1] for t, (_, b0, b1) in zip(lines, per_line, strict=True)]
+        blanks = b" \t\r"
+        assert cleaned.translate(None, blanks).split(b"\n")[: len(lines)] == [
+            b.translate(None, blanks) for b in bodies
+        ]

@@ -160,9 +160,14 @@ class LabelSyntax:
             bulk = rb"\n[ \t]*(" + lab + rb")" + sep
         else:
             line = sep + rb"(" + lab + rb")[ \t\r]*\Z"
-            bulk = sep + rb"(" + lab + rb")[ \t]*(?=\r*$)"
+            # Matched on the reversed chunk, where an end label starts its line: the pattern then
+            # begins with a line break, which Python's re scans for fast (forwards, a pattern that
+            # ends at the line's end is tried at every blank or mark, several times slower).
+            # Forwards it reads ``sep (label) [ \t]* \r*`` up to the line break; every separator
+            # pattern reads the same reversed.
+            bulk = rb"(\n\r*)[ \t]*(" + lab + rb")" + sep
         object.__setattr__(self, "_line", re.compile(line))
-        object.__setattr__(self, "_bulk", re.compile(bulk, re.M))
+        object.__setattr__(self, "_bulk", re.compile(bulk))
 
     @property
     def ends(self) -> tuple[LabelSyntax, ...]:
@@ -214,10 +219,10 @@ class LabelSyntax:
         if self.where == "both":
             start, end = self.ends
             return start.strip(end.strip(data))
+        if self.where == "end":
+            return self.split(data)[0]
         rx: re.Pattern[bytes] = self._bulk  # type: ignore[attr-defined]
-        if self.where == "start":
-            return rx.sub(b"\n", b"\n" + data)[1:]
-        return rx.sub(b"", data)
+        return rx.sub(b"\n", b"\n" + data)[1:]
 
     def split(self, data: bytes) -> tuple[bytes, list[bytes]]:
         """``(data without labels, the label texts in order)`` in one regex pass (one-sided syntaxes)."""
@@ -226,8 +231,14 @@ class LabelSyntax:
         if self.where == "start":
             parts = rx.split(b"\n" + data)
             return b"\n".join(parts[0::2])[1:], parts[1::2]
-        parts = rx.split(data)
-        return b"".join(parts[0::2]), parts[1::2]
+        # The reversed chunk, a line break before its first (the chunk's last) line: the pieces
+        # come as [text, line break and CRs, label, text, ...]; the labels are dropped, the
+        # rest joined and turned back, and the added line break cut off again.
+        parts = rx.split(b"\n" + data[::-1])
+        found = [label[::-1] for label in parts[2::3]]
+        found.reverse()
+        del parts[2::3]
+        return b"".join(parts)[::-1][:-1], found
 
     def split_all(self, data: bytes) -> tuple[bytes, tuple[list[bytes], ...]]:
         """``(data without labels, label texts)``: the texts in order, one list for each of :attr:`ends`."""

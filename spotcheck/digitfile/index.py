@@ -401,15 +401,18 @@ def _column_agrees(cleaned: bytes, found: list[bytes], pos: int, meaning: LabelM
         return False
     ends = list(accumulate(map(len, pieces), initial=pos))
     unit = meaning.unit
-    if any(e % unit for e in ends):
+    if unit != 1 and any(e % unit for e in ends):
         return False
+    got = list(map(int, found)) if radix == 10 else [int(f, 16) for f in found]
+    if meaning.kind == "through" and unit == 1:
+        return got == ends[1:]
     if meaning.kind == "before":
         expected = [e // unit for e in ends[:-1]]
     elif meaning.kind == "first":
         expected = [e // unit + 1 for e in ends[:-1]]
     else:
         expected = [e // unit for e in ends[1:]]
-    return [int(f, radix) for f in found] == expected
+    return got == expected
 
 
 def _labelled_chunk_fast(
