@@ -205,6 +205,7 @@ class LabelSyntax:
 
     def split_first(self, text: bytes) -> tuple[bytes | None, int, int]:
         """Like :meth:`split_line` for the first digit line, whose label may use any separator."""
+        assert self.where != "both", "a line labelled at both ends has no first-line variant"
         for sep in SEPARATORS:  # ':' or '|' first: it is the more specific
             got = (self if sep == self.sep else LabelSyntax(self.where, self.radix, sep)).split_line(text)
             if got[0] is not None:
