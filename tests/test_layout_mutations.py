@@ -138,6 +138,27 @@ def test_doubled_line_is_a_finding_at_both_ends_of_the_copy() -> None:
     ]
 
 
+def test_inserted_digit_is_not_made_good_by_reading_the_first_digit_as_a_label() -> None:
+    """One line ``0 0 f f ... | 231`` with a digit inserted: the end label now disagrees by one.
+
+    Reading the first digit ``0`` (set off by a blank) as a start label would make both labels
+    agree again and shift every digit; a blank-separated column needs evidence to be labels,
+    and one line has none (the fuzz found this).
+    """
+    digits = "0" + pi_hex(230)
+    spec = Spec(digits, 16, None, group=1, label=Label("end", 10, "\t|\t", "through", pad=6))
+    w = write(spec)
+    at = w.offsets[200]
+    content = w.content[:at] + b"C" + w.content[at:]
+    lo = hi = 200
+    try:
+        got, findings = _read(spec, content)
+    except SpotcheckError as exc:
+        assert place_named(exc), str(exc)
+        return
+    assert acceptable_mutation(w.full, got, findings, lo, hi, 1), got[:40]
+
+
 def test_fuzz_sample() -> None:
     """A few thousand fuzz inputs (benchmarks/fuzz_digitfile.py runs 10^5)."""
     tally = Tally()

@@ -581,11 +581,13 @@ def _score_both(p: _Parse, forced: bool = False) -> None:
         p.ok = p.agree >= 1
         if not p.ok:
             return
-    p.labelled = True
     if "blank" in (p.syntax.sep, p.syntax.end_sep) and not forced:
+        # Without that evidence the blank-separated column may be digits: this reading is then not
+        # even a fallback (a one-sided reading, or a refusal, is what the bytes support).
         p.ok = p.log_chance <= LABELS_LOG_CHANCE
     else:
         p.ok = True  # no other reading explains ':' or '|' at both ends: labels that disagree are damage
+    p.labelled = p.ok
 
 
 def _step_ok(mean: LabelMeaning, va: int, ba: int, na: int, vc: int, bc: int, nc: int) -> bool:
