@@ -313,7 +313,8 @@ IgnoreLabelsOpt = Annotated[
 LabelsOpt = Annotated[
     str | None,
     typer.Option(
-        "--labels", help="Where position labels are when the layout cannot tell: start, end or none."
+        "--labels",
+        help="Where position labels are when the layout cannot tell: start, end, both (each end) or none.",
     ),
 ]
 ReferenceOpt = Annotated[
@@ -388,7 +389,7 @@ def _hint(exc: Exception) -> str:
         "limit": f" (--limit {value})",
         "windows": "; use `spotcheck verify --budget 0` or `spotcheck locate` instead",
         "at": " (--at)",
-        "labels": " (--labels start|end|none)",
+        "labels": " (--labels start|end|both|none)",
     }
     if getattr(exc, "hint", None) == "cluster":  # an infeasible request (InfeasibleError)
         return "; running the head sum on a Dask cluster (--cluster ADDRESS) would make it feasible"

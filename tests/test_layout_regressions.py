@@ -65,6 +65,36 @@ def long_number_before_label(d: str) -> str:
     return d + " : " + str(len(d)) + "\n"
 
 
+def both_colon(d: str, width: int = 30) -> str:
+    """``1: 1415926535 8979323846 2643383279 : 30``: the first digit's position and the count through the line."""
+    return "".join(
+        f"{i * width + 1}: " + " ".join(chunks(line, 10)) + f" : {i * width + len(line)}\n"
+        for i, line in enumerate(chunks(d, width))
+    )
+
+
+def both_hex_dump(d: str) -> str:
+    """``00000000  243F6A88 85A308D3  00000008``: hex byte offsets before and through each line."""
+    return "".join(
+        f"{i * 8:08x}  " + " ".join(chunks(line, 8)) + f"  {i * 8 + len(line) // 2:08x}\n"
+        for i, line in enumerate(chunks(d, 16))
+    )
+
+
+def both_blanks(d: str, width: int = 20) -> str:
+    """``     1  14159265358979323846  20``: right-aligned decimal labels set off by blanks only."""
+    return "".join(
+        f"{i * width + 1:>6}  {line}  {i * width + len(line)}\n" for i, line in enumerate(chunks(d, width))
+    )
+
+
+def both_bars(d: str, width: int = 24) -> str:
+    """``   0 | 243F6A8885A308D313198A2E | 24``: digits before and through the line, set off by '|'."""
+    return "".join(
+        f"{i * width:>4} | {line} | {i * width + len(line)}\r\n" for i, line in enumerate(chunks(d, width))
+    )
+
+
 LAYOUTS: dict[str, tuple[Callable[[str], str], str]] = {
     "start-blank-decimal": (start_labels, "dec"),
     "start-blank-decimal-hex-digits": (start_labels, "hex"),
@@ -75,12 +105,30 @@ LAYOUTS: dict[str, tuple[Callable[[str], str], str]] = {
     "first-line-different": (first_line_different, "dec"),
     "cr-only": (cr_only, "dec"),
     "long-number-then-label": (long_number_before_label, "dec"),
+    "both-ends-colon": (both_colon, "dec"),
+    "both-ends-hexdump": (both_hex_dump, "hex"),
+    "both-ends-blanks": (both_blanks, "dec"),
+    "both-ends-bars-crlf": (both_bars, "hex"),
 }
 
 
 def damage(d: str, position: int) -> str:
     c = d[position - 1]
     return d[: position - 1] + ("1" if c != "1" else "2") + d[position:]
+
+
+def table_cell(out: str, key: str) -> str:
+    """The text of one row of ``inspect``'s table, its wrapped lines joined."""
+    cell: list[str] = []
+    for row in out.splitlines():
+        left, bar, right = row.partition("│")
+        if not bar:
+            continue
+        if left.strip() == key or (cell and not left.strip()):
+            cell.append(right.strip())
+        elif cell:
+            break
+    return " ".join(cell)
 
 
 def cli(capsys, *args: object) -> tuple[int, str, str]:
@@ -161,10 +209,70 @@ def test_ambiguous_first_column_is_refused_and_the_option_picks(tmp_path: Path, 
     path = tmp_path / "short.txt"
     path.write_text(f"1 {DEC[:10]}\n11 {DEC[10:20]}\n21 {DEC[20:30]}\n")
     code, _, err = cli(capsys, "inspect", path)
-    assert code == 2 and "ambiguous" in err and "--labels start|end|none" in err
+    assert code == 2 and "ambiguous" in err and "--labels start|end|both|none" in err
     code, out, err = cli(capsys, "inspect", path, "--labels", "start", "--json")
     assert code == 0, err
     assert json.loads(out)["count"] == 30 and json.loads(out)["constant"] == "pi"
     code, out, err = cli(capsys, "inspect", path, "--labels", "none", "--constant", "pi", "--json")
     assert code == 0, err
     assert json.loads(out)["count"] == 35
+
+
+@pytest.mark.parametrize("name", [n for n in LAYOUTS if n.startswith("both-")])
+def test_both_ends_are_read_as_labels(name: str, tmp_path: Path, capsys) -> None:
+    """Neither label column is ever read as digits: inspect says both ends, with each meaning."""
+    make, which = LAYOUTS[name]
+    digits = DEC if which == "dec" else HEX
+    path = tmp_path / f"{name}.txt"
+    path.write_bytes(make(digits).encode())
+    code, out, err = cli(capsys, "inspect", path, "--json")
+    assert code == 0, err
+    layout = json.loads(out)["layout"]
+    assert layout["labels"] == "both"
+    assert layout["end_label_meaning"] in ("through", "bytes-through")
+    code, out, _ = cli(capsys, "inspect", path)
+    assert "position labels at both line ends" in table_cell(out, "layout")
+
+
+@pytest.mark.parametrize("command", ["verify", "locate"])
+def test_changed_end_label_is_a_finding_and_exit_1(command: str, tmp_path: Path, capsys) -> None:
+    rows = both_colon(DEC).split("\n")
+    assert rows[40].endswith(" : 1230")
+    rows[40] = rows[40][:-4] + "1231"  # line 41's end label; every digit stays right
+    path = tmp_path / "end-label.txt"
+    path.write_text("\n".join(rows))
+    code, out, err = cli(capsys, command, path, "--json")
+    assert code == 1, err
+    payload = json.loads(out)
+    lf = payload["file"]["label_finding"]
+    assert (lf["kind"], lf["line"], lf["end"], lf["expected"], lf["found"]) == (
+        "label-mismatch",
+        41,
+        "end",
+        1230,
+        "1231",
+    )
+    assert payload["labels_consistent"] is False
+    if command == "locate":
+        assert payload["first_mismatch"] is None  # the digits are right: only the label is damaged
+    code, out, _ = cli(capsys, "inspect", path, "--json")
+    assert code == 0
+    findings = json.loads(out)["findings"]
+    assert [(f["line"], f["end"], f["expected"]) for f in findings] == [(41, "end", 1230)]
+    code, out, _ = cli(capsys, command, path)
+    assert code == 1 and "line 41: its end label says 1231, but the digits through it imply 1,230" in out
+    code, _, _ = cli(capsys, command, path, "--ignore-labels")
+    assert code == 0
+
+
+def test_both_ends_short_blank_file_is_ambiguous_and_the_option_picks(tmp_path: Path, capsys) -> None:
+    # Two lines labelled at both ends by blanks: one agreeing step is a 1 in 10^4 chance for digits.
+    path = tmp_path / "short-both.txt"
+    path.write_text(f"1 {DEC[:10]} 10\n11 {DEC[10:20]} 20\n")
+    code, _, err = cli(capsys, "inspect", path)
+    assert (
+        code == 2 and "ambiguous" in err and "both line ends" in err and "--labels start|end|both|none" in err
+    )
+    code, out, err = cli(capsys, "inspect", path, "--labels", "both", "--json")
+    assert code == 0, err
+    assert json.loads(out)["count"] == 20 and json.loads(out)["constant"] == "pi"

@@ -85,6 +85,7 @@ def first_label_finding(df: DigitFile) -> LabelFinding | None:
         expected=getattr(first, "expected", None),
         found=getattr(first, "found", None),
         total=len(found),
+        end=getattr(first, "end", None),
     )
 
 

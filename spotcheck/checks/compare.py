@@ -219,7 +219,7 @@ def _describe_layout(df: DigitFile) -> str:
     if lay.group_size:
         parts.append(f"groups of {lay.group_size}")
     if lay.labels:
-        parts.append(f"labels at line {lay.labels}")
+        parts.append("labels at both line ends" if lay.labels == "both" else f"labels at line {lay.labels}")
     return ", ".join(parts)
 
 

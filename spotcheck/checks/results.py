@@ -48,6 +48,8 @@ class LabelFinding:
     """The label as written."""
     total: int = 1
     """Label findings in the file (the first is described above)."""
+    end: str | None = None
+    """Which end of its line the label sits at: ``"start"`` or ``"end"``."""
 
 
 @dataclass(frozen=True)

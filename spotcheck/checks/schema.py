@@ -43,6 +43,10 @@ _FILE = {
                 "expected": {**_INT_OR_NULL, "description": "the label the digit count implies"},
                 "found": {**_STR_OR_NULL, "description": "the label as written"},
                 "total": {"type": "integer", "minimum": 1, "description": "label findings listed"},
+                "end": {
+                    **_STR_OR_NULL,
+                    "description": "which end of its line the label sits at: start or end",
+                },
             },
         },
     },

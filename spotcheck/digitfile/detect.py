@@ -10,14 +10,15 @@ This module is the one owner of the layout rules.  A text digit file is
   in LF, CRLF or CR;
 * a label is a number (decimal, or hex for byte offsets, at most
   ``MAX_LABEL_CHARS`` characters: a longer number is digits) that counts digits
-  or bytes, 0- or 1-based, at the start or end of the line, set off by one of
+  or bytes, 0- or 1-based, at the start or end of the line, or at both (each
+  end set off by its own separator, both labels in one radix), set off by one of
   ``SEPARATORS`` (``:`` or ``|`` with optional blanks, or blanks alone).
 
 Detection proposes every reading (:class:`LabelSyntax`, or none) over the first
 ``EXAMINE_LINES`` digit lines and keeps one only when every byte there is a
 digit, a separator, a label or header text under it and, for a labelled
 reading, when its labels form the progression its digit counts imply from line
-to line.  A reading whose labels are set off by blanks alone competes with the
+to line (for labels at both ends: both columns, step by step).  A reading whose labels are set off by blanks alone competes with the
 unlabelled reading of the same bytes, so its agreeing steps are weighed as
 evidence: the chance that digits agree as often by accident (each agreeing
 step with a ``k``-character label has chance ``radix**-k``, times the ways to
@@ -55,6 +56,7 @@ __all__ = [
     "HEAD_BYTES",
     "PACKED_SUFFIXES",
     "SEPARATORS",
+    "LABEL_CHOICES",
 ]
 
 # --- tuning -----------------------------------------------------------------
@@ -70,6 +72,7 @@ MIN_STEPS_BOTH = 2  # agreeing steps that let a start reading win over an end re
 AMBIGUOUS_LOG_CHANCE = -4.0  # log10 chance below which they are too likely to be ignored
 DIGIT_LINE_SHARE = 0.8  # a line of 8+ bytes is a digit line when this share of its non-blank bytes are digits
 PACKED_SUFFIXES = (".bin", ".hexbin")
+LABEL_CHOICES = (None, "start", "end", "both", "none")  # what a caller may say about the labels
 
 SEPARATORS: dict[str, bytes] = {"mark": rb"[ \t]*[:|][ \t]*", "blank": rb"[ \t]+"}
 """The one list of label separators: every label pattern is built from it."""
@@ -130,31 +133,59 @@ MEANINGS = tuple(LabelMeaning(k, u) for u in (1, 2) for k in ("before", "first",
 
 @dataclass(frozen=True)
 class LabelSyntax:
-    """One way labels can be written: where, in which radix, set off by which separator."""
+    """One way labels can be written: where, in which radix, set off by which separator.
 
-    where: str  # "start" or "end"
+    ``where="both"`` is a label at each end of every line: ``sep`` sets off the
+    start label and ``end_sep`` the end label, both in ``radix``; its :attr:`ends`
+    are the two one-sided syntaxes it is made of (start first).  The end label
+    is split off first, then the start label from what is left, in the line
+    and the bulk patterns alike.
+    """
+
+    where: str  # "start", "end" or "both"
     radix: int  # 10 or 16
-    sep: str  # a key of SEPARATORS
+    sep: str  # a key of SEPARATORS (for "both": the start label's)
+    end_sep: str | None = None  # for "both": the end label's separator
 
     def __post_init__(self) -> None:
+        if self.where == "both":
+            assert self.end_sep is not None
+            ends = (LabelSyntax("start", self.radix, self.sep), LabelSyntax("end", self.radix, self.end_sep))
+            object.__setattr__(self, "_ends", ends)
+            return
+        object.__setattr__(self, "_ends", (self,))
         lab, sep = _LABEL_CHARS[self.radix], SEPARATORS[self.sep]
         if self.where == "start":
             line = rb"[ \t]*(" + lab + rb")" + sep
             bulk = rb"\n[ \t]*(" + lab + rb")" + sep
         else:
             line = sep + rb"(" + lab + rb")[ \t\r]*\Z"
-            bulk = sep + rb"(" + lab + rb")[ \t]*(?=\r*$)"
+            # Matched on the reversed chunk, where an end label starts its line: the pattern then
+            # begins with a line break, which Python's re scans for fast (forwards, a pattern that
+            # ends at the line's end is tried at every blank or mark, several times slower).
+            # Forwards it reads ``sep (label) [ \t]* \r*`` up to the line break; every separator
+            # pattern reads the same reversed.
+            bulk = rb"(\n\r*)[ \t]*(" + lab + rb")" + sep
         object.__setattr__(self, "_line", re.compile(line))
-        object.__setattr__(self, "_bulk", re.compile(bulk, re.M))
+        object.__setattr__(self, "_bulk", re.compile(bulk))
+
+    @property
+    def ends(self) -> tuple[LabelSyntax, ...]:
+        """The one-sided syntaxes this one is made of: itself, or (start, end) for ``"both"``."""
+        return self._ends  # type: ignore[attr-defined,no-any-return]
 
     @property
     def name(self) -> str:
         radix = "decimal" if self.radix == 10 else "hex"
-        sep = "':' or '|'" if self.sep == "mark" else "blanks"
-        return f"{radix} labels at the line {self.where}s set off by {sep}"
+        if self.where == "both":
+            a, b = (_SEP_NAMES[s] for s in (self.sep, self.end_sep or ""))
+            sep = a if a == b else f"{a} at the start and {b} at the end"
+            return f"{radix} labels at both line ends set off by {sep}"
+        return f"{radix} labels at the line {self.where}s set off by {_SEP_NAMES[self.sep]}"
 
     def split_line(self, text: bytes) -> tuple[bytes | None, int, int]:
-        """``(label text or None, body start, body end)`` of one line (no line break)."""
+        """``(label text or None, body start, body end)`` of one line (no line break), one-sided syntaxes."""
+        assert self.where != "both", "split_labels reads both ends"
         rx: re.Pattern[bytes] = self._line  # type: ignore[attr-defined]
         if self.where == "start":
             m = rx.match(text)
@@ -162,8 +193,19 @@ class LabelSyntax:
         m = rx.search(text)
         return (m.group(1), 0, m.start()) if m else (None, 0, len(text))
 
+    def split_labels(self, text: bytes) -> tuple[tuple[bytes | None, ...], int, int]:
+        """``(labels, body start, body end)`` of one line: a label text or None for each of :attr:`ends`."""
+        if self.where != "both":
+            label, b0, b1 = self.split_line(text)
+            return (label,), b0, b1
+        start, end = self.ends
+        le, _, b1 = end.split_line(text)
+        ls, b0, _ = start.split_line(text[:b1])
+        return (ls, le), b0, b1
+
     def split_first(self, text: bytes) -> tuple[bytes | None, int, int]:
         """Like :meth:`split_line` for the first digit line, whose label may use any separator."""
+        assert self.where != "both", "a line labelled at both ends has no first-line variant"
         for sep in SEPARATORS:  # ':' or '|' first: it is the more specific
             got = (self if sep == self.sep else LabelSyntax(self.where, self.radix, sep)).split_line(text)
             if got[0] is not None:
@@ -175,22 +217,50 @@ class LabelSyntax:
 
     def strip(self, data: bytes) -> bytes:
         """``data`` (starting at a line start) without its labels."""
+        if self.where == "both":
+            start, end = self.ends
+            return start.strip(end.strip(data))
+        if self.where == "end":
+            return self.split(data)[0]
         rx: re.Pattern[bytes] = self._bulk  # type: ignore[attr-defined]
-        if self.where == "start":
-            return rx.sub(b"\n", b"\n" + data)[1:]
-        return rx.sub(b"", data)
+        return rx.sub(b"\n", b"\n" + data)[1:]
 
     def split(self, data: bytes) -> tuple[bytes, list[bytes]]:
-        """``(data without labels, the label texts in order)`` in one regex pass."""
+        """``(data without labels, the label texts in order)`` in one regex pass (one-sided syntaxes)."""
+        assert self.where != "both", "split_all reads both ends"
         rx: re.Pattern[bytes] = self._bulk  # type: ignore[attr-defined]
         if self.where == "start":
             parts = rx.split(b"\n" + data)
             return b"\n".join(parts[0::2])[1:], parts[1::2]
-        parts = rx.split(data)
-        return b"".join(parts[0::2]), parts[1::2]
+        # The reversed chunk, a line break before its first (the chunk's last) line: the pieces
+        # come as [text, line break and CRs, label, text, ...]; the labels are dropped, the
+        # rest joined and turned back, and the added line break cut off again.
+        parts = rx.split(b"\n" + data[::-1])
+        found = [label[::-1] for label in parts[2::3]]
+        found.reverse()
+        del parts[2::3]
+        return b"".join(parts)[::-1][:-1], found
+
+    def split_all(self, data: bytes) -> tuple[bytes, tuple[list[bytes], ...]]:
+        """``(data without labels, label texts)``: the texts in order, one list for each of :attr:`ends`."""
+        if self.where != "both":
+            cleaned, found = self.split(data)
+            return cleaned, (found,)
+        start, end = self.ends
+        rest, at_end = end.split(data)
+        cleaned, at_start = start.split(rest)
+        return cleaned, (at_start, at_end)
+
+
+_SEP_NAMES = {"mark": "':' or '|'", "blank": "blanks"}
 
 
 SYNTAXES = tuple(LabelSyntax(w, r, s) for w in ("start", "end") for s in ("mark", "blank") for r in (10, 16))
+"""The one-sided readings."""
+BOTH_SYNTAXES = tuple(
+    LabelSyntax("both", r, a, b) for a in ("mark", "blank") for b in ("mark", "blank") for r in (10, 16)
+)
+"""Labels at both ends of every line, each end set off by either separator, one radix for both."""
 
 
 @dataclass
@@ -205,11 +275,13 @@ class Detection:
     header_lines: int
     first_line_no: int
     labels: str | None
-    """``"start"``/``"end"`` for labels on every line, ``"first-line"`` for a
-    label on the first digit line only, None for no labels."""
+    """``"start"``/``"end"``/``"both"`` for labels on every line (``"both"``: at
+    each end), ``"first-line"`` for a label on the first digit line only, None
+    for no labels."""
     syntax: LabelSyntax | None
     """How the labels of the pass are written (None when the pass sees no labels)."""
     meaning: LabelMeaning | None
+    """What the labels count (for ``"both"``: the start labels)."""
     first_label: int | None
     first_label_text: str | None
     digits_offset: int
@@ -230,6 +302,10 @@ class Detection:
     ``"\\r"`` the reader translates CR to LF (one byte for one, offsets kept)."""
     letter_case: str | None
     whole_file_in_head: bool
+    end_meaning: LabelMeaning | None = None
+    """For ``"both"``: what the end labels count (always a ``through`` meaning)."""
+    first_end_label_text: str | None = None
+    """For ``"both"``: the first digit line's end label as written."""
     notes: list[str] = field(default_factory=list)
 
 
@@ -330,6 +406,9 @@ class _Parse:
     log_chance: float = 0.0
     labelled: bool = False  # labels on most digit lines (or the first only), whatever the evidence
     agree: int = 0
+    end_labels: list[bytes | None] = field(default_factory=list)
+    """For a ``"both"`` reading: each digit line's end label (``labels`` hold the start labels)."""
+    end_meaning: LabelMeaning | None = None
 
 
 def _parse(syntax: LabelSyntax | None, lines: list[tuple[int, bytes]], first: int) -> _Parse:
@@ -342,6 +421,10 @@ def _parse(syntax: LabelSyntax | None, lines: list[tuple[int, bytes]], first: in
             continue
         if syntax is None:
             label, b0, b1 = None, 0, len(text)
+        elif syntax.where == "both":
+            # Both ends on every line, the first included (no first-line variant of its own).
+            (label, end_label), b0, b1 = syntax.split_labels(text)
+            out.end_labels.append(end_label)
         else:
             label, b0, b1 = syntax.split_first(text) if i == first else syntax.split_line(text)
             if i == first:
@@ -444,6 +527,75 @@ def _score(p: _Parse, forced: bool = False) -> None:
         p.ok = True  # no unlabelled reading explains ':' or '|': labels that disagree are damage
 
 
+def _score_both(p: _Parse, forced: bool = False) -> None:
+    """Pick the meanings whose progressions both label columns follow best.
+
+    A step (from one line to the next) counts only when the start labels and
+    the end labels both follow it: a one-sided reading of the same lines counts
+    the other column as digits, so its own steps fail, and a column of digits
+    read as labels follows no progression.  Labels set off by blanks compete
+    with digits, so a reading with a blank-separated end needs the evidence of
+    its agreeing steps (both columns' characters count: the column set off by
+    ``:`` or ``|`` agrees only because the other column is not digits).
+    """
+    assert p.syntax is not None and p.syntax.where == "both"
+    rows = [(ls, le, b, n) for (_, ls, b, n), le in zip(p.labels, p.end_labels, strict=True)]
+    full = [r for r in rows if r[0] is not None and r[1] is not None]
+    if not full or 2 * len(full) <= len(rows):
+        p.ok = False
+        return
+    start, end = p.syntax.ends
+    unit = 2 if p.syntax.radix == 16 else 1  # hex labels are byte offsets; decimal labels count digits
+    through = LabelMeaning("through", unit)
+    vals = [
+        (start.value(ls), end.value(le), b, n) if ls is not None and le is not None else None
+        for ls, le, b, n in rows
+    ]
+    per_char = math.log10(p.syntax.radix)
+    best: tuple[int, int, int] | None = None
+    for mean in (m for m in MEANINGS if m.unit == unit and m.kind != "through"):
+        agree = sum(
+            1
+            for v in vals
+            if v is not None and v[0] == mean.expect(v[2], v[3]) and v[1] == through.expect(v[2], v[3])
+        )
+        steps = steps_ok = 0
+        evidence = 0.0
+        for j in range(len(vals) - 1):
+            a, c = vals[j], vals[j + 1]
+            if a is None or c is None:
+                continue
+            steps += 1
+            if _step_ok(mean, a[0], a[2], a[3], c[0], c[2], c[3]) and _step_ok(
+                through, a[1], a[2], a[3], c[1], c[2], c[3]
+            ):
+                steps_ok += 1
+                evidence -= (len(rows[j + 1][0] or b"") + len(rows[j + 1][1] or b"")) * per_char
+        key = (steps_ok, agree, -MEANINGS.index(mean))
+        if best is None or key > best:
+            best = key
+            p.meaning, p.end_meaning, p.steps, p.steps_ok, p.agree = mean, through, steps, steps_ok, agree
+            p.log_chance = evidence + math.log10(math.comb(steps, steps_ok)) if steps else 0.0
+    if p.steps == 0:
+        # One labelled line: both labels must say what such labels say (0 or 1, and the line's count).
+        p.ok = p.agree >= 1
+        if not p.ok:
+            return
+    if "blank" in (p.syntax.sep, p.syntax.end_sep) and not forced:
+        # Without that evidence the blank-separated column may be digits: this reading is then not
+        # even a fallback (a one-sided reading, or a refusal, is what the bytes support).
+        p.ok = p.log_chance <= LABELS_LOG_CHANCE
+    else:
+        p.ok = True  # no other reading explains ':' or '|' at both ends: labels that disagree are damage
+    p.labelled = p.ok
+
+
+def _step_ok(mean: LabelMeaning, va: int, ba: int, na: int, vc: int, bc: int, nc: int) -> bool:
+    """True when labels ``va`` then ``vc`` differ by what the digit counts between them imply."""
+    ra, rc = mean.raw(ba, na), mean.raw(bc, nc)
+    return (rc - ra) % mean.unit == 0 and vc - va == (rc - ra) // mean.unit and vc > va
+
+
 def _choose(parses: list[_Parse], labels: str | None, name: str, lines: list[tuple[int, bytes]]) -> _Parse:
     plain = next((p for p in parses if p.syntax is None and p.ok), None)
     labelled = [p for p in parses if p.syntax is not None and p.ok]
@@ -458,7 +610,11 @@ def _choose(parses: list[_Parse], labels: str | None, name: str, lines: list[tup
             and (
                 (p.steps_ok, p.agree) == (top.steps_ok, top.agree)
                 # ':' both before and after a short number: which side is the label is a guess
-                or (p.syntax.sep == top.syntax.sep == "mark" and p.steps_ok < MIN_STEPS_BOTH)  # type: ignore[union-attr]
+                or (
+                    p.syntax.sep == top.syntax.sep == "mark"  # type: ignore[union-attr]
+                    and "both" not in (p.syntax.where, top.syntax.where)  # type: ignore[union-attr]
+                    and p.steps_ok < MIN_STEPS_BOTH
+                )
             )
         ]
         if rivals:
@@ -481,12 +637,16 @@ def _choose(parses: list[_Parse], labels: str | None, name: str, lines: list[tup
             if (
                 p.syntax is not None
                 and p.syntax.sep == "blank"
+                and p.syntax.end_sep in (None, "blank")
                 and p.steps_ok >= 1
                 and p.log_chance <= AMBIGUOUS_LOG_CHANCE
                 and not p.first_only
             ):
+                column = {"start": "the first column", "end": "the last column"}.get(
+                    p.syntax.where, "the first and last columns"
+                )
                 raise AmbiguousLayoutError(
-                    f"{name}: the layout is ambiguous: the first column could be {p.syntax.name} "
+                    f"{name}: the layout is ambiguous: {column} could be {p.syntax.name} "
                     f"({p.steps_ok} of {p.steps} steps agree) or digits; say whether the lines carry labels",
                     "labels",
                     (p.syntax.where, "none"),
@@ -496,8 +656,8 @@ def _choose(parses: list[_Parse], labels: str | None, name: str, lines: list[tup
     worst = max(parses, key=lambda p: p.bad_at)
     if worst.bad_at < 0:
         raise DigitFileError(
-            f"{name}: no digit line among the first {len(lines)} lines carries a position label at the "
-            f"line {labels}s"
+            f"{name}: no digit line among the first {len(lines)} lines carries a position label at "
+            + ("both line ends" if labels == "both" else f"the line {labels}s")
         )
     line, col = _line_col(lines, worst.bad_at)
     off, text = lines[line - 1]
@@ -513,12 +673,12 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
 
     ``head`` is the start of the (decompressed) content, ``eof`` says whether
     it is the whole content.  ``base`` is the caller's explicit base or None;
-    ``labels`` (``"start"``, ``"end"``, ``"none"`` or None) restricts the
-    readings tried.  A CR-only file must be given with CR already turned into LF.
+    ``labels`` (``"start"``, ``"end"``, ``"both"``, ``"none"`` or None)
+    restricts the readings tried.  A CR-only file must be given with CR already turned into LF.
     """
     name = os.path.basename(path)
-    if labels not in (None, "start", "end", "none"):
-        raise UsageError(f"labels must be start, end or none, got {labels!r}")
+    if labels not in LABEL_CHOICES:
+        raise UsageError(f"labels must be start, end, both or none, got {labels!r}")
     if not head.strip():
         raise DigitFileError(
             f"{name}: the file is empty" if not head else f"{name}: the file holds only whitespace"
@@ -552,10 +712,10 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
     if long_line:
         syntaxes: list[LabelSyntax | None] = [None]
     else:
-        syntaxes = [None] + [s for s in SYNTAXES if labels in (None, s.where)]
+        syntaxes = [None] + [s for s in SYNTAXES + BOTH_SYNTAXES if labels in (None, s.where)]
         if labels == "none":
             syntaxes = [None]
-        elif labels in ("start", "end"):
+        elif labels in ("start", "end", "both"):
             syntaxes = syntaxes[1:]
     if long_line:
         # Only the head of a very long line is here; the pass validates the rest.
@@ -566,7 +726,9 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
     parses = [_parse(s, examined, first) for s in syntaxes]
     for p in parses:
         if p.ok and p.syntax is not None:
-            _score(p, forced=labels in ("start", "end"))
+            (_score_both if p.syntax.where == "both" else _score)(
+                p, forced=labels in ("start", "end", "both")
+            )
     for p in parses:
         if p.ok and p.first_only:
             # Not when the other lines carry labels set off by blanks: the first line is damaged.
@@ -577,7 +739,11 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
                         _score(q)
                         if q.steps_ok and q.log_chance <= AMBIGUOUS_LOG_CHANCE:
                             p.ok = p.labelled = False
-    sides = {p.syntax.where for p in parses if p.syntax and p.syntax.sep == "mark" and _has_label(p)}
+    sides = {
+        p.syntax.where
+        for p in parses
+        if p.syntax and p.syntax.where != "both" and p.syntax.sep == "mark" and _has_label(p)
+    }
     if len(sides) == 2 and max(len(p.labels) for p in parses if p.bad_at < 0) <= 1:
         # One line with ':' or '|' beside a short number at both ends: which is the label is a guess.
         raise AmbiguousLayoutError(
@@ -588,10 +754,14 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
         )
     chosen = _choose(parses, labels, name, examined)
     syntax = chosen.syntax
-    first_label = first_label_text = None
+    first_label = first_label_text = first_end_label_text = None
     first_text = line[:-1] if line.endswith(b"\r") else line
     if syntax is not None:
-        lab, _, _ = syntax.split_first(first_text)
+        if syntax.where == "both":
+            (lab, end_lab), _, _ = syntax.split_labels(first_text)
+            first_end_label_text = end_lab.decode("ascii") if end_lab is not None else None
+        else:
+            lab, _, _ = syntax.split_first(first_text)
         if lab is not None:
             first_label, first_label_text = syntax.value(lab), lab.decode("ascii")
     body_off, body_end = chosen.body
@@ -620,7 +790,7 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
             if i <= first:
                 continue
             text = text[:-1] if text.endswith(b"\r") else text
-            _, b0, b1 = syntax.split_line(text) if syntax else (None, 0, len(text))
+            _, b0, b1 = syntax.split_labels(text) if syntax else ((), 0, len(text))
             pieces.append(text[b0:b1])
         sample = b"".join(pieces).translate(None, b" \t")
     if not sample:
@@ -694,6 +864,8 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
         newline=newline,
         letter_case=letter_case,
         whole_file_in_head=eof,
+        end_meaning=chosen.end_meaning if pass_syntax is not None else None,
+        first_end_label_text=first_end_label_text,
     )
 
 

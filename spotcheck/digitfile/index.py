@@ -15,6 +15,8 @@ Three loops, fastest first:
   counted and a sparse index entry (position, byte offset, line) is kept;
 * **labelled**: lines with position labels are walked line by line (labels
   must be read one by one to be checked), with index entries at line starts.
+  A chunk whose labels all agree is checked with list operations instead; for
+  labels at both ends each column is checked against its own meaning.
 
 The first unit that breaks the regular pattern moves the pass to the indexed
 loop; index entries for the part already seen are filled in by arithmetic.
@@ -94,6 +96,8 @@ class IndexResult:
     last_digits: bytes = b""
     findings: list[Finding] = field(default_factory=list)
     label_meaning: str | None = None
+    end_label_meaning: str | None = None
+    """For labels at both ends: what the end labels count (``label_meaning``: the start labels)."""
     content_bytes: int = 0
 
 
@@ -127,13 +131,21 @@ def stray_error(src: ByteSource, plan: Detection, base: int, offset: int, byte: 
 
 
 class _LabelCheck:
-    """Checks every label against the count its meaning (from detection) implies."""
+    """Checks every label of one column against the count its meaning (from detection) implies.
 
-    def __init__(self, meaning: LabelMeaning, syntax: LabelSyntax, strict: bool, name: str) -> None:
+    ``side`` says which column (``"start"`` or ``"end"``); ``both`` is True when
+    the lines carry a label at each end, and the messages then name the end.
+    """
+
+    def __init__(
+        self, meaning: LabelMeaning, syntax: LabelSyntax, strict: bool, name: str, both: bool = False
+    ) -> None:
         self.meaning = meaning
         self.syntax = syntax
         self.strict = strict
         self.name = name
+        self.side = syntax.where
+        self.what = f"{syntax.where} label" if both else "label"
         self.findings: list[Finding] = []
         self.mismatches = 0
         self.missing = 0
@@ -148,11 +160,11 @@ class _LabelCheck:
         text = label.decode("ascii")
         if want is None:
             n = before + nd if self.meaning.kind == "through" else before
-            msg = f"label {text} disagrees with the digits: {n} digits are not a whole number of bytes"
+            msg = f"{self.what} {text} disagrees with the digits: {n} digits are not a whole number of bytes"
             want = -1
         else:
             shown = str(want) if self.syntax.radix == 10 else format(want, "X")
-            msg = f"label {text} disagrees with the digits: {self.meaning.explain()} is {shown}"
+            msg = f"{self.what} {text} disagrees with the digits: {self.meaning.explain()} is {shown}"
         if self.strict:
             raise LabelError(f"{self.name}: labels that lie: line {line}: {msg}")
         self.mismatches += 1
@@ -167,19 +179,21 @@ class _LabelCheck:
                     position=pos,
                     expected=want,
                     found=text,
+                    end=self.side,
                 )
             )
 
     def no_label(self, line: int, offset: int, before: int) -> None:
         self.missing += 1
+        at = f" at its {self.side}" if self.what != "label" else ""
+        msg = f"a digit line without a position label{at}, unlike the lines around it"
         if self.strict:
-            raise LabelError(
-                f"{self.name}: line {line}: a digit line without a position label, unlike the lines around it"
-            )
+            raise LabelError(f"{self.name}: line {line}: {msg}")
         if self.missing <= MAX_FINDINGS:
-            msg = "a digit line without a position label, unlike the lines around it"
             self.findings.append(
-                Finding("label-missing", msg, line=line, byte_offset=offset, position=before + 1)
+                Finding(
+                    "label-missing", msg, line=line, byte_offset=offset, position=before + 1, end=self.side
+                )
             )
 
     def finish(self) -> list[Finding]:
@@ -193,7 +207,7 @@ class _LabelCheck:
                 )
             )
         if self.missing > MAX_FINDINGS:
-            out.append(Finding("label-missing", f"{self.missing} digit lines have no label in all"))
+            out.append(Finding("label-missing", f"{self.missing} digit lines have no {self.what} in all"))
         return out
 
 
@@ -306,12 +320,20 @@ def _scan_labelled(
 ) -> IndexResult:
     syntax, meaning = plan.syntax, plan.meaning
     assert syntax is not None and meaning is not None
-    check = _LabelCheck(meaning, syntax, strict, name)
+    both = syntax.where == "both"
+    meanings: tuple[LabelMeaning, ...] = (meaning,)
+    if both:
+        assert plan.end_meaning is not None
+        meanings = (meaning, plan.end_meaning)
+    # One check per label column: the start and the end labels for "both", else the one column.
+    checks = [_LabelCheck(m, s, strict, name, both) for m, s in zip(meanings, syntax.ends, strict=True)]
     d1 = len(plan.seg_digits)
-    if plan.first_label_text is not None:
-        check.feed(plan.first_label_text.encode(), 0, d1, plan.first_line_no, plan.digits_offset)
-    elif d1:
-        check.no_label(plan.first_line_no, plan.digits_offset, 0)
+    first_texts = (plan.first_label_text, plan.first_end_label_text) if both else (plan.first_label_text,)
+    for check, first_text in zip(checks, first_texts, strict=True):
+        if first_text is not None:
+            check.feed(first_text.encode(), 0, d1, plan.first_line_no, plan.digits_offset)
+        elif d1:
+            check.no_label(plan.first_line_no, plan.digits_offset, 0)
     allowed = allowed_set(base)
     digit_bytes = digit_set(base)
     off, pos, line = plan.seg_end, d1, plan.first_line_no + 1
@@ -326,10 +348,17 @@ def _scan_labelled(
             if cut == 0:
                 raise DigitFileError(f"{name}: a labelled line at byte {off} is longer than {chunk} bytes")
             data = data[:cut]
-        cleaned, found = syntax.split(data)
+        cleaned, found_all = syntax.split_all(data)
         if cleaned.translate(None, allowed):
             _raise_labelled_stray(src, plan, base, data, off, syntax, allowed)
-        fast = _labelled_chunk_fast(data, cleaned, found, off, pos, line, meaning, syntax, res)
+        fast = None
+        if all(
+            _column_agrees(cleaned, found, pos, m, s.radix)
+            for found, m, s in zip(found_all[1:], meanings[1:], syntax.ends[1:], strict=True)
+        ):  # the end column of "both" first; then the start (or only) column, which also indexes
+            fast = _labelled_chunk_fast(
+                data, cleaned, found_all[0], off, pos, line, meaning, syntax.ends[0], res
+            )
         if fast is not None:
             pos, line = fast
             last_index = res.index_off[-1] if res.index_off else last_index
@@ -339,13 +368,14 @@ def _scan_labelled(
             if data.endswith(b"\n"):
                 pieces.pop()
             for text in pieces:
-                label, b0, b1 = syntax.split_line(text[:-1] if text.endswith(b"\r") else text)
+                found, b0, b1 = syntax.split_labels(text[:-1] if text.endswith(b"\r") else text)
                 body = text[b0:b1]
                 nd = len(body) - len(body.translate(None, digit_bytes))
-                if label is not None:
-                    check.feed(label, pos, nd, line, off + lo)
-                elif nd:
-                    check.no_label(line, off + lo, pos)
+                for check, label in zip(checks, found, strict=True):
+                    if label is not None:
+                        check.feed(label, pos, nd, line, off + lo)
+                    elif nd:
+                        check.no_label(line, off + lo, pos)
                 if nd:
                     if off + lo - last_index >= INDEX_STEP:
                         res.index_pos.append(pos + 1)
@@ -361,10 +391,40 @@ def _scan_labelled(
         off += len(data)
         if progress:
             progress(src.stored_bytes_done(off), total)
-    res.findings = check.finish()
+    res.findings = sorted(
+        (f for check in checks for f in check.finish()), key=lambda f: (f.line is None, f.line or 0)
+    )
     res.label_meaning = meaning.name
+    res.end_label_meaning = plan.end_meaning.name if both and plan.end_meaning else None
     res.count, res.last_digits, res.content_bytes = pos, tail, off
     return res
+
+
+def _column_agrees(cleaned: bytes, found: list[bytes], pos: int, meaning: LabelMeaning, radix: int) -> bool:
+    """True when every line of ``cleaned`` has a label in ``found`` and each says what ``meaning`` implies.
+
+    The list-level check of one label column (the end column of a file labelled at
+    both ends); False sends the chunk to the line-by-line loop, which records findings.
+    """
+    pieces = cleaned.translate(None, b" \t\r").split(b"\n")
+    if cleaned.endswith(b"\n"):
+        pieces.pop()
+    if len(found) != len(pieces) or not pieces:
+        return False
+    ends = list(accumulate(map(len, pieces), initial=pos))
+    unit = meaning.unit
+    if unit != 1 and any(e % unit for e in ends):
+        return False
+    got = list(map(int, found)) if radix == 10 else [int(f, 16) for f in found]
+    if meaning.kind == "through" and unit == 1:
+        return got == ends[1:]
+    if meaning.kind == "before":
+        expected = [e // unit for e in ends[:-1]]
+    elif meaning.kind == "first":
+        expected = [e // unit + 1 for e in ends[:-1]]
+    else:
+        expected = [e // unit for e in ends[1:]]
+    return got == expected
 
 
 def _labelled_chunk_fast(
@@ -420,7 +480,7 @@ def _raise_labelled_stray(
 ) -> None:
     lo = 0
     for text in data.split(b"\n"):
-        _, b0, b1 = syntax.split_line(text[:-1] if text.endswith(b"\r") else text)
+        _, b0, b1 = syntax.split_labels(text[:-1] if text.endswith(b"\r") else text)
         body = text[b0:b1]
         bad = body.translate(None, allowed)
         if bad:

@@ -25,11 +25,14 @@ class Layout:
     group_size: int | None = None
     """Digits per group between separators inside a line, when constant."""
     labels: str | None = None
-    """``None``, ``"start"`` or ``"end"``: where a position label sits on each line."""
+    """``None``, ``"start"``, ``"end"``, ``"both"`` (a label at each end) or
+    ``"first-line"`` (on the first digit line only): where position labels sit."""
     label_meaning: str | None = None
     """What a label counts: ``"before"`` (digits before its line), ``"first"``
     (position of the line's first digit) or ``"through"`` (digits up to the
     line's end)."""
+    end_label_meaning: str | None = None
+    """For ``labels="both"``: what the end labels count (``label_meaning`` is the start labels')."""
     header_lines: int = 0
     """Lines before the first digit line (``#`` comments, free text, blank)."""
     digits_offset: int = 0
@@ -61,6 +64,8 @@ class Finding:
     """For a label finding: the value the digit count implies the label should have."""
     found: str | None = None
     """For a label finding: the label as written in the file."""
+    end: str | None = None
+    """For a label finding: which end of the line the label sits at (``"start"`` or ``"end"``)."""
 
     def to_dict(self) -> dict[str, Any]:
         return asdict(self)

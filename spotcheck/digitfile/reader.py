@@ -22,6 +22,7 @@ from types import TracebackType
 from spotcheck.digitfile.charsets import WS
 from spotcheck.digitfile.detect import (
     HEAD_BYTES,
+    LABEL_CHOICES,
     Detection,
     detect_text,
     newline_of,
@@ -139,10 +140,14 @@ class DigitFile:
         data = self._source().read_at(off, 4 * INDEX_STEP + 4 * (p - pos))
         mask = bytearray(data)
         if plan.syntax is not None:
-            rx = plan.syntax._bulk  # type: ignore[attr-defined]
-            prefix = 1 if plan.syntax.where == "start" else 0
-            for m in rx.finditer(b"\n" * prefix + data):
-                mask[m.start(1) - prefix : m.end(1) - prefix] = b" " * (m.end(1) - m.start(1))
+            # Blank out everything outside each line's body, as the pass split it (index entries of
+            # a labelled file sit at line starts).
+            lo = 0
+            for text in data.split(b"\n"):
+                _, b0, b1 = plan.syntax.split_labels(text[:-1] if text.endswith(b"\r") else text)
+                mask[lo : lo + b0] = b" " * b0
+                mask[lo + b1 : lo + len(text)] = b" " * (len(text) - b1)
+                lo += len(text) + 1
         digits = b"0123456789ABCDEFabcdef" if self.base == 16 else b"0123456789"
         for i, c in enumerate(mask):
             if c in digits:
@@ -275,14 +280,14 @@ def open_digit_file(
     ``.hexbin`` or its first bytes are those of a known constant.
     ``strict_labels`` turns the first disagreeing position label into a
     :class:`DigitFileError` instead of a finding.  ``labels`` (``"start"``,
-    ``"end"`` or ``"none"``) says where position labels are when the layout
-    alone cannot tell.  ``progress(done, total)`` is called after each chunk of
+    ``"end"``, ``"both"`` or ``"none"``) says where position labels are when
+    the layout alone cannot tell.  ``progress(done, total)`` is called after each chunk of
     the pass.
     """
     if base is not None and base not in (10, 16):
         raise UsageError(f"base must be 10 or 16, got {base!r}")
-    if labels not in (None, "start", "end", "none"):
-        raise UsageError(f"labels must be start, end or none, got {labels!r}")
+    if labels not in LABEL_CHOICES:
+        raise UsageError(f"labels must be start, end, both or none, got {labels!r}")
     src = open_source(path)
     try:
         return _open(src, base, constant, packed, strict_labels, progress, labels)
@@ -456,6 +461,7 @@ def _text_layout(src: ByteSource, plan: Detection, scan: IndexResult) -> Layout:
         group_size=group,
         labels=plan.labels,
         label_meaning=scan.label_meaning,
+        end_label_meaning=scan.end_label_meaning,
         header_lines=plan.header_lines,
         digits_offset=plan.digits_offset,
         newline=plan.newline,

@@ -154,6 +154,8 @@ def label_sentence(result: CheckResult) -> str | None:
     where = f"line {lf.line:,}" if lf.line is not None else "a line"
     if lf.kind == "label-missing":
         what = f"{where}: no position label, unlike the lines around it"
+    elif lf.found is not None and lf.expected is not None and lf.end == "end":
+        what = f"{where}: its end label says {lf.found}, but the digits through it imply {lf.expected:,}"
     elif lf.found is not None and lf.expected is not None:
         what = f"{where}: labelled {lf.found}, but the digits before it imply {lf.expected:,}"
     else:
@@ -389,7 +391,8 @@ def show_inspect(result: InspectResult, *, as_json: bool) -> None:
     if lay.group_size:
         layout_bits.append(f"groups of {lay.group_size}")
     if lay.labels:
-        layout_bits.append(f"position labels at line {lay.labels}")
+        where = "both line ends" if lay.labels == "both" else f"line {lay.labels}"
+        layout_bits.append(f"position labels at {where}")
     if lay.header_lines:
         layout_bits.append(f"{lay.header_lines} header lines")
     layout_bits.append(f"{lay.access} access")

@@ -35,14 +35,16 @@ def random_spec(rng: random.Random, max_digits: int = 400) -> Spec:
         if lines == 1:
             seps = LONE_SEPS
         unit = 2 if base == 16 and width and width % 2 == 0 and n % 2 == 0 and rng.random() < 0.4 else 1
-        where = rng.choice(("start", "end"))
+        where = rng.choice(("start", "end", "both"))
         label = Label(
             where,
             16 if unit == 2 else 10,
             rng.choice(seps),
-            rng.choice(("before", "first")) if where == "start" else "through",
+            rng.choice(("before", "first")) if where != "end" else "through",
             unit,
             rng.choice((0, 0, 6, 8)),
+            rng.choice(seps) if where == "both" else "",
+            rng.choice((0, 0, 6, 8)) if where == "both" else 0,
         )
     compression = rng.choice((None,) * 8 + ("gzip", "bzip2", "xz"))
     return Spec(
@@ -173,7 +175,7 @@ def one_input(rng: random.Random, tally: Tally, directory: str, mutate: bool) ->
         return
     content, a, b, inserted, kind = mutation(rng, spec, w.content, w.label_spans)
     lo, hi = chars_before(w.offsets, a), chars_before(w.offsets, b)
-    lo, hi, inserted = widen(w, lo, hi, a, b, inserted, len(spec.label.sep) if spec.label else 0)
+    lo, hi, inserted = widen(w, lo, hi, a, b, inserted, spec.label.widest_sep if spec.label else 0)
     t0 = time.perf_counter()
     try:
         got, findings = read_back(spec, compress(spec, content), directory)

@@ -13,9 +13,11 @@ BLANK_SEPS = (" ", "  ", "\t")
 
 
 @st.composite
-def labels(draw, base: int, width: int | None, lines: int, n: int) -> Label | None:
+def labels(draw, base: int, width: int | None, lines: int, n: int, where: str | None = None) -> Label | None:
+    """A label family; ``where`` (``"start"``, ``"end"``, ``"both"``) fixes where, else drawn."""
     blank_ok = lines >= 8  # blank-separated labels are told from digits by their progression
-    where = draw(st.sampled_from(("start", "end")))
+    if where is None:
+        where = draw(st.sampled_from(("start", "end", "both")))
     seps = MARK_SEPS + (BLANK_SEPS if blank_ok else ())
     if lines == 1:
         seps = LONE_SEPS
@@ -27,14 +29,17 @@ def labels(draw, base: int, width: int | None, lines: int, n: int) -> Label | No
         where=where,
         radix=16 if unit == 2 else 10,
         sep=sep,
-        kind=draw(st.sampled_from(("before", "first"))) if where == "start" else "through",
+        kind=draw(st.sampled_from(("before", "first"))) if where != "end" else "through",
         unit=unit,
         pad=draw(st.sampled_from((0, 0, 6, 8))),
+        end_sep=draw(st.sampled_from(seps)) if where == "both" else "",
+        end_pad=draw(st.sampled_from((0, 0, 6, 8))) if where == "both" else 0,
     )
 
 
 @st.composite
-def specs(draw, max_digits: int = 700, min_digits: int = 1) -> Spec:
+def specs(draw, max_digits: int = 700, min_digits: int = 1, where: str | None = None) -> Spec:
+    """Any digit string in any layout of the model; ``where`` given: always labelled there."""
     base = draw(st.sampled_from((10, 16)))
     alphabet = "0123456789" if base == 10 else "0123456789ABCDEF"
     n = draw(st.integers(min_digits, max_digits))
@@ -45,7 +50,9 @@ def specs(draw, max_digits: int = 700, min_digits: int = 1) -> Spec:
     width = draw(st.one_of(st.none(), st.integers(1, 120)))
     lines = 1 if width is None else -(-n // width)
     group = draw(st.one_of(st.none(), st.integers(1, 12)))
-    label = draw(st.one_of(st.none(), labels(base, width, lines, n)))
+    label = draw(
+        labels(base, width, lines, n, where) if where else st.one_of(st.none(), labels(base, width, lines, n))
+    )
     if label is not None and label.blank:
         assume(width is None or width >= 2)
     return Spec(

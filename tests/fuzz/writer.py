@@ -23,22 +23,38 @@ HEADERS = (
 
 @dataclass(frozen=True)
 class Label:
-    where: str  # "start" or "end"
+    where: str  # "start", "end" or "both" (a start label and an end label on every line)
     radix: int  # 10 or 16
     sep: str  # written between label and body: ": ", "|", " | ", " ", "\t", "  " ...
-    kind: str  # "before", "first", "through"
+    kind: str  # "before", "first", "through" (for "both": the start label's kind)
     unit: int = 1  # 1: counts digits; 2: counts bytes of two hex digits
     pad: int = 0  # right-align the label in this many characters
+    end_sep: str = ""  # for "both": written between body and end label (which counts "through")
+    end_pad: int = 0  # for "both": right-align the end label in this many characters
 
     @property
     def blank(self) -> bool:
-        return self.sep.strip(" \t") == ""
+        """True when a label is set off by blanks alone (at either end, for "both")."""
+        seps = (self.sep, self.end_sep) if self.where == "both" else (self.sep,)
+        return any(s.strip(" \t") == "" for s in seps)
+
+    @property
+    def widest_sep(self) -> int:
+        return max(len(self.sep), len(self.end_sep))
 
     def text(self, before: int, nd: int) -> str:
-        n = before + nd if self.kind == "through" else before
-        v = n // self.unit + (1 if self.kind == "first" else 0)
+        """The start label (or the one label) of a line holding ``nd`` digits after ``before``."""
+        return self._format(self.kind, self.pad, before, nd)
+
+    def end_text(self, before: int, nd: int) -> str:
+        """The end label of a line of a "both" layout: the count through the line's end."""
+        return self._format("through", self.end_pad, before, nd)
+
+    def _format(self, kind: str, pad: int, before: int, nd: int) -> str:
+        n = before + nd if kind == "through" else before
+        v = n // self.unit + (1 if kind == "first" else 0)
         s = format(v, "x") if self.radix == 16 else str(v)
-        return s.rjust(self.pad)
+        return s.rjust(pad)
 
 
 @dataclass(frozen=True)
@@ -84,7 +100,7 @@ def write(spec: Spec) -> Written:
     for n, line in enumerate(lines):
         row = spec.indent
         lab = spec.label.text(before, len(line)) if spec.label else ""
-        if spec.label and spec.label.where == "start":
+        if spec.label and spec.label.where in ("start", "both"):
             spans.append((pos + len(row), pos + len(row) + len(lab)))
             row += lab + spec.label.sep
         if n == 0 and spec.integer_part is not None:
@@ -104,6 +120,11 @@ def write(spec: Spec) -> Written:
             row += spec.label.sep
             spans.append((pos + len(row), pos + len(row) + len(lab)))
             row += lab
+        elif spec.label and spec.label.where == "both":
+            row += spec.label.end_sep
+            end = spec.label.end_text(before, len(line))
+            spans.append((pos + len(row), pos + len(row) + len(end)))
+            row += end
         if n < len(lines) - 1 or spec.final_newline:
             row += spec.newline
         out.append(row)
