@@ -389,6 +389,7 @@ def _hint(exc: Exception) -> str:
         "limit": f" (--limit {value})",
         "windows": "; use `spotcheck verify --budget 0` or `spotcheck locate` instead",
         "at": " (--at)",
+        "verify_each": "; check each with `spotcheck verify`",
         "labels": " (--labels start|end|both|none)",
     }
     if getattr(exc, "hint", None) == "cluster":  # an infeasible request (InfeasibleError)

@@ -105,3 +105,21 @@ def test_stray_byte_mid_file_is_one_error_line(tmp_path: Path, capsys) -> None:
         code, out, err = cli(capsys, "compare", *args)
         assert code == 2 and out == ""
         assert err.count("\n") == 1 and "stray character 'z' at byte 2500" in err
+
+
+def test_a_lying_label_is_reported_and_exits_1(tmp_path: Path, capsys) -> None:
+    lines = [f"{i:>7}: {HEX[i : i + 60]}" for i in range(0, 3000, 60)]
+    lines[20] = lines[20].replace("   1200: ", "   1201: ")
+    a = tmp_path / "a.txt"
+    a.write_text("3.\n" + "\n".join(lines) + "\n")
+    b = tmp_path / "b.txt"
+    b.write_text("3." + HEX + "\n")
+    code, out, _ = cli(capsys, "compare", a, b)
+    assert code == 1 and "IDENTICAL" in out and "LABELS DISAGREE  copy A, line 22" in out
+    code, out, _ = cli(capsys, "compare", a, b, "--json")
+    payload = json.loads(out)
+    jsonschema.validate(payload, COMPARE_SCHEMA)
+    assert code == 1 and payload["labels_consistent"] is False
+    assert payload["a"]["label_finding"]["expected"] == 1200 and payload["b"]["label_finding"] is None
+    code, out, _ = cli(capsys, "compare", a, b, "--ignore-labels")
+    assert code == 0 and "LABELS DISAGREE" not in out

@@ -18,7 +18,7 @@ from hypothesis import strategies as st
 from spotcheck.checks import compare as cmp
 from spotcheck.checks.compare import compare_files
 from spotcheck.checks.schema import COMPARE_SCHEMA
-from spotcheck.errors import DigitFileError, LabelError, UsageError
+from spotcheck.errors import DigitFileError, UsageError
 from tests.reference import pi_decimal, pi_hex
 
 HEX = pi_hex(6000)
@@ -186,8 +186,9 @@ def test_decimal_pair_inside_a_run_of_nines(tmp_path: Path) -> None:
 def test_different_bases_is_bad_input(tmp_path: Path) -> None:
     a = _write(tmp_path / "a.txt", HEX[:500])
     b = _write(tmp_path / "b.txt", DEC[:500])
-    with pytest.raises(UsageError, match="different bases.*verify"):
+    with pytest.raises(UsageError, match="different bases.*check each") as info:
         compare_files(a, b)
+    assert getattr(info.value, "parameter", None) == "verify_each"  # the CLI names the command
 
 
 def test_unknown_constant_lists_runs_without_arbitration(tmp_path: Path) -> None:
@@ -241,15 +242,20 @@ def test_labelled_copy_against_a_grouped_one(tmp_path: Path) -> None:
     assert r.a.layout == "60 digits per line, labels at line start" and r.a.count == len(HEX)
 
 
-def test_a_lying_label_stops_compare_unless_ignored(tmp_path: Path) -> None:
+def test_a_lying_label_is_a_finding_beside_identical_digits(tmp_path: Path) -> None:
     a = _labelled(tmp_path / "a.txt", HEX)
     text = (tmp_path / "a.txt").read_text().replace("   3000: ", "   3001: ")
     (tmp_path / "a.txt").write_text(text)
     b = _write(tmp_path / "b.txt", HEX)
-    with pytest.raises(LabelError, match=r"line 52: .*--ignore-labels"):
-        compare_files(a, b)
+    r = compare_files(a, b)
+    # The digits are identical; copy A's label on line 52 (the 51st digit line) is damage: exit 1.
+    lf = r.a.label_finding
+    assert r.verdict == "identical" and r.b.label_finding is None
+    assert lf is not None and (lf.line, lf.expected, lf.found) == (52, 3000, "3001")
+    assert not r.labels_consistent and r.exit_code == 1
+    assert r.to_dict()["a"]["label_finding"]["line"] == 52
     r = compare_files(a, b, ignore_labels=True)
-    assert r.verdict == "identical"
+    assert r.verdict == "identical" and r.a.label_finding is None and r.exit_code == 0
 
 
 def test_a_stray_byte_mid_file_is_bad_input(tmp_path: Path) -> None:

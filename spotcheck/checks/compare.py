@@ -31,16 +31,15 @@ from __future__ import annotations
 
 import time
 from collections.abc import Callable, Iterator
-from contextlib import contextmanager
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
 from spotcheck.digitfile import DigitFile, DigitStream, open_stream
 from spotcheck.engine.api import leading_digits
-from spotcheck.errors import LabelError, UsageError
 from spotcheck.formulas import get_constant
 
-from .common import DEFAULT_WINDOW, HexOracle
+from .common import DEFAULT_WINDOW, HexOracle, first_label_finding, needs
+from .results import LabelFinding
 from .scan import diff_runs, merge_runs
 
 __all__ = ["compare_files", "compare_open", "CompareResult", "CopyFacts", "DiffRun", "ExtraDigits"]
@@ -60,6 +59,7 @@ SHIFT_MATCH = 256  # digits that must agree after the shift
 # ---------------------------------------------------------------------------
 
 A, B, BOTH_WRONG = "A", "B", "both wrong"
+GIVEN = "given explicitly"  # how the constant was settled when the caller named it
 
 
 @dataclass(frozen=True)
@@ -74,6 +74,8 @@ class CopyFacts:
     integer_part: str | None
     layout: str
     """A short description of the layout (kind, line width, grouping, labels)."""
+    label_finding: LabelFinding | None = None
+    """The copy's first position label that disagrees with its digits (None: consistent, absent or ignored)."""
 
 
 @dataclass
@@ -182,7 +184,15 @@ class CompareResult:
         return "differ"
 
     @property
+    def labels_consistent(self) -> bool:
+        """True when neither copy has a position label that disagrees with its digits (or labels are ignored)."""
+        return self.a.label_finding is None and self.b.label_finding is None
+
+    @property
     def exit_code(self) -> int:
+        """0 identical digits and consistent labels, 1 the copies differ or a copy's labels disagree."""
+        if not self.labels_consistent:
+            return 1
         return {"identical": 0, "differ": 1}.get(self.verdict, 0)
 
     def to_dict(self) -> dict[str, Any]:
@@ -208,6 +218,7 @@ class CompareResult:
             "arbitration_seconds": [round(s, 4) for s in self.arbitration_seconds],
             "evaluations": self.evaluations,
             "interrupted": self.interrupted,
+            "labels_consistent": self.labels_consistent,
         }
 
 
@@ -223,7 +234,7 @@ def _describe_layout(df: DigitFile) -> str:
     return ", ".join(parts)
 
 
-def _facts(df: DigitFile) -> CopyFacts:
+def _facts(df: DigitFile, ignore_labels: bool = False) -> CopyFacts:
     return CopyFacts(
         path=df.path,
         size_bytes=df.size_bytes,
@@ -232,15 +243,8 @@ def _facts(df: DigitFile) -> CopyFacts:
         count=df.count,
         integer_part=df.integer_part,
         layout=_describe_layout(df),
+        label_finding=None if ignore_labels else first_label_finding(df),
     )
-
-
-@contextmanager
-def _label_hint() -> Iterator[None]:
-    try:
-        yield
-    except LabelError as exc:
-        raise LabelError(f"{exc} (compare the digits themselves with --ignore-labels)") from None
 
 
 def compare_files(
@@ -259,18 +263,25 @@ def compare_files(
     Each copy is read once, front to back (the digit-file layer's read-and-check
     stream); ``progress(done, total)`` counts bytes of both files as stored.
     """
-    with _label_hint():
-        sa = open_stream(path_a, base=base, constant=constant, strict_labels=not ignore_labels)
+    # Labels that disagree with the digits are damage to that copy, reported beside the
+    # comparison (exit 1), not bad input; ``ignore_labels`` drops those findings.
+    sa = open_stream(path_a, base=base, constant=constant, strict_labels=False)
+    try:
+        sb = open_stream(path_b, base=base, constant=constant, strict_labels=False)
         try:
-            sb = open_stream(path_b, base=base, constant=constant, strict_labels=not ignore_labels)
-            try:
-                return _compare(
-                    sa, sb, constant=constant, formula=formula, workers=workers, progress=progress
-                )
-            finally:
-                sb.close()
+            return _compare(
+                sa,
+                sb,
+                constant=constant,
+                formula=formula,
+                workers=workers,
+                progress=progress,
+                ignore_labels=ignore_labels,
+            )
         finally:
-            sa.close()
+            sb.close()
+    finally:
+        sa.close()
 
 
 class _FileDigits:
@@ -313,6 +324,7 @@ def compare_open(
     formula: str | None = None,
     workers: int = 1,
     progress: Progress | None = None,
+    ignore_labels: bool = False,
 ) -> CompareResult:
     """Compare two opened copies (see :func:`compare_files`); the files stay open."""
     return _compare(
@@ -322,17 +334,19 @@ def compare_open(
         formula=formula,
         workers=workers,
         progress=progress,
+        ignore_labels=ignore_labels,
     )
 
 
 def _settle_constant(da: DigitFile, db: DigitFile, constant: str | None) -> tuple[str | None, str]:
     if constant is not None:
-        return get_constant(constant).name, "given with --constant"
+        return get_constant(constant).name, GIVEN
     ca, cb = da.constant, db.constant
     if ca is not None and cb is not None and ca != cb:
-        raise UsageError(
-            f"the copies look like different constants: {da.path} is {ca}, {db.path} is {cb} "
-            "(name the constant with --constant if they are copies of one file)"
+        raise needs(
+            f"the copies look like different constants: {da.path} is {ca}, {db.path} is {cb}; "
+            "name the constant if they are copies of one file",
+            "constant",
         )
     if ca is not None:
         return ca, f"copy A: {da.constant_how}"
@@ -407,12 +421,14 @@ def _compare(
     formula: str | None,
     workers: int,
     progress: Progress | None,
+    ignore_labels: bool = False,
 ) -> CompareResult:
     t0 = time.perf_counter()
     if sa.base != sb.base:
-        raise UsageError(
+        raise needs(
             f"the copies are in different bases ({sa.path}: base {sa.base}, {sb.path}: base {sb.base}), "
-            "so their digits cannot be compared; check each against the constant with `spotcheck verify`"
+            "so their digits cannot be compared; check each against the constant instead",
+            "verify_each",
         )
     total = sa.size_bytes + sb.size_bytes
     runs = _Runs()
@@ -422,44 +438,43 @@ def _compare(
     interrupted = False
     compared = 0
     try:
-        with _label_hint():
-            ita, itb = sa.chunks(copy=False), sb.chunks(copy=False)  # each chunk is done with before the next
-            pa = pb = b""
-            ia = ib = 0
-            p = 1
-            while True:
-                if ia >= len(pa):
-                    pa, ia = next(ita, b""), 0
-                if ib >= len(pb):
-                    pb, ib = next(itb, b""), 0
-                n = min(len(pa) - ia, len(pb) - ib, CHUNK_DIGITS)
-                if n <= 0:
-                    break  # one copy (or both) ended
-                # Equal digits cost one memcmp and no copy; differing ones are decoded.
-                if not pa.startswith(memoryview(pb)[ib : ib + n], ia):
-                    runs.add(pa[ia : ia + n].decode("ascii"), pb[ib : ib + n].decode("ascii"), p)
-                probe.follow(runs.pending, pa, ia, pb, ib, n, p)
-                ia, ib, p = ia + n, ib + n, p + n
-                compared = p - 1
-                if progress:
-                    progress(sa.bytes_done + sb.bytes_done, total)
-                run = runs.pending
-                if (
-                    run is not None
-                    and run.length >= SHIFT_PROBE
-                    and run.differing > 0.75 * run.length
-                    and probe.tried != run.start
-                ):
-                    probe.tried = run.start
-                    shift = probe.shift()
-                    if shift is not None:
-                        shift_run = run
-                        break
-            # The count, findings and index of each copy are known once it is read to its end.
-            sa.drain()
-            sb.drain()
+        ita, itb = sa.chunks(copy=False), sb.chunks(copy=False)  # each chunk is done with before the next
+        pa = pb = b""
+        ia = ib = 0
+        p = 1
+        while True:
+            if ia >= len(pa):
+                pa, ia = next(ita, b""), 0
+            if ib >= len(pb):
+                pb, ib = next(itb, b""), 0
+            n = min(len(pa) - ia, len(pb) - ib, CHUNK_DIGITS)
+            if n <= 0:
+                break  # one copy (or both) ended
+            # Equal digits cost one memcmp and no copy; differing ones are decoded.
+            if not pa.startswith(memoryview(pb)[ib : ib + n], ia):
+                runs.add(pa[ia : ia + n].decode("ascii"), pb[ib : ib + n].decode("ascii"), p)
+            probe.follow(runs.pending, pa, ia, pb, ib, n, p)
+            ia, ib, p = ia + n, ib + n, p + n
+            compared = p - 1
             if progress:
-                progress(total, total)
+                progress(sa.bytes_done + sb.bytes_done, total)
+            run = runs.pending
+            if (
+                run is not None
+                and run.length >= SHIFT_PROBE
+                and run.differing > 0.75 * run.length
+                and probe.tried != run.start
+            ):
+                probe.tried = run.start
+                shift = probe.shift()
+                if shift is not None:
+                    shift_run = run
+                    break
+        # The count, findings and index of each copy are known once it is read to its end.
+        sa.drain()
+        sb.drain()
+        if progress:
+            progress(total, total)
     except KeyboardInterrupt:
         interrupted = True
     runs.flush()
@@ -469,7 +484,7 @@ def _compare(
             b=_interrupted_facts(sb),
             base=sa.base,
             constant=get_constant(constant).name if constant is not None else None,
-            constant_how="given with --constant" if constant is not None else "not settled: interrupted",
+            constant_how=GIVEN if constant is not None else "not settled: interrupted",
             method="none",
             digits_compared=compared,
             differing_digits=runs.differing,
@@ -479,16 +494,15 @@ def _compare(
         )
         result.seconds = time.perf_counter() - t0
         return result
-    with _label_hint():
-        da, db = sa.finish(), sb.finish()
+    da, db = sa.finish(), sb.finish()
     name, how = _settle_constant(da, db, constant)
     method = "none" if name is None else ("digit extraction" if da.base == 16 else "radix conversion")
     if name is not None and get_constant(name).evaluation is not None:
         method = "full evaluation"
     common = min(da.count, db.count)
     result = CompareResult(
-        a=_facts(da),
-        b=_facts(db),
+        a=_facts(da, ignore_labels),
+        b=_facts(db, ignore_labels),
         base=da.base,
         constant=name,
         constant_how=how,

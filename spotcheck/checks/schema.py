@@ -238,6 +238,7 @@ _COPY = {
         "count": {"type": "integer", "minimum": 0, "description": "digits after the point"},
         "integer_part": _STR_OR_NULL,
         "layout": {"type": "string", "description": "short description of the layout"},
+        "label_finding": _FILE["properties"]["label_finding"],  # type: ignore[index]
     },
 }
 
@@ -347,6 +348,10 @@ COMPARE_SCHEMA: dict[str, Any] = {
         "arbitration_seconds": {"type": "array", "items": {"type": "number", "minimum": 0}},
         "evaluations": {"type": "integer", "minimum": 0},
         "interrupted": {"type": "boolean"},
+        "labels_consistent": {
+            "type": "boolean",
+            "description": "false when a copy's label_finding is set (exit 1 even when the digits are identical)",
+        },
         "repeat": {"type": "string"},
     },
 }

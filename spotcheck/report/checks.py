@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from spotcheck.checks.results import LocateResult, ScanResult, VerifyResult, WindowCheck
+from spotcheck.checks.results import LabelFinding, LocateResult, ScanResult, VerifyResult, WindowCheck
 from spotcheck.digitfile import InspectResult
 from spotcheck.report.console import (
     STYLE_BAD,
@@ -148,10 +148,16 @@ def _verdict_line(result: CheckResult) -> tuple[str, str]:
 
 def label_sentence(result: CheckResult) -> str | None:
     """One line on the first position label that disagrees with the digits, or None."""
-    lf = result.file.label_finding
+    return label_finding_sentence(result.file.label_finding)
+
+
+def label_finding_sentence(lf: LabelFinding | None, copy: str = "") -> str | None:
+    """One line on a file's first disagreeing position label (``copy`` names the copy, for ``compare``)."""
     if lf is None:
         return None
     where = f"line {lf.line:,}" if lf.line is not None else "a line"
+    if copy:
+        where = f"copy {copy}, {where}"
     if lf.kind == "label-missing":
         what = f"{where}: no position label, unlike the lines around it"
     elif lf.found is not None and lf.expected is not None and lf.end == "end":

@@ -5,7 +5,7 @@ from __future__ import annotations
 from typing import Any
 
 from spotcheck.checks.compare import CompareResult
-from spotcheck.report.checks import plural
+from spotcheck.report.checks import label_finding_sentence, plural
 from spotcheck.report.console import STYLE_BAD, STYLE_DIM, STYLE_OK, STYLE_WARN, emit_json, stdout_console
 
 MAX_TABLE_ROWS = 40
@@ -67,6 +67,10 @@ def show_compare(result: CompareResult, repeat: str, *, as_json: bool, quiet: bo
         else STYLE_BAD
     )
     con.print(line, style=style)
+    for tag, f in (("A", result.a), ("B", result.b)):
+        labels = label_finding_sentence(f.label_finding, tag)
+        if labels:
+            con.print(labels, style=STYLE_BAD)
     for tag, f in (("A", result.a), ("B", result.b)):
         comp = f", {f.compression}" if f.compression else ""
         con.print(f"{tag}: {f.path}: {f.count:,} digits{comp}; {f.layout}", style=STYLE_DIM)
