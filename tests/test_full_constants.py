@@ -240,8 +240,10 @@ def test_full_comparison_refused_above_the_estimate(tmp_path: Path, monkeypatch:
     whole, dec = mpfr_digits("e", 10, 3000)
     df, facts = open_checked(_decimal_file(tmp_path, "e", dec, whole), base=None, constant=None, formula=None)
     monkeypatch.setattr(checks_full, "memory_budget", lambda: 1000)
-    with df, pytest.raises(UsageError, match=r"evaluating it in full: about .* GiB .*--limit"):
+    with df, pytest.raises(UsageError, match=r"evaluating it in full: about .* GiB .*check a prefix") as info:
         checks_full.verify_full(df, facts)
+    fits = getattr(info.value, "value", None)  # the CLI turns parameter "limit" into --limit N
+    assert getattr(info.value, "parameter", None) == "limit" and isinstance(fits, int) and 0 < fits < 3000
 
 
 def test_compare_decimal_copies_of_e_directly(tmp_path: Path) -> None:

@@ -17,10 +17,9 @@ is set (see :func:`is_full`).
 from __future__ import annotations
 
 from spotcheck.digitfile import DigitFile
-from spotcheck.errors import UsageError
 from spotcheck.formulas import get_constant
 
-from .common import Progress
+from .common import Progress, needs
 from .reference import memory_budget
 from .results import FileFacts, LocateResult, ScanResult, VerifyResult, WindowCheck
 from .scan import estimate_scan, scan_open
@@ -60,10 +59,12 @@ def check_affordable(facts: FileFacts, max_seconds: float = DEFAULT_MAX_SECONDS)
     if memory > have or seconds > max_seconds:
         share = min(have / max(memory, 1), max_seconds / max(seconds, 1e-9), 1.0)
         fits = max(1, int(n * share * 0.9))
-        raise UsageError(
+        raise needs(
             f"{facts.constant} has no digit-extraction formula, so checking {n:,} digits means evaluating it "
             f"in full: about {seconds:,.0f} s and {memory / 2**30:.1f} GiB (limits: {max_seconds:,.0f} s, "
-            f"{have / 2**30:.1f} GiB available); check a prefix with --limit {fits:,}"
+            f"{have / 2**30:.1f} GiB available); check a prefix of {fits:,} digits",
+            "limit",
+            fits,
         )
 
 
