@@ -211,6 +211,20 @@ class _LabelCheck:
         return out
 
 
+def read_whole_lines(src: ByteSource, off: int, size: int, name: str) -> bytes:
+    """Up to ``size`` bytes from ``off``, cut after the last line break (a labelled pass reads whole lines).
+
+    Empty at the end of the file; a line longer than ``size`` is an error.
+    """
+    data = src.read_at(off, size)
+    if len(data) == size:
+        cut = data.rfind(b"\n") + 1
+        if cut == 0:
+            raise DigitFileError(f"{name}: a labelled line at byte {off} is longer than {size} bytes")
+        data = data[:cut]
+    return data
+
+
 def build_index(
     src: ByteSource,
     plan: Detection,
@@ -340,14 +354,9 @@ def _scan_labelled(
     last_index = -INDEX_STEP
     chunk = min(CHUNK_BYTES, LABELLED_CHUNK_BYTES)  # line lists cost ~5 times the chunk in memory
     while True:
-        data = src.read_at(off, chunk)
+        data = read_whole_lines(src, off, chunk, name)
         if not data:
             break
-        if len(data) == chunk:
-            cut = data.rfind(b"\n") + 1
-            if cut == 0:
-                raise DigitFileError(f"{name}: a labelled line at byte {off} is longer than {chunk} bytes")
-            data = data[:cut]
         cleaned, found_all = syntax.split_all(data)
         if cleaned.translate(None, allowed):
             _raise_labelled_stray(src, plan, base, data, off, syntax, allowed)

@@ -53,11 +53,12 @@ from spotcheck.digitfile.index import (
     _LabelCheck,
     build_index,
     first_mismatch,
+    read_whole_lines,
     stray_error,
 )
 from spotcheck.digitfile.reader import DigitFile, _open_packed, detect_source, text_digit_file
 from spotcheck.digitfile.source import ByteSource, open_source
-from spotcheck.errors import DigitFileError, UsageError
+from spotcheck.errors import UsageError
 
 __all__ = [
     "DigitStream",
@@ -451,14 +452,9 @@ class _Pass:
         size = LABELLED_STREAM_CHUNK_BYTES
         out = bytearray(size)
         while True:
-            data = src.read_at(off, size)
+            data = read_whole_lines(src, off, size, name)
             if not data:
                 break
-            if len(data) == size:
-                cut = data.rfind(b"\n") + 1
-                if cut == 0:
-                    raise DigitFileError(f"{name}: a labelled line at byte {off} is longer than {size} bytes")
-                data = data[:cut]
             view = memoryview(data)
             lo = k = 0
             while lo < len(data):
