@@ -351,12 +351,14 @@ _typed_path: list[str] = []  # the FILE argument of the running command, as the 
 
 def _as_typed(message: str) -> str:
     """Name the file as the user typed it where a library message names it otherwise."""
-    if not _typed_path:
-        return message
-    typed = _typed_path[-1]
-    for other in (str(Path(typed)), os.path.basename(typed), str(Path(typed).resolve())):
-        if other != typed and message.startswith(other + ":"):
-            return typed + message[len(other) :]
+    names = [os.path.basename(t) for t in _typed_path]
+    for typed in reversed(_typed_path):  # compare has two files: the message names one of them
+        others = [str(Path(typed)), str(Path(typed).resolve())]
+        if names.count(os.path.basename(typed)) == 1:  # a base name shared by both copies names neither
+            others.append(os.path.basename(typed))
+        for other in others:
+            if other != typed and message.startswith(other + ":"):
+                return typed + message[len(other) :]
     return message
 
 
@@ -685,6 +687,7 @@ def compare(
     from spotcheck.report.compare import show_compare
     from spotcheck.report.console import progress_bar
 
+    _typed_path.extend([str(file_a), str(file_b)])
     _load_formula_files(formula_file)
     with progress_bar("compare", enabled=not (quiet or as_json)) as cb:
         result = compare_files(

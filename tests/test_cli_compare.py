@@ -105,6 +105,7 @@ def test_stray_byte_mid_file_is_one_error_line(tmp_path: Path, capsys) -> None:
         code, out, err = cli(capsys, "compare", *args)
         assert code == 2 and out == ""
         assert err.count("\n") == 1 and "stray character 'z' at byte 2500" in err
+        assert err.startswith(f"error: {c}: ")  # the damaged copy, named as typed, whichever side it is
 
 
 def test_a_lying_label_is_reported_and_exits_1(tmp_path: Path, capsys) -> None:
