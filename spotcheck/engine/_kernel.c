@@ -586,7 +586,8 @@ typedef struct {
     uint64_t medium_limit;
     ladder_t wide; /* all n < wide_limit */
     uint64_t wide_limit;
-    void (*fractions)(batch_t *bt, int words, uint64_t *acc); /* NULL: add_fractions */
+    void (*fractions)(batch_t *bt, int words, uint64_t *acc);   /* NULL: add_fractions */
+    void (*fractions32)(batch_t *bt, int words, uint64_t *acc); /* all n < 2^32 (NULL: fractions) */
 } simd_path_t;
 
 /* Residues of a full batch by the path's narrowest ladder that takes every
@@ -605,7 +606,9 @@ static void flush_batch(batch_t *bt, const simd_path_t *path, int words, uint64_
         path->wide(bt);
     else
         ladder64(bt, B);
-    if (path->fractions)
+    if (path->fractions32 && nor < ((uint64_t)1 << 32))
+        path->fractions32(bt, words, acc);
+    else if (path->fractions)
         path->fractions(bt, words, acc);
     else if (B == 64)
         add_fractions(64, bt->x, bt->n, bt->ninv, words, acc);
@@ -725,7 +728,7 @@ static void run_job_batched(const job_t *jb, uint64_t *acc, const simd_path_t *p
 #define TARGET_AVX512 __attribute__((target("avx512f")))
 #define TARGET_IFMA __attribute__((target("avx512f,avx512ifma")))
 #define MAGIC52 0x4330000000000000ULL /* the bits of the double 2^52 */
-#define H 8                           /* AVX2: vector registers of chains per ladder (32 terms) */
+#define H 16                          /* AVX2: vector registers of chains per ladder (64 terms) */
 #define H5 16                         /* AVX-512: registers of chains per ladder (128 terms) */
 
 /* ---- AVX2 (+FMA): 4 lanes of 64 bits, B = 32 ---------------------------- */
@@ -745,6 +748,20 @@ TARGET_AVX2 static inline __m256i inv64_avx2(__m256i n)
     __m256i u = _mm256_sub_epi64(_mm256_set1_epi64x(2), t);
     return _mm256_add_epi64(_mm256_mul_epu32(x, u),
                             _mm256_slli_epi64(_mm256_mul_epu32(x, _mm256_srli_epi64(u, 32)), 32));
+}
+
+/* n^-1 mod 2^32 in the low 32 bits of each lane, for odd n: the Newton steps
+ * of inv64_avx2 on mul_epu32 (whose products are exact mod 2^32; the high
+ * halves of the lanes are left as they fall).  The small ladders need no
+ * more: their moduli are below 2^29, so their fraction words are summed by
+ * fractions32_avx2, which reads only these 32 bits. */
+TARGET_AVX2 static inline __m256i inv32_avx2(__m256i n)
+{
+    const __m256i two = _mm256_set1_epi64x(2);
+    __m256i x = _mm256_xor_si256(_mm256_add_epi64(n, _mm256_add_epi64(n, n)), two); /* 5 bits */
+    for (int i = 0; i < 3; i++)                                                      /* 10, 20, 40 */
+        x = _mm256_mul_epu32(x, _mm256_sub_epi64(two, _mm256_mul_epu32(n, x)));
+    return x;
 }
 
 /* Exact conversions between integers below 2^52 and doubles: the integer is
@@ -788,7 +805,7 @@ TARGET_AVX2 static void small_avx2(batch_t *bt)
     __m256i X[H], N[H], NP[H], F[H];
     const __m256i one = _mm256_set1_epi64x(1), zero = _mm256_setzero_si256();
     uint64_t fmax = 0, fmin = UINT64_MAX;
-    for (int l = 0; l < 32; l++) {
+    for (int l = 0; l < 4 * H; l++) {
         fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
         fmin = bt->f[l] < fmin ? bt->f[l] : fmin;
     }
@@ -796,9 +813,9 @@ TARGET_AVX2 static void small_avx2(batch_t *bt)
     for (int h = 0; h < H; h++) {
         N[h] = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
         F[h] = _mm256_loadu_si256((const __m256i *)(bt->f + 4 * h));
-        __m256i ninv = inv64_avx2(N[h]);
-        _mm256_storeu_si256((__m256i *)(bt->ninv + 4 * h), ninv);
-        NP[h] = _mm256_sub_epi64(zero, ninv); /* the multiplier reads the low 32 bits */
+        __m256i ninv = inv32_avx2(N[h]);
+        _mm256_storeu_si256((__m256i *)(bt->ninv + 4 * h), ninv); /* low 32 bits: see inv32_avx2 */
+        NP[h] = _mm256_sub_epi64(zero, ninv);                     /* the multiplier reads the low 32 bits */
         X[h] = pow2_mod_avx2(u52_to_pd_avx2(N[h]), 4294967296.0);
     }
     for (int b = bit_length(fmax) - 1; b >= low; b--) { /* the shared bits: one test per step */
@@ -809,11 +826,18 @@ TARGET_AVX2 static void small_avx2(batch_t *bt)
             X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, N[h])), 32);
         }
     }
+    /* the lanes' own bits: bit b of f moved to the sign bit of G, which
+     * selects x or 2x (blendv reads only the sign bit); G doubles per step */
+    const __m128i up = _mm_cvtsi32_si128(64 - low);
+    for (int h = 0; h < H && low; h++)
+        F[h] = _mm256_sll_epi64(F[h], up);
     for (int b = low - 1; b >= 0; b--) {
-        __m128i cnt = _mm_cvtsi32_si128(b);
         for (int h = 0; h < H; h++) {
-            __m256i bit = _mm256_and_si256(_mm256_srl_epi64(F[h], cnt), one);
-            __m256i t = _mm256_mul_epu32(X[h], _mm256_sllv_epi64(X[h], bit));
+            __m256i y = _mm256_castpd_si256(_mm256_blendv_pd(_mm256_castsi256_pd(X[h]),
+                                                             _mm256_castsi256_pd(_mm256_add_epi64(X[h], X[h])),
+                                                             _mm256_castsi256_pd(F[h])));
+            F[h] = _mm256_add_epi64(F[h], F[h]);
+            __m256i t = _mm256_mul_epu32(X[h], y);
             __m256i m = _mm256_mul_epu32(t, NP[h]);
             X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, N[h])), 32);
         }
@@ -861,7 +885,7 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
     const __m256i one = _mm256_set1_epi64x(1);
     const __m256d d1 = _mm256_set1_pd(1.0), d2 = _mm256_set1_pd(2.0);
     uint64_t fmax = 0, fmin = UINT64_MAX;
-    for (int l = 0; l < 32; l++) {
+    for (int l = 0; l < 4 * H; l++) {
         fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
         fmin = bt->f[l] < fmin ? bt->f[l] : fmin;
     }
@@ -914,6 +938,15 @@ TARGET_AVX512 static inline __m512i inv64_avx512(__m512i n) /* as inv64_avx2 */
                             _mm512_slli_epi64(_mm512_mul_epu32(x, _mm512_srli_epi64(u, 32)), 32));
 }
 
+TARGET_AVX512 static inline __m512i inv32_avx512(__m512i n) /* as inv32_avx2 */
+{
+    const __m512i two = _mm512_set1_epi64(2);
+    __m512i x = _mm512_xor_si512(_mm512_add_epi64(n, _mm512_add_epi64(n, n)), two);
+    for (int i = 0; i < 3; i++)
+        x = _mm512_mul_epu32(x, _mm512_sub_epi64(two, _mm512_mul_epu32(n, x)));
+    return x;
+}
+
 TARGET_AVX512 static inline __m512d u52_to_pd_avx512(__m512i i)
 {
     return _mm512_sub_pd(_mm512_castsi512_pd(_mm512_or_si512(i, _mm512_set1_epi64((int64_t)MAGIC52))),
@@ -946,8 +979,8 @@ TARGET_AVX512 static void small_avx512(batch_t *bt)
     for (int h = 0; h < H5; h++) {
         N[h] = _mm512_loadu_si512(bt->n + 8 * h);
         F[h] = _mm512_loadu_si512(bt->f + 8 * h);
-        __m512i ninv = inv64_avx512(N[h]);
-        _mm512_storeu_si512(bt->ninv + 8 * h, ninv);
+        __m512i ninv = inv32_avx512(N[h]);
+        _mm512_storeu_si512(bt->ninv + 8 * h, ninv); /* low 32 bits: see inv32_avx2 */
         NP[h] = _mm512_sub_epi64(zero, ninv);
         X[h] = pow2_mod_avx512(u52_to_pd_avx512(N[h]), 4294967296.0);
     }
@@ -1139,11 +1172,11 @@ TARGET_AVX2 static uint64_t hsum_avx2(__m256i v)
     return out[0] + out[1] + out[2] + out[3];
 }
 
-TARGET_AVX2 static void fractions_avx2(batch_t *bt, int words, uint64_t *acc) /* 32 terms */
+TARGET_AVX2 static void fractions_avx2(batch_t *bt, int words, uint64_t *acc) /* 4 H terms */
 {
-    __m256i T[8], N[8], NI[8];
+    __m256i T[H], N[H], NI[H];
     const __m256i lo32 = _mm256_set1_epi64x(0xffffffff), one = _mm256_set1_epi64x(1), zero = _mm256_setzero_si256();
-    for (int h = 0; h < 8; h++) {
+    for (int h = 0; h < H; h++) {
         T[h] = _mm256_loadu_si256((const __m256i *)(bt->x + 4 * h));
         N[h] = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
         NI[h] = _mm256_loadu_si256((const __m256i *)(bt->ninv + 4 * h));
@@ -1151,7 +1184,7 @@ TARGET_AVX2 static void fractions_avx2(batch_t *bt, int words, uint64_t *acc) /*
     unsigned __int128 carry = 0;
     for (int idx = 0; idx < words; idx++) {
         __m256i SL = zero, SH = zero;
-        for (int h = 0; h < 8; h++) {
+        for (int h = 0; h < H; h++) {
             __m256i w = _mm256_sub_epi64(zero, mullo64_avx2(T[h], NI[h]));
             __m256i nz = _mm256_andnot_si256(_mm256_cmpeq_epi64(T[h], zero), one);
             T[h] = _mm256_add_epi64(mulhi64_avx2(w, N[h]), nz);
@@ -1160,6 +1193,72 @@ TARGET_AVX2 static void fractions_avx2(batch_t *bt, int words, uint64_t *acc) /*
         }
         unsigned __int128 total = (unsigned __int128)hsum_avx2(SL) + ((unsigned __int128)hsum_avx2(SH) << 32) +
                                   acc[idx] + carry;
+        acc[idx] = (uint64_t)total;
+        carry = total >> 64;
+    }
+}
+/* The fraction words for a batch whose moduli are all below 2^32, in 32-bit
+ * digits: the same walk as add_fractions with R = 2^32.  For odd n < 2^32
+ * and r_i < n, r_i 2^32 = d_i n + r_(i+1) with the digit d_i < 2^32 and
+ * r_(i+1) < n, so d_i = -r_(i+1) n^-1 mod 2^32 (mul_epu32 of r_(i+1) by
+ * -n^-1 reads the low 32 bits of each, exact mod 2^32) and
+ * r_i = (d_i n + r_(i+1)) / 2^32 exactly (the sum is below 2^32 n + n < 2^64,
+ * and its low 32 bits are zero).  The residue r_(2W+1) = c 2^(E - v + 64W)
+ * mod n is the same as for 64-bit words (64W = 32 (2W)), so the digits are
+ * those of the same floor(2^P frac(...)): word i is d_(2i-1) 2^32 + d_(2i).
+ * Two multiplications per 32-bit digit against seven 32 x 32-bit products
+ * for a 64-bit word.  Only the low 32 bits of bt->ninv are read.  Digit sums
+ * as in fractions_avx512 (below 2^39 for 128 terms). */
+TARGET_AVX2 static void fractions32_avx2(batch_t *bt, int words, uint64_t *acc) /* 4 H terms */
+{
+    __m256i T[H], N[H], NP[H];
+    const __m256i lo32 = _mm256_set1_epi64x(0xffffffff), zero = _mm256_setzero_si256();
+    for (int h = 0; h < H; h++) {
+        T[h] = _mm256_loadu_si256((const __m256i *)(bt->x + 4 * h));
+        N[h] = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
+        NP[h] = _mm256_sub_epi64(zero, _mm256_loadu_si256((const __m256i *)(bt->ninv + 4 * h)));
+    }
+    unsigned __int128 carry = 0;
+    for (int idx = 0; idx < words; idx++) {
+        __m256i SL = zero, SH = zero;
+        for (int h = 0; h < H; h++) {
+            __m256i d = _mm256_mul_epu32(T[h], NP[h]); /* low 32 bits: the digit */
+            T[h] = _mm256_srli_epi64(_mm256_add_epi64(_mm256_mul_epu32(d, N[h]), T[h]), 32);
+            SL = _mm256_add_epi64(SL, _mm256_and_si256(d, lo32));
+            d = _mm256_mul_epu32(T[h], NP[h]);
+            T[h] = _mm256_srli_epi64(_mm256_add_epi64(_mm256_mul_epu32(d, N[h]), T[h]), 32);
+            SH = _mm256_add_epi64(SH, _mm256_and_si256(d, lo32));
+        }
+        unsigned __int128 total = (unsigned __int128)hsum_avx2(SL) + ((unsigned __int128)hsum_avx2(SH) << 32) +
+                                  acc[idx] + carry;
+        acc[idx] = (uint64_t)total;
+        carry = total >> 64;
+    }
+}
+
+TARGET_AVX512 static void fractions32_avx512(batch_t *bt, int words, uint64_t *acc) /* as fractions32_avx2 */
+{
+    __m512i T[H5], N[H5], NP[H5];
+    const __m512i lo32 = _mm512_set1_epi64(0xffffffff), zero = _mm512_setzero_si512();
+    for (int h = 0; h < H5; h++) {
+        T[h] = _mm512_loadu_si512(bt->x + 8 * h);
+        N[h] = _mm512_loadu_si512(bt->n + 8 * h);
+        NP[h] = _mm512_sub_epi64(zero, _mm512_loadu_si512(bt->ninv + 8 * h));
+    }
+    unsigned __int128 carry = 0;
+    for (int idx = 0; idx < words; idx++) {
+        __m512i SL = zero, SH = zero;
+        for (int h = 0; h < H5; h++) {
+            __m512i d = _mm512_mul_epu32(T[h], NP[h]);
+            T[h] = _mm512_srli_epi64(_mm512_add_epi64(_mm512_mul_epu32(d, N[h]), T[h]), 32);
+            SL = _mm512_add_epi64(SL, _mm512_and_si512(d, lo32));
+            d = _mm512_mul_epu32(T[h], NP[h]);
+            T[h] = _mm512_srli_epi64(_mm512_add_epi64(_mm512_mul_epu32(d, N[h]), T[h]), 32);
+            SH = _mm512_add_epi64(SH, _mm512_and_si512(d, lo32));
+        }
+        unsigned __int128 total = (unsigned __int128)(uint64_t)_mm512_reduce_add_epi64(SL) +
+                                  ((unsigned __int128)(uint64_t)_mm512_reduce_add_epi64(SH) << 32) + acc[idx] +
+                                  carry;
         acc[idx] = (uint64_t)total;
         carry = total >> 64;
     }
@@ -1181,13 +1280,13 @@ static const simd_path_t PATHS[NPATHS] = {
     {"portable", "", 0, NULL, 0, NULL, 0, NULL, 0, NULL}, /* today's shipped code: run_8_simd */
     {"scalar", "", 0, NULL, 0, NULL, 0, NULL, 0, NULL},   /* 64-bit Montgomery only, 8 lanes: run_8_fused */
 #if HAVE_X86_PATHS
-    {"avx2", "avx2, fma", 32, small_avx2, SMALL_LIMIT, medium_avx2, FMA_LIMIT, NULL, 0, fractions_avx2},
-    {"avx512f", "avx512f", 128, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT, NULL, 0, fractions_avx512},
+    {"avx2", "avx2, fma", 64, small_avx2, SMALL_LIMIT, medium_avx2, FMA_LIMIT, NULL, 0, fractions_avx2, fractions32_avx2},
+    {"avx512f", "avx512f", 128, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT, NULL, 0, fractions_avx512, fractions32_avx512},
     /* FMA below 2^48 measured slightly faster than IFMA on AMD EPYC (Zen 5);
        IFMA takes 2^48 .. 2^51 */
     {"avx512ifma", "avx512f, avx512ifma", 128, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT, medium_ifma,
-     IFMA_LIMIT, fractions_avx512},
-    {"ifma52", "avx512f, avx512ifma", 128, NULL, 0, NULL, 0, medium_ifma, IFMA_LIMIT, fractions_avx512},
+     IFMA_LIMIT, fractions_avx512, fractions32_avx512},
+    {"ifma52", "avx512f, avx512ifma", 128, NULL, 0, NULL, 0, medium_ifma, IFMA_LIMIT, fractions_avx512, fractions32_avx512},
 #else
     {"avx2", "avx2, fma", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
     {"avx512f", "avx512f", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
