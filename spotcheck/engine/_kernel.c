@@ -885,8 +885,7 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
 {
     __m256d X[H], ND[H], NI[H];
     __m256i F[H];
-    const __m256i one = _mm256_set1_epi64x(1);
-    const __m256d d1 = _mm256_set1_pd(1.0), d2 = _mm256_set1_pd(2.0);
+    const __m256d d1 = _mm256_set1_pd(1.0);
     uint64_t fmax = 0, fmin = UINT64_MAX;
     for (int l = 0; l < 4 * H; l++) {
         fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
@@ -896,7 +895,7 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
     for (int h = 0; h < H; h++) {
         __m256i n = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
         F[h] = _mm256_loadu_si256((const __m256i *)(bt->f + 4 * h));
-        _mm256_storeu_si256((__m256i *)(bt->ninv + 4 * h), inv64_avx2(n));
+        _mm256_storeu_si256((__m256i *)(bt->ninv + 4 * h), inv32_avx2(n)); /* the fractions read 32 bits */
         ND[h] = u52_to_pd_avx2(n);
         NI[h] = _mm256_div_pd(d1, ND[h]);
         X[h] = d1;
@@ -909,11 +908,13 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
             for (int h = 0; h < H; h++)
                 X[h] = mulmod_avx2(X[h], X[h], ND[h], NI[h]);
     }
+    const __m128i up = _mm_cvtsi32_si128(64 - low); /* the lanes' own bits, as in small_avx2 */
+    for (int h = 0; h < H && low; h++)
+        F[h] = _mm256_sll_epi64(F[h], up);
     for (int b = low - 1; b >= 0; b--) {
-        __m128i cnt = _mm_cvtsi32_si128(b);
         for (int h = 0; h < H; h++) {
-            __m256i bit = _mm256_cmpeq_epi64(_mm256_and_si256(_mm256_srl_epi64(F[h], cnt), one), one);
-            __m256d y = _mm256_mul_pd(X[h], _mm256_blendv_pd(d1, d2, _mm256_castsi256_pd(bit)));
+            __m256d y = _mm256_blendv_pd(X[h], _mm256_add_pd(X[h], X[h]), _mm256_castsi256_pd(F[h])); /* exact */
+            F[h] = _mm256_add_epi64(F[h], F[h]);
             X[h] = mulmod_avx2(X[h], y, ND[h], NI[h]);
         }
     }
@@ -1026,7 +1027,7 @@ TARGET_AVX512 static void medium_avx512(batch_t *bt)
     for (int h = 0; h < H5; h++) {
         __m512i n = _mm512_loadu_si512(bt->n + 8 * h);
         F[h] = _mm512_loadu_si512(bt->f + 8 * h);
-        _mm512_storeu_si512(bt->ninv + 8 * h, inv64_avx512(n));
+        _mm512_storeu_si512(bt->ninv + 8 * h, inv32_avx512(n)); /* the fractions read 32 bits */
         ND[h] = u52_to_pd_avx512(n);
         NI[h] = _mm512_div_pd(d1, ND[h]);
         X[h] = d1;
