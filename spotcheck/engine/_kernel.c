@@ -546,7 +546,14 @@ static runner_t pick_runner(long lanes, long step)
 
 typedef struct {
     uint64_t n[BATCH], f[BATCH], cm[BATCH], x[BATCH], ninv[BATCH];
+    uint64_t nmax, fmax, fmin; /* over the terms put in so far (kept by the collection) */
 } batch_t;
+
+static void batch_reset(batch_t *bt)
+{
+    bt->nmax = bt->fmax = 0;
+    bt->fmin = UINT64_MAX;
+}
 
 typedef void (*ladder_t)(batch_t *bt);
 
@@ -596,9 +603,7 @@ typedef struct {
 static void flush_batch(batch_t *bt, const simd_path_t *path, int words, uint64_t *acc)
 {
     const int B = path->batch;
-    uint64_t nor = 0;
-    for (int l = 0; l < B; l++)
-        nor |= bt->n[l]; /* below a power of two iff every n is */
+    const uint64_t nor = bt->nmax; /* below a power of two iff every n is */
     if (path->small && nor < path->small_limit)
         path->small(bt);
     else if (path->medium && nor < path->medium_limit)
@@ -617,6 +622,7 @@ static void flush_batch(batch_t *bt, const simd_path_t *path, int words, uint64_
         add_fractions(64, bt->x, bt->n, bt->ninv, words, acc);
     else
         add_fractions(32, bt->x, bt->n, bt->ninv, words, acc);
+    batch_reset(bt);
 }
 
 /* One term (k, pair p) by the general rules of run_job: slow_term for E < v,
@@ -642,6 +648,9 @@ static void batch_term(const job_t *jb, uint64_t k, Py_ssize_t p, batch_t *bt, i
     bt->n[*fill] = odd;
     bt->f[*fill] = E - v + extra;
     bt->cm[*fill] = coeff_mod(c, odd);
+    bt->nmax = odd > bt->nmax ? odd : bt->nmax;
+    bt->fmax = bt->f[*fill] > bt->fmax ? bt->f[*fill] : bt->fmax;
+    bt->fmin = bt->f[*fill] < bt->fmin ? bt->f[*fill] : bt->fmin;
     if (++*fill == path->batch) {
         flush_batch(bt, path, jb->words, acc);
         *fill = 0;
@@ -663,6 +672,7 @@ static void batch_term(const job_t *jb, uint64_t k, Py_ssize_t p, batch_t *bt, i
 static void run_job_batched(const job_t *jb, uint64_t *acc, const simd_path_t *path)
 {
     batch_t bt;
+    batch_reset(&bt);
     const int B = path->batch;
     const uint64_t extra = 64 * (uint64_t)jb->words, D = jb->D, e = jb->e, m = jb->m, q = jb->q, k1 = jb->k1;
     int fill = 0;
@@ -697,12 +707,16 @@ static void run_job_batched(const job_t *jb, uint64_t *acc, const simd_path_t *p
             const uint64_t f0 = D - t + extra, neg_odd = jb->alternating ? 1 : 0, negc = c0 < 0;
             while (k < hi) {
                 uint64_t run = hi - k < (uint64_t)(B - fill) ? hi - k : (uint64_t)(B - fill);
-                for (uint64_t i = 0; i < run; i++, k++) {
-                    uint64_t n = b + step * k, neg = negc ^ (neg_odd & k);
+                uint64_t n = b + step * k, f = f0 - e * k; /* n grows with k, f falls */
+                bt.fmax = f > bt.fmax ? f : bt.fmax;
+                for (uint64_t i = 0; i < run; i++, k++, n += step, f -= e) {
+                    uint64_t neg = negc ^ (neg_odd & k);
                     bt.n[fill + i] = n;
-                    bt.f[fill + i] = f0 - e * k;
+                    bt.f[fill + i] = f;
                     bt.cm[fill + i] = neg ? n - ca : ca;
                 }
+                bt.nmax = bt.n[fill + run - 1] > bt.nmax ? bt.n[fill + run - 1] : bt.nmax;
+                bt.fmin = bt.f[fill + run - 1] < bt.fmin ? bt.f[fill + run - 1] : bt.fmin;
                 fill += (int)run;
                 if (fill == B) {
                     flush_batch(&bt, path, jb->words, acc);
@@ -807,11 +821,7 @@ TARGET_AVX2 static void small_avx2(batch_t *bt)
 {
     __m256i X[H], N[H], NP[H], F[H];
     const __m256i one = _mm256_set1_epi64x(1), zero = _mm256_setzero_si256();
-    uint64_t fmax = 0, fmin = UINT64_MAX;
-    for (int l = 0; l < 4 * H; l++) {
-        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
-        fmin = bt->f[l] < fmin ? bt->f[l] : fmin;
-    }
+    const uint64_t fmax = bt->fmax, fmin = bt->fmin;
     const int low = bit_length(fmax ^ fmin); /* bits >= low: the same in every lane */
     for (int h = 0; h < H; h++) {
         N[h] = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
@@ -886,11 +896,7 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
     __m256d X[H], ND[H], NI[H];
     __m256i F[H];
     const __m256d d1 = _mm256_set1_pd(1.0);
-    uint64_t fmax = 0, fmin = UINT64_MAX;
-    for (int l = 0; l < 4 * H; l++) {
-        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
-        fmin = bt->f[l] < fmin ? bt->f[l] : fmin;
-    }
+    const uint64_t fmax = bt->fmax, fmin = bt->fmin;
     const int low = bit_length(fmax ^ fmin); /* bits >= low: the same in every lane */
     for (int h = 0; h < H; h++) {
         __m256i n = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
@@ -977,9 +983,7 @@ TARGET_AVX512 static void small_avx512(batch_t *bt)
 {
     __m512i X[H5], N[H5], NP[H5], F[H5];
     const __m512i zero = _mm512_setzero_si512();
-    uint64_t fmax = 0;
-    for (int l = 0; l < 8 * H5; l++)
-        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
+    const uint64_t fmax = bt->fmax;
     for (int h = 0; h < H5; h++) {
         N[h] = _mm512_loadu_si512(bt->n + 8 * h);
         F[h] = _mm512_loadu_si512(bt->f + 8 * h);
@@ -1021,9 +1025,7 @@ TARGET_AVX512 static void medium_avx512(batch_t *bt)
     __m512d X[H5], ND[H5], NI[H5];
     __m512i F[H5];
     const __m512d d1 = _mm512_set1_pd(1.0);
-    uint64_t fmax = 0;
-    for (int l = 0; l < 8 * H5; l++)
-        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
+    const uint64_t fmax = bt->fmax;
     for (int h = 0; h < H5; h++) {
         __m512i n = _mm512_loadu_si512(bt->n + 8 * h);
         F[h] = _mm512_loadu_si512(bt->f + 8 * h);
@@ -1073,9 +1075,7 @@ TARGET_IFMA static void medium_ifma(batch_t *bt)
 {
     __m512i X[H5], N[H5], NP[H5], F[H5];
     const __m512i mask52 = _mm512_set1_epi64(((int64_t)1 << 52) - 1);
-    uint64_t fmax = 0;
-    for (int l = 0; l < 8 * H5; l++)
-        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
+    const uint64_t fmax = bt->fmax;
     for (int h = 0; h < H5; h++) {
         N[h] = _mm512_loadu_si512(bt->n + 8 * h);
         F[h] = _mm512_loadu_si512(bt->f + 8 * h);
