@@ -992,7 +992,16 @@ TARGET_AVX512 static void small_avx512(batch_t *bt)
         NP[h] = _mm512_sub_epi64(zero, ninv);
         X[h] = pow2_mod_avx512(u52_to_pd_avx512(N[h]), 4294967296.0);
     }
-    for (int b = bit_length(fmax) - 1; b >= 0; b--) {
+    const int low = bit_length(fmax ^ bt->fmin); /* bits >= low: the same in every lane */
+    for (int b = bit_length(fmax) - 1; b >= low; b--) {
+        __m128i cnt = _mm_cvtsi32_si128((int)((fmax >> b) & 1));
+        for (int h = 0; h < H5; h++) {
+            __m512i t = _mm512_mul_epu32(X[h], _mm512_sll_epi64(X[h], cnt));
+            __m512i m = _mm512_mul_epu32(t, NP[h]);
+            X[h] = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, N[h])), 32);
+        }
+    }
+    for (int b = low - 1; b >= 0; b--) {
         __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
         for (int h = 0; h < H5; h++) { /* y = x, or 2x where bit b of f is set */
             __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]);
