@@ -524,20 +524,23 @@ static runner_t pick_runner(long lanes, long step)
  *
  * Each ladder keeps one exponent per lane (no shared exponent): at step b
  * lane l multiplies by 2 when bit b of f_l is set, by a per-lane shift or
- * blend, so terms of different k share a batch.  (The AVX2 ladders test the
- * top bits once for all lanes where every f of the batch has the same bits:
- * every integer between min f and max f shares their common leading bits.)  The ladder starts from the
- * form of 1 at the top bit of max f; lanes with shorter exponents square 1
+ * blend, so terms of different k share a batch.  (The 32-bit and AVX2 FMA
+ * ladders test the top bits once for all lanes where every f of the batch
+ * has the same bits: every integer between min f and max f shares their
+ * common leading bits; the batch keeps min f, max f and max n as its terms
+ * go in.)  The ladder starts from the form of 1 at the top bit of max f; lanes with shorter exponents square 1
  * until their own top bit.  A batch whose largest modulus exceeds a ladder's
  * limit goes to the next wider one, and above every vector limit to the
  * 64-bit scalar Montgomery code (moduli up to 2^63).
  *
- *   path        moduli < 2^29          < 2^48 / 2^51            below 2^63
- *   avx2        4 x 32-bit Montgomery   4 x FMA double (2^48)    64-bit scalar
- *   avx512f     8 x 32-bit Montgomery   8 x FMA double (2^48)    64-bit scalar
- *   avx512ifma  8 x 32-bit Montgomery   8 x IFMA 52-bit (2^51)   64-bit scalar
+ *   path        moduli < 2^29 / 2^31        < 2^48            < 2^51     below 2^63
+ *   avx2        4 x 32-bit Montgomery   4 x FMA double    --         64-bit scalar
+ *   avx512f     8 x 32-bit Montgomery   8 x FMA double    --         64-bit scalar
+ *   avx512ifma  8 x 32-bit Montgomery   8 x FMA double    8 x IFMA   64-bit scalar
  *
- * with B = 32 (AVX2: 8 registers) or 128 (AVX-512: 16 registers) terms in
+ * (32-bit Montgomery left in [0, 2n) below 2^29, reduced every step below
+ * 2^31; IFMA is 52-bit Montgomery), then the fraction words in 32-bit digits
+ * (see "the fraction words in vector form"), with B = 64 (AVX2: 16 registers) or 128 (AVX-512: 16 registers) terms in
  * flight, each lane an independent chain.  Padding lanes use n = 1 (x = 0,
  * fraction 0).
  */
@@ -589,6 +592,8 @@ typedef struct {
     int batch;            /* terms per batch (a multiple of 8, at most BATCH) */
     ladder_t small;       /* all n < small_limit */
     uint64_t small_limit;
+    ladder_t narrow; /* all n < narrow_limit */
+    uint64_t narrow_limit;
     ladder_t medium; /* all n < medium_limit */
     uint64_t medium_limit;
     ladder_t wide; /* all n < wide_limit */
@@ -606,6 +611,8 @@ static void flush_batch(batch_t *bt, const simd_path_t *path, int words, uint64_
     const uint64_t nor = bt->nmax; /* below a power of two iff every n is */
     if (path->small && nor < path->small_limit)
         path->small(bt);
+    else if (path->narrow && nor < path->narrow_limit)
+        path->narrow(bt);
     else if (path->medium && nor < path->medium_limit)
         path->medium(bt);
     else if (path->wide && nor < path->wide_limit)
@@ -816,8 +823,16 @@ TARGET_AVX2 static inline __m256i pow2_mod_avx2(__m256d nd, double p2)
  * so (t + m n) / 2^32 < 8 n^2 / 2^32 + n < 2n, and 2y < 2^31 fits the 32-bit
  * multiplier input.  X starts at 2^32 mod n (the form of 1); after the
  * ladder X = 2^f 2^32 mod n, reduced to [0, n), and one more reduction of
- * X cm (< n^2) gives c 2^f mod n in [0, 2n), reduced to [0, n). */
-TARGET_AVX2 static void small_avx2(batch_t *bt)
+ * X cm (< n^2) gives c 2^f mod n in [0, 2n), reduced to [0, n).
+ *
+ * full = 1 (narrow_avx2) takes odd n < 2^31 by reducing after every step:
+ * x < n gives y = x or 2x < 2n < 2^32 (a multiplier input), t = x y < 2 n^2,
+ * t + m n < 2 n^2 + 2^32 n < 2^64, and (t + m n) / 2^32 < 2 n^2 / 2^32 + n
+ * < 2n, so one conditional subtraction brings it to [0, n).  Values are below
+ * 2^32 with zero high halves, so min_epu32(x, x - n) (32-bit lanes: x - n
+ * wraps above x exactly when x < n) is that subtraction.  Two more
+ * operations per step, no more products: cheaper than the FMA ladder. */
+TARGET_AVX2 static inline void ladder32_avx2(batch_t *bt, const int full)
 {
     __m256i X[H], N[H], NP[H], F[H];
     const __m256i one = _mm256_set1_epi64x(1), zero = _mm256_setzero_si256();
@@ -837,6 +852,8 @@ TARGET_AVX2 static void small_avx2(batch_t *bt)
             __m256i t = _mm256_mul_epu32(X[h], _mm256_sll_epi64(X[h], cnt));
             __m256i m = _mm256_mul_epu32(t, NP[h]);
             X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, N[h])), 32);
+            if (full) /* x >= n ? x - n : x on values below 2^32 (high halves zero) */
+                X[h] = _mm256_min_epu32(X[h], _mm256_sub_epi32(X[h], N[h]));
         }
     }
     /* the lanes' own bits: bit b of f moved to the sign bit of G, which
@@ -853,10 +870,12 @@ TARGET_AVX2 static void small_avx2(batch_t *bt)
             __m256i t = _mm256_mul_epu32(X[h], y);
             __m256i m = _mm256_mul_epu32(t, NP[h]);
             X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, N[h])), 32);
+            if (full) /* x >= n ? x - n : x on values below 2^32 (high halves zero) */
+                X[h] = _mm256_min_epu32(X[h], _mm256_sub_epi32(X[h], N[h]));
         }
     }
     for (int h = 0; h < H; h++) {
-        /* values below 2^31: signed compares are exact */
+        /* values below 2^32: 64-bit signed compares are exact */
         __m256i x = X[h], d = _mm256_sub_epi64(x, N[h]);
         x = _mm256_blendv_epi8(d, x, _mm256_cmpgt_epi64(N[h], x));
         __m256i t = _mm256_mul_epu32(x, _mm256_loadu_si256((const __m256i *)(bt->cm + 4 * h)));
@@ -867,6 +886,9 @@ TARGET_AVX2 static void small_avx2(batch_t *bt)
         _mm256_storeu_si256((__m256i *)(bt->x + 4 * h), x);
     }
 }
+
+TARGET_AVX2 static void small_avx2(batch_t *bt) { ladder32_avx2(bt, 0); }
+TARGET_AVX2 static void narrow_avx2(batch_t *bt) { ladder32_avx2(bt, 1); }
 
 /* a b mod n in doubles for integers |a|, |b| < 2^52 with |a b / n| < 2^49
  * and n < 2^48, result an integer in (-n, n) -- exact:
@@ -979,7 +1001,7 @@ TARGET_AVX512 static inline __m512i pow2_mod_avx512(__m512d nd, double p2) /* as
 }
 
 /* small_avx2 on eight lanes; the same bounds (n < 2^29, values in [0, 2n)). */
-TARGET_AVX512 static void small_avx512(batch_t *bt)
+TARGET_AVX512 static inline void ladder32_avx512(batch_t *bt, const int full)
 {
     __m512i X[H5], N[H5], NP[H5], F[H5];
     const __m512i zero = _mm512_setzero_si512();
@@ -999,6 +1021,8 @@ TARGET_AVX512 static void small_avx512(batch_t *bt)
             __m512i t = _mm512_mul_epu32(X[h], _mm512_sll_epi64(X[h], cnt));
             __m512i m = _mm512_mul_epu32(t, NP[h]);
             X[h] = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, N[h])), 32);
+            if (full)
+                X[h] = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], N[h]));
         }
     }
     for (int b = low - 1; b >= 0; b--) {
@@ -1008,6 +1032,8 @@ TARGET_AVX512 static void small_avx512(batch_t *bt)
             __m512i t = _mm512_mul_epu32(X[h], y);
             __m512i m = _mm512_mul_epu32(t, NP[h]);
             X[h] = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, N[h])), 32);
+            if (full)
+                X[h] = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], N[h]));
         }
     }
     for (int h = 0; h < H5; h++) {
@@ -1019,6 +1045,9 @@ TARGET_AVX512 static void small_avx512(batch_t *bt)
         _mm512_storeu_si512(bt->x + 8 * h, x);
     }
 }
+
+TARGET_AVX512 static void small_avx512(batch_t *bt) { ladder32_avx512(bt, 0); }
+TARGET_AVX512 static void narrow_avx512(batch_t *bt) { ladder32_avx512(bt, 1); }
 
 TARGET_AVX512 static inline __m512d mulmod_avx512(__m512d a, __m512d b, __m512d n, __m512d ninv)
 { /* as mulmod_avx2, same bounds */
@@ -1255,25 +1284,34 @@ TARGET_IFMA static void fractions52_ifma(batch_t *bt, int words, uint64_t *acc) 
 enum { PATH_PORTABLE = 0, PATH_SCALAR, PATH_AVX2, PATH_AVX512F, PATH_AVX512IFMA, PATH_IFMA52, NPATHS };
 
 #define SMALL_LIMIT ((uint64_t)1 << 29)
+#define NARROW_LIMIT ((uint64_t)1 << 31)
 #define FMA_LIMIT ((uint64_t)1 << 48)
 #define IFMA_LIMIT ((uint64_t)1 << 51)
 
 static const simd_path_t PATHS[NPATHS] = {
-    {"portable", "", 0, NULL, 0, NULL, 0, NULL, 0, NULL}, /* today's shipped code: run_8_simd */
-    {"scalar", "", 0, NULL, 0, NULL, 0, NULL, 0, NULL},   /* 64-bit Montgomery only, 8 lanes: run_8_fused */
+    {.name = "portable", .features = ""}, /* today's shipped code: run_8_simd */
+    {.name = "scalar", .features = ""},   /* 64-bit Montgomery only, 8 lanes: run_8_fused */
 #if HAVE_X86_PATHS
-    {"avx2", "avx2, fma", 64, small_avx2, SMALL_LIMIT, medium_avx2, FMA_LIMIT, NULL, 0, fractions_avx2, fractions32_avx2},
-    {"avx512f", "avx512f", 128, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT, NULL, 0, fractions_avx512, fractions32_avx512},
-    /* FMA below 2^48 measured slightly faster than IFMA on AMD EPYC (Zen 5);
+    {.name = "avx2", .features = "avx2, fma", .batch = 64, .small = small_avx2, .small_limit = SMALL_LIMIT,
+     .narrow = narrow_avx2, .narrow_limit = NARROW_LIMIT, .medium = medium_avx2, .medium_limit = FMA_LIMIT,
+     .fractions = fractions_avx2, .fractions32 = fractions32_avx2},
+    {.name = "avx512f", .features = "avx512f", .batch = 128, .small = small_avx512, .small_limit = SMALL_LIMIT,
+     .narrow = narrow_avx512, .narrow_limit = NARROW_LIMIT, .medium = medium_avx512, .medium_limit = FMA_LIMIT,
+     .fractions = fractions_avx512, .fractions32 = fractions32_avx512},
+    /* FMA below 2^48 measured slightly faster than IFMA on AMD EPYC (Zen 4);
        IFMA takes 2^48 .. 2^51 */
-    {"avx512ifma", "avx512f, avx512ifma", 128, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT, medium_ifma,
-     IFMA_LIMIT, fractions_avx512, fractions32_avx512, fractions52_ifma},
-    {"ifma52", "avx512f, avx512ifma", 128, NULL, 0, NULL, 0, medium_ifma, IFMA_LIMIT, fractions_avx512, fractions32_avx512, fractions52_ifma},
+    {.name = "avx512ifma", .features = "avx512f, avx512ifma", .batch = 128, .small = small_avx512,
+     .small_limit = SMALL_LIMIT, .narrow = narrow_avx512, .narrow_limit = NARROW_LIMIT, .medium = medium_avx512,
+     .medium_limit = FMA_LIMIT, .wide = medium_ifma, .wide_limit = IFMA_LIMIT, .fractions = fractions_avx512,
+     .fractions32 = fractions32_avx512, .fractions52 = fractions52_ifma},
+    {.name = "ifma52", .features = "avx512f, avx512ifma", .batch = 128, .wide = medium_ifma,
+     .wide_limit = IFMA_LIMIT, .fractions = fractions_avx512, .fractions32 = fractions32_avx512,
+     .fractions52 = fractions52_ifma},
 #else
-    {"avx2", "avx2, fma", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
-    {"avx512f", "avx512f", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
-    {"avx512ifma", "avx512f, avx512ifma", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
-    {"ifma52", "avx512f, avx512ifma", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
+    {.name = "avx2", .features = "avx2, fma"},
+    {.name = "avx512f", .features = "avx512f"},
+    {.name = "avx512ifma", .features = "avx512f, avx512ifma"},
+    {.name = "ifma52", .features = "avx512f, avx512ifma"},
 #endif
 };
 
