@@ -1072,7 +1072,16 @@ TARGET_AVX512 static void medium_avx512(batch_t *bt)
         NI[h] = _mm512_div_pd(d1, ND[h]);
         X[h] = d1;
     }
-    for (int b = bit_length(fmax) - 1; b >= 0; b--) {
+    const int low = bit_length(fmax ^ bt->fmin); /* bits >= low: the same in every lane */
+    for (int b = bit_length(fmax) - 1; b >= low; b--) {
+        if ((fmax >> b) & 1)
+            for (int h = 0; h < H5; h++)
+                X[h] = mulmod_avx512(X[h], _mm512_add_pd(X[h], X[h]), ND[h], NI[h]);
+        else
+            for (int h = 0; h < H5; h++)
+                X[h] = mulmod_avx512(X[h], X[h], ND[h], NI[h]);
+    }
+    for (int b = low - 1; b >= 0; b--) {
         __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
         for (int h = 0; h < H5; h++) {
             __m512d y = _mm512_mask_add_pd(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]); /* exact */
