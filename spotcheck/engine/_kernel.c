@@ -1118,6 +1118,21 @@ TARGET_IFMA static inline __m512i mont52(__m512i a, __m512i b, __m512i n, __m512
     return _mm512_min_epu64(t, _mm512_sub_epi64(t, n));
 }
 
+/* mont52 without the last correction, for odd n < 2^49: x in [0, 2n) and
+ * y = x or 2x < 4n < 2^52 (an IFMA input) give x y < 8 n^2 and a result below
+ * 8 n^2 / 2^52 + n < 2n, so the values stay in [0, 2n).  The carry is
+ * taken from lo alone: lo + lo52(m n) is 0 or 2^52 (see above), i.e. the
+ * carry is 1 exactly when lo != 0 -- four IFMA products, no shift. */
+TARGET_IFMA static inline __m512i mont52_lazy(__m512i a, __m512i b, __m512i n, __m512i np)
+{
+    const __m512i zero = _mm512_setzero_si512();
+    __m512i lo = _mm512_madd52lo_epu64(zero, a, b);
+    __m512i hi = _mm512_madd52hi_epu64(zero, a, b);
+    __m512i m = _mm512_madd52lo_epu64(zero, lo, np);
+    hi = _mm512_mask_add_epi64(hi, _mm512_test_epi64_mask(lo, lo), hi, _mm512_set1_epi64(1));
+    return _mm512_madd52hi_epu64(hi, m, n);
+}
+
 TARGET_IFMA static void medium_ifma(batch_t *bt)
 {
     __m512i X[H5], N[H5], NP[H5], F[H5];
@@ -1131,11 +1146,32 @@ TARGET_IFMA static void medium_ifma(batch_t *bt)
         NP[h] = _mm512_and_si512(_mm512_sub_epi64(_mm512_setzero_si512(), ninv), mask52);
         X[h] = pow2_mod_avx512(u52_to_pd_avx512(N[h]), 4503599627370496.0);
     }
-    for (int b = bit_length(fmax) - 1; b >= 0; b--) {
-        __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
-        for (int h = 0; h < H5; h++) {
-            __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]);
-            X[h] = mont52(X[h], y, N[h], NP[h]);
+    if (bt->nmax < ((uint64_t)1 << 49)) {
+        const int low = bit_length(fmax ^ bt->fmin); /* bits >= low: the same in every lane */
+        for (int b = bit_length(fmax) - 1; b >= low; b--) {
+            if ((fmax >> b) & 1)
+                for (int h = 0; h < H5; h++)
+                    X[h] = mont52_lazy(X[h], _mm512_add_epi64(X[h], X[h]), N[h], NP[h]);
+            else
+                for (int h = 0; h < H5; h++)
+                    X[h] = mont52_lazy(X[h], X[h], N[h], NP[h]);
+        }
+        for (int b = low - 1; b >= 0; b--) {
+            __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
+            for (int h = 0; h < H5; h++) {
+                __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]);
+                X[h] = mont52_lazy(X[h], y, N[h], NP[h]);
+            }
+        }
+        for (int h = 0; h < H5; h++) /* from [0, 2n) to [0, n) */
+            X[h] = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], N[h]));
+    } else {
+        for (int b = bit_length(fmax) - 1; b >= 0; b--) {
+            __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
+            for (int h = 0; h < H5; h++) {
+                __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]);
+                X[h] = mont52(X[h], y, N[h], NP[h]);
+            }
         }
     }
     for (int h = 0; h < H5; h++)
