@@ -834,55 +834,58 @@ TARGET_AVX2 static inline __m256i pow2_mod_avx2(__m256d nd, double p2)
  * operations per step, no more products: cheaper than the FMA ladder. */
 TARGET_AVX2 static inline void ladder32_avx2(batch_t *bt, const int full)
 {
-    __m256i X[H], N[H], NP[H], F[H];
+    /* n and f are read from the batch where they lie (copies into local
+     * arrays become memcpy calls); the lane bits are shifted there in place */
+    __m256i X[H], NP[H];
+    const __m256i *N = (const __m256i *)bt->n;
+    __m256i *F = (__m256i *)bt->f;
     const __m256i one = _mm256_set1_epi64x(1), zero = _mm256_setzero_si256();
     const uint64_t fmax = bt->fmax, fmin = bt->fmin;
     const int low = bit_length(fmax ^ fmin); /* bits >= low: the same in every lane */
     for (int h = 0; h < H; h++) {
-        N[h] = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
-        F[h] = _mm256_loadu_si256((const __m256i *)(bt->f + 4 * h));
-        __m256i ninv = inv32_avx2(N[h]);
+        __m256i ninv = inv32_avx2(_mm256_loadu_si256(N + h));
         _mm256_storeu_si256((__m256i *)(bt->ninv + 4 * h), ninv); /* low 32 bits: see inv32_avx2 */
         NP[h] = _mm256_sub_epi64(zero, ninv);                     /* the multiplier reads the low 32 bits */
-        X[h] = pow2_mod_avx2(u52_to_pd_avx2(N[h]), 4294967296.0);
+        X[h] = pow2_mod_avx2(u52_to_pd_avx2(_mm256_loadu_si256(N + h)), 4294967296.0);
     }
     for (int b = bit_length(fmax) - 1; b >= low; b--) { /* the shared bits: one test per step */
         __m128i cnt = _mm_cvtsi32_si128((int)((fmax >> b) & 1));
         for (int h = 0; h < H; h++) {
             __m256i t = _mm256_mul_epu32(X[h], _mm256_sll_epi64(X[h], cnt));
             __m256i m = _mm256_mul_epu32(t, NP[h]);
-            X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, N[h])), 32);
+            X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, _mm256_loadu_si256(N + h))), 32);
             if (full) /* x >= n ? x - n : x on values below 2^32 (high halves zero) */
-                X[h] = _mm256_min_epu32(X[h], _mm256_sub_epi32(X[h], N[h]));
+                X[h] = _mm256_min_epu32(X[h], _mm256_sub_epi32(X[h], _mm256_loadu_si256(N + h)));
         }
     }
     /* the lanes' own bits: bit b of f moved to the sign bit of G, which
      * selects x or 2x (blendv reads only the sign bit); G doubles per step */
     const __m128i up = _mm_cvtsi32_si128(64 - low);
     for (int h = 0; h < H && low; h++)
-        F[h] = _mm256_sll_epi64(F[h], up);
+        _mm256_storeu_si256(F + h, _mm256_sll_epi64(_mm256_loadu_si256(F + h), up));
     for (int b = low - 1; b >= 0; b--) {
         for (int h = 0; h < H; h++) {
+            __m256i g = _mm256_loadu_si256(F + h);
             __m256i y = _mm256_castpd_si256(_mm256_blendv_pd(_mm256_castsi256_pd(X[h]),
                                                              _mm256_castsi256_pd(_mm256_add_epi64(X[h], X[h])),
-                                                             _mm256_castsi256_pd(F[h])));
-            F[h] = _mm256_add_epi64(F[h], F[h]);
+                                                             _mm256_castsi256_pd(g)));
+            _mm256_storeu_si256(F + h, _mm256_add_epi64(g, g));
             __m256i t = _mm256_mul_epu32(X[h], y);
             __m256i m = _mm256_mul_epu32(t, NP[h]);
-            X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, N[h])), 32);
+            X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, _mm256_loadu_si256(N + h))), 32);
             if (full) /* x >= n ? x - n : x on values below 2^32 (high halves zero) */
-                X[h] = _mm256_min_epu32(X[h], _mm256_sub_epi32(X[h], N[h]));
+                X[h] = _mm256_min_epu32(X[h], _mm256_sub_epi32(X[h], _mm256_loadu_si256(N + h)));
         }
     }
     for (int h = 0; h < H; h++) {
         /* values below 2^32: 64-bit signed compares are exact */
-        __m256i x = X[h], d = _mm256_sub_epi64(x, N[h]);
-        x = _mm256_blendv_epi8(d, x, _mm256_cmpgt_epi64(N[h], x));
+        __m256i x = X[h], d = _mm256_sub_epi64(x, _mm256_loadu_si256(N + h));
+        x = _mm256_blendv_epi8(d, x, _mm256_cmpgt_epi64(_mm256_loadu_si256(N + h), x));
         __m256i t = _mm256_mul_epu32(x, _mm256_loadu_si256((const __m256i *)(bt->cm + 4 * h)));
         __m256i m = _mm256_mul_epu32(t, NP[h]);
-        x = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, N[h])), 32);
-        d = _mm256_sub_epi64(x, N[h]);
-        x = _mm256_blendv_epi8(d, x, _mm256_cmpgt_epi64(N[h], x));
+        x = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, _mm256_loadu_si256(N + h))), 32);
+        d = _mm256_sub_epi64(x, _mm256_loadu_si256(N + h));
+        x = _mm256_blendv_epi8(d, x, _mm256_cmpgt_epi64(_mm256_loadu_si256(N + h), x));
         _mm256_storeu_si256((__m256i *)(bt->x + 4 * h), x);
     }
 }
@@ -916,13 +919,12 @@ TARGET_AVX2 static inline __m256d mulmod_avx2(__m256d a, __m256d b, __m256d n, _
 TARGET_AVX2 static void medium_avx2(batch_t *bt)
 {
     __m256d X[H], ND[H], NI[H];
-    __m256i F[H];
+    __m256i *F = (__m256i *)bt->f; /* read and shifted in place, as in ladder32_avx2 */
     const __m256d d1 = _mm256_set1_pd(1.0);
     const uint64_t fmax = bt->fmax, fmin = bt->fmin;
     const int low = bit_length(fmax ^ fmin); /* bits >= low: the same in every lane */
     for (int h = 0; h < H; h++) {
         __m256i n = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
-        F[h] = _mm256_loadu_si256((const __m256i *)(bt->f + 4 * h));
         _mm256_storeu_si256((__m256i *)(bt->ninv + 4 * h), inv32_avx2(n)); /* the fractions read 32 bits */
         ND[h] = u52_to_pd_avx2(n);
         NI[h] = _mm256_div_pd(d1, ND[h]);
@@ -938,11 +940,12 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
     }
     const __m128i up = _mm_cvtsi32_si128(64 - low); /* the lanes' own bits, as in small_avx2 */
     for (int h = 0; h < H && low; h++)
-        F[h] = _mm256_sll_epi64(F[h], up);
+        _mm256_storeu_si256(F + h, _mm256_sll_epi64(_mm256_loadu_si256(F + h), up));
     for (int b = low - 1; b >= 0; b--) {
         for (int h = 0; h < H; h++) {
-            __m256d y = _mm256_blendv_pd(X[h], _mm256_add_pd(X[h], X[h]), _mm256_castsi256_pd(F[h])); /* exact */
-            F[h] = _mm256_add_epi64(F[h], F[h]);
+            __m256i g = _mm256_loadu_si256(F + h);
+            __m256d y = _mm256_blendv_pd(X[h], _mm256_add_pd(X[h], X[h]), _mm256_castsi256_pd(g)); /* exact */
+            _mm256_storeu_si256(F + h, _mm256_add_epi64(g, g));
             X[h] = mulmod_avx2(X[h], y, ND[h], NI[h]);
         }
     }
@@ -1213,36 +1216,39 @@ TARGET_AVX2 static uint64_t hsum_avx2(__m256i v)
     return out[0] + out[1] + out[2] + out[3];
 }
 
-/* One digit of every lane: returns d (low 32 bits), updates *T. */
-TARGET_AVX2 static inline __m256i digit_avx2(__m256i *T, __m256i N, __m256i NH, __m256i NP, const int kind)
-{
-    const __m256i lo32 = _mm256_set1_epi64x(0xffffffff);
-    __m256i d = _mm256_mul_epu32(*T, NP);
-    if (kind == DIGIT32)
-        *T = _mm256_srli_epi64(_mm256_add_epi64(_mm256_mul_epu32(d, N), *T), 32);
-    else {
-        __m256i low = _mm256_srli_epi64(_mm256_add_epi64(_mm256_mul_epu32(d, N), _mm256_and_si256(*T, lo32)), 32);
-        *T = _mm256_add_epi64(_mm256_add_epi64(_mm256_mul_epu32(d, NH), _mm256_srli_epi64(*T, 32)), low);
-    }
-    return _mm256_and_si256(d, lo32);
-}
+/* One digit of every lane: r_i from r_(i+1) = T and the digit d (its low 32
+ * bits; the caller masks).  By value: a pointer would keep T in memory. */
+#define DIGIT_AVX2(T, d, N, NH, NP, kind)                                                                             \
+    do {                                                                                                               \
+        d = _mm256_mul_epu32(T, NP);                                                                                   \
+        if (kind == DIGIT32)                                                                                           \
+            T = _mm256_srli_epi64(_mm256_add_epi64(_mm256_mul_epu32(d, N), T), 32);                                    \
+        else {                                                                                                         \
+            __m256i low_ = _mm256_srli_epi64(_mm256_add_epi64(_mm256_mul_epu32(d, N), _mm256_and_si256(T, lo32)), 32); \
+            T = _mm256_add_epi64(_mm256_add_epi64(_mm256_mul_epu32(d, NH), _mm256_srli_epi64(T, 32)), low_);           \
+        }                                                                                                              \
+    } while (0)
 
 TARGET_AVX2 static inline void fractions_avx2_kind(batch_t *bt, int words, uint64_t *acc, const int kind)
 {
-    __m256i T[H], N[H], NH[H], NP[H];
-    const __m256i zero = _mm256_setzero_si256();
+    __m256i NH[H], NP[H];
+    __m256i *T = (__m256i *)bt->x; /* r, walked down in place (see ladder32_avx2) */
+    const __m256i *N = (const __m256i *)bt->n;
+    const __m256i zero = _mm256_setzero_si256(), lo32 = _mm256_set1_epi64x(0xffffffff);
     for (int h = 0; h < H; h++) {
-        T[h] = _mm256_loadu_si256((const __m256i *)(bt->x + 4 * h));
-        N[h] = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
-        NH[h] = _mm256_srli_epi64(N[h], 32);
+        NH[h] = _mm256_srli_epi64(_mm256_loadu_si256(N + h), 32);
         NP[h] = _mm256_sub_epi64(zero, _mm256_loadu_si256((const __m256i *)(bt->ninv + 4 * h)));
     }
     unsigned __int128 carry = 0;
     for (int idx = 0; idx < words; idx++) {
         __m256i SL = zero, SH = zero;
         for (int h = 0; h < H; h++) {
-            SL = _mm256_add_epi64(SL, digit_avx2(&T[h], N[h], NH[h], NP[h], kind));
-            SH = _mm256_add_epi64(SH, digit_avx2(&T[h], N[h], NH[h], NP[h], kind));
+            __m256i t = _mm256_loadu_si256(T + h), n = _mm256_loadu_si256(N + h), d;
+            DIGIT_AVX2(t, d, n, NH[h], NP[h], kind);
+            SL = _mm256_add_epi64(SL, _mm256_and_si256(d, lo32));
+            DIGIT_AVX2(t, d, n, NH[h], NP[h], kind);
+            SH = _mm256_add_epi64(SH, _mm256_and_si256(d, lo32));
+            _mm256_storeu_si256(T + h, t);
         }
         unsigned __int128 total = (unsigned __int128)hsum_avx2(SL) + ((unsigned __int128)hsum_avx2(SH) << 32) +
                                   acc[idx] + carry;
@@ -1260,32 +1266,24 @@ TARGET_AVX2 static void fractions_avx2(batch_t *bt, int words, uint64_t *acc) /*
     fractions_avx2_kind(bt, words, acc, DIGIT64);
 }
 
-TARGET_AVX512 static inline __m512i digit_avx512(__m512i *T, __m512i N, __m512i NH, __m512i NP, const int kind)
-{ /* as digit_avx2 */
-    const __m512i lo32 = _mm512_set1_epi64(0xffffffff);
-    __m512i d = _mm512_mul_epu32(*T, NP);
-    if (kind == DIGIT32)
-        *T = _mm512_srli_epi64(_mm512_add_epi64(_mm512_mul_epu32(d, N), *T), 32);
-    else {
-        __m512i low = _mm512_srli_epi64(_mm512_add_epi64(_mm512_mul_epu32(d, N), _mm512_and_si512(*T, lo32)), 32);
-        *T = _mm512_add_epi64(_mm512_add_epi64(_mm512_mul_epu32(d, NH), _mm512_srli_epi64(*T, 32)), low);
-    }
-    return _mm512_and_si512(d, lo32);
-}
+#define DIGIT_AVX512(T, d, N, NH, NP, kind) /* as DIGIT_AVX2; DIGIT52 under TARGET_IFMA only */                      \
+    do {                                                                                                               \
+        d = _mm512_mul_epu32(T, NP);                                                                                   \
+        if (kind == DIGIT32)                                                                                           \
+            T = _mm512_srli_epi64(_mm512_add_epi64(_mm512_mul_epu32(d, N), T), 32);                                    \
+        else if (kind == DIGIT52) { /* madd52 reads 52 bits of d: its high half must go first */                     \
+            d = _mm512_and_si512(d, lo32);                                                                             \
+            __m512i low_ = _mm512_madd52lo_epu64(T, d, N), high_ = _mm512_madd52hi_epu64(zero, d, N);                  \
+            T = _mm512_add_epi64(_mm512_slli_epi64(high_, 20), _mm512_srli_epi64(low_, 32));                           \
+        } else {                                                                                                       \
+            __m512i low_ = _mm512_srli_epi64(_mm512_add_epi64(_mm512_mul_epu32(d, N), _mm512_and_si512(T, lo32)), 32); \
+            T = _mm512_add_epi64(_mm512_add_epi64(_mm512_mul_epu32(d, NH), _mm512_srli_epi64(T, 32)), low_);           \
+        }                                                                                                              \
+    } while (0)
 
-TARGET_IFMA static inline __m512i digit52_ifma(__m512i *T, __m512i N, __m512i NH, __m512i NP, const int kind)
-{ /* DIGIT52: n < 2^52 */
-    (void)NH, (void)kind;
-    /* madd52 reads 52 bits of d: the product's high half must go first */
-    __m512i d = _mm512_and_si512(_mm512_mul_epu32(*T, NP), _mm512_set1_epi64(0xffffffff));
-    __m512i low = _mm512_madd52lo_epu64(*T, d, N), high = _mm512_madd52hi_epu64(_mm512_setzero_si512(), d, N);
-    *T = _mm512_add_epi64(_mm512_slli_epi64(high, 20), _mm512_srli_epi64(low, 32));
-    return d;
-}
-
-#define FRACTIONS_AVX512_BODY(digit, kind)                                                                                  \
+#define FRACTIONS_AVX512_BODY(kind)                                                                                         \
     __m512i T[H5], N[H5], NH[H5], NP[H5];                                                                              \
-    const __m512i zero = _mm512_setzero_si512();                                                                       \
+    const __m512i zero = _mm512_setzero_si512(), lo32 = _mm512_set1_epi64(0xffffffff);                                 \
     for (int h = 0; h < H5; h++) {                                                                                     \
         T[h] = _mm512_loadu_si512(bt->x + 8 * h);                                                                      \
         N[h] = _mm512_loadu_si512(bt->n + 8 * h);                                                                      \
@@ -1296,8 +1294,12 @@ TARGET_IFMA static inline __m512i digit52_ifma(__m512i *T, __m512i N, __m512i NH
     for (int idx = 0; idx < words; idx++) {                                                                            \
         __m512i SL = zero, SH = zero;                                                                                  \
         for (int h = 0; h < H5; h++) {                                                                                 \
-            SL = _mm512_add_epi64(SL, digit(&T[h], N[h], NH[h], NP[h], kind));                                         \
-            SH = _mm512_add_epi64(SH, digit(&T[h], N[h], NH[h], NP[h], kind));                                         \
+            __m512i t = T[h], d;                                                                                       \
+            DIGIT_AVX512(t, d, N[h], NH[h], NP[h], kind);                                                              \
+            SL = _mm512_add_epi64(SL, _mm512_and_si512(d, lo32));                                                      \
+            DIGIT_AVX512(t, d, N[h], NH[h], NP[h], kind);                                                              \
+            SH = _mm512_add_epi64(SH, _mm512_and_si512(d, lo32));                                                      \
+            T[h] = t;                                                                                                  \
         }                                                                                                              \
         unsigned __int128 total = (unsigned __int128)(uint64_t)_mm512_reduce_add_epi64(SL) +                           \
                                   ((unsigned __int128)(uint64_t)_mm512_reduce_add_epi64(SH) << 32) + acc[idx] +        \
@@ -1308,15 +1310,15 @@ TARGET_IFMA static inline __m512i digit52_ifma(__m512i *T, __m512i N, __m512i NH
 
 TARGET_AVX512 static void fractions32_avx512(batch_t *bt, int words, uint64_t *acc) /* n < 2^32 */
 {
-    FRACTIONS_AVX512_BODY(digit_avx512, DIGIT32)
+    FRACTIONS_AVX512_BODY(DIGIT32)
 }
 TARGET_AVX512 static void fractions_avx512(batch_t *bt, int words, uint64_t *acc) /* n < 2^63 */
 {
-    FRACTIONS_AVX512_BODY(digit_avx512, DIGIT64)
+    FRACTIONS_AVX512_BODY(DIGIT64)
 }
 TARGET_IFMA static void fractions52_ifma(batch_t *bt, int words, uint64_t *acc) /* n < 2^52 */
 {
-    FRACTIONS_AVX512_BODY(digit52_ifma, DIGIT52)
+    FRACTIONS_AVX512_BODY(DIGIT52)
 }
 #undef FRACTIONS_AVX512_BODY
 #undef H
