@@ -560,6 +560,17 @@ static void batch_reset(batch_t *bt)
 
 typedef void (*ladder_t)(batch_t *bt);
 
+/* A run of terms of one pair at consecutive k (the tight loop of
+ * run_job_batched): term i has n + i step, f - i e, and the residue of its
+ * coefficient n_i - ca when negc ^ (neg_odd & (k + i)), else ca. */
+typedef struct {
+    uint64_t n, step, f, e, ca, negc, neg_odd, k;
+} run_t;
+
+/* Puts terms 0 .. i-1 of a run at bt->n[at...] etc. and returns i: the
+ * vector paths write whole registers and leave the rest to the caller. */
+typedef uint64_t (*fill_t)(batch_t *bt, int at, uint64_t run, const run_t *r);
+
 /* The 64-bit scalar ladder for a batch (any odd n < 2^63), 8 lanes at a time:
  * the fused x * 2x step of run_lanes.  Exact integer Montgomery arithmetic. */
 static void ladder64(batch_t *bt, int count)
@@ -598,6 +609,7 @@ typedef struct {
     uint64_t medium_limit;
     ladder_t wide; /* all n < wide_limit */
     uint64_t wide_limit;
+    fill_t fill;                                               /* NULL: scalar */
     void (*fractions)(batch_t *bt, int words, uint64_t *acc);   /* NULL: add_fractions */
     void (*fractions32)(batch_t *bt, int words, uint64_t *acc); /* all n < 2^32 (NULL: the next) */
     void (*fractions52)(batch_t *bt, int words, uint64_t *acc); /* all n < 2^52 (NULL: fractions) */
@@ -716,7 +728,9 @@ static void run_job_batched(const job_t *jb, uint64_t *acc, const simd_path_t *p
                 uint64_t run = hi - k < (uint64_t)(B - fill) ? hi - k : (uint64_t)(B - fill);
                 uint64_t n = b + step * k, f = f0 - e * k; /* n grows with k, f falls */
                 bt.fmax = f > bt.fmax ? f : bt.fmax;
-                for (uint64_t i = 0; i < run; i++, k++, n += step, f -= e) {
+                const run_t r = {n, step, f, e, ca, negc, neg_odd, k};
+                uint64_t i = path->fill ? path->fill(&bt, fill, run, &r) : 0; /* a multiple of the lanes */
+                for (n += step * i, f -= e * i, k += i; i < run; i++, k++, n += step, f -= e) {
                     uint64_t neg = negc ^ (neg_odd & k);
                     bt.n[fill + i] = n;
                     bt.f[fill + i] = f;
@@ -957,6 +971,31 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
     }
 }
 
+/* The tight loop's terms four at a time: n and f step by 4 step and 4 e
+ * (exact mod 2^64, as the scalar loop), the sign pattern of the residues
+ * repeats every even number of k. */
+TARGET_AVX2 static uint64_t fill_avx2(batch_t *bt, int at, uint64_t run, const run_t *r)
+{
+    const uint64_t whole = run & ~(uint64_t)3;
+    uint64_t n0[4], f0[4], neg[4];
+    for (int i = 0; i < 4; i++) {
+        n0[i] = r->n + r->step * (uint64_t)i;
+        f0[i] = r->f - r->e * (uint64_t)i;
+        neg[i] = 0 - (r->negc ^ (r->neg_odd & (r->k + (uint64_t)i)));
+    }
+    __m256i N = _mm256_loadu_si256((const __m256i *)n0), F = _mm256_loadu_si256((const __m256i *)f0);
+    const __m256i NEG = _mm256_loadu_si256((const __m256i *)neg), CA = _mm256_set1_epi64x((int64_t)r->ca);
+    const __m256i NS = _mm256_set1_epi64x((int64_t)(4 * r->step)), FS = _mm256_set1_epi64x((int64_t)(4 * r->e));
+    for (uint64_t i = 0; i < whole; i += 4) {
+        _mm256_storeu_si256((__m256i *)(bt->n + at + i), N);
+        _mm256_storeu_si256((__m256i *)(bt->f + at + i), F);
+        _mm256_storeu_si256((__m256i *)(bt->cm + at + i), _mm256_blendv_epi8(CA, _mm256_sub_epi64(N, CA), NEG));
+        N = _mm256_add_epi64(N, NS);
+        F = _mm256_sub_epi64(F, FS);
+    }
+    return whole;
+}
+
 /* ---- AVX-512F: 8 lanes of 64 bits, B = 64 ------------------------------- */
 
 TARGET_AVX512 static inline __m512i inv64_avx512(__m512i n) /* as inv64_avx2 */
@@ -1097,6 +1136,29 @@ TARGET_AVX512 static void medium_avx512(batch_t *bt)
         r = _mm512_mask_add_pd(r, _mm512_cmp_pd_mask(r, _mm512_setzero_pd(), _CMP_LT_OQ), r, ND[h]);
         _mm512_storeu_si512(bt->x + 8 * h, pd_to_u52_avx512(r));
     }
+}
+
+TARGET_AVX512 static uint64_t fill_avx512(batch_t *bt, int at, uint64_t run, const run_t *r) /* as fill_avx2 */
+{
+    const uint64_t whole = run & ~(uint64_t)7;
+    uint64_t n0[8], f0[8];
+    __mmask8 neg = 0;
+    for (int i = 0; i < 8; i++) {
+        n0[i] = r->n + r->step * (uint64_t)i;
+        f0[i] = r->f - r->e * (uint64_t)i;
+        neg |= (__mmask8)((r->negc ^ (r->neg_odd & (r->k + (uint64_t)i))) << i);
+    }
+    __m512i N = _mm512_loadu_si512(n0), F = _mm512_loadu_si512(f0);
+    const __m512i CA = _mm512_set1_epi64((int64_t)r->ca);
+    const __m512i NS = _mm512_set1_epi64((int64_t)(8 * r->step)), FS = _mm512_set1_epi64((int64_t)(8 * r->e));
+    for (uint64_t i = 0; i < whole; i += 8) {
+        _mm512_storeu_si512(bt->n + at + i, N);
+        _mm512_storeu_si512(bt->f + at + i, F);
+        _mm512_storeu_si512(bt->cm + at + i, _mm512_mask_sub_epi64(CA, neg, N, CA));
+        N = _mm512_add_epi64(N, NS);
+        F = _mm512_sub_epi64(F, FS);
+    }
+    return whole;
 }
 
 /* ---- AVX-512 IFMA: 52-bit Montgomery, R = 2^52, odd n < 2^51 -------------
@@ -1341,18 +1403,19 @@ static const simd_path_t PATHS[NPATHS] = {
 #if HAVE_X86_PATHS
     {.name = "avx2", .features = "avx2, fma", .batch = 64, .small = small_avx2, .small_limit = SMALL_LIMIT,
      .narrow = narrow_avx2, .narrow_limit = NARROW_LIMIT, .medium = medium_avx2, .medium_limit = FMA_LIMIT,
-     .fractions = fractions_avx2, .fractions32 = fractions32_avx2},
+     .fill = fill_avx2, .fractions = fractions_avx2, .fractions32 = fractions32_avx2},
     {.name = "avx512f", .features = "avx512f", .batch = 128, .small = small_avx512, .small_limit = SMALL_LIMIT,
      .narrow = narrow_avx512, .narrow_limit = NARROW_LIMIT, .medium = medium_avx512, .medium_limit = FMA_LIMIT,
-     .fractions = fractions_avx512, .fractions32 = fractions32_avx512},
+     .fill = fill_avx512, .fractions = fractions_avx512, .fractions32 = fractions32_avx512},
     /* FMA below 2^48 measured slightly faster than IFMA on AMD EPYC (Zen 4);
        IFMA takes 2^48 .. 2^51 */
     {.name = "avx512ifma", .features = "avx512f, avx512ifma", .batch = 128, .small = small_avx512,
      .small_limit = SMALL_LIMIT, .narrow = narrow_avx512, .narrow_limit = NARROW_LIMIT, .medium = medium_avx512,
-     .medium_limit = FMA_LIMIT, .wide = medium_ifma, .wide_limit = IFMA_LIMIT, .fractions = fractions_avx512,
+     .medium_limit = FMA_LIMIT, .wide = medium_ifma, .wide_limit = IFMA_LIMIT, .fill = fill_avx512,
+     .fractions = fractions_avx512,
      .fractions32 = fractions32_avx512, .fractions52 = fractions52_ifma},
     {.name = "ifma52", .features = "avx512f, avx512ifma", .batch = 128, .wide = medium_ifma,
-     .wide_limit = IFMA_LIMIT, .fractions = fractions_avx512, .fractions32 = fractions32_avx512,
+     .wide_limit = IFMA_LIMIT, .fill = fill_avx512, .fractions = fractions_avx512, .fractions32 = fractions32_avx512,
      .fractions52 = fractions52_ifma},
 #else
     {.name = "avx2", .features = "avx2, fma"},
