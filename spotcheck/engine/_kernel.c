@@ -1344,24 +1344,21 @@ TARGET_AVX2 static void fractions_avx2(batch_t *bt, int words, uint64_t *acc) /*
     } while (0)
 
 #define FRACTIONS_AVX512_BODY(kind)                                                                                         \
-    __m512i T[H5], N[H5], NH[H5], NP[H5];                                                                              \
+    __m512i NP[H5]; /* r walked down in bt->x in place, n read from bt->n (see ladder32_avx2) */                     \
     const __m512i zero = _mm512_setzero_si512(), lo32 = _mm512_set1_epi64(0xffffffff);                                 \
-    for (int h = 0; h < H5; h++) {                                                                                     \
-        T[h] = _mm512_loadu_si512(bt->x + 8 * h);                                                                      \
-        N[h] = _mm512_loadu_si512(bt->n + 8 * h);                                                                      \
-        NH[h] = _mm512_srli_epi64(N[h], 32);                                                                           \
+    for (int h = 0; h < H5; h++)                                                                                       \
         NP[h] = _mm512_sub_epi64(zero, _mm512_loadu_si512(bt->ninv + 8 * h));                                          \
-    }                                                                                                                  \
     unsigned __int128 carry = 0;                                                                                       \
     for (int idx = 0; idx < words; idx++) {                                                                            \
         __m512i SL = zero, SH = zero;                                                                                  \
         for (int h = 0; h < H5; h++) {                                                                                 \
-            __m512i t = T[h], d;                                                                                       \
-            DIGIT_AVX512(t, d, N[h], NH[h], NP[h], kind);                                                              \
+            __m512i t = _mm512_loadu_si512(bt->x + 8 * h), n = _mm512_loadu_si512(bt->n + 8 * h), d;                   \
+            __m512i nh = _mm512_srli_epi64(n, 32);                                                                     \
+            DIGIT_AVX512(t, d, n, nh, NP[h], kind);                                                                    \
             SL = _mm512_add_epi64(SL, _mm512_and_si512(d, lo32));                                                      \
-            DIGIT_AVX512(t, d, N[h], NH[h], NP[h], kind);                                                              \
+            DIGIT_AVX512(t, d, n, nh, NP[h], kind);                                                                    \
             SH = _mm512_add_epi64(SH, _mm512_and_si512(d, lo32));                                                      \
-            T[h] = t;                                                                                                  \
+            _mm512_storeu_si512(bt->x + 8 * h, t);                                                                     \
         }                                                                                                              \
         unsigned __int128 total = (unsigned __int128)(uint64_t)_mm512_reduce_add_epi64(SL) +                           \
                                   ((unsigned __int128)(uint64_t)_mm512_reduce_add_epi64(SH) << 32) + acc[idx] +        \
