@@ -1045,16 +1045,15 @@ TARGET_AVX512 static inline __m512i pow2_mod_avx512(__m512d nd, double p2) /* as
 /* small_avx2 on eight lanes; the same bounds (n < 2^29, values in [0, 2n)). */
 TARGET_AVX512 static inline void ladder32_avx512(batch_t *bt, const int full)
 {
-    __m512i X[H5], N[H5], NP[H5], F[H5];
+    __m512i X[H5], NP[H5]; /* n and f read from the batch (see ladder32_avx2) */
+    const uint64_t *N = bt->n, *F = bt->f;
     const __m512i zero = _mm512_setzero_si512();
     const uint64_t fmax = bt->fmax;
     for (int h = 0; h < H5; h++) {
-        N[h] = _mm512_loadu_si512(bt->n + 8 * h);
-        F[h] = _mm512_loadu_si512(bt->f + 8 * h);
-        __m512i ninv = inv32_avx512(N[h]);
+        __m512i ninv = inv32_avx512(_mm512_loadu_si512(N + 8 * h));
         _mm512_storeu_si512(bt->ninv + 8 * h, ninv); /* low 32 bits: see inv32_avx2 */
         NP[h] = _mm512_sub_epi64(zero, ninv);
-        X[h] = pow2_mod_avx512(u52_to_pd_avx512(N[h]), 4294967296.0);
+        X[h] = pow2_mod_avx512(u52_to_pd_avx512(_mm512_loadu_si512(N + 8 * h)), 4294967296.0);
     }
     const int low = bit_length(fmax ^ bt->fmin); /* bits >= low: the same in every lane */
     for (int b = bit_length(fmax) - 1; b >= low; b--) {
@@ -1062,28 +1061,28 @@ TARGET_AVX512 static inline void ladder32_avx512(batch_t *bt, const int full)
         for (int h = 0; h < H5; h++) {
             __m512i t = _mm512_mul_epu32(X[h], _mm512_sll_epi64(X[h], cnt));
             __m512i m = _mm512_mul_epu32(t, NP[h]);
-            X[h] = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, N[h])), 32);
+            X[h] = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, _mm512_loadu_si512(N + 8 * h))), 32);
             if (full)
-                X[h] = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], N[h]));
+                X[h] = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], _mm512_loadu_si512(N + 8 * h)));
         }
     }
     for (int b = low - 1; b >= 0; b--) {
         __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
         for (int h = 0; h < H5; h++) { /* y = x, or 2x where bit b of f is set */
-            __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]);
+            __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel), X[h], X[h]);
             __m512i t = _mm512_mul_epu32(X[h], y);
             __m512i m = _mm512_mul_epu32(t, NP[h]);
-            X[h] = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, N[h])), 32);
+            X[h] = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, _mm512_loadu_si512(N + 8 * h))), 32);
             if (full)
-                X[h] = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], N[h]));
+                X[h] = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], _mm512_loadu_si512(N + 8 * h)));
         }
     }
     for (int h = 0; h < H5; h++) {
-        __m512i x = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], N[h])); /* x >= n ? x - n : x */
+        __m512i x = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], _mm512_loadu_si512(N + 8 * h))); /* x >= n ? x - n : x */
         __m512i t = _mm512_mul_epu32(x, _mm512_loadu_si512(bt->cm + 8 * h));
         __m512i m = _mm512_mul_epu32(t, NP[h]);
-        x = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, N[h])), 32);
-        x = _mm512_min_epu64(x, _mm512_sub_epi64(x, N[h]));
+        x = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, _mm512_loadu_si512(N + 8 * h))), 32);
+        x = _mm512_min_epu64(x, _mm512_sub_epi64(x, _mm512_loadu_si512(N + 8 * h)));
         _mm512_storeu_si512(bt->x + 8 * h, x);
     }
 }
