@@ -1102,12 +1102,11 @@ TARGET_AVX512 static inline __m512d mulmod_avx512(__m512d a, __m512d b, __m512d 
 TARGET_AVX512 static void medium_avx512(batch_t *bt)
 {
     __m512d X[H5], ND[H5], NI[H5];
-    __m512i F[H5];
+    const uint64_t *F = bt->f; /* read from the batch (see ladder32_avx2) */
     const __m512d d1 = _mm512_set1_pd(1.0);
     const uint64_t fmax = bt->fmax;
     for (int h = 0; h < H5; h++) {
         __m512i n = _mm512_loadu_si512(bt->n + 8 * h);
-        F[h] = _mm512_loadu_si512(bt->f + 8 * h);
         _mm512_storeu_si512(bt->ninv + 8 * h, inv32_avx512(n)); /* the fractions read 32 bits */
         ND[h] = u52_to_pd_avx512(n);
         NI[h] = _mm512_div_pd(d1, ND[h]);
@@ -1125,7 +1124,7 @@ TARGET_AVX512 static void medium_avx512(batch_t *bt)
     for (int b = low - 1; b >= 0; b--) {
         __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
         for (int h = 0; h < H5; h++) {
-            __m512d y = _mm512_mask_add_pd(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]); /* exact */
+            __m512d y = _mm512_mask_add_pd(X[h], _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel), X[h], X[h]); /* exact */
             X[h] = mulmod_avx512(X[h], y, ND[h], NI[h]);
         }
     }
@@ -1199,12 +1198,12 @@ TARGET_IFMA static inline __m512i mont52_lazy(__m512i a, __m512i b, __m512i n, _
 
 TARGET_IFMA static void medium_ifma(batch_t *bt)
 {
-    __m512i X[H5], N[H5], NP[H5], F[H5];
+    __m512i X[H5], N[H5], NP[H5];
+    const uint64_t *F = bt->f; /* read from the batch (see ladder32_avx2) */
     const __m512i mask52 = _mm512_set1_epi64(((int64_t)1 << 52) - 1);
     const uint64_t fmax = bt->fmax;
     for (int h = 0; h < H5; h++) {
         N[h] = _mm512_loadu_si512(bt->n + 8 * h);
-        F[h] = _mm512_loadu_si512(bt->f + 8 * h);
         __m512i ninv = inv64_avx512(N[h]);
         _mm512_storeu_si512(bt->ninv + 8 * h, ninv);
         NP[h] = _mm512_and_si512(_mm512_sub_epi64(_mm512_setzero_si512(), ninv), mask52);
@@ -1223,7 +1222,7 @@ TARGET_IFMA static void medium_ifma(batch_t *bt)
         for (int b = low - 1; b >= 0; b--) {
             __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
             for (int h = 0; h < H5; h++) {
-                __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]);
+                __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel), X[h], X[h]);
                 X[h] = mont52_lazy(X[h], y, N[h], NP[h]);
             }
         }
@@ -1233,7 +1232,7 @@ TARGET_IFMA static void medium_ifma(batch_t *bt)
         for (int b = bit_length(fmax) - 1; b >= 0; b--) {
             __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
             for (int h = 0; h < H5; h++) {
-                __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]);
+                __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel), X[h], X[h]);
                 X[h] = mont52(X[h], y, N[h], NP[h]);
             }
         }
