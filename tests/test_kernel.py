@@ -421,7 +421,9 @@ def progression_calls(draw: st.DrawFn) -> tuple:
 @settings(max_examples=60, deadline=None)
 @given(args=progression_calls())
 # 300 k across 2^32 (fraction digits: one product, then three), exponents sharing their top bits
-@example(args=(10**12, 1000, 1300, 3, 1, 10, 1, True, [2**32 - 3 * 1299 - 7, 2**32 - 3 * 1299 + 2], [5, -9], 2))
+@example(
+    args=(10**12, 1000, 1300, 3, 1, 10, 1, True, [2**32 - 3 * 1299 - 7, 2**32 - 3 * 1299 + 2], [5, -9], 2)
+)
 # moduli across 2^52 (IFMA digits, then three products), every exponent bit different
 @example(args=(2**64 - 1, 0, 200, 1, 1, 2**31 + 1, 1, False, [2**52 - 150], [2**61 + 3], 16))
 def test_path_progressions_match_twin(name: str, args: tuple) -> None:
