@@ -853,7 +853,7 @@ TARGET_AVX2 static inline void ladder32_avx2(batch_t *bt, const int full)
     __m256i X[H], NP[H];
     const __m256i *N = (const __m256i *)bt->n;
     __m256i *F = (__m256i *)bt->f;
-    const __m256i one = _mm256_set1_epi64x(1), zero = _mm256_setzero_si256();
+    const __m256i zero = _mm256_setzero_si256();
     const uint64_t fmax = bt->fmax, fmin = bt->fmin;
     const int low = bit_length(fmax ^ fmin); /* bits >= low: the same in every lane */
     for (int h = 0; h < H; h++) {
