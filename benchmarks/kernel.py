@@ -17,6 +17,7 @@ compare ratios from one run, not figures across runs.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import time
 from collections.abc import Callable
@@ -57,6 +58,14 @@ def cpu_flags() -> str:
     except OSError:
         return "cpu flags: unknown (no /proc/cpuinfo)"
     return "cpu flags: " + " ".join(f if f in have else f"-{f}" for f in FLAGS)
+
+
+def load_now() -> str:
+    """The 1-minute load average (the machine may be shared: figures under load are higher)."""
+    try:
+        return f"{os.getloadavg()[0]:.1f}"
+    except OSError:  # pragma: no cover - platforms without it
+        return "unknown"
 
 
 def power(n: int) -> str:
@@ -116,6 +125,7 @@ def path_table() -> dict[tuple[str, str, int], float]:
                 x = figures[key, name, p]
                 cells.append(f"{x:>7.1f} ({figures[key, 'portable', p] / x:4.1f}x)")
             print(f"{name:<12}" + "".join(f"{c:>16}" for c in cells))
+    print(f"load average after the table: {load_now()}")
     return figures
 
 
