@@ -767,6 +767,8 @@ static void run_job_batched(const job_t *jb, uint64_t *acc, const simd_path_t *p
 #define TARGET_IFMA __attribute__((target("avx512f,avx512ifma")))
 #define MAGIC52 0x4330000000000000ULL /* the bits of the double 2^52 */
 #define H 16                          /* AVX2: vector registers of chains per ladder (64 terms) */
+#define TOP32 4                       /* exponent bits the 32-bit ladders start from (32 + 2^4 - 1 <= 52) */
+#define TOPFMA 5                      /* exponent bits the FMA ladders start from (2^5 - 1 <= 52) */
 #define H5 16                         /* AVX-512: registers of chains per ladder (128 terms) */
 
 /* ---- AVX2 (+FMA): 4 lanes of 64 bits, B = 32 ---------------------------- */
@@ -815,19 +817,28 @@ TARGET_AVX2 static inline __m256i pd_to_u52_avx2(__m256d d) /* 0 <= d < 2^52, an
                             _mm256_set1_epi64x((int64_t)MAGIC52));
 }
 
-/* 2^p mod n for odd n < 2^(p-1) (p = 32 or 52), exact: 2^p / n <= 2^52, so
- * its double quotient is within one ulp <= 1 of the truth in any rounding
- * mode and q = floor of it is within one of floor(2^p / n); r = 2^p - q n
- * lies in [-n, 2n), so the fma computing it is exact (|r| < 2^52), and one
- * correction each way puts r in [0, n). */
-TARGET_AVX2 static inline __m256i pow2_mod_avx2(__m256d nd, double p2)
+/* 2^p mod n for odd n and p <= 52, exact: 2^p / n <= 2^52, so its double
+ * quotient is within one ulp <= 1 of the truth in any rounding mode and
+ * q = floor of it is within one of floor(2^p / n); r = 2^p - q n lies in
+ * [-n, 2n) (|r| < 2^52 since n < 2^51 wherever it is called), so the fma
+ * computing it is exact, and one correction each way puts r in [0, n).
+ * The ladders start from it: after the top bits of the exponents (a per
+ * lane, see "the top bits" in ladder32_avx2) rather than from the form of 1. */
+TARGET_AVX2 static inline __m256i pow2v_mod_avx2(__m256d nd, __m256d P) /* P = 2^p per lane, p <= 52 */
 {
-    __m256d P = _mm256_set1_pd(p2), zero = _mm256_setzero_pd();
+    const __m256d zero = _mm256_setzero_pd();
     __m256d q = _mm256_round_pd(_mm256_div_pd(P, nd), _MM_FROUND_TO_NEG_INF | _MM_FROUND_NO_EXC);
     __m256d r = _mm256_fnmadd_pd(q, nd, P);
     r = _mm256_add_pd(r, _mm256_and_pd(_mm256_cmp_pd(r, zero, _CMP_LT_OQ), nd));
     r = _mm256_sub_pd(r, _mm256_and_pd(_mm256_cmp_pd(r, nd, _CMP_GE_OQ), nd));
     return pd_to_u52_avx2(r);
+}
+
+/* The double 2^(e + a) for integers 0 <= e + a < 1024 (a per lane): the
+ * exponent field built directly, exact. */
+TARGET_AVX2 static inline __m256d pow2_pd_avx2(__m256i a, int e)
+{
+    return _mm256_castsi256_pd(_mm256_slli_epi64(_mm256_add_epi64(a, _mm256_set1_epi64x(1023 + e)), 52));
 }
 
 /* 32-bit Montgomery, R = 2^32, for odd n < 2^29 (the portable path's SSE2
@@ -855,14 +866,21 @@ TARGET_AVX2 static inline void ladder32_avx2(batch_t *bt, const int full)
     __m256i *F = (__m256i *)bt->f;
     const __m256i zero = _mm256_setzero_si256();
     const uint64_t fmax = bt->fmax, fmin = bt->fmin;
-    const int low = bit_length(fmax ^ fmin); /* bits >= low: the same in every lane */
+    /* The top bits: with L = bit_length(max f) and sh = L - TOP32, lane l
+     * starts from the form of 2^(f_l >> sh), i.e. 2^(32 + a) mod n with
+     * a = f_l >> sh < 2^TOP32 (so 32 + a <= 47 <= 52, pow2v_mod_avx2), and the
+     * left-to-right ladder goes on from bit sh - 1: TOP32 squarings fewer. */
+    const int top = bit_length(fmax), sh = top > TOP32 ? top - TOP32 : 0;
+    const int low = bit_length(fmax ^ fmin) < sh ? bit_length(fmax ^ fmin) : sh; /* bits in [low, sh): shared */
+    const __m128i shc = _mm_cvtsi32_si128(sh);
     for (int h = 0; h < H; h++) {
         __m256i ninv = inv32_avx2(_mm256_loadu_si256(N + h));
         _mm256_storeu_si256((__m256i *)(bt->ninv + 4 * h), ninv); /* low 32 bits: see inv32_avx2 */
         NP[h] = _mm256_sub_epi64(zero, ninv);                     /* the multiplier reads the low 32 bits */
-        X[h] = pow2_mod_avx2(u52_to_pd_avx2(_mm256_loadu_si256(N + h)), 4294967296.0);
+        __m256d P = pow2_pd_avx2(_mm256_srl_epi64(_mm256_loadu_si256(F + h), shc), 32);
+        X[h] = pow2v_mod_avx2(u52_to_pd_avx2(_mm256_loadu_si256(N + h)), P);
     }
-    for (int b = bit_length(fmax) - 1; b >= low; b--) { /* the shared bits: one test per step */
+    for (int b = sh - 1; b >= low; b--) { /* the shared bits: one test per step */
         __m128i cnt = _mm_cvtsi32_si128((int)((fmax >> b) & 1));
         for (int h = 0; h < H; h++) {
             __m256i t = _mm256_mul_epu32(X[h], _mm256_sll_epi64(X[h], cnt));
@@ -936,15 +954,20 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
     __m256i *F = (__m256i *)bt->f; /* read and shifted in place, as in ladder32_avx2 */
     const __m256d d1 = _mm256_set1_pd(1.0);
     const uint64_t fmax = bt->fmax, fmin = bt->fmin;
-    const int low = bit_length(fmax ^ fmin); /* bits >= low: the same in every lane */
+    /* the top bits as in ladder32_avx2, TOPFMA of them: x starts at
+     * 2^(f >> sh) mod n, f >> sh < 2^TOPFMA <= 2^5 (pow2v_mod_avx2: 2^p with p <= 52) */
+    const int top = bit_length(fmax), sh = top > TOPFMA ? top - TOPFMA : 0;
+    const int low = bit_length(fmax ^ fmin) < sh ? bit_length(fmax ^ fmin) : sh; /* bits in [low, sh): shared */
+    const __m128i shc = _mm_cvtsi32_si128(sh);
     for (int h = 0; h < H; h++) {
         __m256i n = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
         _mm256_storeu_si256((__m256i *)(bt->ninv + 4 * h), inv32_avx2(n)); /* the fractions read 32 bits */
         ND[h] = u52_to_pd_avx2(n);
         NI[h] = _mm256_div_pd(d1, ND[h]);
-        X[h] = d1;
+        __m256d P = pow2_pd_avx2(_mm256_srl_epi64(_mm256_loadu_si256(F + h), shc), 0);
+        X[h] = u52_to_pd_avx2(pow2v_mod_avx2(ND[h], P));
     }
-    for (int b = bit_length(fmax) - 1; b >= low; b--) { /* the shared bits */
+    for (int b = sh - 1; b >= low; b--) { /* the shared bits */
         if ((fmax >> b) & 1)
             for (int h = 0; h < H; h++)
                 X[h] = mulmod_avx2(X[h], _mm256_add_pd(X[h], X[h]), ND[h], NI[h]);
