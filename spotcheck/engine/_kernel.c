@@ -1055,14 +1055,22 @@ TARGET_AVX512 static inline __m512i pd_to_u52_avx512(__m512d d)
                             _mm512_set1_epi64((int64_t)MAGIC52));
 }
 
-TARGET_AVX512 static inline __m512i pow2_mod_avx512(__m512d nd, double p2) /* as pow2_mod_avx2 */
+TARGET_AVX512 static inline __m512i pow2v_mod_avx512(__m512d nd, __m512d P) /* as pow2v_mod_avx2 */
 {
-    __m512d P = _mm512_set1_pd(p2), zero = _mm512_setzero_pd();
+    const __m512d zero = _mm512_setzero_pd();
     __m512d q = _mm512_roundscale_pd(_mm512_div_pd(P, nd), _MM_FROUND_TO_NEG_INF | _MM_FROUND_NO_EXC);
     __m512d r = _mm512_fnmadd_pd(q, nd, P);
     r = _mm512_mask_add_pd(r, _mm512_cmp_pd_mask(r, zero, _CMP_LT_OQ), r, nd);
     r = _mm512_mask_sub_pd(r, _mm512_cmp_pd_mask(r, nd, _CMP_GE_OQ), r, nd);
     return pd_to_u52_avx512(r);
+}
+TARGET_AVX512 static inline __m512i pow2_mod_avx512(__m512d nd, double p2)
+{
+    return pow2v_mod_avx512(nd, _mm512_set1_pd(p2));
+}
+TARGET_AVX512 static inline __m512d pow2_pd_avx512(__m512i a, int e) /* as pow2_pd_avx2 */
+{
+    return _mm512_castsi512_pd(_mm512_slli_epi64(_mm512_add_epi64(a, _mm512_set1_epi64(1023 + e)), 52));
 }
 
 /* small_avx2 on eight lanes; the same bounds (n < 2^29, values in [0, 2n)). */
@@ -1072,14 +1080,16 @@ TARGET_AVX512 static inline void ladder32_avx512(batch_t *bt, const int full)
     const uint64_t *N = bt->n, *F = bt->f;
     const __m512i zero = _mm512_setzero_si512();
     const uint64_t fmax = bt->fmax;
+    const int top = bit_length(fmax), sh = top > TOP32 ? top - TOP32 : 0; /* the top bits, as in ladder32_avx2 */
+    const int low = bit_length(fmax ^ bt->fmin) < sh ? bit_length(fmax ^ bt->fmin) : sh; /* [low, sh): shared */
     for (int h = 0; h < H5; h++) {
         __m512i ninv = inv32_avx512(_mm512_loadu_si512(N + 8 * h));
         _mm512_storeu_si512(bt->ninv + 8 * h, ninv); /* low 32 bits: see inv32_avx2 */
         NP[h] = _mm512_sub_epi64(zero, ninv);
-        X[h] = pow2_mod_avx512(u52_to_pd_avx512(_mm512_loadu_si512(N + 8 * h)), 4294967296.0);
+        __m512d P = pow2_pd_avx512(_mm512_srli_epi64(_mm512_loadu_si512(F + 8 * h), (unsigned)sh), 32);
+        X[h] = pow2v_mod_avx512(u52_to_pd_avx512(_mm512_loadu_si512(N + 8 * h)), P);
     }
-    const int low = bit_length(fmax ^ bt->fmin); /* bits >= low: the same in every lane */
-    for (int b = bit_length(fmax) - 1; b >= low; b--) {
+    for (int b = sh - 1; b >= low; b--) {
         __m128i cnt = _mm_cvtsi32_si128((int)((fmax >> b) & 1));
         for (int h = 0; h < H5; h++) {
             __m512i t = _mm512_mul_epu32(X[h], _mm512_sll_epi64(X[h], cnt));
@@ -1128,15 +1138,17 @@ TARGET_AVX512 static void medium_avx512(batch_t *bt)
     const uint64_t *F = bt->f; /* read from the batch (see ladder32_avx2) */
     const __m512d d1 = _mm512_set1_pd(1.0);
     const uint64_t fmax = bt->fmax;
+    const int top = bit_length(fmax), sh = top > TOPFMA ? top - TOPFMA : 0; /* the top bits, as in medium_avx2 */
+    const int low = bit_length(fmax ^ bt->fmin) < sh ? bit_length(fmax ^ bt->fmin) : sh; /* [low, sh): shared */
     for (int h = 0; h < H5; h++) {
         __m512i n = _mm512_loadu_si512(bt->n + 8 * h);
         _mm512_storeu_si512(bt->ninv + 8 * h, inv32_avx512(n)); /* the fractions read 32 bits */
         ND[h] = u52_to_pd_avx512(n);
         NI[h] = _mm512_div_pd(d1, ND[h]);
-        X[h] = d1;
+        __m512d P = pow2_pd_avx512(_mm512_srli_epi64(_mm512_loadu_si512(F + 8 * h), (unsigned)sh), 0);
+        X[h] = u52_to_pd_avx512(pow2v_mod_avx512(ND[h], P));
     }
-    const int low = bit_length(fmax ^ bt->fmin); /* bits >= low: the same in every lane */
-    for (int b = bit_length(fmax) - 1; b >= low; b--) {
+    for (int b = sh - 1; b >= low; b--) {
         if ((fmax >> b) & 1)
             for (int h = 0; h < H5; h++)
                 X[h] = mulmod_avx512(X[h], _mm512_add_pd(X[h], X[h]), ND[h], NI[h]);
