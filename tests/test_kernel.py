@@ -426,6 +426,13 @@ def progression_calls(draw: st.DrawFn) -> tuple:
 )
 # moduli across 2^52 (IFMA digits, then three products), every exponent bit different
 @example(args=(2**64 - 1, 0, 200, 1, 1, 2**31 + 1, 1, False, [2**52 - 150], [2**61 + 3], 16))
+# exponents D - e k + 128 crossing 2^30 within a batch (lanes start their ladders from top bits of
+# different lengths), moduli on the 32-bit ladders and on FMA doubles
+@example(args=(2**30 - 128 + 50, 0, 200, 3, 1, 1, 1, False, [2**28 + 1, 2**30 + 7], [3, -5], 2))
+@example(args=(2**30 - 128 + 50, 0, 200, 3, 1, 1, 1, True, [2**40 + 1, 2**47 - 999], [7, -1], 2))
+# the largest exponent's top bits just above and at the start value the FMA ladder allows (52 << 20)
+@example(args=((53 << 20) - 128, 0, 130, 5, 1, 1, 1, False, [2**40 + 3], [1], 2))
+@example(args=((52 << 20) + (1 << 20) - 129, 0, 130, 5, 1, 1, 1, False, [2**30 + 3, 2**40 + 3], [1, 9], 2))
 def test_path_progressions_match_twin(name: str, args: tuple) -> None:
     assert _kernel._head_sum_path(name, *args) == head_sum_py(*args)
 

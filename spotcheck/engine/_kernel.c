@@ -767,8 +767,8 @@ static void run_job_batched(const job_t *jb, uint64_t *acc, const simd_path_t *p
 #define TARGET_IFMA __attribute__((target("avx512f,avx512ifma")))
 #define MAGIC52 0x4330000000000000ULL /* the bits of the double 2^52 */
 #define H 16                          /* AVX2: vector registers of chains per ladder (64 terms) */
-#define TOP32 4                       /* exponent bits the 32-bit ladders start from (32 + 2^4 - 1 <= 52) */
-#define TOPFMA 5                      /* exponent bits the FMA ladders start from (2^5 - 1 <= 52) */
+#define TOP32 20 /* the 32-bit ladders start from 2^(32 + a) mod n, a <= 20 (2^52 at most) */
+#define TOPFMA 52 /* the FMA ladders start from 2^a mod n, a <= 52 */
 #define H5 16                         /* AVX-512: registers of chains per ladder (128 terms) */
 
 /* ---- AVX2 (+FMA): 4 lanes of 64 bits, B = 32 ---------------------------- */
@@ -834,6 +834,16 @@ TARGET_AVX2 static inline __m256i pow2v_mod_avx2(__m256d nd, __m256d P) /* P = 2
     return pd_to_u52_avx2(r);
 }
 
+/* The shift sh such that every exponent f <= fmax starts its ladder from
+ * a = f >> sh <= amax: the smallest sh with fmax >> sh <= amax (the ladder
+ * then squares sh times).  amax >= 1. */
+static inline int top_shift(uint64_t fmax, uint64_t amax)
+{
+    int sh = bit_length(fmax) - bit_length(amax);
+    sh = sh > 0 ? sh : 0;
+    return (fmax >> sh) <= amax ? sh : sh + 1;
+}
+
 /* The double 2^(e + a) for integers 0 <= e + a < 1024 (a per lane): the
  * exponent field built directly, exact. */
 TARGET_AVX2 static inline __m256d pow2_pd_avx2(__m256i a, int e)
@@ -866,11 +876,12 @@ TARGET_AVX2 static inline void ladder32_avx2(batch_t *bt, const int full)
     __m256i *F = (__m256i *)bt->f;
     const __m256i zero = _mm256_setzero_si256();
     const uint64_t fmax = bt->fmax, fmin = bt->fmin;
-    /* The top bits: with L = bit_length(max f) and sh = L - TOP32, lane l
-     * starts from the form of 2^(f_l >> sh), i.e. 2^(32 + a) mod n with
-     * a = f_l >> sh < 2^TOP32 (so 32 + a <= 47 <= 52, pow2v_mod_avx2), and the
-     * left-to-right ladder goes on from bit sh - 1: TOP32 squarings fewer. */
-    const int top = bit_length(fmax), sh = top > TOP32 ? top - TOP32 : 0;
+    /* The top bits: with sh = top_shift(max f, TOP32), lane l starts from
+     * the form of 2^(f_l >> sh), i.e. 2^(32 + a) mod n with a = f_l >> sh
+     * <= max f >> sh <= 20 (so 2^(32 + a) <= 2^52, pow2v_mod_avx2), and the
+     * left-to-right ladder goes on from bit sh - 1: four or five squarings
+     * fewer than from the form of 1. */
+    const int sh = top_shift(fmax, TOP32);
     const int low = bit_length(fmax ^ fmin) < sh ? bit_length(fmax ^ fmin) : sh; /* bits in [low, sh): shared */
     const __m128i shc = _mm_cvtsi32_si128(sh);
     for (int h = 0; h < H; h++) {
@@ -954,9 +965,9 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
     __m256i *F = (__m256i *)bt->f; /* read and shifted in place, as in ladder32_avx2 */
     const __m256d d1 = _mm256_set1_pd(1.0);
     const uint64_t fmax = bt->fmax, fmin = bt->fmin;
-    /* the top bits as in ladder32_avx2, TOPFMA of them: x starts at
-     * 2^(f >> sh) mod n, f >> sh < 2^TOPFMA <= 2^5 (pow2v_mod_avx2: 2^p with p <= 52) */
-    const int top = bit_length(fmax), sh = top > TOPFMA ? top - TOPFMA : 0;
+    /* the top bits as in ladder32_avx2: x starts at 2^(f >> sh) mod n with
+     * f >> sh <= 52 (pow2v_mod_avx2), five or six squarings fewer */
+    const int sh = top_shift(fmax, TOPFMA);
     const int low = bit_length(fmax ^ fmin) < sh ? bit_length(fmax ^ fmin) : sh; /* bits in [low, sh): shared */
     const __m128i shc = _mm_cvtsi32_si128(sh);
     for (int h = 0; h < H; h++) {
@@ -1080,7 +1091,7 @@ TARGET_AVX512 static inline void ladder32_avx512(batch_t *bt, const int full)
     const uint64_t *N = bt->n, *F = bt->f;
     const __m512i zero = _mm512_setzero_si512();
     const uint64_t fmax = bt->fmax;
-    const int top = bit_length(fmax), sh = top > TOP32 ? top - TOP32 : 0; /* the top bits, as in ladder32_avx2 */
+    const int sh = top_shift(fmax, TOP32); /* the top bits, as in ladder32_avx2 */
     const int low = bit_length(fmax ^ bt->fmin) < sh ? bit_length(fmax ^ bt->fmin) : sh; /* [low, sh): shared */
     for (int h = 0; h < H5; h++) {
         __m512i ninv = inv32_avx512(_mm512_loadu_si512(N + 8 * h));
@@ -1138,7 +1149,7 @@ TARGET_AVX512 static void medium_avx512(batch_t *bt)
     const uint64_t *F = bt->f; /* read from the batch (see ladder32_avx2) */
     const __m512d d1 = _mm512_set1_pd(1.0);
     const uint64_t fmax = bt->fmax;
-    const int top = bit_length(fmax), sh = top > TOPFMA ? top - TOPFMA : 0; /* the top bits, as in medium_avx2 */
+    const int sh = top_shift(fmax, TOPFMA); /* the top bits, as in medium_avx2 */
     const int low = bit_length(fmax ^ bt->fmin) < sh ? bit_length(fmax ^ bt->fmin) : sh; /* [low, sh): shared */
     for (int h = 0; h < H5; h++) {
         __m512i n = _mm512_loadu_si512(bt->n + 8 * h);
