@@ -23,10 +23,10 @@ kernel of commit 8659246 (load average about 1.5 from other jobs):
     (both equal to the 1997 table; the kernel of commit a2959b7 took 20.4 s
     and 4.2 min: faster beyond moduli of 2^32, slower below)
 
-and after the vector paths (issue 14, path avx512ifma, load about 2.4):
-``--quick --position 1000000000`` 21.1 s on one thread (20.9 s of CPU time),
-10^12 projected at 5.8 core-hours of one-thread CPU time (DEVELOPERS.md has
-the figures of each run).
+and after the vector paths (issue 14, path avx512ifma, load about 1.5):
+``--quick --position 1000000000`` 19.0 s on one thread (18.9 s of CPU time),
+10.1 s on two, 10^12 projected at 5.3 core-hours of one-thread CPU time
+(DEVELOPERS.md has the figures of each run).
 """
 
 from __future__ import annotations
