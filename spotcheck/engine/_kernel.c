@@ -524,12 +524,15 @@ static runner_t pick_runner(long lanes, long step)
  *
  * Each ladder keeps one exponent per lane (no shared exponent): at step b
  * lane l multiplies by 2 when bit b of f_l is set, by a per-lane shift or
- * blend, so terms of different k share a batch.  (The 32-bit and AVX2 FMA
- * ladders test the top bits once for all lanes where every f of the batch
- * has the same bits: every integer between min f and max f shares their
- * common leading bits; the batch keeps min f, max f and max n as its terms
- * go in.)  The ladder starts from the form of 1 at the top bit of max f; lanes with shorter exponents square 1
- * until their own top bit.  A batch whose largest modulus exceeds a ladder's
+ * blend, so terms of different k share a batch.  (The ladders test the
+ * bits once for all lanes where every f of the batch has the same bits:
+ * every integer between min f and max f shares their common leading bits;
+ * the batch keeps min f, max f and max n as its terms go in.)  The 32-bit
+ * and FMA ladders start from 2^a mod n (in Montgomery form for the 32-bit
+ * ones) with a = f >> sh the top bits of each lane's exponent (top_shift:
+ * a <= 20 or 52), then square sh times; the IFMA and 64-bit ladders start
+ * from the form of 1 at the top bit of max f, lanes with shorter exponents
+ * squaring 1 until their own top bit.  A batch whose largest modulus exceeds a ladder's
  * limit goes to the next wider one, and above every vector limit to the
  * 64-bit scalar Montgomery code (moduli up to 2^63).
  *
@@ -856,7 +859,8 @@ TARGET_AVX2 static inline __m256d pow2_pd_avx2(__m256i a, int e)
  * m = t (-n^-1) mod 2^32 is exact (the low half of t + m n is zero).  Values
  * stay in [0, 2n) without correction: y < 2n gives y (2y) < 8 n^2 < n 2^32,
  * so (t + m n) / 2^32 < 8 n^2 / 2^32 + n < 2n, and 2y < 2^31 fits the 32-bit
- * multiplier input.  X starts at 2^32 mod n (the form of 1); after the
+ * multiplier input.  X starts at 2^(32 + a) mod n, the form of 2^a for the
+ * top bits a of the lane's exponent (below); after the
  * ladder X = 2^f 2^32 mod n, reduced to [0, n), and one more reduction of
  * X cm (< n^2) gives c 2^f mod n in [0, 2n), reduced to [0, n).
  *
@@ -956,7 +960,8 @@ TARGET_AVX2 static inline __m256d mulmod_avx2(__m256d a, __m256d b, __m256d n, _
 }
 
 /* FMA double-precision ladder for odd n < 2^48 (plain residues, no
- * Montgomery form): x = 1, then x <- x * (x or 2x) mod n per bit (doubling
+ * Montgomery form): x = 2^a mod n for the top bits a of the lane's exponent
+ * (as in ladder32_avx2), then x <- x * (x or 2x) mod n per bit (doubling
  * by 2 is exact), values in (-n, n); the last product by c mod n and one
  * correction give c 2^f mod n in [0, n). */
 TARGET_AVX2 static void medium_avx2(batch_t *bt)
