@@ -532,9 +532,9 @@ static runner_t pick_runner(long lanes, long step)
  * ones) with a = f >> sh the top bits of each lane's exponent (top_shift:
  * a <= 20 or 52), then square sh times; the IFMA and 64-bit ladders start
  * from the form of 1 at the top bit of max f, lanes with shorter exponents
- * squaring 1 until their own top bit.  A batch whose largest modulus exceeds a ladder's
- * limit goes to the next wider one, and above every vector limit to the
- * 64-bit scalar Montgomery code (moduli up to 2^63).
+ * squaring 1 until their own top bit.  A batch whose largest modulus
+ * exceeds a ladder's limit goes to the next wider one, and above every
+ * vector limit to the 64-bit scalar Montgomery code (moduli up to 2^63).
  *
  *   path        moduli < 2^29 / 2^31        < 2^48            < 2^51     below 2^63
  *   avx2        4 x 32-bit Montgomery   4 x FMA double    --         64-bit scalar
@@ -543,9 +543,9 @@ static runner_t pick_runner(long lanes, long step)
  *
  * (32-bit Montgomery left in [0, 2n) below 2^29, reduced every step below
  * 2^31; IFMA is 52-bit Montgomery), then the fraction words in 32-bit digits
- * (see "the fraction words in vector form"), with B = 64 (AVX2: 16 registers) or 128 (AVX-512: 16 registers) terms in
- * flight, each lane an independent chain.  Padding lanes use n = 1 (x = 0,
- * fraction 0).
+ * (see "the fraction words in vector form"), with B = 64 (AVX2: 16
+ * registers) or 128 (AVX-512: 16 registers) terms in flight, each lane an
+ * independent chain.  Padding lanes use n = 1 (x = 0, fraction 0).
  */
 
 #define BATCH 128
@@ -1118,7 +1118,8 @@ TARGET_AVX512 static inline void ladder32_avx512(batch_t *bt, const int full)
     for (int b = low - 1; b >= 0; b--) {
         __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
         for (int h = 0; h < H5; h++) { /* y = x, or 2x where bit b of f is set */
-            __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel), X[h], X[h]);
+            __mmask8 k = _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel);
+            __m512i y = _mm512_mask_add_epi64(X[h], k, X[h], X[h]);
             __m512i t = _mm512_mul_epu32(X[h], y);
             __m512i m = _mm512_mul_epu32(t, NP[h]);
             X[h] = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, _mm512_loadu_si512(N + 8 * h))), 32);
@@ -1127,7 +1128,8 @@ TARGET_AVX512 static inline void ladder32_avx512(batch_t *bt, const int full)
         }
     }
     for (int h = 0; h < H5; h++) {
-        __m512i x = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], _mm512_loadu_si512(N + 8 * h))); /* x >= n ? x - n : x */
+        /* x >= n ? x - n : x */
+        __m512i x = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], _mm512_loadu_si512(N + 8 * h)));
         __m512i t = _mm512_mul_epu32(x, _mm512_loadu_si512(bt->cm + 8 * h));
         __m512i m = _mm512_mul_epu32(t, NP[h]);
         x = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, _mm512_loadu_si512(N + 8 * h))), 32);
@@ -1175,7 +1177,8 @@ TARGET_AVX512 static void medium_avx512(batch_t *bt)
     for (int b = low - 1; b >= 0; b--) {
         __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
         for (int h = 0; h < H5; h++) {
-            __m512d y = _mm512_mask_add_pd(X[h], _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel), X[h], X[h]); /* exact */
+            __mmask8 k = _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel);
+            __m512d y = _mm512_mask_add_pd(X[h], k, X[h], X[h]); /* exact */
             X[h] = mulmod_avx512(X[h], y, ND[h], NI[h]);
         }
     }
@@ -1273,7 +1276,8 @@ TARGET_IFMA static void medium_ifma(batch_t *bt)
         for (int b = low - 1; b >= 0; b--) {
             __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
             for (int h = 0; h < H5; h++) {
-                __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel), X[h], X[h]);
+                __mmask8 k = _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel);
+            __m512i y = _mm512_mask_add_epi64(X[h], k, X[h], X[h]);
                 X[h] = mont52_lazy(X[h], y, N[h], NP[h]);
             }
         }
@@ -1283,7 +1287,8 @@ TARGET_IFMA static void medium_ifma(batch_t *bt)
         for (int b = bit_length(fmax) - 1; b >= 0; b--) {
             __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
             for (int h = 0; h < H5; h++) {
-                __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel), X[h], X[h]);
+                __mmask8 k = _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel);
+            __m512i y = _mm512_mask_add_epi64(X[h], k, X[h], X[h]);
                 X[h] = mont52(X[h], y, N[h], NP[h]);
             }
         }
