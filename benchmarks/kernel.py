@@ -2,6 +2,7 @@
 
     python benchmarks/kernel.py            # everything (sympy at 10^7 takes about 100 s)
     python benchmarks/kernel.py --quick    # the per-path table and the digits below 10^8 only
+    python benchmarks/kernel.py --against OLD.so   # this build against another, side by side
 
 Prints, for every kernel path this CPU offers (``_kernel.paths()``), ns per
 head-sum term at positions 10^6, 10^7, 10^8, 10^9 and 10^11 (pi, BBP and
@@ -12,14 +13,23 @@ best of KERNEL_REPEATS per block.  Then wall times for 14 certified hex
 digits on the default path and on ``portable``, sympy's ``pi_hex_digits``,
 the pure twin, and 1 against 2 worker threads.  The machine may be shared:
 compare ratios from one run, not figures across runs.
+
+``--against FILE`` loads another build of the extension (a copy of an older
+``_kernel*.so``) beside this one in the same process and times both on every
+path they share, calls alternated, best of AGAINST_ROUNDS: the one
+comparison of two kernels that a busy shared machine does not blur.
 """
 
 from __future__ import annotations
 
 import argparse
+import importlib.machinery
+import importlib.util
+import os
 import sys
 import time
 from collections.abc import Callable
+from types import ModuleType
 
 from machine import describe  # noqa: E402  (this folder is first on sys.path)
 
@@ -45,6 +55,8 @@ SAMPLE_K = 1 << 12  # k values per chunk
 TWIN_K = 1 << 8  # k values per chunk for the (slow) pure twin
 REPEATS = 3  # whole extractions
 KERNEL_REPEATS = 5  # per sampled chunk (a few ms each); the minimum is kept
+AGAINST_ROUNDS = 8  # --against: alternations, the minimum of each is kept
+AGAINST_K = 2048  # --against: k per block, three blocks (1/3, 2/3 and the end of the head)
 FLAGS = ("sse2", "avx2", "fma", "bmi2", "adx", "avx512f", "avx512dq", "avx512vl", "avx512ifma")
 # -------------------------------------------------------------------------------
 
@@ -57,6 +69,14 @@ def cpu_flags() -> str:
     except OSError:
         return "cpu flags: unknown (no /proc/cpuinfo)"
     return "cpu flags: " + " ".join(f if f in have else f"-{f}" for f in FLAGS)
+
+
+def load_now() -> str:
+    """The 1-minute load average (the machine may be shared: figures under load are higher)."""
+    try:
+        return f"{os.getloadavg()[0]:.1f}"
+    except OSError:  # pragma: no cover - platforms without it
+        return "unknown"
 
 
 def power(n: int) -> str:
@@ -116,12 +136,59 @@ def path_table() -> dict[tuple[str, str, int], float]:
                 x = figures[key, name, p]
                 cells.append(f"{x:>7.1f} ({figures[key, 'portable', p] / x:4.1f}x)")
             print(f"{name:<12}" + "".join(f"{c:>16}" for c in cells))
+    print(f"load average after the table: {load_now()}")
     return figures
+
+
+def load_build(path: str) -> ModuleType:
+    """Another build of spotcheck.engine._kernel, loaded beside the installed one."""
+    name = "other_build._kernel"  # the init function is found by the last component
+    loader = importlib.machinery.ExtensionFileLoader(name, path)
+    spec = importlib.util.spec_from_file_location(name, path, loader=loader)
+    if spec is None:
+        sys.exit(f"cannot load {path}")
+    module = importlib.util.module_from_spec(spec)
+    loader.exec_module(module)
+    return module
+
+
+def against(path: str) -> None:
+    """ns per term of the other build and of this one, side by side (Bellard); results must agree."""
+    other = load_build(path)
+    s = series_of(get_constant("pi").formula("bellard"))
+    names = [n for n in _kernel.paths() if n in other.paths()]
+    print(f"\n{path} (old) against this build (new), pi (bellard), ns per term, best of {AGAINST_ROUNDS}")
+    for p in POSITIONS:
+        d = 4 * (p - 1)
+        k_total = s.head_length(d)
+        calls = [
+            (d - s.shift, k0, k1, s.m, s.s, s.e, s.q, s.alternating, s.js, s.cs, WORDS)
+            for k0, k1 in [(max(0, k_total * i // 3 - AGAINST_K), k_total * i // 3) for i in (1, 2, 3)]
+        ]
+        terms = sum(c[2] - c[1] for c in calls) * len(s.js)
+        want = [head_sum_py(*c) for c in calls] if p <= 10**7 else [_kernel.head_sum(*c) for c in calls]
+        best: dict[tuple[str, str], float] = {}
+        for _ in range(AGAINST_ROUNDS):
+            for tag, module in (("old", other), ("new", _kernel)):
+                for name in names:
+                    t0 = time.perf_counter()
+                    out = [module._head_sum_path(name, *c) for c in calls]
+                    dt = time.perf_counter() - t0
+                    assert out == want, f"{tag} build, path {name}: a different sum at {power(p)}"
+                    best[tag, name] = min(best.get((tag, name), float("inf")), dt)
+        cells = [
+            f"{n} {best['old', n] / terms * 1e9:.2f} -> {best['new', n] / terms * 1e9:.2f} "
+            f"({best['old', n] / best['new', n]:.2f}x)"
+            for n in names
+        ]
+        print(f"  {power(p)}: " + ", ".join(cells))
+    print(f"load average after: {load_now()}")
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--quick", action="store_true", help="skip sympy, the twin and the digits at 10^8")
+    parser.add_argument("--against", metavar="FILE", help="another build of _kernel to time side by side")
     args = parser.parse_args()
 
     print(describe())
@@ -130,6 +197,9 @@ def main() -> None:
     print(
         f"paths this CPU offers: {', '.join(_kernel.paths())}; missing: {_kernel.unavailable_paths() or 'none'}"
     )
+    if args.against:
+        against(args.against)
+        return
     figures = path_table()
     default = _kernel.active_path()
 

@@ -380,6 +380,63 @@ def test_path_edge_moduli_match_twin(name: str, args: tuple) -> None:
     assert _kernel._head_sum_path(name, *args) == head_sum_py(*args)
 
 
+@st.composite
+def progression_calls(draw: st.DrawFn) -> tuple:
+    """Runs of consecutive k (s = 1, odd q: the vector paths' tight collection loop) whose moduli
+    m k + j end just below or above an edge, with exponents D - e k that share few or many bits.
+
+    A batch then holds terms whose exponents differ in their low bits only (the ladders test the
+    shared bits once for all lanes) or in almost every bit (e up to 2^32, D up to 2^64), and
+    whose moduli straddle the edges where the ladder (2^29, 2^48, 2^51) and the fraction digits
+    (2^32: one product; 2^52: IFMA; beyond: three products) change.
+    """
+    edge = draw(st.sampled_from(EDGES))
+    m = draw(st.integers(1, 64) | st.sampled_from([2, 4, 8, 20, 1 << 10]))
+    count = draw(st.integers(1, 300))
+    k0 = draw(st.integers(0, 1 << 20))
+    k1 = k0 + count
+    q = draw(st.sampled_from([1, 3, 21]))
+    npairs = draw(st.integers(1, 7))
+    # the largest modulus q (m (k1 - 1) + j) near the edge; even j with odd m/2 shifts a factor 2 out
+    top = max(1, (edge - 1) // q + draw(st.integers(-(1 << 12), 1 << 12)) // q)
+    js = draw(
+        st.lists(
+            st.builds(lambda d: max(1, top - m * (k1 - 1) - d), st.integers(0, 1 << 10)),
+            min_size=npairs,
+            max_size=npairs,
+        )
+    )
+    if any(q * (m * (k1 - 1) + j) >= LIMIT for j in js):
+        js = [max(1, (LIMIT - 1) // q - m * (k1 - 1) - 1 - i) for i in range(npairs)]
+    e = draw(st.sampled_from([0, 1, 4, 10, 16, 31]) | st.integers(0, (1 << 32) - 1))
+    e = min(e, (2**64 - 1) // max(1, k1 - 1))
+    big_d = draw(st.integers(e * (k1 - 1), e * (k1 - 1) + 5000) | st.integers(e * (k1 - 1), 2**64 - 1))
+    coefficient = st.integers(-600, 600) | st.integers(-(1 << 62) + 1, (1 << 62) - 1)
+    cs = draw(st.lists(coefficient, min_size=npairs, max_size=npairs))
+    words = draw(st.integers(1, 16))
+    return (big_d, k0, k1, m, 1, e, q, draw(st.booleans()), js, cs, words)
+
+
+@pytest.mark.parametrize("name", PATH_PARAMS)
+@settings(max_examples=60, deadline=None)
+@given(args=progression_calls())
+# 300 k across 2^32 (fraction digits: one product, then three), exponents sharing their top bits
+@example(
+    args=(10**12, 1000, 1300, 3, 1, 10, 1, True, [2**32 - 3 * 1299 - 7, 2**32 - 3 * 1299 + 2], [5, -9], 2)
+)
+# moduli across 2^52 (IFMA digits, then three products), every exponent bit different
+@example(args=(2**64 - 1, 0, 200, 1, 1, 2**31 + 1, 1, False, [2**52 - 150], [2**61 + 3], 16))
+# exponents D - e k + 128 crossing 2^30 within a batch (lanes start their ladders from top bits of
+# different lengths), moduli on the 32-bit ladders and on FMA doubles
+@example(args=(2**30 - 128 + 50, 0, 200, 3, 1, 1, 1, False, [2**28 + 1, 2**30 + 7], [3, -5], 2))
+@example(args=(2**30 - 128 + 50, 0, 200, 3, 1, 1, 1, True, [2**40 + 1, 2**47 - 999], [7, -1], 2))
+# the largest exponent's top bits just above and at the start value the FMA ladder allows (52 << 20)
+@example(args=((53 << 20) - 128, 0, 130, 5, 1, 1, 1, False, [2**40 + 3], [1], 2))
+@example(args=((52 << 20) + (1 << 20) - 129, 0, 130, 5, 1, 1, 1, False, [2**30 + 3, 2**40 + 3], [1, 9], 2))
+def test_path_progressions_match_twin(name: str, args: tuple) -> None:
+    assert _kernel._head_sum_path(name, *args) == head_sum_py(*args)
+
+
 @pytest.mark.parametrize("name", PATH_PARAMS)
 @settings(max_examples=40, deadline=None)
 @given(args=moduli_calls())

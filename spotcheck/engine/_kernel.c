@@ -524,31 +524,55 @@ static runner_t pick_runner(long lanes, long step)
  *
  * Each ladder keeps one exponent per lane (no shared exponent): at step b
  * lane l multiplies by 2 when bit b of f_l is set, by a per-lane shift or
- * blend, so terms of different k share a batch.  (The AVX2 ladders test the
- * top bits once for all lanes where every f of the batch has the same bits:
- * every integer between min f and max f shares their common leading bits.)  The ladder starts from the
- * form of 1 at the top bit of max f; lanes with shorter exponents square 1
- * until their own top bit.  A batch whose largest modulus exceeds a ladder's
- * limit goes to the next wider one, and above every vector limit to the
- * 64-bit scalar Montgomery code (moduli up to 2^63).
+ * blend, so terms of different k share a batch.  (The ladders test the
+ * bits once for all lanes where every f of the batch has the same bits:
+ * every integer between min f and max f shares their common leading bits;
+ * the batch keeps min f, max f and max n as its terms go in.)  The 32-bit
+ * and FMA ladders start from 2^a mod n (in Montgomery form for the 32-bit
+ * ones) with a = f >> sh the top bits of each lane's exponent (top_shift:
+ * a <= 20 or 52), then square sh times; the IFMA and 64-bit ladders start
+ * from the form of 1 at the top bit of max f, lanes with shorter exponents
+ * squaring 1 until their own top bit.  A batch whose largest modulus
+ * exceeds a ladder's limit goes to the next wider one, and above every
+ * vector limit to the 64-bit scalar Montgomery code (moduli up to 2^63).
  *
- *   path        moduli < 2^29          < 2^48 / 2^51            below 2^63
- *   avx2        4 x 32-bit Montgomery   4 x FMA double (2^48)    64-bit scalar
- *   avx512f     8 x 32-bit Montgomery   8 x FMA double (2^48)    64-bit scalar
- *   avx512ifma  8 x 32-bit Montgomery   8 x IFMA 52-bit (2^51)   64-bit scalar
+ *   path        moduli < 2^29 / 2^31        < 2^48            < 2^51     below 2^63
+ *   avx2        4 x 32-bit Montgomery   4 x FMA double    --         64-bit scalar
+ *   avx512f     8 x 32-bit Montgomery   8 x FMA double    --         64-bit scalar
+ *   avx512ifma  8 x 32-bit Montgomery   8 x FMA double    8 x IFMA   64-bit scalar
  *
- * with B = 32 (AVX2: 8 registers) or 128 (AVX-512: 16 registers) terms in
- * flight, each lane an independent chain.  Padding lanes use n = 1 (x = 0,
- * fraction 0).
+ * (32-bit Montgomery left in [0, 2n) below 2^29, reduced every step below
+ * 2^31; IFMA is 52-bit Montgomery), then the fraction words in 32-bit digits
+ * (see "the fraction words in vector form"), with B = 64 (AVX2: 16
+ * registers) or 128 (AVX-512: 16 registers) terms in flight, each lane an
+ * independent chain.  Padding lanes use n = 1 (x = 0, fraction 0).
  */
 
 #define BATCH 128
 
 typedef struct {
     uint64_t n[BATCH], f[BATCH], cm[BATCH], x[BATCH], ninv[BATCH];
+    uint64_t nmax, fmax, fmin; /* over the terms put in so far (kept by the collection) */
 } batch_t;
 
+static void batch_reset(batch_t *bt)
+{
+    bt->nmax = bt->fmax = 0;
+    bt->fmin = UINT64_MAX;
+}
+
 typedef void (*ladder_t)(batch_t *bt);
+
+/* A run of terms of one pair at consecutive k (the tight loop of
+ * run_job_batched): term i has n + i step, f - i e, and the residue of its
+ * coefficient n_i - ca when negc ^ (neg_odd & (k + i)), else ca. */
+typedef struct {
+    uint64_t n, step, f, e, ca, negc, neg_odd, k;
+} run_t;
+
+/* Puts terms 0 .. i-1 of a run at bt->n[at...] etc. and returns i: the
+ * vector paths write whole registers and leave the rest to the caller. */
+typedef uint64_t (*fill_t)(batch_t *bt, int at, uint64_t run, const run_t *r);
 
 /* The 64-bit scalar ladder for a batch (any odd n < 2^63), 8 lanes at a time:
  * the fused x * 2x step of run_lanes.  Exact integer Montgomery arithmetic. */
@@ -582,11 +606,16 @@ typedef struct {
     int batch;            /* terms per batch (a multiple of 8, at most BATCH) */
     ladder_t small;       /* all n < small_limit */
     uint64_t small_limit;
+    ladder_t narrow; /* all n < narrow_limit */
+    uint64_t narrow_limit;
     ladder_t medium; /* all n < medium_limit */
     uint64_t medium_limit;
     ladder_t wide; /* all n < wide_limit */
     uint64_t wide_limit;
-    void (*fractions)(batch_t *bt, int words, uint64_t *acc); /* NULL: add_fractions */
+    fill_t fill;                                               /* NULL: scalar */
+    void (*fractions)(batch_t *bt, int words, uint64_t *acc);   /* NULL: add_fractions */
+    void (*fractions32)(batch_t *bt, int words, uint64_t *acc); /* all n < 2^32 (NULL: the next) */
+    void (*fractions52)(batch_t *bt, int words, uint64_t *acc); /* all n < 2^52 (NULL: fractions) */
 } simd_path_t;
 
 /* Residues of a full batch by the path's narrowest ladder that takes every
@@ -594,23 +623,28 @@ typedef struct {
 static void flush_batch(batch_t *bt, const simd_path_t *path, int words, uint64_t *acc)
 {
     const int B = path->batch;
-    uint64_t nor = 0;
-    for (int l = 0; l < B; l++)
-        nor |= bt->n[l]; /* below a power of two iff every n is */
+    const uint64_t nor = bt->nmax; /* below a power of two iff every n is */
     if (path->small && nor < path->small_limit)
         path->small(bt);
+    else if (path->narrow && nor < path->narrow_limit)
+        path->narrow(bt);
     else if (path->medium && nor < path->medium_limit)
         path->medium(bt);
     else if (path->wide && nor < path->wide_limit)
         path->wide(bt);
     else
         ladder64(bt, B);
-    if (path->fractions)
+    if (path->fractions32 && nor < ((uint64_t)1 << 32))
+        path->fractions32(bt, words, acc);
+    else if (path->fractions52 && nor < ((uint64_t)1 << 52))
+        path->fractions52(bt, words, acc);
+    else if (path->fractions)
         path->fractions(bt, words, acc);
     else if (B == 64)
         add_fractions(64, bt->x, bt->n, bt->ninv, words, acc);
     else
         add_fractions(32, bt->x, bt->n, bt->ninv, words, acc);
+    batch_reset(bt);
 }
 
 /* One term (k, pair p) by the general rules of run_job: slow_term for E < v,
@@ -636,6 +670,9 @@ static void batch_term(const job_t *jb, uint64_t k, Py_ssize_t p, batch_t *bt, i
     bt->n[*fill] = odd;
     bt->f[*fill] = E - v + extra;
     bt->cm[*fill] = coeff_mod(c, odd);
+    bt->nmax = odd > bt->nmax ? odd : bt->nmax;
+    bt->fmax = bt->f[*fill] > bt->fmax ? bt->f[*fill] : bt->fmax;
+    bt->fmin = bt->f[*fill] < bt->fmin ? bt->f[*fill] : bt->fmin;
     if (++*fill == path->batch) {
         flush_batch(bt, path, jb->words, acc);
         *fill = 0;
@@ -657,6 +694,7 @@ static void batch_term(const job_t *jb, uint64_t k, Py_ssize_t p, batch_t *bt, i
 static void run_job_batched(const job_t *jb, uint64_t *acc, const simd_path_t *path)
 {
     batch_t bt;
+    batch_reset(&bt);
     const int B = path->batch;
     const uint64_t extra = 64 * (uint64_t)jb->words, D = jb->D, e = jb->e, m = jb->m, q = jb->q, k1 = jb->k1;
     int fill = 0;
@@ -691,12 +729,18 @@ static void run_job_batched(const job_t *jb, uint64_t *acc, const simd_path_t *p
             const uint64_t f0 = D - t + extra, neg_odd = jb->alternating ? 1 : 0, negc = c0 < 0;
             while (k < hi) {
                 uint64_t run = hi - k < (uint64_t)(B - fill) ? hi - k : (uint64_t)(B - fill);
-                for (uint64_t i = 0; i < run; i++, k++) {
-                    uint64_t n = b + step * k, neg = negc ^ (neg_odd & k);
+                uint64_t n = b + step * k, f = f0 - e * k; /* n grows with k, f falls */
+                bt.fmax = f > bt.fmax ? f : bt.fmax;
+                const run_t r = {n, step, f, e, ca, negc, neg_odd, k};
+                uint64_t i = path->fill ? path->fill(&bt, fill, run, &r) : 0; /* a multiple of the lanes */
+                for (n += step * i, f -= e * i, k += i; i < run; i++, k++, n += step, f -= e) {
+                    uint64_t neg = negc ^ (neg_odd & k);
                     bt.n[fill + i] = n;
-                    bt.f[fill + i] = f0 - e * k;
+                    bt.f[fill + i] = f;
                     bt.cm[fill + i] = neg ? n - ca : ca;
                 }
+                bt.nmax = bt.n[fill + run - 1] > bt.nmax ? bt.n[fill + run - 1] : bt.nmax;
+                bt.fmin = bt.f[fill + run - 1] < bt.fmin ? bt.f[fill + run - 1] : bt.fmin;
                 fill += (int)run;
                 if (fill == B) {
                     flush_batch(&bt, path, jb->words, acc);
@@ -725,7 +769,9 @@ static void run_job_batched(const job_t *jb, uint64_t *acc, const simd_path_t *p
 #define TARGET_AVX512 __attribute__((target("avx512f")))
 #define TARGET_IFMA __attribute__((target("avx512f,avx512ifma")))
 #define MAGIC52 0x4330000000000000ULL /* the bits of the double 2^52 */
-#define H 8                           /* AVX2: vector registers of chains per ladder (32 terms) */
+#define H 16                          /* AVX2: vector registers of chains per ladder (64 terms) */
+#define TOP32 20 /* the 32-bit ladders start from 2^(32 + a) mod n, a <= 20 (2^52 at most) */
+#define TOPFMA 52 /* the FMA ladders start from 2^a mod n, a <= 52 */
 #define H5 16                         /* AVX-512: registers of chains per ladder (128 terms) */
 
 /* ---- AVX2 (+FMA): 4 lanes of 64 bits, B = 32 ---------------------------- */
@@ -747,6 +793,20 @@ TARGET_AVX2 static inline __m256i inv64_avx2(__m256i n)
                             _mm256_slli_epi64(_mm256_mul_epu32(x, _mm256_srli_epi64(u, 32)), 32));
 }
 
+/* n^-1 mod 2^32 in the low 32 bits of each lane, for odd n: the Newton steps
+ * of inv64_avx2 on mul_epu32 (whose products are exact mod 2^32; the high
+ * halves of the lanes are left as they fall).  The small ladders need no
+ * more: their moduli are below 2^29, so their fraction words are summed by
+ * fractions32_avx2, which reads only these 32 bits. */
+TARGET_AVX2 static inline __m256i inv32_avx2(__m256i n)
+{
+    const __m256i two = _mm256_set1_epi64x(2);
+    __m256i x = _mm256_xor_si256(_mm256_add_epi64(n, _mm256_add_epi64(n, n)), two); /* 5 bits */
+    for (int i = 0; i < 3; i++)                                                      /* 10, 20, 40 */
+        x = _mm256_mul_epu32(x, _mm256_sub_epi64(two, _mm256_mul_epu32(n, x)));
+    return x;
+}
+
 /* Exact conversions between integers below 2^52 and doubles: the integer is
  * the mantissa of 2^52 + i. */
 TARGET_AVX2 static inline __m256d u52_to_pd_avx2(__m256i i)
@@ -760,14 +820,16 @@ TARGET_AVX2 static inline __m256i pd_to_u52_avx2(__m256d d) /* 0 <= d < 2^52, an
                             _mm256_set1_epi64x((int64_t)MAGIC52));
 }
 
-/* 2^p mod n for odd n < 2^(p-1) (p = 32 or 52), exact: 2^p / n <= 2^52, so
- * its double quotient is within one ulp <= 1 of the truth in any rounding
- * mode and q = floor of it is within one of floor(2^p / n); r = 2^p - q n
- * lies in [-n, 2n), so the fma computing it is exact (|r| < 2^52), and one
- * correction each way puts r in [0, n). */
-TARGET_AVX2 static inline __m256i pow2_mod_avx2(__m256d nd, double p2)
+/* 2^p mod n for odd n and p <= 52, exact: 2^p / n <= 2^52, so its double
+ * quotient is within one ulp <= 1 of the truth in any rounding mode and
+ * q = floor of it is within one of floor(2^p / n); r = 2^p - q n lies in
+ * [-n, 2n) (|r| < 2^52 since n < 2^51 wherever it is called), so the fma
+ * computing it is exact, and one correction each way puts r in [0, n).
+ * The ladders start from it: after the top bits of the exponents (a per
+ * lane, see "the top bits" in ladder32_avx2) rather than from the form of 1. */
+TARGET_AVX2 static inline __m256i pow2v_mod_avx2(__m256d nd, __m256d P) /* P = 2^p per lane, p <= 52 */
 {
-    __m256d P = _mm256_set1_pd(p2), zero = _mm256_setzero_pd();
+    const __m256d zero = _mm256_setzero_pd();
     __m256d q = _mm256_round_pd(_mm256_div_pd(P, nd), _MM_FROUND_TO_NEG_INF | _MM_FROUND_NO_EXC);
     __m256d r = _mm256_fnmadd_pd(q, nd, P);
     r = _mm256_add_pd(r, _mm256_and_pd(_mm256_cmp_pd(r, zero, _CMP_LT_OQ), nd));
@@ -775,61 +837,108 @@ TARGET_AVX2 static inline __m256i pow2_mod_avx2(__m256d nd, double p2)
     return pd_to_u52_avx2(r);
 }
 
+/* The shift sh such that every exponent f <= fmax starts its ladder from
+ * a = f >> sh <= amax: the smallest sh with fmax >> sh <= amax (the ladder
+ * then squares sh times).  amax >= 1. */
+static inline int top_shift(uint64_t fmax, uint64_t amax)
+{
+    int sh = bit_length(fmax) - bit_length(amax);
+    sh = sh > 0 ? sh : 0;
+    return (fmax >> sh) <= amax ? sh : sh + 1;
+}
+
+/* The double 2^(e + a) for integers 0 <= e + a < 1024 (a per lane): the
+ * exponent field built directly, exact. */
+TARGET_AVX2 static inline __m256d pow2_pd_avx2(__m256i a, int e)
+{
+    return _mm256_castsi256_pd(_mm256_slli_epi64(_mm256_add_epi64(a, _mm256_set1_epi64x(1023 + e)), 52));
+}
+
 /* 32-bit Montgomery, R = 2^32, for odd n < 2^29 (the portable path's SSE2
  * step, on four lanes with per-lane exponents).  t -> (t + m n) / 2^32 with
  * m = t (-n^-1) mod 2^32 is exact (the low half of t + m n is zero).  Values
  * stay in [0, 2n) without correction: y < 2n gives y (2y) < 8 n^2 < n 2^32,
  * so (t + m n) / 2^32 < 8 n^2 / 2^32 + n < 2n, and 2y < 2^31 fits the 32-bit
- * multiplier input.  X starts at 2^32 mod n (the form of 1); after the
+ * multiplier input.  X starts at 2^(32 + a) mod n, the form of 2^a for the
+ * top bits a of the lane's exponent (below); after the
  * ladder X = 2^f 2^32 mod n, reduced to [0, n), and one more reduction of
- * X cm (< n^2) gives c 2^f mod n in [0, 2n), reduced to [0, n). */
-TARGET_AVX2 static void small_avx2(batch_t *bt)
+ * X cm (< n^2) gives c 2^f mod n in [0, 2n), reduced to [0, n).
+ *
+ * full = 1 (narrow_avx2) takes odd n < 2^31 by reducing after every step:
+ * x < n gives y = x or 2x < 2n < 2^32 (a multiplier input), t = x y < 2 n^2,
+ * t + m n < 2 n^2 + 2^32 n < 2^64, and (t + m n) / 2^32 < 2 n^2 / 2^32 + n
+ * < 2n, so one conditional subtraction brings it to [0, n).  Values are below
+ * 2^32 with zero high halves, so min_epu32(x, x - n) (32-bit lanes: x - n
+ * wraps above x exactly when x < n) is that subtraction.  Two more
+ * operations per step, no more products: cheaper than the FMA ladder. */
+TARGET_AVX2 static inline void ladder32_avx2(batch_t *bt, const int full)
 {
-    __m256i X[H], N[H], NP[H], F[H];
-    const __m256i one = _mm256_set1_epi64x(1), zero = _mm256_setzero_si256();
-    uint64_t fmax = 0, fmin = UINT64_MAX;
-    for (int l = 0; l < 32; l++) {
-        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
-        fmin = bt->f[l] < fmin ? bt->f[l] : fmin;
-    }
-    const int low = bit_length(fmax ^ fmin); /* bits >= low: the same in every lane */
+    /* n and f are read from the batch where they lie (copies into local
+     * arrays become memcpy calls); the lane bits are shifted there in place */
+    __m256i X[H], NP[H];
+    const __m256i *N = (const __m256i *)bt->n;
+    __m256i *F = (__m256i *)bt->f;
+    const __m256i zero = _mm256_setzero_si256();
+    const uint64_t fmax = bt->fmax, fmin = bt->fmin;
+    /* The top bits: with sh = top_shift(max f, TOP32), lane l starts from
+     * the form of 2^(f_l >> sh), i.e. 2^(32 + a) mod n with a = f_l >> sh
+     * <= max f >> sh <= 20 (so 2^(32 + a) <= 2^52, pow2v_mod_avx2), and the
+     * left-to-right ladder goes on from bit sh - 1: four or five squarings
+     * fewer than from the form of 1. */
+    const int sh = top_shift(fmax, TOP32);
+    const int low = bit_length(fmax ^ fmin) < sh ? bit_length(fmax ^ fmin) : sh; /* bits in [low, sh): shared */
+    const __m128i shc = _mm_cvtsi32_si128(sh);
     for (int h = 0; h < H; h++) {
-        N[h] = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
-        F[h] = _mm256_loadu_si256((const __m256i *)(bt->f + 4 * h));
-        __m256i ninv = inv64_avx2(N[h]);
-        _mm256_storeu_si256((__m256i *)(bt->ninv + 4 * h), ninv);
-        NP[h] = _mm256_sub_epi64(zero, ninv); /* the multiplier reads the low 32 bits */
-        X[h] = pow2_mod_avx2(u52_to_pd_avx2(N[h]), 4294967296.0);
+        __m256i ninv = inv32_avx2(_mm256_loadu_si256(N + h));
+        _mm256_storeu_si256((__m256i *)(bt->ninv + 4 * h), ninv); /* low 32 bits: see inv32_avx2 */
+        NP[h] = _mm256_sub_epi64(zero, ninv);                     /* the multiplier reads the low 32 bits */
+        __m256d P = pow2_pd_avx2(_mm256_srl_epi64(_mm256_loadu_si256(F + h), shc), 32);
+        X[h] = pow2v_mod_avx2(u52_to_pd_avx2(_mm256_loadu_si256(N + h)), P);
     }
-    for (int b = bit_length(fmax) - 1; b >= low; b--) { /* the shared bits: one test per step */
+    for (int b = sh - 1; b >= low; b--) { /* the shared bits: one test per step */
         __m128i cnt = _mm_cvtsi32_si128((int)((fmax >> b) & 1));
         for (int h = 0; h < H; h++) {
             __m256i t = _mm256_mul_epu32(X[h], _mm256_sll_epi64(X[h], cnt));
             __m256i m = _mm256_mul_epu32(t, NP[h]);
-            X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, N[h])), 32);
+            X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, _mm256_loadu_si256(N + h))), 32);
+            if (full) /* x >= n ? x - n : x on values below 2^32 (high halves zero) */
+                X[h] = _mm256_min_epu32(X[h], _mm256_sub_epi32(X[h], _mm256_loadu_si256(N + h)));
         }
     }
+    /* the lanes' own bits: bit b of f moved to the sign bit of G, which
+     * selects x or 2x (blendv reads only the sign bit); G doubles per step */
+    const __m128i up = _mm_cvtsi32_si128(64 - low);
+    for (int h = 0; h < H && low; h++)
+        _mm256_storeu_si256(F + h, _mm256_sll_epi64(_mm256_loadu_si256(F + h), up));
     for (int b = low - 1; b >= 0; b--) {
-        __m128i cnt = _mm_cvtsi32_si128(b);
         for (int h = 0; h < H; h++) {
-            __m256i bit = _mm256_and_si256(_mm256_srl_epi64(F[h], cnt), one);
-            __m256i t = _mm256_mul_epu32(X[h], _mm256_sllv_epi64(X[h], bit));
+            __m256i g = _mm256_loadu_si256(F + h);
+            __m256i y = _mm256_castpd_si256(_mm256_blendv_pd(_mm256_castsi256_pd(X[h]),
+                                                             _mm256_castsi256_pd(_mm256_add_epi64(X[h], X[h])),
+                                                             _mm256_castsi256_pd(g)));
+            _mm256_storeu_si256(F + h, _mm256_add_epi64(g, g));
+            __m256i t = _mm256_mul_epu32(X[h], y);
             __m256i m = _mm256_mul_epu32(t, NP[h]);
-            X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, N[h])), 32);
+            X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, _mm256_loadu_si256(N + h))), 32);
+            if (full) /* x >= n ? x - n : x on values below 2^32 (high halves zero) */
+                X[h] = _mm256_min_epu32(X[h], _mm256_sub_epi32(X[h], _mm256_loadu_si256(N + h)));
         }
     }
     for (int h = 0; h < H; h++) {
-        /* values below 2^31: signed compares are exact */
-        __m256i x = X[h], d = _mm256_sub_epi64(x, N[h]);
-        x = _mm256_blendv_epi8(d, x, _mm256_cmpgt_epi64(N[h], x));
+        /* values below 2^32: 64-bit signed compares are exact */
+        __m256i x = X[h], d = _mm256_sub_epi64(x, _mm256_loadu_si256(N + h));
+        x = _mm256_blendv_epi8(d, x, _mm256_cmpgt_epi64(_mm256_loadu_si256(N + h), x));
         __m256i t = _mm256_mul_epu32(x, _mm256_loadu_si256((const __m256i *)(bt->cm + 4 * h)));
         __m256i m = _mm256_mul_epu32(t, NP[h]);
-        x = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, N[h])), 32);
-        d = _mm256_sub_epi64(x, N[h]);
-        x = _mm256_blendv_epi8(d, x, _mm256_cmpgt_epi64(N[h], x));
+        x = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, _mm256_loadu_si256(N + h))), 32);
+        d = _mm256_sub_epi64(x, _mm256_loadu_si256(N + h));
+        x = _mm256_blendv_epi8(d, x, _mm256_cmpgt_epi64(_mm256_loadu_si256(N + h), x));
         _mm256_storeu_si256((__m256i *)(bt->x + 4 * h), x);
     }
 }
+
+TARGET_AVX2 static void small_avx2(batch_t *bt) { ladder32_avx2(bt, 0); }
+TARGET_AVX2 static void narrow_avx2(batch_t *bt) { ladder32_avx2(bt, 1); }
 
 /* a b mod n in doubles for integers |a|, |b| < 2^52 with |a b / n| < 2^49
  * and n < 2^48, result an integer in (-n, n) -- exact:
@@ -851,30 +960,30 @@ TARGET_AVX2 static inline __m256d mulmod_avx2(__m256d a, __m256d b, __m256d n, _
 }
 
 /* FMA double-precision ladder for odd n < 2^48 (plain residues, no
- * Montgomery form): x = 1, then x <- x * (x or 2x) mod n per bit (doubling
+ * Montgomery form): x = 2^a mod n for the top bits a of the lane's exponent
+ * (as in ladder32_avx2), then x <- x * (x or 2x) mod n per bit (doubling
  * by 2 is exact), values in (-n, n); the last product by c mod n and one
  * correction give c 2^f mod n in [0, n). */
 TARGET_AVX2 static void medium_avx2(batch_t *bt)
 {
     __m256d X[H], ND[H], NI[H];
-    __m256i F[H];
-    const __m256i one = _mm256_set1_epi64x(1);
-    const __m256d d1 = _mm256_set1_pd(1.0), d2 = _mm256_set1_pd(2.0);
-    uint64_t fmax = 0, fmin = UINT64_MAX;
-    for (int l = 0; l < 32; l++) {
-        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
-        fmin = bt->f[l] < fmin ? bt->f[l] : fmin;
-    }
-    const int low = bit_length(fmax ^ fmin); /* bits >= low: the same in every lane */
+    __m256i *F = (__m256i *)bt->f; /* read and shifted in place, as in ladder32_avx2 */
+    const __m256d d1 = _mm256_set1_pd(1.0);
+    const uint64_t fmax = bt->fmax, fmin = bt->fmin;
+    /* the top bits as in ladder32_avx2: x starts at 2^(f >> sh) mod n with
+     * f >> sh <= 52 (pow2v_mod_avx2), five or six squarings fewer */
+    const int sh = top_shift(fmax, TOPFMA);
+    const int low = bit_length(fmax ^ fmin) < sh ? bit_length(fmax ^ fmin) : sh; /* bits in [low, sh): shared */
+    const __m128i shc = _mm_cvtsi32_si128(sh);
     for (int h = 0; h < H; h++) {
         __m256i n = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
-        F[h] = _mm256_loadu_si256((const __m256i *)(bt->f + 4 * h));
-        _mm256_storeu_si256((__m256i *)(bt->ninv + 4 * h), inv64_avx2(n));
+        _mm256_storeu_si256((__m256i *)(bt->ninv + 4 * h), inv32_avx2(n)); /* the fractions read 32 bits */
         ND[h] = u52_to_pd_avx2(n);
         NI[h] = _mm256_div_pd(d1, ND[h]);
-        X[h] = d1;
+        __m256d P = pow2_pd_avx2(_mm256_srl_epi64(_mm256_loadu_si256(F + h), shc), 0);
+        X[h] = u52_to_pd_avx2(pow2v_mod_avx2(ND[h], P));
     }
-    for (int b = bit_length(fmax) - 1; b >= low; b--) { /* the shared bits */
+    for (int b = sh - 1; b >= low; b--) { /* the shared bits */
         if ((fmax >> b) & 1)
             for (int h = 0; h < H; h++)
                 X[h] = mulmod_avx2(X[h], _mm256_add_pd(X[h], X[h]), ND[h], NI[h]);
@@ -882,11 +991,14 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
             for (int h = 0; h < H; h++)
                 X[h] = mulmod_avx2(X[h], X[h], ND[h], NI[h]);
     }
+    const __m128i up = _mm_cvtsi32_si128(64 - low); /* the lanes' own bits, as in small_avx2 */
+    for (int h = 0; h < H && low; h++)
+        _mm256_storeu_si256(F + h, _mm256_sll_epi64(_mm256_loadu_si256(F + h), up));
     for (int b = low - 1; b >= 0; b--) {
-        __m128i cnt = _mm_cvtsi32_si128(b);
         for (int h = 0; h < H; h++) {
-            __m256i bit = _mm256_cmpeq_epi64(_mm256_and_si256(_mm256_srl_epi64(F[h], cnt), one), one);
-            __m256d y = _mm256_mul_pd(X[h], _mm256_blendv_pd(d1, d2, _mm256_castsi256_pd(bit)));
+            __m256i g = _mm256_loadu_si256(F + h);
+            __m256d y = _mm256_blendv_pd(X[h], _mm256_add_pd(X[h], X[h]), _mm256_castsi256_pd(g)); /* exact */
+            _mm256_storeu_si256(F + h, _mm256_add_epi64(g, g));
             X[h] = mulmod_avx2(X[h], y, ND[h], NI[h]);
         }
     }
@@ -896,6 +1008,31 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
         r = _mm256_add_pd(r, _mm256_and_pd(_mm256_cmp_pd(r, _mm256_setzero_pd(), _CMP_LT_OQ), ND[h]));
         _mm256_storeu_si256((__m256i *)(bt->x + 4 * h), pd_to_u52_avx2(r));
     }
+}
+
+/* The tight loop's terms four at a time: n and f step by 4 step and 4 e
+ * (exact mod 2^64, as the scalar loop), the sign pattern of the residues
+ * repeats every even number of k. */
+TARGET_AVX2 static uint64_t fill_avx2(batch_t *bt, int at, uint64_t run, const run_t *r)
+{
+    const uint64_t whole = run & ~(uint64_t)3;
+    uint64_t n0[4], f0[4], neg[4];
+    for (int i = 0; i < 4; i++) {
+        n0[i] = r->n + r->step * (uint64_t)i;
+        f0[i] = r->f - r->e * (uint64_t)i;
+        neg[i] = 0 - (r->negc ^ (r->neg_odd & (r->k + (uint64_t)i)));
+    }
+    __m256i N = _mm256_loadu_si256((const __m256i *)n0), F = _mm256_loadu_si256((const __m256i *)f0);
+    const __m256i NEG = _mm256_loadu_si256((const __m256i *)neg), CA = _mm256_set1_epi64x((int64_t)r->ca);
+    const __m256i NS = _mm256_set1_epi64x((int64_t)(4 * r->step)), FS = _mm256_set1_epi64x((int64_t)(4 * r->e));
+    for (uint64_t i = 0; i < whole; i += 4) {
+        _mm256_storeu_si256((__m256i *)(bt->n + at + i), N);
+        _mm256_storeu_si256((__m256i *)(bt->f + at + i), F);
+        _mm256_storeu_si256((__m256i *)(bt->cm + at + i), _mm256_blendv_epi8(CA, _mm256_sub_epi64(N, CA), NEG));
+        N = _mm256_add_epi64(N, NS);
+        F = _mm256_sub_epi64(F, FS);
+    }
+    return whole;
 }
 
 /* ---- AVX-512F: 8 lanes of 64 bits, B = 64 ------------------------------- */
@@ -914,6 +1051,15 @@ TARGET_AVX512 static inline __m512i inv64_avx512(__m512i n) /* as inv64_avx2 */
                             _mm512_slli_epi64(_mm512_mul_epu32(x, _mm512_srli_epi64(u, 32)), 32));
 }
 
+TARGET_AVX512 static inline __m512i inv32_avx512(__m512i n) /* as inv32_avx2 */
+{
+    const __m512i two = _mm512_set1_epi64(2);
+    __m512i x = _mm512_xor_si512(_mm512_add_epi64(n, _mm512_add_epi64(n, n)), two);
+    for (int i = 0; i < 3; i++)
+        x = _mm512_mul_epu32(x, _mm512_sub_epi64(two, _mm512_mul_epu32(n, x)));
+    return x;
+}
+
 TARGET_AVX512 static inline __m512d u52_to_pd_avx512(__m512i i)
 {
     return _mm512_sub_pd(_mm512_castsi512_pd(_mm512_or_si512(i, _mm512_set1_epi64((int64_t)MAGIC52))),
@@ -925,50 +1071,75 @@ TARGET_AVX512 static inline __m512i pd_to_u52_avx512(__m512d d)
                             _mm512_set1_epi64((int64_t)MAGIC52));
 }
 
-TARGET_AVX512 static inline __m512i pow2_mod_avx512(__m512d nd, double p2) /* as pow2_mod_avx2 */
+TARGET_AVX512 static inline __m512i pow2v_mod_avx512(__m512d nd, __m512d P) /* as pow2v_mod_avx2 */
 {
-    __m512d P = _mm512_set1_pd(p2), zero = _mm512_setzero_pd();
+    const __m512d zero = _mm512_setzero_pd();
     __m512d q = _mm512_roundscale_pd(_mm512_div_pd(P, nd), _MM_FROUND_TO_NEG_INF | _MM_FROUND_NO_EXC);
     __m512d r = _mm512_fnmadd_pd(q, nd, P);
     r = _mm512_mask_add_pd(r, _mm512_cmp_pd_mask(r, zero, _CMP_LT_OQ), r, nd);
     r = _mm512_mask_sub_pd(r, _mm512_cmp_pd_mask(r, nd, _CMP_GE_OQ), r, nd);
     return pd_to_u52_avx512(r);
 }
+TARGET_AVX512 static inline __m512i pow2_mod_avx512(__m512d nd, double p2)
+{
+    return pow2v_mod_avx512(nd, _mm512_set1_pd(p2));
+}
+TARGET_AVX512 static inline __m512d pow2_pd_avx512(__m512i a, int e) /* as pow2_pd_avx2 */
+{
+    return _mm512_castsi512_pd(_mm512_slli_epi64(_mm512_add_epi64(a, _mm512_set1_epi64(1023 + e)), 52));
+}
 
 /* small_avx2 on eight lanes; the same bounds (n < 2^29, values in [0, 2n)). */
-TARGET_AVX512 static void small_avx512(batch_t *bt)
+TARGET_AVX512 static inline void ladder32_avx512(batch_t *bt, const int full)
 {
-    __m512i X[H5], N[H5], NP[H5], F[H5];
+    __m512i X[H5], NP[H5]; /* n and f read from the batch (see ladder32_avx2) */
+    const uint64_t *N = bt->n, *F = bt->f;
     const __m512i zero = _mm512_setzero_si512();
-    uint64_t fmax = 0;
-    for (int l = 0; l < 8 * H5; l++)
-        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
+    const uint64_t fmax = bt->fmax;
+    const int sh = top_shift(fmax, TOP32); /* the top bits, as in ladder32_avx2 */
+    const int low = bit_length(fmax ^ bt->fmin) < sh ? bit_length(fmax ^ bt->fmin) : sh; /* [low, sh): shared */
     for (int h = 0; h < H5; h++) {
-        N[h] = _mm512_loadu_si512(bt->n + 8 * h);
-        F[h] = _mm512_loadu_si512(bt->f + 8 * h);
-        __m512i ninv = inv64_avx512(N[h]);
-        _mm512_storeu_si512(bt->ninv + 8 * h, ninv);
+        __m512i ninv = inv32_avx512(_mm512_loadu_si512(N + 8 * h));
+        _mm512_storeu_si512(bt->ninv + 8 * h, ninv); /* low 32 bits: see inv32_avx2 */
         NP[h] = _mm512_sub_epi64(zero, ninv);
-        X[h] = pow2_mod_avx512(u52_to_pd_avx512(N[h]), 4294967296.0);
+        __m512d P = pow2_pd_avx512(_mm512_srli_epi64(_mm512_loadu_si512(F + 8 * h), (unsigned)sh), 32);
+        X[h] = pow2v_mod_avx512(u52_to_pd_avx512(_mm512_loadu_si512(N + 8 * h)), P);
     }
-    for (int b = bit_length(fmax) - 1; b >= 0; b--) {
+    for (int b = sh - 1; b >= low; b--) {
+        __m128i cnt = _mm_cvtsi32_si128((int)((fmax >> b) & 1));
+        for (int h = 0; h < H5; h++) {
+            __m512i t = _mm512_mul_epu32(X[h], _mm512_sll_epi64(X[h], cnt));
+            __m512i m = _mm512_mul_epu32(t, NP[h]);
+            X[h] = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, _mm512_loadu_si512(N + 8 * h))), 32);
+            if (full)
+                X[h] = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], _mm512_loadu_si512(N + 8 * h)));
+        }
+    }
+    for (int b = low - 1; b >= 0; b--) {
         __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
         for (int h = 0; h < H5; h++) { /* y = x, or 2x where bit b of f is set */
-            __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]);
+            __mmask8 k = _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel);
+            __m512i y = _mm512_mask_add_epi64(X[h], k, X[h], X[h]);
             __m512i t = _mm512_mul_epu32(X[h], y);
             __m512i m = _mm512_mul_epu32(t, NP[h]);
-            X[h] = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, N[h])), 32);
+            X[h] = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, _mm512_loadu_si512(N + 8 * h))), 32);
+            if (full)
+                X[h] = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], _mm512_loadu_si512(N + 8 * h)));
         }
     }
     for (int h = 0; h < H5; h++) {
-        __m512i x = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], N[h])); /* x >= n ? x - n : x */
+        /* x >= n ? x - n : x */
+        __m512i x = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], _mm512_loadu_si512(N + 8 * h)));
         __m512i t = _mm512_mul_epu32(x, _mm512_loadu_si512(bt->cm + 8 * h));
         __m512i m = _mm512_mul_epu32(t, NP[h]);
-        x = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, N[h])), 32);
-        x = _mm512_min_epu64(x, _mm512_sub_epi64(x, N[h]));
+        x = _mm512_srli_epi64(_mm512_add_epi64(t, _mm512_mul_epu32(m, _mm512_loadu_si512(N + 8 * h))), 32);
+        x = _mm512_min_epu64(x, _mm512_sub_epi64(x, _mm512_loadu_si512(N + 8 * h)));
         _mm512_storeu_si512(bt->x + 8 * h, x);
     }
 }
+
+TARGET_AVX512 static void small_avx512(batch_t *bt) { ladder32_avx512(bt, 0); }
+TARGET_AVX512 static void narrow_avx512(batch_t *bt) { ladder32_avx512(bt, 1); }
 
 TARGET_AVX512 static inline __m512d mulmod_avx512(__m512d a, __m512d b, __m512d n, __m512d ninv)
 { /* as mulmod_avx2, same bounds */
@@ -982,23 +1153,32 @@ TARGET_AVX512 static inline __m512d mulmod_avx512(__m512d a, __m512d b, __m512d 
 TARGET_AVX512 static void medium_avx512(batch_t *bt)
 {
     __m512d X[H5], ND[H5], NI[H5];
-    __m512i F[H5];
+    const uint64_t *F = bt->f; /* read from the batch (see ladder32_avx2) */
     const __m512d d1 = _mm512_set1_pd(1.0);
-    uint64_t fmax = 0;
-    for (int l = 0; l < 8 * H5; l++)
-        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
+    const uint64_t fmax = bt->fmax;
+    const int sh = top_shift(fmax, TOPFMA); /* the top bits, as in medium_avx2 */
+    const int low = bit_length(fmax ^ bt->fmin) < sh ? bit_length(fmax ^ bt->fmin) : sh; /* [low, sh): shared */
     for (int h = 0; h < H5; h++) {
         __m512i n = _mm512_loadu_si512(bt->n + 8 * h);
-        F[h] = _mm512_loadu_si512(bt->f + 8 * h);
-        _mm512_storeu_si512(bt->ninv + 8 * h, inv64_avx512(n));
+        _mm512_storeu_si512(bt->ninv + 8 * h, inv32_avx512(n)); /* the fractions read 32 bits */
         ND[h] = u52_to_pd_avx512(n);
         NI[h] = _mm512_div_pd(d1, ND[h]);
-        X[h] = d1;
+        __m512d P = pow2_pd_avx512(_mm512_srli_epi64(_mm512_loadu_si512(F + 8 * h), (unsigned)sh), 0);
+        X[h] = u52_to_pd_avx512(pow2v_mod_avx512(ND[h], P));
     }
-    for (int b = bit_length(fmax) - 1; b >= 0; b--) {
+    for (int b = sh - 1; b >= low; b--) {
+        if ((fmax >> b) & 1)
+            for (int h = 0; h < H5; h++)
+                X[h] = mulmod_avx512(X[h], _mm512_add_pd(X[h], X[h]), ND[h], NI[h]);
+        else
+            for (int h = 0; h < H5; h++)
+                X[h] = mulmod_avx512(X[h], X[h], ND[h], NI[h]);
+    }
+    for (int b = low - 1; b >= 0; b--) {
         __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
         for (int h = 0; h < H5; h++) {
-            __m512d y = _mm512_mask_add_pd(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]); /* exact */
+            __mmask8 k = _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel);
+            __m512d y = _mm512_mask_add_pd(X[h], k, X[h], X[h]); /* exact */
             X[h] = mulmod_avx512(X[h], y, ND[h], NI[h]);
         }
     }
@@ -1008,6 +1188,29 @@ TARGET_AVX512 static void medium_avx512(batch_t *bt)
         r = _mm512_mask_add_pd(r, _mm512_cmp_pd_mask(r, _mm512_setzero_pd(), _CMP_LT_OQ), r, ND[h]);
         _mm512_storeu_si512(bt->x + 8 * h, pd_to_u52_avx512(r));
     }
+}
+
+TARGET_AVX512 static uint64_t fill_avx512(batch_t *bt, int at, uint64_t run, const run_t *r) /* as fill_avx2 */
+{
+    const uint64_t whole = run & ~(uint64_t)7;
+    uint64_t n0[8], f0[8];
+    __mmask8 neg = 0;
+    for (int i = 0; i < 8; i++) {
+        n0[i] = r->n + r->step * (uint64_t)i;
+        f0[i] = r->f - r->e * (uint64_t)i;
+        neg |= (__mmask8)((r->negc ^ (r->neg_odd & (r->k + (uint64_t)i))) << i);
+    }
+    __m512i N = _mm512_loadu_si512(n0), F = _mm512_loadu_si512(f0);
+    const __m512i CA = _mm512_set1_epi64((int64_t)r->ca);
+    const __m512i NS = _mm512_set1_epi64((int64_t)(8 * r->step)), FS = _mm512_set1_epi64((int64_t)(8 * r->e));
+    for (uint64_t i = 0; i < whole; i += 8) {
+        _mm512_storeu_si512(bt->n + at + i, N);
+        _mm512_storeu_si512(bt->f + at + i, F);
+        _mm512_storeu_si512(bt->cm + at + i, _mm512_mask_sub_epi64(CA, neg, N, CA));
+        N = _mm512_add_epi64(N, NS);
+        F = _mm512_sub_epi64(F, FS);
+    }
+    return whole;
 }
 
 /* ---- AVX-512 IFMA: 52-bit Montgomery, R = 2^52, odd n < 2^51 -------------
@@ -1032,26 +1235,62 @@ TARGET_IFMA static inline __m512i mont52(__m512i a, __m512i b, __m512i n, __m512
     return _mm512_min_epu64(t, _mm512_sub_epi64(t, n));
 }
 
+/* mont52 without the last correction, for odd n < 2^49: x in [0, 2n) and
+ * y = x or 2x < 4n < 2^52 (an IFMA input) give x y < 8 n^2 and a result below
+ * 8 n^2 / 2^52 + n < 2n, so the values stay in [0, 2n).  The carry is
+ * taken from lo alone: lo + lo52(m n) is 0 or 2^52 (see above), i.e. the
+ * carry is 1 exactly when lo != 0 -- four IFMA products, no shift. */
+TARGET_IFMA static inline __m512i mont52_lazy(__m512i a, __m512i b, __m512i n, __m512i np)
+{
+    const __m512i zero = _mm512_setzero_si512();
+    __m512i lo = _mm512_madd52lo_epu64(zero, a, b);
+    __m512i hi = _mm512_madd52hi_epu64(zero, a, b);
+    __m512i m = _mm512_madd52lo_epu64(zero, lo, np);
+    hi = _mm512_mask_add_epi64(hi, _mm512_test_epi64_mask(lo, lo), hi, _mm512_set1_epi64(1));
+    return _mm512_madd52hi_epu64(hi, m, n);
+}
+
 TARGET_IFMA static void medium_ifma(batch_t *bt)
 {
-    __m512i X[H5], N[H5], NP[H5], F[H5];
+    __m512i X[H5], N[H5], NP[H5];
+    const uint64_t *F = bt->f; /* read from the batch (see ladder32_avx2) */
     const __m512i mask52 = _mm512_set1_epi64(((int64_t)1 << 52) - 1);
-    uint64_t fmax = 0;
-    for (int l = 0; l < 8 * H5; l++)
-        fmax = bt->f[l] > fmax ? bt->f[l] : fmax;
+    const uint64_t fmax = bt->fmax;
     for (int h = 0; h < H5; h++) {
         N[h] = _mm512_loadu_si512(bt->n + 8 * h);
-        F[h] = _mm512_loadu_si512(bt->f + 8 * h);
         __m512i ninv = inv64_avx512(N[h]);
         _mm512_storeu_si512(bt->ninv + 8 * h, ninv);
         NP[h] = _mm512_and_si512(_mm512_sub_epi64(_mm512_setzero_si512(), ninv), mask52);
         X[h] = pow2_mod_avx512(u52_to_pd_avx512(N[h]), 4503599627370496.0);
     }
-    for (int b = bit_length(fmax) - 1; b >= 0; b--) {
-        __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
-        for (int h = 0; h < H5; h++) {
-            __m512i y = _mm512_mask_add_epi64(X[h], _mm512_test_epi64_mask(F[h], sel), X[h], X[h]);
-            X[h] = mont52(X[h], y, N[h], NP[h]);
+    if (bt->nmax < ((uint64_t)1 << 49)) {
+        const int low = bit_length(fmax ^ bt->fmin); /* bits >= low: the same in every lane */
+        for (int b = bit_length(fmax) - 1; b >= low; b--) {
+            if ((fmax >> b) & 1)
+                for (int h = 0; h < H5; h++)
+                    X[h] = mont52_lazy(X[h], _mm512_add_epi64(X[h], X[h]), N[h], NP[h]);
+            else
+                for (int h = 0; h < H5; h++)
+                    X[h] = mont52_lazy(X[h], X[h], N[h], NP[h]);
+        }
+        for (int b = low - 1; b >= 0; b--) {
+            __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
+            for (int h = 0; h < H5; h++) {
+                __mmask8 k = _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel);
+            __m512i y = _mm512_mask_add_epi64(X[h], k, X[h], X[h]);
+                X[h] = mont52_lazy(X[h], y, N[h], NP[h]);
+            }
+        }
+        for (int h = 0; h < H5; h++) /* from [0, 2n) to [0, n) */
+            X[h] = _mm512_min_epu64(X[h], _mm512_sub_epi64(X[h], N[h]));
+    } else {
+        for (int b = bit_length(fmax) - 1; b >= 0; b--) {
+            __m512i sel = _mm512_set1_epi64((int64_t)((uint64_t)1 << b));
+            for (int h = 0; h < H5; h++) {
+                __mmask8 k = _mm512_test_epi64_mask(_mm512_loadu_si512(F + 8 * h), sel);
+            __m512i y = _mm512_mask_add_epi64(X[h], k, X[h], X[h]);
+                X[h] = mont52(X[h], y, N[h], NP[h]);
+            }
         }
     }
     for (int h = 0; h < H5; h++)
@@ -1059,78 +1298,32 @@ TARGET_IFMA static void medium_ifma(batch_t *bt)
 }
 
 /* ---- the fraction words in vector form -----------------------------------
- * add_fractions on 4 or 8 lanes: per word, w = -r n^-1 mod 2^64 and
- * r <- hi64(w n) + (r != 0), from 32 x 32-bit products (exact for any
- * n < 2^63, see hi64_avx512); the words of the batch's terms are summed in
- * 32-bit halves (no overflow for 128 terms), and the exact total plus the
- * carry goes into acc word by word, as add_fractions does. */
-
-/* lo64(a b) for 64-bit lanes. */
-TARGET_AVX512 static inline __m512i mullo64_avx512(__m512i a, __m512i b)
-{
-    __m512i cross = _mm512_add_epi64(_mm512_mul_epu32(_mm512_srli_epi64(a, 32), b),
-                                     _mm512_mul_epu32(a, _mm512_srli_epi64(b, 32)));
-    return _mm512_add_epi64(_mm512_mul_epu32(a, b), _mm512_slli_epi64(cross, 32));
-}
-
-/* hi64(w n) for w < 2^64, n < 2^63: with w = wh 2^32 + wl, n = nh 2^32 + nl,
- * mid = wh nl + (wl nl >> 32) < 2^64 and mid2 = (mid mod 2^32) + wl nh < 2^64,
- * hi64 = wh nh + (mid >> 32) + (mid2 >> 32) (the low 32 bits of wl nl cannot
- * carry past bit 64). */
-TARGET_AVX512 static inline __m512i mulhi64_avx512(__m512i w, __m512i n)
-{
-    const __m512i lo32 = _mm512_set1_epi64(0xffffffff);
-    __m512i wh = _mm512_srli_epi64(w, 32), nh = _mm512_srli_epi64(n, 32);
-    __m512i mid = _mm512_add_epi64(_mm512_mul_epu32(wh, n), _mm512_srli_epi64(_mm512_mul_epu32(w, n), 32));
-    __m512i mid2 = _mm512_add_epi64(_mm512_and_si512(mid, lo32), _mm512_mul_epu32(w, nh));
-    return _mm512_add_epi64(_mm512_add_epi64(_mm512_mul_epu32(wh, nh), _mm512_srli_epi64(mid, 32)),
-                            _mm512_srli_epi64(mid2, 32));
-}
-
-TARGET_AVX512 static void fractions_avx512(batch_t *bt, int words, uint64_t *acc)
-{
-    __m512i T[H5], N[H5], NI[H5];
-    const __m512i lo32 = _mm512_set1_epi64(0xffffffff), one = _mm512_set1_epi64(1);
-    for (int h = 0; h < H5; h++) {
-        T[h] = _mm512_loadu_si512(bt->x + 8 * h);
-        N[h] = _mm512_loadu_si512(bt->n + 8 * h);
-        NI[h] = _mm512_loadu_si512(bt->ninv + 8 * h);
-    }
-    unsigned __int128 carry = 0;
-    for (int idx = 0; idx < words; idx++) {
-        __m512i SL = _mm512_setzero_si512(), SH = _mm512_setzero_si512();
-        for (int h = 0; h < H5; h++) {
-            __m512i w = _mm512_sub_epi64(_mm512_setzero_si512(), mullo64_avx512(T[h], NI[h]));
-            __mmask8 nz = _mm512_test_epi64_mask(T[h], T[h]);
-            __m512i hi = mulhi64_avx512(w, N[h]);
-            T[h] = _mm512_mask_add_epi64(hi, nz, hi, one);
-            SL = _mm512_add_epi64(SL, _mm512_and_si512(w, lo32));
-            SH = _mm512_add_epi64(SH, _mm512_srli_epi64(w, 32));
-        }
-        unsigned __int128 total = (unsigned __int128)(uint64_t)_mm512_reduce_add_epi64(SL) +
-                                  ((unsigned __int128)(uint64_t)_mm512_reduce_add_epi64(SH) << 32) + acc[idx] +
-                                  carry;
-        acc[idx] = (uint64_t)total;
-        carry = total >> 64; /* dropped past the top word (mod 2^P) */
-    }
-}
-
-TARGET_AVX2 static inline __m256i mullo64_avx2(__m256i a, __m256i b) /* as mullo64_avx512 */
-{
-    __m256i cross = _mm256_add_epi64(_mm256_mul_epu32(_mm256_srli_epi64(a, 32), b),
-                                     _mm256_mul_epu32(a, _mm256_srli_epi64(b, 32)));
-    return _mm256_add_epi64(_mm256_mul_epu32(a, b), _mm256_slli_epi64(cross, 32));
-}
-
-TARGET_AVX2 static inline __m256i mulhi64_avx2(__m256i w, __m256i n) /* as mulhi64_avx512 */
-{
-    const __m256i lo32 = _mm256_set1_epi64x(0xffffffff);
-    __m256i wh = _mm256_srli_epi64(w, 32), nh = _mm256_srli_epi64(n, 32);
-    __m256i mid = _mm256_add_epi64(_mm256_mul_epu32(wh, n), _mm256_srli_epi64(_mm256_mul_epu32(w, n), 32));
-    __m256i mid2 = _mm256_add_epi64(_mm256_and_si256(mid, lo32), _mm256_mul_epu32(w, nh));
-    return _mm256_add_epi64(_mm256_add_epi64(_mm256_mul_epu32(wh, nh), _mm256_srli_epi64(mid, 32)),
-                            _mm256_srli_epi64(mid2, 32));
-}
+ * add_fractions on 4 or 8 lanes, in 32-bit digits: the same walk with
+ * R = 2^32.  For odd n and r_i < n, r_i 2^32 = d_i n + r_(i+1) with the digit
+ * d_i < 2^32 and r_(i+1) < n, so
+ *
+ *     d_i = -r_(i+1) n^-1 mod 2^32,   r_i = (d_i n + r_(i+1)) / 2^32
+ *
+ * exactly (the sum's low 32 bits are zero).  mul_epu32 of r_(i+1) by
+ * -n^-1 reads the low 32 bits of each, so the digit is exact mod 2^32 for
+ * any n; only the low 32 bits of bt->ninv are read.  The residue
+ * r_(2W+1) = c 2^(E - v + 64W) mod n is the one the 64-bit walk starts from
+ * (64W = 32 (2W)), so the digits are those of the same floor(2^P frac(...)),
+ * word i being d_(2i-1) 2^32 + d_(2i).  How r_i is recovered depends on n:
+ *
+ *   n < 2^32 (digit32): d n + r < 2^32 n + n < 2^64, one 64-bit product.
+ *   n < 2^52 (digit52, IFMA): d n = H 2^52 + L (madd52hi / madd52lo, both
+ *     inputs below 2^52), L + r < 2^53 is computed by madd52lo itself, and
+ *     r_i = H 2^20 + (L + r) / 2^32 (2^52 H is a multiple of 2^32, so
+ *     L + r is too).
+ *   n < 2^63 (digit64): with n = nh 2^32 + nl and r = rh 2^32 + rl,
+ *     r_i = d nh + rh + (d nl + rl) / 2^32, where d nl + rl
+ *     <= (2^32 - 1)^2 + 2^32 - 1 < 2^64 and is a multiple of 2^32.
+ *
+ * The digits of the batch's terms are summed per lane (below 2^32 each, so
+ * below 2^39 for 128 terms), and the exact total of a word plus the carry
+ * goes into acc word by word, as add_fractions does. */
+enum { DIGIT32 = 0, DIGIT52 = 1, DIGIT64 = 2 };
 
 TARGET_AVX2 static uint64_t hsum_avx2(__m256i v)
 {
@@ -1139,31 +1332,108 @@ TARGET_AVX2 static uint64_t hsum_avx2(__m256i v)
     return out[0] + out[1] + out[2] + out[3];
 }
 
-TARGET_AVX2 static void fractions_avx2(batch_t *bt, int words, uint64_t *acc) /* 32 terms */
+/* One digit of every lane: r_i from r_(i+1) = T and the digit d (its low 32
+ * bits; the caller masks).  By value: a pointer would keep T in memory. */
+#define DIGIT_AVX2(T, d, N, NH, NP, kind)                                                                             \
+    do {                                                                                                               \
+        d = _mm256_mul_epu32(T, NP);                                                                                   \
+        if (kind == DIGIT32)                                                                                           \
+            T = _mm256_srli_epi64(_mm256_add_epi64(_mm256_mul_epu32(d, N), T), 32);                                    \
+        else {                                                                                                         \
+            __m256i low_ = _mm256_srli_epi64(_mm256_add_epi64(_mm256_mul_epu32(d, N), _mm256_and_si256(T, lo32)), 32); \
+            T = _mm256_add_epi64(_mm256_add_epi64(_mm256_mul_epu32(d, NH), _mm256_srli_epi64(T, 32)), low_);           \
+        }                                                                                                              \
+    } while (0)
+
+TARGET_AVX2 static inline void fractions_avx2_kind(batch_t *bt, int words, uint64_t *acc, const int kind)
 {
-    __m256i T[8], N[8], NI[8];
-    const __m256i lo32 = _mm256_set1_epi64x(0xffffffff), one = _mm256_set1_epi64x(1), zero = _mm256_setzero_si256();
-    for (int h = 0; h < 8; h++) {
-        T[h] = _mm256_loadu_si256((const __m256i *)(bt->x + 4 * h));
-        N[h] = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
-        NI[h] = _mm256_loadu_si256((const __m256i *)(bt->ninv + 4 * h));
+    __m256i NH[H], NP[H];
+    __m256i *T = (__m256i *)bt->x; /* r, walked down in place (see ladder32_avx2) */
+    const __m256i *N = (const __m256i *)bt->n;
+    const __m256i zero = _mm256_setzero_si256(), lo32 = _mm256_set1_epi64x(0xffffffff);
+    for (int h = 0; h < H; h++) {
+        NH[h] = _mm256_srli_epi64(_mm256_loadu_si256(N + h), 32);
+        NP[h] = _mm256_sub_epi64(zero, _mm256_loadu_si256((const __m256i *)(bt->ninv + 4 * h)));
     }
     unsigned __int128 carry = 0;
     for (int idx = 0; idx < words; idx++) {
         __m256i SL = zero, SH = zero;
-        for (int h = 0; h < 8; h++) {
-            __m256i w = _mm256_sub_epi64(zero, mullo64_avx2(T[h], NI[h]));
-            __m256i nz = _mm256_andnot_si256(_mm256_cmpeq_epi64(T[h], zero), one);
-            T[h] = _mm256_add_epi64(mulhi64_avx2(w, N[h]), nz);
-            SL = _mm256_add_epi64(SL, _mm256_and_si256(w, lo32));
-            SH = _mm256_add_epi64(SH, _mm256_srli_epi64(w, 32));
+        for (int h = 0; h < H; h++) {
+            __m256i t = _mm256_loadu_si256(T + h), n = _mm256_loadu_si256(N + h), d;
+            DIGIT_AVX2(t, d, n, NH[h], NP[h], kind);
+            SL = _mm256_add_epi64(SL, _mm256_and_si256(d, lo32));
+            DIGIT_AVX2(t, d, n, NH[h], NP[h], kind);
+            SH = _mm256_add_epi64(SH, _mm256_and_si256(d, lo32));
+            _mm256_storeu_si256(T + h, t);
         }
         unsigned __int128 total = (unsigned __int128)hsum_avx2(SL) + ((unsigned __int128)hsum_avx2(SH) << 32) +
                                   acc[idx] + carry;
         acc[idx] = (uint64_t)total;
-        carry = total >> 64;
+        carry = total >> 64; /* dropped past the top word (mod 2^P) */
     }
 }
+
+TARGET_AVX2 static void fractions32_avx2(batch_t *bt, int words, uint64_t *acc) /* 4 H terms, n < 2^32 */
+{
+    fractions_avx2_kind(bt, words, acc, DIGIT32);
+}
+TARGET_AVX2 static void fractions_avx2(batch_t *bt, int words, uint64_t *acc) /* 4 H terms, n < 2^63 */
+{
+    fractions_avx2_kind(bt, words, acc, DIGIT64);
+}
+
+#define DIGIT_AVX512(T, d, N, NH, NP, kind) /* as DIGIT_AVX2; DIGIT52 under TARGET_IFMA only */                      \
+    do {                                                                                                               \
+        d = _mm512_mul_epu32(T, NP);                                                                                   \
+        if (kind == DIGIT32)                                                                                           \
+            T = _mm512_srli_epi64(_mm512_add_epi64(_mm512_mul_epu32(d, N), T), 32);                                    \
+        else if (kind == DIGIT52) { /* madd52 reads 52 bits of d: its high half must go first */                     \
+            d = _mm512_and_si512(d, lo32);                                                                             \
+            __m512i low_ = _mm512_madd52lo_epu64(T, d, N), high_ = _mm512_madd52hi_epu64(zero, d, N);                  \
+            T = _mm512_add_epi64(_mm512_slli_epi64(high_, 20), _mm512_srli_epi64(low_, 32));                           \
+        } else {                                                                                                       \
+            __m512i low_ = _mm512_srli_epi64(_mm512_add_epi64(_mm512_mul_epu32(d, N), _mm512_and_si512(T, lo32)), 32); \
+            T = _mm512_add_epi64(_mm512_add_epi64(_mm512_mul_epu32(d, NH), _mm512_srli_epi64(T, 32)), low_);           \
+        }                                                                                                              \
+    } while (0)
+
+#define FRACTIONS_AVX512_BODY(kind)                                                                                         \
+    __m512i NP[H5]; /* r walked down in bt->x in place, n read from bt->n (see ladder32_avx2) */                     \
+    const __m512i zero = _mm512_setzero_si512(), lo32 = _mm512_set1_epi64(0xffffffff);                                 \
+    for (int h = 0; h < H5; h++)                                                                                       \
+        NP[h] = _mm512_sub_epi64(zero, _mm512_loadu_si512(bt->ninv + 8 * h));                                          \
+    unsigned __int128 carry = 0;                                                                                       \
+    for (int idx = 0; idx < words; idx++) {                                                                            \
+        __m512i SL = zero, SH = zero;                                                                                  \
+        for (int h = 0; h < H5; h++) {                                                                                 \
+            __m512i t = _mm512_loadu_si512(bt->x + 8 * h), n = _mm512_loadu_si512(bt->n + 8 * h), d;                   \
+            __m512i nh = _mm512_srli_epi64(n, 32);                                                                     \
+            DIGIT_AVX512(t, d, n, nh, NP[h], kind);                                                                    \
+            SL = _mm512_add_epi64(SL, _mm512_and_si512(d, lo32));                                                      \
+            DIGIT_AVX512(t, d, n, nh, NP[h], kind);                                                                    \
+            SH = _mm512_add_epi64(SH, _mm512_and_si512(d, lo32));                                                      \
+            _mm512_storeu_si512(bt->x + 8 * h, t);                                                                     \
+        }                                                                                                              \
+        unsigned __int128 total = (unsigned __int128)(uint64_t)_mm512_reduce_add_epi64(SL) +                           \
+                                  ((unsigned __int128)(uint64_t)_mm512_reduce_add_epi64(SH) << 32) + acc[idx] +        \
+                                  carry;                                                                               \
+        acc[idx] = (uint64_t)total;                                                                                    \
+        carry = total >> 64;                                                                                           \
+    }
+
+TARGET_AVX512 static void fractions32_avx512(batch_t *bt, int words, uint64_t *acc) /* n < 2^32 */
+{
+    FRACTIONS_AVX512_BODY(DIGIT32)
+}
+TARGET_AVX512 static void fractions_avx512(batch_t *bt, int words, uint64_t *acc) /* n < 2^63 */
+{
+    FRACTIONS_AVX512_BODY(DIGIT64)
+}
+TARGET_IFMA static void fractions52_ifma(batch_t *bt, int words, uint64_t *acc) /* n < 2^52 */
+{
+    FRACTIONS_AVX512_BODY(DIGIT52)
+}
+#undef FRACTIONS_AVX512_BODY
 #undef H
 #undef H5
 #endif /* HAVE_X86_PATHS */
@@ -1174,25 +1444,35 @@ TARGET_AVX2 static void fractions_avx2(batch_t *bt, int words, uint64_t *acc) /*
 enum { PATH_PORTABLE = 0, PATH_SCALAR, PATH_AVX2, PATH_AVX512F, PATH_AVX512IFMA, PATH_IFMA52, NPATHS };
 
 #define SMALL_LIMIT ((uint64_t)1 << 29)
+#define NARROW_LIMIT ((uint64_t)1 << 31)
 #define FMA_LIMIT ((uint64_t)1 << 48)
 #define IFMA_LIMIT ((uint64_t)1 << 51)
 
 static const simd_path_t PATHS[NPATHS] = {
-    {"portable", "", 0, NULL, 0, NULL, 0, NULL, 0, NULL}, /* today's shipped code: run_8_simd */
-    {"scalar", "", 0, NULL, 0, NULL, 0, NULL, 0, NULL},   /* 64-bit Montgomery only, 8 lanes: run_8_fused */
+    {.name = "portable", .features = ""}, /* today's shipped code: run_8_simd */
+    {.name = "scalar", .features = ""},   /* 64-bit Montgomery only, 8 lanes: run_8_fused */
 #if HAVE_X86_PATHS
-    {"avx2", "avx2, fma", 32, small_avx2, SMALL_LIMIT, medium_avx2, FMA_LIMIT, NULL, 0, fractions_avx2},
-    {"avx512f", "avx512f", 128, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT, NULL, 0, fractions_avx512},
-    /* FMA below 2^48 measured slightly faster than IFMA on AMD EPYC (Zen 5);
+    {.name = "avx2", .features = "avx2, fma", .batch = 64, .small = small_avx2, .small_limit = SMALL_LIMIT,
+     .narrow = narrow_avx2, .narrow_limit = NARROW_LIMIT, .medium = medium_avx2, .medium_limit = FMA_LIMIT,
+     .fill = fill_avx2, .fractions = fractions_avx2, .fractions32 = fractions32_avx2},
+    {.name = "avx512f", .features = "avx512f", .batch = 128, .small = small_avx512, .small_limit = SMALL_LIMIT,
+     .narrow = narrow_avx512, .narrow_limit = NARROW_LIMIT, .medium = medium_avx512, .medium_limit = FMA_LIMIT,
+     .fill = fill_avx512, .fractions = fractions_avx512, .fractions32 = fractions32_avx512},
+    /* FMA below 2^48 measured slightly faster than IFMA on AMD EPYC (Zen 4);
        IFMA takes 2^48 .. 2^51 */
-    {"avx512ifma", "avx512f, avx512ifma", 128, small_avx512, SMALL_LIMIT, medium_avx512, FMA_LIMIT, medium_ifma,
-     IFMA_LIMIT, fractions_avx512},
-    {"ifma52", "avx512f, avx512ifma", 128, NULL, 0, NULL, 0, medium_ifma, IFMA_LIMIT, fractions_avx512},
+    {.name = "avx512ifma", .features = "avx512f, avx512ifma", .batch = 128, .small = small_avx512,
+     .small_limit = SMALL_LIMIT, .narrow = narrow_avx512, .narrow_limit = NARROW_LIMIT, .medium = medium_avx512,
+     .medium_limit = FMA_LIMIT, .wide = medium_ifma, .wide_limit = IFMA_LIMIT, .fill = fill_avx512,
+     .fractions = fractions_avx512,
+     .fractions32 = fractions32_avx512, .fractions52 = fractions52_ifma},
+    {.name = "ifma52", .features = "avx512f, avx512ifma", .batch = 128, .wide = medium_ifma,
+     .wide_limit = IFMA_LIMIT, .fill = fill_avx512, .fractions = fractions_avx512, .fractions32 = fractions32_avx512,
+     .fractions52 = fractions52_ifma},
 #else
-    {"avx2", "avx2, fma", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
-    {"avx512f", "avx512f", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
-    {"avx512ifma", "avx512f, avx512ifma", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
-    {"ifma52", "avx512f, avx512ifma", 0, NULL, 0, NULL, 0, NULL, 0, NULL},
+    {.name = "avx2", .features = "avx2, fma"},
+    {.name = "avx512f", .features = "avx512f"},
+    {.name = "avx512ifma", .features = "avx512f, avx512ifma"},
+    {.name = "ifma52", .features = "avx512f, avx512ifma"},
 #endif
 };
 
