@@ -240,8 +240,13 @@ class HexOracle:
     _cache: dict[tuple[int, int], str] = field(default_factory=dict)
 
     def digits(self, position: int, count: int) -> str:
+        """Certified hex digits ``position .. position + count - 1``; a window already computed
+        that covers them serves them (certified digits do not depend on the window)."""
         key = (position, count)
         if key not in self._cache:
+            for (p0, c0), held in self._cache.items():
+                if p0 <= position and position + count <= p0 + c0:
+                    return held[position - p0 : position - p0 + count]
             t0 = time.perf_counter()
             r = extract(
                 self.constant,
