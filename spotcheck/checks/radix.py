@@ -234,7 +234,14 @@ class Converter(Protocol):
     """The decimal digits ``1..n`` of a file, held where their conversions run."""
 
     def check(
-        self, length: int, engine: Engine, window: int, kind: str, *, basis: int | None = None, suffix: str = ""
+        self,
+        length: int,
+        engine: Engine,
+        window: int,
+        kind: str,
+        *,
+        basis: int | None = None,
+        suffix: str = "",
     ) -> PrefixOutcome:
         """The check of the prefix of ``length`` digits (with ``suffix`` appended)."""
         ...
@@ -249,7 +256,14 @@ class InlineConverter:
         self.digits = digits
 
     def check(
-        self, length: int, engine: Engine, window: int, kind: str, *, basis: int | None = None, suffix: str = ""
+        self,
+        length: int,
+        engine: Engine,
+        window: int,
+        kind: str,
+        *,
+        basis: int | None = None,
+        suffix: str = "",
     ) -> PrefixOutcome:
         prefix = self.digits[:length] + suffix
         return run_inline(prefix_steps(prefix, window, kind, basis), engine)
@@ -321,7 +335,14 @@ class ChildConverter:
 
     # -- checks ---------------------------------------------------------------
     def check(
-        self, length: int, engine: Engine, window: int, kind: str, *, basis: int | None = None, suffix: str = ""
+        self,
+        length: int,
+        engine: Engine,
+        window: int,
+        kind: str,
+        *,
+        basis: int | None = None,
+        suffix: str = "",
     ) -> PrefixOutcome:
         try:
             if self._proc is None:
