@@ -260,3 +260,21 @@ def test_decimal_end_matches_iff_every_digit_is_right(length, back, delta) -> No
     assert out.match == (text == digits)
     if text != digits and out.window is not None and out.window.match:
         assert out.first_wrong == q
+
+
+def test_progress_moves_during_a_long_conversion(workdir) -> None:
+    # 4*10^6 digits (pi's first 1,000 from MPFR, then seeded random ones): the conversion runs in
+    # the child for a good part of a second, and the bar moves meanwhile, from a calibrated estimate.
+    import random
+
+    table = bytes(48 + i % 10 for i in range(256))
+    n = 4_000_000
+    text = truth()[:1000] + random.Random(4).randbytes(n - 1000).translate(table).decode("ascii")
+    path = write_dec(workdir, text, width=100)
+    said: list[tuple[int, int]] = []
+    v = verify_file(str(path), samples=0, seed=1, progress=lambda d, t: said.append((d, t)))
+    assert v.exit_code == 1  # the random digits are no pi
+    total = said[-1][1]
+    assert said[-1][0] == total
+    assert any(0 < d < total for d, _ in said), said  # ticks inside the tail's conversion
+    assert [d for d, _ in said] == sorted(d for d, _ in said)  # never backwards

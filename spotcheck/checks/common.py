@@ -343,16 +343,30 @@ def clamp_window(window: int, count: int) -> int:
     return min(window, count)
 
 
+def _part(progress: Progress, done: int, weight: int, total: int) -> Callable[[float], None]:
+    """The bar's callback inside one planned check of ``weight`` units, ``done`` before it."""
+
+    def say(fraction: float) -> None:
+        progress(done + int(weight * min(max(fraction, 0.0), 0.99)), total)
+
+    return say
+
+
 def run_plan(
     plan: Plan,
     check: Callable[[str, int], None],
     draw: Callable[[], int],
     budget: float | None,
     progress: Progress | None,
+    *,
+    within: list[Callable[[float], None] | None] | None = None,
 ) -> tuple[int, bool]:
     """Run ``check(kind, where)`` for each planned check, then random draws while ``budget`` allows.
 
     Ctrl-C stops cleanly.  Returns ``(random windows checked, interrupted)``.
+    ``within``, if given, is a one-item list that holds, during each planned
+    check, a callable taking the fraction of that check done (so a long check
+    can move the bar); None between checks.
     """
     t0 = time.perf_counter()
     random_windows = 0
@@ -362,7 +376,11 @@ def run_plan(
     total, done = sum(weights), 0
     try:
         for (kind, where), weight in zip(plan, weights):
+            if within is not None and progress is not None:
+                within[0] = _part(progress, done, weight, total)
             check(kind, where)
+            if within is not None:
+                within[0] = None
             random_windows += kind == "sample"
             done += weight
             if progress:

@@ -26,7 +26,7 @@ from __future__ import annotations
 
 import random
 import time
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 
 from spotcheck.digitfile import DigitFile
 from spotcheck.engine.api import leading_digits
@@ -57,7 +57,7 @@ __all__ = [
 # Peak bytes per decimal digit converted (the child's digit string, the big
 # integer, 10^n, the quotient and the division's temporaries), rounded up
 # from the figures of benchmarks/radix.py.
-BYTES_PER_DIGIT = 6
+BYTES_PER_DIGIT = 7
 # ---------------------------------------------------------------------------
 
 
@@ -134,12 +134,16 @@ def verify_decimal(
     lo = min(n, 2 * w)
     plan += sorted(("sample", rng.randint(lo, n)) for _ in range(samples))
 
+    within: list[Callable[[float], None] | None] = [None]
+
     def check(kind: str, length: int) -> None:
-        out = conv.check(length, oracle.digits, w, kind)
+        out = conv.check(length, oracle.digits, w, kind, tick=within[0])
         checks.extend(out.rows)
 
     try:
-        random_windows, interrupted = run_plan(plan, check, lambda: rng.randint(lo, n), budget, progress)
+        random_windows, interrupted = run_plan(
+            plan, check, lambda: rng.randint(lo, n), budget, progress, within=within
+        )
         bracket = decimal_bracket(checks, n)
         rounded = None
         if bracket is not None and bracket[0] == bracket[1] and not interrupted:
@@ -249,7 +253,8 @@ def locate_decimal(
     good, bad = 0, 0
     rounded: int | None = None
     try:
-        whole = conv.check(n, oracle.digits, w, "tail")
+        tail_tick = (lambda f: progress(int(f * steps / 2), steps)) if progress else None
+        whole = conv.check(n, oracle.digits, w, "tail", tick=tail_tick)
         checks.extend(whole.rows)
         if not whole.match:
             good, bad = 0, n  # prefix `good` passes, prefix `bad` fails
