@@ -278,3 +278,23 @@ def test_progress_moves_during_a_long_conversion(workdir) -> None:
     assert said[-1][0] == total
     assert any(0 < d < total for d, _ in said), said  # ticks inside the tail's conversion
     assert [d for d, _ in said] == sorted(d for d, _ in said)  # never backwards
+
+
+def test_a_conversion_child_that_dies_is_one_clear_error(child_conversions) -> None:
+    # As when the kernel's out-of-memory killer ends the child mid-conversion.
+    import os
+    import signal
+
+    from spotcheck.checks.common import HexOracle
+
+    oracle = HexOracle("pi", "bellard")
+    digits = truth()[:50_000]
+    child = child_conversions.ChildConverter(lambda: iter([(1, digits)]), len(digits))
+
+    def engine(position: int, count: int) -> str:
+        os.kill(child._proc.pid, signal.SIGKILL)  # asked for the window ahead: the child is converting
+        return oracle.digits(position, count)
+
+    with pytest.raises(UsageError, match="stopped .*out of memory") as info:
+        child.check(len(digits), engine, 16, "tail")
+    assert info.value.parameter == "limit" and child._proc is None  # cleaned up

@@ -299,12 +299,9 @@ class ChildConverter:
 
     # -- the child's life -----------------------------------------------------
     def _start(self) -> None:
-        import multiprocessing as mp
+        from .reference import child_context
 
-        # Not "fork": the parent may hold threads (the engine's, rich's refresh)
-        # whose locks a forked child would inherit without the threads.
-        method = "forkserver" if "forkserver" in mp.get_all_start_methods() else "spawn"
-        ctx: Any = mp.get_context(method)
+        ctx = child_context()
         mine, theirs = ctx.Pipe(duplex=True)
         self._proc = ctx.Process(target=_serve, args=(theirs, self.n), daemon=True)
         self._conn = mine
@@ -325,12 +322,24 @@ class ChildConverter:
         conn, proc = self._conn, self._proc
         while not conn.poll(POLL_SECONDS):
             if not proc.is_alive() and not conn.poll(0):
-                raise RuntimeError(
-                    f"the radix conversion stopped (exit code {proc.exitcode}; out of memory?)"
-                )
+                raise self._died()
             if tick is not None:
                 tick()
         return conn.recv()
+
+    def _died(self) -> Exception:
+        """The error for a child that ended without its answer (killed for memory, most likely)."""
+        from .common import needs
+
+        proc = self._proc
+        if proc is not None:
+            proc.join(1)
+        code = proc.exitcode if proc is not None else None
+        return needs(
+            f"the radix conversion of {self.n:,} decimal digits stopped (exit code {code}: out of "
+            "memory?); a shorter prefix needs less",
+            "limit",
+        )
 
     def _stop(self) -> None:
         proc, conn = self._proc, self._conn
@@ -379,6 +388,10 @@ class ChildConverter:
                     return outcome
                 else:  # "error": raised here, as if the conversion had run in this process
                     raise value
+        except (EOFError, ConnectionError) as exc:  # the pipe broke: the child is gone
+            died = self._died()
+            self._stop()
+            raise died from exc
         except BaseException:
             self._stop()
             raise
@@ -458,4 +471,7 @@ def open_converter(n: int, read: Callable[[int, int], str], chunks: Callable[[],
     """Where the conversions of a file's first ``n`` digits run: inline below :data:`CHILD_DIGITS`."""
     if n < CHILD_DIGITS:
         return InlineConverter(read(1, n))
+    from .reference import warm_children
+
+    warm_children()  # its start overlaps the caller's head check and the file's reading
     return ChildConverter(chunks, n)

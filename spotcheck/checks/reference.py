@@ -36,6 +36,8 @@ MEMORY_SHARE = 0.7
 # Digits beyond which the computation runs in a child process (stoppable by
 # Ctrl-C); below, starting a process costs more than the computation.
 CHILD_DIGITS = 100_000
+# Modules the process that children fork from imports once, before any child.
+CHILD_PRELOAD = ("spotcheck.checks.reference", "spotcheck.checks.radix", "flint", "gmpy2")
 # ---------------------------------------------------------------------------
 
 
@@ -145,12 +147,7 @@ def run_in_child(
     target: Callable[..., Any], args: tuple[Any, ...], tick: Callable[[float], None] | None
 ) -> Any:
     """``target(*args)`` in a child process that an interruption of the caller terminates."""
-    import multiprocessing as mp
-
-    # Not "fork": the parent may hold threads (flint's pool, rich's refresh)
-    # whose locks a forked child would inherit without the threads.
-    method = "forkserver" if "forkserver" in mp.get_all_start_methods() else "spawn"
-    mpc: Any = mp.get_context(method)
+    mpc = child_context()
     recv, send = mpc.Pipe(duplex=False)
     proc = mpc.Process(target=_child_main, args=(send, target, args), daemon=True)
     proc.start()
@@ -176,6 +173,39 @@ def run_in_child(
     if status == "error":
         raise value
     return value
+
+
+def child_context() -> Any:
+    """The multiprocessing context of every child process of the checks.
+
+    Not "fork": the parent may hold threads (flint's pool, the engine's, rich's
+    refresh) whose locks a forked child would inherit without the threads.  A
+    fork server instead: a fresh process that imports :data:`CHILD_PRELOAD`
+    once, and that each child is forked from, ready to compute.
+    """
+    import multiprocessing as mp
+
+    if "forkserver" not in mp.get_all_start_methods():
+        return mp.get_context("spawn")
+    ctx: Any = mp.get_context("forkserver")
+    ctx.set_forkserver_preload(list(CHILD_PRELOAD))
+    return ctx
+
+
+def warm_children() -> None:
+    """Start the fork server now, so that its start-up and imports overlap the caller's own work.
+
+    Call it where a child process will follow (a file large enough); without
+    a fork server (``spawn``) it does nothing.
+    """
+    import multiprocessing as mp
+
+    if "forkserver" not in mp.get_all_start_methods():
+        return
+    from multiprocessing import forkserver
+
+    child_context()
+    forkserver.ensure_running()
 
 
 def _child_main(send: Any, target: Callable[..., Any], args: tuple[Any, ...]) -> None:

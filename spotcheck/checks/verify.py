@@ -163,6 +163,11 @@ def _verify_hex(
     full_reference: str | None,
 ) -> VerifyResult:
     t0 = time.perf_counter()
+    if full_reference is not None:
+        from .reference import CHILD_DIGITS, warm_children
+
+        if facts.checked >= CHILD_DIGITS:
+            warm_children()  # the full comparison's child: its start overlaps the windows
     w = clamp_window(window, facts.checked)
     rng = random.Random(seed)
     last_start = facts.checked - w + 1
