@@ -416,6 +416,7 @@ def _serve(conn: Any, n: int) -> None:
     import signal
 
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent decides; it terminates this process
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)  # a forked child may carry the parent's handler
     buf = bytearray(n)
     view, got = memoryview(buf), 0
     while got < n:

@@ -178,29 +178,42 @@ def run_in_child(
 def child_context() -> Any:
     """The multiprocessing context of every child process of the checks.
 
-    Not "fork": the parent may hold threads (flint's pool, the engine's, rich's
-    refresh) whose locks a forked child would inherit without the threads.  A
-    fork server instead: a fresh process that imports :data:`CHILD_PRELOAD`
-    once, and that each child is forked from, ready to compute.
+    A plain fork when this process has one thread (``/proc/self/task``): the
+    child starts at once with everything imported.  Otherwise a fork server:
+    the parent may hold threads (flint's pool, the engine's, rich's refresh)
+    whose locks a forked child would inherit without the threads; the server
+    is a fresh process that imports :data:`CHILD_PRELOAD` once, and each
+    child is forked from it, ready to compute.
     """
     import multiprocessing as mp
 
-    if "forkserver" not in mp.get_all_start_methods():
+    methods = mp.get_all_start_methods()
+    if "fork" in methods and _single_threaded():
+        return mp.get_context("fork")
+    if "forkserver" not in methods:
         return mp.get_context("spawn")
     ctx: Any = mp.get_context("forkserver")
     ctx.set_forkserver_preload(list(CHILD_PRELOAD))
     return ctx
 
 
+def _single_threaded() -> bool:
+    """Whether this process has exactly one thread, counted by the kernel (C threads included)."""
+    try:
+        return len(os.listdir("/proc/self/task")) == 1
+    except OSError:
+        return False
+
+
 def warm_children() -> None:
     """Start the fork server now, so that its start-up and imports overlap the caller's own work.
 
-    Call it where a child process will follow (a file large enough); without
-    a fork server (``spawn``) it does nothing.
+    Call it where a child process will follow (a file large enough).  Nothing
+    to do when children are plain forks (one thread) or spawned.
     """
     import multiprocessing as mp
 
-    if "forkserver" not in mp.get_all_start_methods():
+    if "forkserver" not in mp.get_all_start_methods() or _single_threaded():
         return
     from multiprocessing import forkserver
 
@@ -212,6 +225,7 @@ def _child_main(send: Any, target: Callable[..., Any], args: tuple[Any, ...]) ->
     import signal
 
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent decides; it terminates this process
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)  # a forked child may carry the parent's handler
     try:
         send.send(("ok", target(*args)))
     except BaseException as exc:  # handed to the parent, which raises it
