@@ -15,6 +15,9 @@ While the child converts, the parent computes the engine window the check is
 about to ask for (its end is known before the division; its start, within a
 few digits): the two run side by side on two CPUs.
 
+The division is by ``5^n``, not ``10^n``: ``V 16^h / 10^n = V 2^(4h-n) / 5^n``,
+the same quotient from a divisor 30% shorter.
+
 The decimal end, fast path.  With ``V`` the prefix (``n`` digits), ``h`` hex
 digits of precision, ``V 16^h = a 10^n + r`` and ``(V+1) 16^h = b 10^n + r'``,
 and ``X`` the first ``S = h + g`` hex digits of ``x`` (the verified ones and
@@ -140,10 +143,14 @@ def prefix_steps(
     n = len(digits)
     basis = n if basis is None else basis
     v = gmpy2.mpz(digits if basis == n else digits[:basis] or "0")
-    p10 = gmpy2.mpz(10) ** basis
+    # floor(V 16^h / 10^basis) by 5^basis: 10^b = 5^b 2^b, and 2^b is a shift of the dividend, so
+    # the divisor is 30% shorter.  With e = 4h - b: V 2^e = a 5^b + r5, and the remainder of the
+    # division by 10^b is r = r5 2^b (the fast test below uses r/10^b = r5/5^b).
+    p5 = gmpy2.mpz(5) ** basis
     h = _hex_precision(basis)
-    a, r = divmod(v << (4 * h), p10)  # the one big division
-    carry, r_b = divmod(r + (gmpy2.mpz(1) << (4 * h)), p10)  # small quotient: linear time
+    e = 4 * h - basis
+    a, r = divmod(v << e, p5)  # the one big division
+    carry, r_b = divmod(r + (gmpy2.mpz(1) << e), p5)  # small quotient: linear time
     b = a + carry
     # Hex digits the basis determines; none for a very short basis, and then
     # the engine alone pins x from digit 1 on.
@@ -154,8 +161,7 @@ def prefix_steps(
     # Engine digits through h_n + CONTINUATION_DIGITS pin x far below 10^-n.
     m = CONTINUATION_DIGITS + _hex_precision(n) - big_l
     win: WindowCheck | None = None
-    if basis < n:
-        p10 = gmpy2.mpz(10) ** n
+    p10 = p5 << basis if basis == n else gmpy2.mpz(10) ** n
     t_lo: Any = None
     settled = False
     while True:
@@ -180,8 +186,8 @@ def prefix_steps(
         if basis == n and not settled:
             g = 4 * (big_l + m - h)  # bits of x known past the division's precision
             if g > 0:
-                above = x >= (a << g) + ((r << g) // p10) + 1
-                below = x + 1 <= (b << g) + ((r_b << g) // p10)
+                above = x >= (a << g) + ((r << g) // p5) + 1
+                below = x + 1 <= (b << g) + ((r_b << g) // p5)
                 if above and below:  # floor(x 10^n) = V without computing x 10^n
                     t_lo = v
                     break
@@ -459,7 +465,7 @@ def _seconds_per_unit() -> float:
     n = CALIBRATION_DIGITS
     t0 = time.perf_counter()
     v = gmpy2.mpz("7" * n)
-    divmod(v << (4 * _hex_precision(n)), gmpy2.mpz(10) ** n)
+    divmod(v << (4 * _hex_precision(n) - n), gmpy2.mpz(5) ** n)
     return max(time.perf_counter() - t0, 1e-6) / (n * math.log2(n) ** 3)
 
 
