@@ -98,6 +98,18 @@ def _root(
     """Spot-check digit files of mathematical constants with certified digit extraction."""
 
 
+CheckpointOpt = Annotated[
+    str | None,
+    typer.Option(
+        "--checkpoint",
+        metavar="FILE|auto",
+        help="Keep finished head-sum blocks in FILE, one journal for every engine window the command "
+        "evaluates; the same command resumes after an interruption. 'auto': a file under the user's "
+        "cache directory named after the request (its path is printed).",
+    ),
+]
+
+
 @app.command()
 def digits(
     constant: Annotated[str, typer.Argument(help="Constant name (see `spotcheck constants`).")],
@@ -114,15 +126,7 @@ def digits(
     ] = False,
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
-    checkpoint: Annotated[
-        str | None,
-        typer.Option(
-            "--checkpoint",
-            metavar="FILE",
-            help="Keep finished head-sum blocks in FILE; the same command resumes after an interruption. "
-            "'auto': a file under the user's cache directory (its path is printed).",
-        ),
-    ] = None,
+    checkpoint: CheckpointOpt = None,
     cluster: Annotated[
         str | None,
         typer.Option(
@@ -295,15 +299,6 @@ ClusterOpt = Annotated[
         help="Run the head sums on a Dask scheduler, e.g. tcp://host:8786 (pip install 'spotcheck\\[cluster]').",
     ),
 ]
-WindowCheckpointOpt = Annotated[
-    str | None,
-    typer.Option(
-        "--checkpoint",
-        metavar="DIR|auto",
-        help="Keep each window's finished head-sum blocks, so a rerun resumes: one file per window in DIR, "
-        "or under the user's cache directory with 'auto'.",
-    ),
-]
 IgnoreLabelsOpt = Annotated[
     bool,
     typer.Option(
@@ -331,19 +326,23 @@ def _base(base: int | None) -> int | None:
     return base
 
 
-def _window_checkpoint(value: str | None) -> bool | str:
-    """``auto`` -> the cache directory; a path -> a directory of per-window files (a check has several)."""
+def _check_checkpoint(value: str | None) -> bool | str:
+    """``--checkpoint`` of a check: ``auto`` -> True (the cache-directory rule), else the journal file."""
     if value is None:
         return False
-    if value == "auto":
-        return True
-    if os.path.exists(value) and not os.path.isdir(value):
-        raise typer.BadParameter(
-            f"{value} is a file; a check evaluates several windows and keeps one checkpoint file each "
-            "in a directory (give a directory, or auto)",
-            param_hint="--checkpoint",
-        )
-    return value
+    return True if value == "auto" else value
+
+
+def _checkpoint_printer(silent: bool) -> Callable[[str], None]:
+    """Say which checkpoint file a check keeps (as ``digits`` does)."""
+
+    def say(path: str) -> None:
+        from spotcheck.report.console import info_line
+
+        if not silent:
+            info_line(f"checkpoint: {path}")
+
+    return say
 
 
 _typed_path: list[str] = []  # the FILE argument of the running command, as the user typed it
@@ -501,7 +500,7 @@ def verify(
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
     cluster: ClusterOpt = None,
-    checkpoint: WindowCheckpointOpt = None,
+    checkpoint: CheckpointOpt = None,
     as_json: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
@@ -533,7 +532,8 @@ def verify(
             ignore_labels=ignore_labels,
             labels=labels,
             cluster=cluster,
-            checkpoint=_window_checkpoint(checkpoint),
+            checkpoint=_check_checkpoint(checkpoint),
+            on_checkpoint=_checkpoint_printer(quiet or as_json),
             progress=cb,
         )
     repeat = _repeat_from(ctx, "verify", file, seed=seed)
@@ -564,7 +564,7 @@ def locate(
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
     cluster: ClusterOpt = None,
-    checkpoint: WindowCheckpointOpt = None,
+    checkpoint: CheckpointOpt = None,
     as_json: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
@@ -589,7 +589,8 @@ def locate(
             ignore_labels=ignore_labels,
             labels=labels,
             cluster=cluster,
-            checkpoint=_window_checkpoint(checkpoint),
+            checkpoint=_check_checkpoint(checkpoint),
+            on_checkpoint=_checkpoint_printer(quiet or as_json),
             progress=cb,
         )
     repeat = _repeat_from(ctx, "locate", file)

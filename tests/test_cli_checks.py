@@ -249,3 +249,26 @@ def test_labels_shifted_by_a_deleted_digit(capsys, tmp_path) -> None:
     assert code == 1 and out.startswith("MISMATCH") and "LABELS DISAGREE  line 22" in out.splitlines()[1]
     code, payload = as_json(capsys, "verify", path, "--ignore-labels", "--seed", "3")
     assert code == 1 and payload["file"]["label_finding"] is None  # the digits are still wrong
+
+
+def test_checkpoint_auto_is_one_journal_per_check_request(capsys, tmp_path, monkeypatch) -> None:
+    # --checkpoint auto: the same rule in every command (the cache directory, a file named
+    # after the request); verify and locate of one file share it, so locate reads the tail
+    # window verify computed.
+    from .reference import pi_hex  # gmpy2/MPFR's pi
+
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    path = tmp_path / "pi-astray.txt"
+    digits = pi_hex(30_000)
+    path.write_text("3." + digits[:20_000] + digits[20_000:][::-1] + "\n")
+    code, _, err = cli(capsys, "verify", path, "--budget", "0", "--samples", "1", "--checkpoint", "auto")
+    assert code == 1
+    said = [ln.split("checkpoint: ", 1)[1] for ln in err.splitlines() if ln.startswith("checkpoint: ")]
+    assert len(said) == 1 and Path(said[0]).parent == tmp_path / "cache" / "spotcheck"
+    assert "pi-bellard-pi-astray_txt-n30000-" in Path(said[0]).name
+    code, payload = as_json(capsys, "locate", path, "--budget", "0", "--checkpoint", "auto")
+    assert code == 1 and payload["first_mismatch"] == 20_001
+    assert [p.name for p in (tmp_path / "cache" / "spotcheck").iterdir()] == [Path(said[0]).name]
+    code, _, err = cli(capsys, "digits", "pi", "--at", "20000", "--count", "8", "--checkpoint", "auto")
+    assert code == 0 and "-at20000-n8-" in err  # digits: its own request, its own file, same place
+    assert len(list((tmp_path / "cache" / "spotcheck").iterdir())) == 2

@@ -155,7 +155,7 @@ def test_verify_and_locate_on_a_cluster(cluster, tmp_path, capsys) -> None:
     assert json.loads(capsys.readouterr().out)["first_mismatch"] == 40_001
 
 
-def test_verify_checkpoint_auto_keeps_each_window(tmp_path, monkeypatch, capsys) -> None:
+def test_verify_checkpoint_auto_keeps_one_journal(tmp_path, monkeypatch, capsys) -> None:
     from spotcheck.cli import run
 
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
@@ -165,7 +165,10 @@ def test_verify_checkpoint_auto_keeps_each_window(tmp_path, monkeypatch, capsys)
     args = ["verify", str(path), "--checkpoint", "auto", "--samples", "2", "--seed", "4", "--budget", "0"]
     assert run([*args, "--quiet"]) == 0
     kept = sorted((tmp_path / "cache" / "spotcheck").glob("*.json"))
-    assert len(kept) >= 3  # head, tail and two samples: one file per window
-    (tmp_path / "one.json").write_text("{}")  # a file: a check keeps one file per window in a directory
+    assert len(kept) == 1  # head, tail and two samples: one journal for the check
+    sections = [ln for ln in kept[0].read_text().splitlines() if ln.startswith('{"section"')]
+    assert len(sections) >= 3
+    (tmp_path / "one.json").write_text("{}")  # not a journal: refused, left alone
     assert run(["verify", str(path), "--checkpoint", str(tmp_path / "one.json")]) == 2
-    assert "--checkpoint" in capsys.readouterr().err
+    assert "refused" in capsys.readouterr().err
+    assert (tmp_path / "one.json").read_text() == "{}"

@@ -189,3 +189,112 @@ def test_rounded_last_digit_is_named_as_rounding(workdir, capsys, n) -> None:
     truncated_wrong = true[: m - 1] + str((int(true[m - 1]) + 2) % 10)  # not a rounding
     v = verify_file(str(write_dec(workdir, truncated_wrong)), seed=1, samples=2)
     assert v.exit_code == 1 and v.rounded_from is None
+
+
+# --- where the conversion runs, and the fast decimal end ----------------------------------------
+
+
+@pytest.fixture
+def child_conversions(monkeypatch):
+    """Every conversion of a file of 1,000 digits or more in a child process (as at 10^8)."""
+    from spotcheck.checks import radix
+
+    monkeypatch.setattr(radix, "CHILD_DIGITS", 1000)
+    return radix
+
+
+def test_child_conversion_gives_the_inline_results(workdir, child_conversions) -> None:
+    digits = truth()[:20_000]
+    damaged = digits[:12_344] + ("0" if digits[12_344] != "0" else "1") + digits[12_345:]
+    for text, first in ((digits, None), (damaged, 12_345)):
+        path = write_dec(workdir, text)
+        v = verify_file(str(path), samples=2, seed=3)
+        loc = locate_file(str(path))
+        assert loc.first_mismatch == first and v.exit_code == (first is not None)
+        if first is not None:
+            assert v.first_wrong_bracket is not None and v.first_wrong_bracket[0] <= first
+            assert loc.expected[0] == digits[first - 1] and loc.found[0] == damaged[first - 1]
+        inline = child_conversions.InlineConverter(text)
+        child = child_conversions.ChildConverter(lambda t=text: iter([(1, t)]), len(text))
+        from spotcheck.checks.common import HexOracle
+
+        oracle = HexOracle("pi", "bellard")
+        try:
+            for length, basis in ((len(text), None), (15_000, None), (12_360, 12_344), (9_000, None)):
+                a = inline.check(length, oracle.digits, 16, "x", basis=basis)
+                b = child.check(length, oracle.digits, 16, "x", basis=basis)
+                assert a == b
+            assert child.check(len(text), oracle.digits, 16, "x", suffix="0") == inline.check(
+                len(text), oracle.digits, 16, "x", suffix="0"
+            )
+        finally:
+            child.close()
+        assert child.peak_bytes is not None and child.peak_bytes > 0
+
+
+def test_child_error_is_raised_in_the_caller(child_conversions) -> None:
+    from spotcheck.checks.common import HexOracle
+
+    child = child_conversions.ChildConverter(lambda: iter([(1, "14159x" * 300)]), 1800)
+    try:
+        with pytest.raises(ValueError):  # gmpy2 refuses a non-digit: raised here, not lost in the child
+            child.check(1800, HexOracle("pi", "bellard").digits, 16, "tail")
+    finally:
+        child.close()
+
+
+@settings(max_examples=4 * EXAMPLES, deadline=None)
+@given(length=st.integers(60, 3000), back=st.integers(0, 40), delta=st.integers(0, 9))
+@example(length=766, back=0, delta=0)  # ends inside the run of 9s: the fast test cannot settle it
+@example(length=767, back=0, delta=1)
+@example(length=3000, back=0, delta=1)  # the last digit
+def test_decimal_end_matches_iff_every_digit_is_right(length, back, delta) -> None:
+    # Truth: MPFR's pi (tests/reference.py).  Damage in the last digits, where only the decimal
+    # end (fast test or exact recomputation) can see it.
+    from spotcheck.checks.common import HexOracle
+
+    digits = truth()[:length]
+    q = max(1, length - back)
+    text = digits[: q - 1] + str((int(digits[q - 1]) + delta) % 10) + digits[q:]
+    out = decimal_mod.prefix_check(text, HexOracle("pi", "bellard"), 16, "tail")
+    assert out.match == (text == digits)
+    if text != digits and out.window is not None and out.window.match:
+        assert out.first_wrong == q
+
+
+def test_progress_moves_during_a_long_conversion(workdir) -> None:
+    # 4*10^6 digits (pi's first 1,000 from MPFR, then seeded random ones): the conversion runs in
+    # the child for a good part of a second, and the bar moves meanwhile, from a calibrated estimate.
+    import random
+
+    table = bytes(48 + i % 10 for i in range(256))
+    n = 4_000_000
+    text = truth()[:1000] + random.Random(4).randbytes(n - 1000).translate(table).decode("ascii")
+    path = write_dec(workdir, text, width=100)
+    said: list[tuple[int, int]] = []
+    v = verify_file(str(path), samples=0, seed=1, progress=lambda d, t: said.append((d, t)))
+    assert v.exit_code == 1  # the random digits are no pi
+    total = said[-1][1]
+    assert said[-1][0] == total
+    assert any(0 < d < total for d, _ in said), said  # ticks inside the tail's conversion
+    assert [d for d, _ in said] == sorted(d for d, _ in said)  # never backwards
+
+
+def test_a_conversion_child_that_dies_is_one_clear_error(child_conversions) -> None:
+    # As when the kernel's out-of-memory killer ends the child mid-conversion.
+    import os
+    import signal
+
+    from spotcheck.checks.common import HexOracle
+
+    oracle = HexOracle("pi", "bellard")
+    digits = truth()[:50_000]
+    child = child_conversions.ChildConverter(lambda: iter([(1, digits)]), len(digits))
+
+    def engine(position: int, count: int) -> str:
+        os.kill(child._proc.pid, signal.SIGKILL)  # asked for the window ahead: the child is converting
+        return oracle.digits(position, count)
+
+    with pytest.raises(UsageError, match="stopped .*out of memory") as info:
+        child.check(len(digits), engine, 16, "tail")
+    assert info.value.parameter == "limit" and child._proc is None  # cleaned up

@@ -22,6 +22,8 @@ import pytest
 from spotcheck.checks.reference import reference_digits
 from spotcheck.checks.schema import REPORT_SCHEMA
 
+from .reference import pi_decimal
+
 pytestmark = pytest.mark.slow
 
 N = 4_000_000
@@ -42,6 +44,25 @@ def files(tmp_path_factory) -> dict[str, Path]:
     out["astray"] = d / "astray.txt"
     out["astray"].write_text("3." + astray + "\n")
     return out
+
+
+N_DECIMAL = 40_000_000  # its radix conversion takes about 6 s on this project's machine
+
+
+@pytest.fixture(scope="module")
+def decimal_file(tmp_path_factory) -> Path:
+    """pi's first 1,000 decimal digits (MPFR), then seeded random ones: the conversion costs the same."""
+    import random
+
+    table = bytes(48 + i % 10 for i in range(256))
+    rest = random.Random(12).randbytes(N_DECIMAL - 1000).translate(table).decode("ascii")
+    body = pi_decimal(1000) + rest
+    path = tmp_path_factory.mktemp("interrupt-decimal") / "pi-then-random.txt"
+    with open(path, "w") as fh:
+        fh.write("3.\n")
+        for i in range(0, N_DECIMAL, 100):
+            fh.write(body[i : i + 100] + "\n")
+    return path
 
 
 def interrupted_run(*args: str, sig: signal.Signals = signal.SIGINT) -> tuple[int, dict, float]:
@@ -88,3 +109,13 @@ def test_locate_interrupted_in_its_full_comparison(files) -> None:
     assert payload["interrupted"] and payload["verdict"] == "incomplete" and code == 130
     kinds = {c["kind"]: c["match"] for c in payload["checks"]}
     assert kinds["tail"] and kinds["head"]  # the windows compared before Ctrl-C are reported
+
+
+def test_verify_interrupted_in_the_radix_conversion(decimal_file) -> None:
+    # The conversion of 4*10^7 decimal digits is one long GMP call; it runs in a child process,
+    # so Ctrl-C reaches the parent at once and the report keeps the decimal head it checked.
+    code, payload, elapsed = interrupted_run("verify", str(decimal_file), "--samples", "0", "--seed", "1")
+    assert elapsed < 2.0
+    assert payload["interrupted"] and payload["verdict"] == "incomplete" and code == 130
+    kinds = {c["kind"]: c for c in payload["checks"]}
+    assert kinds["head"]["match"] and "tail" not in kinds  # the head was established, the tail not reached

@@ -614,3 +614,77 @@ def test_ctrl_c_and_sigterm_stop_within_one_block(tmp_path: Path, sig: signal.Si
     assert 5 <= len(kept) < len(all_blocks(path))
     result = extract("pi", POSITION, 14, checkpoint=path, block_k=256)
     assert result.digits == EXPECTED and result.blocks_loaded == len(kept)
+
+
+# --- one journal for every window of a check (verify, locate) -----------------------------------
+
+
+def test_check_journal_resumes_across_windows_after_an_interruption(tmp_path: Path, monkeypatch) -> None:
+    from spotcheck.checks import common, verify_file
+
+    digits = pi_hex(30_000)  # gmpy2/MPFR's pi
+    path = tmp_path / "pi.txt"
+    path.write_text("3." + digits + "\n")
+    journal = tmp_path / "check.journal"
+    real = common.extract
+    calls: list[tuple[int, int, int]] = []  # (position, blocks loaded, blocks computed)
+
+    def stop_at_third(*args, **kw):
+        if len(calls) == 3:  # head, tail and a sample done (the head at position 1 has no blocks)
+            raise KeyboardInterrupt
+        r = real(*args, **kw)
+        calls.append((r.position, r.blocks_loaded, r.blocks_computed))
+        return r
+
+    monkeypatch.setattr(common, "extract", stop_at_third)
+    args = dict(samples=3, seed=9, budget=0.0, checkpoint=str(journal))
+    first = verify_file(str(path), **args)
+    assert first.interrupted and len(calls) == 3 and all(loaded == 0 for _, loaded, _ in calls)
+    lines, torn = read_lines(journal)
+    assert torn == b"" and all(line is not None for line in lines)
+    assert lines[0]["request"]["file"]["checked"] == 30_000  # a check's request names its file
+    sections = [ln["section"] for ln in lines if ln and "section" in ln]
+    done = {p for p, _, computed in calls if computed}
+    assert len(done) == 2 and len(sections) == 2  # the windows finished before the interruption, one file
+
+    calls.clear()
+    monkeypatch.setattr(common, "extract", lambda *a, **kw: _record(real, calls, *a, **kw))
+    again = verify_file(str(path), **args)
+    assert not again.interrupted and again.exit_code == 0
+    for position, loaded, computed in calls:
+        if position in done:  # read back, nothing computed again
+            assert loaded > 0 and computed == 0
+        elif position > 1:
+            assert computed > 0 and loaded == 0
+    assert len(calls) == 2 + 3  # head, tail and three samples
+    sections = [ln["section"] for ln in read_lines(journal)[0] if ln and "section" in ln]
+    assert len(sections) == 4  # every window with a head sum (all but position 1), in the one journal
+
+
+def _record(real, calls, *args, **kw):
+    r = real(*args, **kw)
+    calls.append((r.position, r.blocks_loaded, r.blocks_computed))
+    return r
+
+
+def test_check_journal_refuses_another_request(tmp_path: Path, capsys) -> None:
+    from spotcheck.cli import run
+
+    one, two = tmp_path / "one.txt", tmp_path / "two.txt"
+    one.write_text("3." + pi_hex(20_000) + "\n")
+    two.write_text("3." + pi_hex(21_000) + "\n")
+    journal = tmp_path / "j"
+    assert run(["verify", str(one), "--budget", "0", "--samples", "1", "--checkpoint", str(journal)]) == 0
+    before = journal.read_bytes()
+    capsys.readouterr()
+    for argv in (
+        ["verify", str(two), "--checkpoint", str(journal)],  # another file
+        ["locate", str(one), "--formula", "bbp", "--checkpoint", str(journal)],  # another formula
+        ["digits", "pi", "--at", "1000", "--count", "8", "--checkpoint", str(journal)],  # not a check
+    ):
+        assert run(argv) == 2
+        err = [ln for ln in capsys.readouterr().err.splitlines() if ln.startswith("error:")]
+        assert len(err) == 1 and "refused" in err[0] and "another request" in err[0], err
+    assert journal.read_bytes() == before  # left alone
+    assert run(["verify", str(one), "--checkpoint", str(tmp_path)]) == 2  # a directory is no journal
+    assert "is a directory" in capsys.readouterr().err

@@ -8,7 +8,15 @@ from dataclasses import dataclass, field
 from typing import Any, TypeVar
 
 from spotcheck.digitfile import DigitFile, open_digit_file
-from spotcheck.engine.api import estimate_cost, extract, leading_digits, refuse_if_infeasible
+from spotcheck.engine.api import (
+    checkpoint_request,
+    estimate_cost,
+    extract,
+    leading_digits,
+    refuse_if_infeasible,
+    resolve_formula,
+)
+from spotcheck.engine.journal import Journal, request_path
 from spotcheck.engine.plan import CostEstimate
 from spotcheck.errors import UsageError
 from spotcheck.formulas import get_constant
@@ -138,8 +146,10 @@ class CheckRun:
     def __enter__(self) -> CheckRun:
         return self
 
-    def __exit__(self, *exc: object) -> None:
+    def __exit__(self, kind: object, *exc: object) -> None:
         self.df.close()
+        if self.oracle.journal is not None:  # compacted unless an error is on its way out
+            self.oracle.journal.close(compact=kind is None)
 
 
 def open_run(
@@ -155,12 +165,17 @@ def open_run(
     cluster: Any = None,
     checkpoint: bool | str = False,
     on_estimate: Callable[[CostEstimate], None] | None = None,
+    on_checkpoint: Callable[[str], None] | None = None,
 ) -> CheckRun:
     """Open a file for a check (:func:`open_checked`) with an oracle for its constant and formula.
 
     For a hex file the cost of its deepest window (the tail's) is estimated
     before any work and handed to ``on_estimate``; a file whose tail cannot
     be evaluated in any reasonable time is refused (:class:`InfeasibleError`).
+    ``checkpoint`` (a file path, or True for :func:`check_checkpoint_path`)
+    is one journal for every engine window of the check, opened (or refused,
+    :class:`CheckpointError`) here, before any work; its path goes to
+    ``on_checkpoint``.
     """
     df, facts = open_checked(
         path,
@@ -171,17 +186,60 @@ def open_run(
         ignore_labels=ignore_labels,
         labels=labels,
     )
-    oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, checkpoint=checkpoint)
+    journal: Journal | None = None
     try:
         estimate = tail_estimate(
             facts, workers=workers, cluster=cluster is not None, checkpoint=bool(checkpoint)
         )
+        if checkpoint and get_constant(facts.constant).evaluation is None:
+            path = check_checkpoint_path(facts) if checkpoint is True else str(checkpoint)
+            journal = check_journal(path, facts)
     except BaseException:
         df.close()
         raise
+    oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, journal=journal)
     if estimate is not None and on_estimate is not None:
         on_estimate(estimate)
+    if journal is not None and on_checkpoint is not None:
+        on_checkpoint(str(journal.path))
     return CheckRun(df, facts, oracle, estimate)
+
+
+def check_checkpoint_request(facts: FileFacts) -> dict[str, Any]:
+    """What a check's journal is keyed by: the constant, its formula (with its coefficients) and the file.
+
+    The file is named by its absolute path, size in bytes and the digits under
+    check, so a journal made for another file (or a ``digits`` journal) is
+    refused, never mixed in.
+    """
+    import os
+
+    name, f = resolve_formula(facts.constant, facts.formula)
+    request = checkpoint_request(name, f, 1, 1)
+    del request["position"], request["count"]
+    request["file"] = {
+        "path": os.path.abspath(facts.path),
+        "size_bytes": facts.size_bytes,
+        "checked": facts.checked,
+    }
+    return request
+
+
+def check_checkpoint_path(facts: FileFacts) -> str:
+    """The journal ``checkpoint=True`` (``--checkpoint auto``) uses for a check: the cache-directory rule of
+    :func:`spotcheck.engine.journal.request_path`, labelled by constant, formula and file name."""
+    import os
+
+    label = f"{facts.constant}-{facts.formula}-{os.path.basename(facts.path)}-n{facts.checked}"
+    return str(request_path(label, check_checkpoint_request(facts)))
+
+
+def check_journal(path: str, facts: FileFacts) -> Journal:
+    """The one journal of a check's engine windows (opened, or refused before any work)."""
+    from spotcheck.engine.series import series_of
+
+    _, f = resolve_formula(facts.constant, facts.formula)
+    return Journal(path, series_of(f), check_checkpoint_request(facts))
 
 
 ResultT = TypeVar("ResultT", VerifyResult, LocateResult)
@@ -233,16 +291,20 @@ class HexOracle:
     workers: int = 1
     cluster: Any = None
     """A Dask scheduler address (or Client) for the head sums of deep windows."""
-    checkpoint: bool | str = False
-    """Keep each window's finished head-sum blocks: True under the cache directory, or a
-    directory path (one file per window, named as under the cache directory)."""
+    journal: Journal | None = None
+    """The check's one checkpoint journal: every window's finished head-sum blocks."""
     evaluations: int = 0
     engine_seconds: float = 0.0
     _cache: dict[tuple[int, int], str] = field(default_factory=dict)
 
     def digits(self, position: int, count: int) -> str:
+        """Certified hex digits ``position .. position + count - 1``; a window already computed
+        that covers them serves them (certified digits do not depend on the window)."""
         key = (position, count)
         if key not in self._cache:
+            for (p0, c0), held in self._cache.items():
+                if p0 <= position and position + count <= p0 + c0:
+                    return held[position - p0 : position - p0 + count]
             t0 = time.perf_counter()
             r = extract(
                 self.constant,
@@ -251,25 +313,12 @@ class HexOracle:
                 formula=self.formula,
                 workers=self.workers,
                 cluster=self.cluster,
-                checkpoint=self._checkpoint_path(position, count),
+                checkpoint=self.journal,
             )
             self.engine_seconds += time.perf_counter() - t0
             self.evaluations += 1
             self._cache[key] = r.digits
         return self._cache[key]
-
-    def _checkpoint_path(self, position: int, count: int) -> bool | str | None:
-        if not self.checkpoint:
-            return None
-        if self.checkpoint is True:
-            return True
-        import os
-
-        from spotcheck.engine.api import default_checkpoint_path
-
-        name = default_checkpoint_path(self.constant, position, count, formula=self.formula).name
-        os.makedirs(self.checkpoint, exist_ok=True)
-        return os.path.join(str(self.checkpoint), name)
 
     def compare(self, df: DigitFile, kind: str, position: int, count: int, note: str = "") -> WindowCheck:
         count = min(count, df.count - position + 1)
@@ -295,16 +344,30 @@ def clamp_window(window: int, count: int) -> int:
     return min(window, count)
 
 
+def _part(progress: Progress, done: int, weight: int, total: int) -> Callable[[float], None]:
+    """The bar's callback inside one planned check of ``weight`` units, ``done`` before it."""
+
+    def say(fraction: float) -> None:
+        progress(done + int(weight * min(max(fraction, 0.0), 0.99)), total)
+
+    return say
+
+
 def run_plan(
     plan: Plan,
     check: Callable[[str, int], None],
     draw: Callable[[], int],
     budget: float | None,
     progress: Progress | None,
+    *,
+    within: list[Callable[[float], None] | None] | None = None,
 ) -> tuple[int, bool]:
     """Run ``check(kind, where)`` for each planned check, then random draws while ``budget`` allows.
 
     Ctrl-C stops cleanly.  Returns ``(random windows checked, interrupted)``.
+    ``within``, if given, is a one-item list that holds, during each planned
+    check, a callable taking the fraction of that check done (so a long check
+    can move the bar); None between checks.
     """
     t0 = time.perf_counter()
     random_windows = 0
@@ -314,7 +377,11 @@ def run_plan(
     total, done = sum(weights), 0
     try:
         for (kind, where), weight in zip(plan, weights):
+            if within is not None and progress is not None:
+                within[0] = _part(progress, done, weight, total)
             check(kind, where)
+            if within is not None:
+                within[0] = None
             random_windows += kind == "sample"
             done += weight
             if progress:

@@ -24,13 +24,9 @@ arithmetic decide; a decimal end that cannot be settled is reported as such.
 
 from __future__ import annotations
 
-import math
 import random
 import time
-from collections.abc import Sequence
-from dataclasses import dataclass
-
-import gmpy2
+from collections.abc import Callable, Sequence
 
 from spotcheck.digitfile import DigitFile
 from spotcheck.engine.api import leading_digits
@@ -45,21 +41,24 @@ from .common import (
     needs,
     run_plan,
 )
+from .radix import Converter, PrefixOutcome, open_converter, prefix_steps, run_inline
 from .reference import memory_budget
 from .results import FileFacts, LocateResult, VerifyResult, WindowCheck
 
-__all__ = ["prefix_check", "verify_decimal", "locate_decimal", "estimate_conversion_bytes"]
+__all__ = [
+    "prefix_check",
+    "PrefixOutcome",
+    "verify_decimal",
+    "locate_decimal",
+    "estimate_conversion_bytes",
+]
 
 # --- tuning -----------------------------------------------------------------
-CONTINUATION_DIGITS = 16  # engine hex digits after the determined ones (first try)
-MAX_CONTINUATION = 256  # give up settling the decimal end beyond this
-# Peak bytes per decimal digit converted: the digit string, the big integer
-# (0.42 bytes/digit) and the products and quotients of the conversion; an
-# estimate rounded up from the figures of benchmarks/decimal.py.
-BYTES_PER_DIGIT = 10
+# Peak bytes per decimal digit converted (the child's digit string, the big
+# integer, 10^n, the quotient and the division's temporaries), rounded up
+# from the figures of benchmarks/radix.py.
+BYTES_PER_DIGIT = 7
 # ---------------------------------------------------------------------------
-
-_LOG2_10 = math.log2(10)
 
 
 def estimate_conversion_bytes(n: int) -> int:
@@ -78,42 +77,9 @@ def _check_memory(n: int) -> None:
         )
 
 
-@dataclass(frozen=True)
-class PrefixOutcome:
-    window: WindowCheck | None
-    """The hex-window comparison (None when the prefix determines no hex digit)."""
-    end: WindowCheck | None
-    """The decimal-end comparison (None when the window differs or it could not be settled)."""
-
-    @property
-    def rows(self) -> list[WindowCheck]:
-        """The comparisons made, for a report's list of checks."""
-        return [c for c in (self.window, self.end) if c is not None]
-
-    @property
-    def match(self) -> bool:
-        return all(c is None or c.match for c in (self.window, self.end))
-
-    @property
-    def first_wrong(self) -> int | None:
-        return self.end.first_difference if self.end is not None and not self.end.match else None
-
-
-def _first_decimal_difference(a: str, b: str) -> int | None:
-    """1-based index of the first difference of two equal-length digit strings."""
-    if a == b:
-        return None
-    lo, hi = 0, len(a)
-    while hi - lo > 64:  # halve towards the first difference
-        mid = (lo + hi) // 2
-        if a[lo:mid] != b[lo:mid]:
-            hi = mid
-        else:
-            lo = mid
-    for i in range(lo, hi):
-        if a[i] != b[i]:
-            return i + 1
-    return None
+def _converter(df: DigitFile, n: int) -> Converter:
+    """The file's first ``n`` digits where their conversions run (a child process for large files)."""
+    return open_converter(n, df.read, lambda: df.iter_chunks(1 << 22))
 
 
 def prefix_check(
@@ -124,77 +90,14 @@ def prefix_check(
     The first ``basis`` digits (default: all) pin ``x`` through their hex
     window; the decimal end is then recomputed for all of ``digits``, so with
     a ``basis`` known to be right, the expected digits past it come out too.
+    Runs in this process (:mod:`spotcheck.checks.radix` has the steps, and
+    the child process that serves whole files).
+
+    >>> from spotcheck.checks.common import HexOracle
+    >>> prefix_check("14159265358979323846", HexOracle("pi", "bellard"), 8, "tail").match
+    True
     """
-    n = len(digits)
-    basis = n if basis is None else basis
-    whole = gmpy2.mpz(digits)
-    v = whole if basis == n else gmpy2.mpz(digits[:basis] or "0")
-    p10_basis = gmpy2.mpz(10) ** basis
-    p10 = p10_basis
-    h = int(basis * _LOG2_10) // 4 + 2
-    a, r = divmod(v << (4 * h), p10)  # one big division serves both ends
-    b = a + (r + (1 << (4 * h))) // p10
-    # Hex digits the basis determines; none for a very short basis, and then
-    # the engine alone pins x from digit 1 on.
-    big_l = max(0, (4 * h - (a ^ b).bit_length()) // 4) if basis else 0
-    big_a = a >> (4 * (h - big_l))
-    w = min(window, big_l)
-    found_hex = format(int(big_a & ((1 << (4 * w)) - 1)), "X").zfill(w) if w else ""
-    # Enough engine digits past the determined ones to pin x far below 10^-n.
-    m = CONTINUATION_DIGITS + max(0, math.ceil(n * _LOG2_10 / 4) - big_l)
-    win: WindowCheck | None = None
-    p10 = p10_basis if basis == n else gmpy2.mpz(10) ** n  # 10^n once for a whole-file check
-    while True:
-        engine = oracle.digits(big_l - w + 1, w + m)
-        if w:
-            expected_hex = engine[:w]
-            diff = first_difference(expected_hex, found_hex, big_l - w + 1)
-            win = WindowCheck(
-                kind=kind,
-                position=big_l - w + 1,
-                expected=expected_hex,
-                found=found_hex,
-                match=diff is None,
-                first_difference=diff,
-                note=f"hex digits determined by the first {basis:,} decimal digits",
-                base=16,
-                prefix=basis,
-            )
-            if diff is not None:
-                return PrefixOutcome(win, None)
-        x = (big_a << (4 * m)) | int(engine[w:], 16)
-        shift = 4 * (big_l + m)
-        prod = x * p10
-        t_lo, t_hi = prod >> shift, (prod + p10) >> shift
-        if t_lo == t_hi:
-            break
-        if m >= MAX_CONTINUATION:  # x is extraordinarily close to a decimal boundary
-            return PrefixOutcome(win, None)
-        m *= 2
-    tail_w = min(window, n)
-    if t_lo == whole:  # the common case: no decimal string of the full length needed
-        expected_dec = digits[n - tail_w :].rjust(n)
-        q = None
-    else:
-        expected_dec = gmpy2.mpz(t_lo).digits(10).zfill(n)
-        q = _first_decimal_difference(expected_dec, digits)
-    start = n - tail_w + 1 if q is None else q
-    end = WindowCheck(
-        kind=kind,
-        position=start,
-        expected=expected_dec[start - 1 : start - 1 + tail_w],
-        found=digits[start - 1 : start - 1 + tail_w],
-        match=q is None,
-        first_difference=q,
-        note=f"decimal digits recomputed from the verified hex digits and {m} engine digits",
-        base=10,
-        prefix=n,
-    )
-    return PrefixOutcome(win, end)
-
-
-def _read_prefix(df: DigitFile, n: int) -> str:
-    return df.read(1, n)
+    return run_inline(prefix_steps(digits, window, kind, basis), oracle.digits)
 
 
 def _head_check(facts: FileFacts, df: DigitFile, w: int) -> WindowCheck:
@@ -225,21 +128,31 @@ def verify_decimal(
     checks: list[WindowCheck] = []
     checks.extend(common_rows(facts))
     checks.append(_head_check(facts, df, w))
-    digits = _read_prefix(df, n)
+    conv = _converter(df, n)
     plan: list[tuple[str, int]] = [("tail", n)]
     plan += [("user", min(n, p + w - 1)) for p in at]
     lo = min(n, 2 * w)
     plan += sorted(("sample", rng.randint(lo, n)) for _ in range(samples))
 
+    within: list[Callable[[float], None] | None] = [None]
+
     def check(kind: str, length: int) -> None:
-        out = prefix_check(digits[:length], oracle, w, kind)
+        out = conv.check(length, oracle.digits, w, kind, tick=within[0])
         checks.extend(out.rows)
 
-    random_windows, interrupted = run_plan(plan, check, lambda: rng.randint(lo, n), budget, progress)
-    bracket = decimal_bracket(checks, n)
-    rounded = None
-    if bracket is not None and bracket[0] == bracket[1] and not interrupted:
-        rounded = _rounded_last_digits(digits, bracket[0], oracle, w)
+    try:
+        random_windows, interrupted = run_plan(
+            plan, check, lambda: rng.randint(lo, n), budget, progress, within=within
+        )
+        bracket = decimal_bracket(checks, n)
+        rounded = None
+        if bracket is not None and bracket[0] == bracket[1] and not interrupted:
+            try:
+                rounded = _rounded_last_digits(conv, df, n, bracket[0], oracle, w)
+            except KeyboardInterrupt:
+                interrupted = True
+    finally:
+        conv.close()
     return VerifyResult(
         file=facts,
         checks=checks,
@@ -284,17 +197,18 @@ def decimal_bracket(checks: Sequence[WindowCheck], n: int) -> tuple[int, int] | 
     return good + 1, min(bad, n)
 
 
-def _rounded_last_digits(digits: str, first: int, oracle: HexOracle, w: int) -> int | None:
+def _rounded_last_digits(
+    conv: Converter, df: DigitFile, n: int, first: int, oracle: HexOracle, w: int
+) -> int | None:
     """``first`` when digits ``first..n`` are the true ones rounded up at the last digit, else None.
 
     Digits ``1..first-1`` are known right; the true digits ``first..n+1`` are
     recomputed from them and engine digits, and the file's ``first..n`` must
     equal the true ``first..n`` plus one, with true digit ``n+1`` at least 5.
     """
-    n = len(digits)
     if n - first + 2 > w or first < 1:
         return None
-    out = prefix_check(digits + "0", oracle, max(w, n - first + 2), "confirm", basis=first - 1)
+    out = conv.check(n, oracle.digits, max(w, n - first + 2), "confirm", basis=first - 1, suffix="0")
     end = out.end
     if end is None or end.position > first:
         return None
@@ -302,7 +216,7 @@ def _rounded_last_digits(digits: str, first: int, oracle: HexOracle, w: int) -> 
     if len(true) != n - first + 2:
         return None
     upper, next_digit = true[:-1], int(true[-1])
-    found = digits[first - 1 :]
+    found = df.read(first, n - first + 1)
     if next_digit >= 5 and int(found) == int(upper) + 1 and len(str(int(upper) + 1)) <= len(found):
         return first
     return None
@@ -331,21 +245,23 @@ def locate_decimal(
     w = clamp_window(window, n)
     checks: list[WindowCheck] = []
     checks.extend(common_rows(facts))
-    digits = _read_prefix(df, n)
+    conv = _converter(df, n)
     steps = max(1, n.bit_length() + 1)
     interrupted = False
     first: int | None = None
     bad_end: WindowCheck | None = None
     good, bad = 0, 0
+    rounded: int | None = None
     try:
-        whole = prefix_check(digits, oracle, w, "tail")
+        tail_tick = (lambda f: progress(int(f * steps / 2), steps)) if progress else None
+        whole = conv.check(n, oracle.digits, w, "tail", tick=tail_tick)
         checks.extend(whole.rows)
         if not whole.match:
             good, bad = 0, n  # prefix `good` passes, prefix `bad` fails
             bad_end = whole.end
             while bad - good > 1:
                 mid = (good + bad) // 2
-                out = prefix_check(digits[:mid], oracle, w, "bisection")
+                out = conv.check(mid, oracle.digits, w, "bisection")
                 checks.extend(out.rows)
                 if out.match:
                     good = mid
@@ -356,14 +272,17 @@ def locate_decimal(
             # Prefix `bad` = good + 1 fails and prefix `good` passes, so digit `bad` is wrong.
             # Convert a prefix reaching a window past it to recompute the expected digits there.
             first = bad
-            out = prefix_check(digits[: min(n, bad + w - 1)], oracle, w, "confirm", basis=good)
+            out = conv.check(min(n, bad + w - 1), oracle.digits, w, "confirm", basis=good)
             checks.extend(out.rows)
             bad_end = out.end
+            rounded = _rounded_last_digits(conv, df, n, first, oracle, w)
     except KeyboardInterrupt:
         interrupted = True
+    finally:
+        conv.close()
     if first is not None:
         expected = bad_end.expected if bad_end is not None and bad_end.position == first else ""
-        found = digits[first - 1 : first - 1 + w]
+        found = df.read(first, min(w, n - first + 1))
         how_expected = (
             "expected digits recomputed from the verified prefix and engine digits"
             if expected
@@ -409,7 +328,5 @@ def locate_decimal(
         explanation=explanation,
         first_is_certain=first is not None,
         first_wrong_bracket=(good + 1, bad) if first is None and bad else None,
-        rounded_from=_rounded_last_digits(digits, first, oracle, w)
-        if first is not None and not interrupted
-        else None,
+        rounded_from=rounded if first is not None and not interrupted else None,
     )

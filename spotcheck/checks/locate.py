@@ -48,8 +48,13 @@ def locate_file(
     checkpoint: bool | str = False,
     progress: Progress | None = None,
     on_estimate: Callable[[CostEstimate], None] | None = None,
+    on_checkpoint: Callable[[str], None] | None = None,
 ) -> LocateResult:
-    """Find the first wrong digit of a digit file (1-based position), or say what was ruled out."""
+    """Find the first wrong digit of a digit file (1-based position), or say what was ruled out.
+
+    ``checkpoint``: one journal file for every engine window, as in
+    :func:`spotcheck.checks.verify.verify_file`.
+    """
     run = open_run(
         path,
         base=base,
@@ -62,6 +67,7 @@ def locate_file(
         cluster=cluster,
         checkpoint=checkpoint,
         on_estimate=on_estimate,
+        on_checkpoint=on_checkpoint,
     )
     df, facts, oracle = run.df, run.facts, run.oracle
     with run:

@@ -36,6 +36,8 @@ MEMORY_SHARE = 0.7
 # Digits beyond which the computation runs in a child process (stoppable by
 # Ctrl-C); below, starting a process costs more than the computation.
 CHILD_DIGITS = 100_000
+# Modules the process that children fork from imports once, before any child.
+CHILD_PRELOAD = ("spotcheck.checks.reference", "spotcheck.checks.radix", "flint", "gmpy2")
 # ---------------------------------------------------------------------------
 
 
@@ -145,12 +147,7 @@ def run_in_child(
     target: Callable[..., Any], args: tuple[Any, ...], tick: Callable[[float], None] | None
 ) -> Any:
     """``target(*args)`` in a child process that an interruption of the caller terminates."""
-    import multiprocessing as mp
-
-    # Not "fork": the parent may hold threads (flint's pool, rich's refresh)
-    # whose locks a forked child would inherit without the threads.
-    method = "forkserver" if "forkserver" in mp.get_all_start_methods() else "spawn"
-    mpc: Any = mp.get_context(method)
+    mpc = child_context()
     recv, send = mpc.Pipe(duplex=False)
     proc = mpc.Process(target=_child_main, args=(send, target, args), daemon=True)
     proc.start()
@@ -178,10 +175,57 @@ def run_in_child(
     return value
 
 
+def child_context() -> Any:
+    """The multiprocessing context of every child process of the checks.
+
+    A plain fork when this process has one thread (``/proc/self/task``): the
+    child starts at once with everything imported.  Otherwise a fork server:
+    the parent may hold threads (flint's pool, the engine's, rich's refresh)
+    whose locks a forked child would inherit without the threads; the server
+    is a fresh process that imports :data:`CHILD_PRELOAD` once, and each
+    child is forked from it, ready to compute.
+    """
+    import multiprocessing as mp
+
+    methods = mp.get_all_start_methods()
+    if "fork" in methods and _single_threaded():
+        return mp.get_context("fork")
+    if "forkserver" not in methods:
+        return mp.get_context("spawn")
+    ctx: Any = mp.get_context("forkserver")
+    ctx.set_forkserver_preload(list(CHILD_PRELOAD))
+    return ctx
+
+
+def _single_threaded() -> bool:
+    """Whether this process has exactly one thread, counted by the kernel (C threads included)."""
+    try:
+        return len(os.listdir("/proc/self/task")) == 1
+    except OSError:
+        return False
+
+
+def warm_children() -> None:
+    """Start the fork server now, so that its start-up and imports overlap the caller's own work.
+
+    Call it where a child process will follow (a file large enough).  Nothing
+    to do when children are plain forks (one thread) or spawned.
+    """
+    import multiprocessing as mp
+
+    if "forkserver" not in mp.get_all_start_methods() or _single_threaded():
+        return
+    from multiprocessing import forkserver
+
+    child_context()
+    forkserver.ensure_running()
+
+
 def _child_main(send: Any, target: Callable[..., Any], args: tuple[Any, ...]) -> None:
     import signal
 
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent decides; it terminates this process
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)  # a forked child may carry the parent's handler
     try:
         send.send(("ok", target(*args)))
     except BaseException as exc:  # handed to the parent, which raises it

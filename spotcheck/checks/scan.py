@@ -178,6 +178,15 @@ def scan_file(
 
     ``workers``: threads the Arb computation may use.
     """
+    import os
+
+    from .reference import CHILD_DIGITS, warm_children
+
+    try:
+        if os.path.getsize(path) >= CHILD_DIGITS // 4:  # a child will compute: let it start meanwhile
+            warm_children()
+    except OSError:
+        pass  # open_checked says what is wrong with the path
     df, facts = open_checked(
         path,
         base=base,

@@ -61,6 +61,7 @@ def verify_file(
     checkpoint: bool | str = False,
     progress: Progress | None = None,
     on_estimate: Callable[[CostEstimate], None] | None = None,
+    on_checkpoint: Callable[[str], None] | None = None,
 ) -> VerifyResult:
     """Check a digit file: every digit when a full comparison fits ``budget`` seconds, else windows.
 
@@ -71,7 +72,10 @@ def verify_file(
     windows are drawn, and more while ``sample_seconds`` allow.  Decimal
     files go through radix conversion, which covers every digit
     (:func:`spotcheck.checks.decimal.verify_decimal`).  ``cluster`` and
-    ``checkpoint`` serve deep windows (see :func:`spotcheck.engine.api.extract`).
+    ``checkpoint`` serve deep windows: ``checkpoint`` is one journal file for
+    every engine window of the check (a path, or True for the cache-directory
+    file of :func:`spotcheck.checks.common.check_checkpoint_path`), whose path
+    goes to ``on_checkpoint`` once it is open.
     """
     if not 0 <= samples <= MAX_SAMPLES:
         raise UsageError(f"samples must be between 0 and {MAX_SAMPLES}, got {samples}")
@@ -92,6 +96,7 @@ def verify_file(
         cluster=cluster,
         checkpoint=checkpoint,
         on_estimate=on_estimate,
+        on_checkpoint=on_checkpoint,
     )
     df, facts, oracle = run.df, run.facts, run.oracle
     with run:
@@ -158,6 +163,11 @@ def _verify_hex(
     full_reference: str | None,
 ) -> VerifyResult:
     t0 = time.perf_counter()
+    if full_reference is not None:
+        from .reference import CHILD_DIGITS, warm_children
+
+        if facts.checked >= CHILD_DIGITS:
+            warm_children()  # the full comparison's child: its start overlaps the windows
     w = clamp_window(window, facts.checked)
     rng = random.Random(seed)
     last_start = facts.checked - w + 1

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import hashlib
-import json
 import math
 import operator
 import os
@@ -15,7 +13,7 @@ from typing import Any
 from spotcheck.engine import backend
 from spotcheck.engine.blocks import BlockProgress, series_fingerprint, thread_runner
 from spotcheck.engine.evaluate import extract_hex, value_bounds
-from spotcheck.engine.journal import Journal, default_checkpoint_dir
+from spotcheck.engine.journal import Journal, request_path
 from spotcheck.engine.plan import CostEstimate, RunPlan, estimate_series_cost
 from spotcheck.engine.series import series_of
 from spotcheck.errors import CertificationError, InfeasibleError, UsageError
@@ -134,10 +132,7 @@ def default_checkpoint_path(
     """
     p, n = check_request(position, count)
     name, f = resolve_formula(constant, formula)
-    key = json.dumps(checkpoint_request(name, f, p, n), sort_keys=True)
-    tag = hashlib.sha256(key.encode()).hexdigest()[:10]
-    safe = "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in f"{name}-{f.key}")
-    return default_checkpoint_dir() / f"{safe}-at{p}-n{n}-{tag}.json"
+    return request_path(f"{name}-{f.key}-at{p}-n{n}", checkpoint_request(name, f, p, n))
 
 
 def _check_block_k(block_k: object) -> int | None:
@@ -205,7 +200,7 @@ def extract(
     *,
     formula: str | None = None,
     workers: int = 1,
-    checkpoint: str | os.PathLike[str] | bool | None = None,
+    checkpoint: str | os.PathLike[str] | bool | Journal | None = None,
     cluster: Any = None,
     block_k: int | None = None,
     block_progress: Callable[[BlockProgress], None] | None = None,
@@ -214,7 +209,8 @@ def extract(
     """Certified hex digits of ``constant`` from ``position`` (1 = first after the point).
 
     For deep positions: ``checkpoint`` (a path, or ``True`` for
-    :func:`default_checkpoint_path`) journals finished head-sum blocks so an
+    :func:`default_checkpoint_path`, or an open :class:`Journal` that the
+    caller closes: a check's one file for all its windows) journals finished head-sum blocks so an
     interrupted run resumes where it stopped (a file that cannot be created
     raises :class:`~spotcheck.errors.CheckpointError` before any work; one
     that fails later becomes a warning in the result); ``cluster`` (a Dask
@@ -251,12 +247,15 @@ def extract(
         refuse_if_infeasible(estimate, name)
     plan = RunPlan(series, p, n, thread_runner(workers), block_k=block_k, on_block=block_progress, deep=deep)
     path: Path | None = None
-    if checkpoint is True:
+    shared = isinstance(checkpoint, Journal)  # the caller's journal: it opens and closes it
+    if isinstance(checkpoint, Journal):
+        plan.journal, path = checkpoint, checkpoint.path
+    elif checkpoint is True:
         path = default_checkpoint_path(constant, p, n, formula=formula)
     elif checkpoint not in (None, False):
         assert not isinstance(checkpoint, bool)
         path = Path(checkpoint)
-    if path is not None:
+    if path is not None and not shared:
         plan.journal = Journal(path, series, checkpoint_request(name, f, p, n))
     client, owned = None, False
     finished = False
@@ -269,12 +268,12 @@ def extract(
         digits, intervals, seconds = extract_hex(series, p, n, plan)
         finished = True
     finally:
-        if plan.journal is not None:
+        if plan.journal is not None and not shared:
             plan.journal.close(compact=finished)
         if owned and client is not None:
             client.close()
     warnings: list[str] = []
-    if plan.journal is not None:
+    if plan.journal is not None and not shared:
         if plan.journal.damaged:
             warnings.append(
                 f"{plan.journal.damaged} damaged record(s) in the checkpoint {path} were skipped "

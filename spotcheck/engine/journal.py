@@ -11,9 +11,13 @@ were still being computed.  Each line is a JSON object, a tab and the first
     {"block":[d,words,k0,k1,"value in hex",terms]}<TAB>checksum
     ...
 
-The first line names the request (constant, formula and its coefficients,
-position, count).  A *section* line opens one evaluated window and precision
-``(d, words)`` with its block size; block lines follow their section.
+The first line names the request: for ``digits``, constant, formula and its
+coefficients, position and count; for a check (``verify``, ``locate``), the
+constant, formula and digit file, and then one journal holds every window the
+check evaluates.  A *section* line opens one evaluated window and precision
+``(d, words)`` with its block size; block lines follow their section.  A
+head sum depends only on the series, ``d``, ``words`` and the block size, so
+two windows that meet at the same ``(d, words)`` share their section.
 
 Reading:
 
@@ -55,6 +59,7 @@ from spotcheck.errors import CheckpointError
 __all__ = [
     "Journal",
     "default_checkpoint_dir",
+    "request_path",
     "JOURNAL_FORMAT",
     "JOURNAL_VERSION",
     "journal_line",
@@ -70,6 +75,21 @@ def default_checkpoint_dir() -> Path:
     """``$XDG_CACHE_HOME/spotcheck`` (``~/.cache/spotcheck`` when unset)."""
     base = os.environ.get("XDG_CACHE_HOME") or os.path.join(os.path.expanduser("~"), ".cache")
     return Path(base) / "spotcheck"
+
+
+def request_path(label: str, request: dict[str, Any]) -> Path:
+    """Where ``--checkpoint auto`` keeps the journal of ``request``: the one rule of every command.
+
+    Under :func:`default_checkpoint_dir`, one file per request, named by
+    ``label`` (made safe for a file name) and the first 10 hex digits of the
+    SHA-256 of the request, so two requests never share a file by accident.
+
+    >>> request_path("pi-bellard-at5-n8", {"position": 5}).name
+    'pi-bellard-at5-n8-d5598ab9d0.json'
+    """
+    tag = hashlib.sha256(json.dumps(request, sort_keys=True).encode()).hexdigest()[:10]
+    safe = "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in label)
+    return default_checkpoint_dir() / f"{safe}-{tag}.json"
 
 
 def _checksum(text: str) -> str:
