@@ -289,3 +289,28 @@ def test_compare_open_on_opened_files(tmp_path: Path) -> None:
         r = cmp.compare_open(da, db)
         assert [(run.start, run.right) for run in r.runs] == [(10, "A")] and r.keep == "A"
         assert da.read(1, 4) == "243F"  # still open
+
+
+def test_decimal_arbitration_past_the_child_threshold(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """A decimal run whose prefix is converted in a child process (true digits: MPFR) is judged as inline."""
+    from spotcheck.checks import radix
+
+    monkeypatch.setattr(radix, "CHILD_DIGITS", 2000)  # the child path without a file of 300,000 digits
+    made: list[str] = []
+    real = radix.open_converter
+
+    def spy(n, read, chunks):  # type: ignore[no-untyped-def]
+        conv = real(n, read, chunks)
+        made.append(type(conv).__name__)
+        return conv
+
+    monkeypatch.setattr(radix, "open_converter", spy)
+    a = _write(tmp_path / "a.txt", DEC)
+    b = _write(tmp_path / "b.txt", _damage(DEC, [2500], "0123456789"), width=64)
+    r = compare_files(a, b)
+    assert [(run.start, run.right) for run in r.runs] == [(2500, "A")] and r.keep == "A"
+    assert made == ["ChildConverter"]
+    r = compare_files(b, a)
+    assert [(run.start, run.right) for run in r.runs] == [(2500, "B")] and r.keep == "B"

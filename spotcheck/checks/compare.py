@@ -16,7 +16,7 @@ certified digits.
 * decimal files of a constant evaluated in full (e, sqrt(2), ...): the
   certified decimal digits at each run's start, directly (no hex detour);
 * other decimal files: a prefix check through radix conversion
-  (:func:`spotcheck.checks.decimal.prefix_check`).  The copies agree before a
+  (:mod:`spotcheck.checks.radix`; a long prefix is converted in a child process).  The copies agree before a
   run's start, except at earlier runs, where the digits of the copy found
   right there are spliced in; each candidate prefix ``common + copy's digits of
   the run`` is then checked whole.  A run after one where neither copy was
@@ -643,7 +643,8 @@ def _arbitrate_direct(
 
 
 def _arbitrate_decimal(result: CompareResult, da: DigitFile, db: DigitFile, oracle: HexOracle) -> None:
-    from .decimal import estimate_conversion_bytes, prefix_check
+    from .decimal import estimate_conversion_bytes
+    from .radix import open_converter
     from .reference import memory_budget
 
     def spliced(upto: int) -> str | None:
@@ -663,8 +664,19 @@ def _arbitrate_decimal(result: CompareResult, da: DigitFile, db: DigitFile, orac
             parts.append(da.read(p, upto - p))
         return "".join(parts)
 
-    def check(prefix: str) -> bool:
-        return prefix_check(prefix, oracle, DEFAULT_WINDOW, "compare").match
+    def check(common: str, *suffixes: str) -> list[bool]:
+        """Each prefix ``common + suffix`` checked whole; a large ``common`` is converted in a
+        child process (Ctrl-C stops it at once), which holds it for every suffix."""
+        n = len(common)
+        conv = open_converter(
+            n,
+            lambda p, k: common[p - 1 : p - 1 + k],
+            lambda: iter([(1, common)]),
+        )
+        try:
+            return [conv.check(n, oracle.digits, DEFAULT_WINDOW, "compare", suffix=x).match for x in suffixes]
+        finally:
+            conv.close()
 
     blocked = False
     for i, run in enumerate(result.runs):
@@ -695,7 +707,8 @@ def _arbitrate_decimal(result: CompareResult, da: DigitFile, db: DigitFile, orac
             continue
         w = end - run.start + 1
         run.a, run.b = _full_sample(da, run, run.a)[:w], _full_sample(db, run, run.b)[:w]
-        run.right = _judge(check(basis + run.a), check(basis + run.b))
+        right_a, right_b = check(basis, run.a, run.b)
+        run.right = _judge(right_a, right_b)
         run.note = _add_note(
             run.note, f"prefixes of {end:,} digits converted to hex and checked against the engine"
         )
@@ -715,6 +728,6 @@ def _arbitrate_decimal(result: CompareResult, da: DigitFile, db: DigitFile, orac
         df = da if extra.longer == A else db
         if basis is None:
             return
-        extra.right = check(basis + df.read(extra.start, end - extra.start + 1))
+        (extra.right,) = check(basis, df.read(extra.start, end - extra.start + 1))
         extra.note = f"a prefix of {end:,} digits converted to hex and checked against the engine"
         result.arbitration_seconds.append(time.perf_counter() - t)
