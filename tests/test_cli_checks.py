@@ -272,3 +272,35 @@ def test_checkpoint_auto_is_one_journal_per_check_request(capsys, tmp_path, monk
     code, _, err = cli(capsys, "digits", "pi", "--at", "20000", "--count", "8", "--checkpoint", "auto")
     assert code == 0 and "-at20000-n8-" in err  # digits: its own request, its own file, same place
     assert len(list((tmp_path / "cache" / "spotcheck").iterdir())) == 2
+
+
+def test_a_damaged_checkpoint_record_is_a_warning_in_the_check(capsys, tmp_path) -> None:
+    # A flipped byte in one journal record: that record is skipped and its block computed
+    # again; the check's answer is unchanged and the result says what happened (JSON and stderr).
+    from .reference import pi_hex  # gmpy2/MPFR's pi
+
+    path = tmp_path / "pi.txt"
+    path.write_text("3." + pi_hex(30_000) + "\n")
+    journal = tmp_path / "pi.journal"
+    code, first = as_json(
+        capsys, "verify", path, "--budget", "0", "--samples", "2", "--seed", "5", "--checkpoint", journal
+    )
+    assert code == 0 and first["warnings"] == []
+    lines = journal.read_text().splitlines(keepends=True)
+    blocks = [i for i, ln in enumerate(lines) if ln.startswith('{"block"')]
+    assert blocks, "the journal holds the windows' blocks"
+    i = blocks[len(blocks) // 2]
+    k = lines[i].index(",") + 1  # a digit of the record's first number
+    lines[i] = lines[i][:k] + ("7" if lines[i][k] != "7" else "8") + lines[i][k + 1 :]
+    journal.write_text("".join(lines))
+    code, again = as_json(
+        capsys, "verify", path, "--budget", "0", "--samples", "2", "--seed", "5", "--checkpoint", journal
+    )
+    assert code == 0 and again["verdict"] == "match" and again["checks"] == first["checks"]
+    assert len(again["warnings"]) == 1 and "1 damaged record(s)" in again["warnings"][0]
+    jsonschema.validate(again, VERIFY_SCHEMA)
+    journal.write_text("".join(lines))
+    code, _, err = cli(
+        capsys, "verify", path, "--budget", "0", "--samples", "2", "--seed", "5", "--checkpoint", str(journal)
+    )
+    assert code == 0 and "warning: 1 damaged record(s) in the checkpoint" in err

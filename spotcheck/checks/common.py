@@ -245,10 +245,20 @@ def check_journal(path: str, facts: FileFacts) -> Journal:
 ResultT = TypeVar("ResultT", VerifyResult, LocateResult)
 
 
-def with_estimate(run: CheckRun, result: ResultT) -> ResultT:
-    """``result`` with the run's tail-window estimate attached (for the JSON report)."""
-    if run.estimate is not None:
+def with_run_facts(run: CheckRun, result: ResultT) -> ResultT:
+    """``result`` with what the run itself knows: the tail-window estimate (hex files, for the
+    JSON report) and the checkpoint journal's warnings (damaged records skipped, a failed write)."""
+    if run.estimate is not None and hasattr(result, "tail_estimate"):
         result.tail_estimate = run.estimate.to_dict()
+    journal = run.oracle.journal
+    if journal is not None:
+        if journal.damaged:
+            result.warnings.append(
+                f"{journal.damaged} damaged record(s) in the checkpoint {journal.path} were skipped "
+                "and their blocks computed again"
+            )
+        if journal.failure:
+            result.warnings.append(f"{journal.failure}; the check went on without it")
     return result
 
 

@@ -17,7 +17,7 @@ from .common import (
     clamp_window,
     common_rows,
     open_run,
-    with_estimate,
+    with_run_facts,
 )
 from .full import is_full, locate_full
 from .results import FileFacts, LocateResult, WindowCheck
@@ -76,16 +76,19 @@ def locate_file(
         if facts.base == 10:
             from .decimal import locate_decimal
 
-            return locate_decimal(
-                df,
-                facts,
-                window=window,
-                budget=budget,
-                reference=reference,
-                oracle=oracle,
-                progress=progress,
+            return with_run_facts(
+                run,
+                locate_decimal(
+                    df,
+                    facts,
+                    window=window,
+                    budget=budget,
+                    reference=reference,
+                    oracle=oracle,
+                    progress=progress,
+                ),
             )
-        return with_estimate(run, _HexLocator(df, facts, window, budget, reference, oracle, progress).run())
+        return with_run_facts(run, _HexLocator(df, facts, window, budget, reference, oracle, progress).run())
 
 
 def rest_after(checks: list[WindowCheck]) -> str | None:

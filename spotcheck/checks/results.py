@@ -102,6 +102,8 @@ class _Common:
     evaluations: int
     """Engine (or reference) evaluations made."""
     interrupted: bool
+    warnings: list[str] = field(default_factory=list, kw_only=True)
+    """What went wrong beside the check without changing its answer (a damaged checkpoint record, a failed write)."""
 
     @property
     def any_mismatch(self) -> bool:
@@ -175,6 +177,7 @@ class _Common:
             "exhaustive": self.exhaustive,
             "covered": [list(r) for r in self.covered],
             "covered_digits": self.covered_digits,
+            "warnings": list(self.warnings),
         }
 
 

@@ -129,6 +129,12 @@ _COMMON = {
         "items": {"type": "array", "items": {"type": "integer", "minimum": 1}, "minItems": 2, "maxItems": 2},
     },
     "covered_digits": {"type": "integer", "minimum": 0, "description": "digits inside `covered`"},
+    "warnings": {
+        "type": "array",
+        "items": {"type": "string"},
+        "description": "what went wrong beside the check without changing its answer "
+        "(damaged checkpoint records skipped and recomputed, a checkpoint write that failed)",
+    },
     "repeat": {"type": "string", "description": "a command line that repeats the run"},
 }
 

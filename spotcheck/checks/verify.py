@@ -21,7 +21,7 @@ from .common import (
     needs,
     open_run,
     run_plan,
-    with_estimate,
+    with_run_facts,
 )
 from .full import is_full, verify_full
 from .results import FileFacts, VerifyResult, WindowCheck
@@ -108,19 +108,22 @@ def verify_file(
         if facts.base == 10:
             from .decimal import verify_decimal
 
-            return verify_decimal(
-                df,
-                facts,
-                samples=samples,
-                seed=seed,
-                at=at,
-                window=window,
-                budget=sample_seconds,
-                oracle=oracle,
-                progress=progress,
+            return with_run_facts(
+                run,
+                verify_decimal(
+                    df,
+                    facts,
+                    samples=samples,
+                    seed=seed,
+                    at=at,
+                    window=window,
+                    budget=sample_seconds,
+                    oracle=oracle,
+                    progress=progress,
+                ),
             )
         full = _full_fits(facts, reference, budget)
-        return with_estimate(
+        return with_run_facts(
             run,
             _verify_hex(
                 df,

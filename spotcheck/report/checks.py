@@ -14,6 +14,7 @@ from spotcheck.report.console import (
     STYLE_WARN,
     emit_json,
     stdout_console,
+    warning_line,
 )
 
 CheckResult = VerifyResult | LocateResult | ScanResult
@@ -316,6 +317,9 @@ def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool)
     if as_json:
         emit_json(result_payload(result, repeat))
         return
+    if not quiet:
+        for message in result.warnings:
+            warning_line(message)
     if quiet:
         return
     from rich import box
