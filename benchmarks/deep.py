@@ -40,7 +40,7 @@ from kernel import cpu_flags  # noqa: E402  (benchmarks/kernel.py)
 from machine import describe  # noqa: E402  (this folder is first on sys.path)
 
 from spotcheck.engine import backend
-from spotcheck.engine.api import extract
+from spotcheck.engine.api import estimate_cost, extract
 from spotcheck.engine.blocks import BlockRequest, block_problem, deep_block_k, thread_runner
 from spotcheck.engine.evaluate import words_for
 from spotcheck.engine.series import series_of
@@ -175,6 +175,11 @@ def main() -> None:
             f"2 threads {duration(t2)}, ratio {t1 / t2:.2f}"
         )
         print(f"  {how}")
+        est = estimate_cost("pi", position, DIGITS, workers=1, checkpoint=True)
+        print(
+            f"  the engine's estimate before the run (api.estimate_cost): {duration(est.cpu_seconds)} CPU, "
+            f"{est.ns_per_term_kernel} ns a term; measured / estimate {c1 / est.cpu_seconds:.2f}"
+        )
         cpus[position] = c1
         nblocks[position] = total
     # On a shared machine other jobs only ever lower the ratio, so the best one
