@@ -262,6 +262,10 @@ def test_decimal_end_matches_iff_every_digit_is_right(length, back, delta) -> No
         assert out.first_wrong == q
 
 
+@pytest.mark.skipif(
+    backend.BACKEND != "c",
+    reason="on the twin the engine window computed ahead (in this process) outlasts the child's conversion",
+)
 def test_progress_moves_during_a_long_conversion(workdir) -> None:
     # 4*10^6 digits (pi's first 1,000 from MPFR, then seeded random ones): the conversion runs in
     # the child for a good part of a second, and the bar moves meanwhile, from a calibrated estimate.
