@@ -35,7 +35,7 @@ def _flags_look_like_flags() -> None:
             return result
 
         display._spotcheck = True  # type: ignore[attr-defined]
-        cls.display_type_rich = display  # type: ignore[method-assign]
+        setattr(cls, "display_type_rich", display)  # noqa: B010 - typer versions type it differently
 
 
 _flags_look_like_flags()

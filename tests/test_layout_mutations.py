@@ -15,7 +15,14 @@ from hypothesis import strategies as st
 
 from spotcheck.errors import SpotcheckError
 from tests.fuzz.mutate import Tally, compress, mutation, one_input
-from tests.fuzz.oracle import acceptable_mutation, place_named, read_back, widen
+from tests.fuzz.oracle import (
+    acceptable_mutation,
+    another_valid_file,
+    place_named,
+    read_back,
+    read_layout,
+    widen,
+)
 from tests.fuzz.strategies import specs
 from tests.fuzz.writer import Label, Spec, write
 from tests.reference import pi_decimal, pi_hex
@@ -167,3 +174,43 @@ def test_fuzz_sample() -> None:
         for i in range(3000):
             one_input(rng, tally, d, mutate=i % 2 == 1)
     assert (tally.crashes, tally.hangs, tally.misreads, tally.unplaced) == (0, 0, 0, 0), tally.examples
+
+
+def test_a_lost_line_break_after_a_header_is_proven_another_valid_file() -> None:
+    """The fuzz's one kind of honest surprise: the mutated bytes are another correct file.
+
+    A lost CR merges the free-text header line with the first digit line; the
+    reader rightly takes the merged line as header text, so the first two digits
+    are gone from the reading, outside the mutated span.  The oracle's proof
+    finds the writer spec that makes these exact bytes from the digits read; the
+    same proof fails for a reading that drops one more digit.
+    """
+    h = pi_hex(64)
+    spec = Spec(h, 16, None, width=2, header=("source: our own run #7, 2 cores",), newline="\r")
+    w = write(spec)
+    cut = len(spec.header[0])
+    content = w.content[:cut] + w.content[cut + 1 :]  # the header's CR deleted
+    with tempfile.TemporaryDirectory() as tmp:
+        got, findings, layout = read_layout(spec, content, tmp)
+    assert got == h[2:] and not findings
+    lo, hi, inserted = widen(w, cut, cut, cut, cut + 1, 0, 0)
+    assert not acceptable_mutation(w.full, got, findings, lo, hi, inserted)
+    proof = another_valid_file(spec, content, got, layout)
+    assert proof is not None
+    assert write(proof).content == content and proof.digits == got
+    assert proof.header == ("source: our own run #7, 2 cores" + h[:2],)
+    assert another_valid_file(spec, content, got[1:], layout) is None
+
+
+def test_the_proof_finds_a_label_made_by_the_mutation() -> None:
+    """An inserted ``|`` can make a one-line file's first digit a start label that counts right."""
+    h = pi_hex(40)
+    spec = Spec("1" + h, 16, None)
+    content = write(spec).content
+    mutated = content[:1] + b" | " + content[1:]  # ``1 | 243F...``: a label 1 (first position 1)
+    with tempfile.TemporaryDirectory() as tmp:
+        got, findings, layout = read_layout(spec, mutated, tmp)
+    assert got == h and layout.labels == "start" and not findings
+    proof = another_valid_file(spec, mutated, got, layout)
+    assert proof is not None and proof.label is not None and write(proof).content == mutated
+    assert (proof.label.where, proof.label.kind, proof.label.sep) == ("start", "first", " | ")

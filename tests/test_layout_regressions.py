@@ -276,3 +276,31 @@ def test_both_ends_short_blank_file_is_ambiguous_and_the_option_picks(tmp_path: 
     code, out, err = cli(capsys, "inspect", path, "--labels", "both", "--json")
     assert code == 0, err
     assert json.loads(out)["count"] == 20 and json.loads(out)["constant"] == "pi"
+
+
+@pytest.mark.parametrize("labels", ["end", "both"])
+def test_blank_after_the_cr_of_a_crlf_line_keeps_its_end_label(labels: str, tmp_path: Path, capsys) -> None:
+    """``... 8 | 56\\r \\n``: a blank between a CRLF's CR and LF beside an end label.
+
+    The first pass (the line rule) read the label; the random-access read (the bulk
+    rule) did not, and handed out ``|`` and the label's digits as digits (the fuzz
+    found this).  Both rules now read CRs and blanks after a label in any order.
+    """
+    rows = []
+    for i, line in enumerate(chunks(HEX[:1280], 32)):
+        start = f"{i * 32} : " if labels == "both" else ""
+        cr = "\r \n" if i == 3 else "\r\n"
+        rows.append(f"{start}{' '.join(chunks(line, 8))}\t|\t{(i + 1) * 32}{cr}")
+    path = tmp_path / "crlf-blank.txt"
+    path.write_bytes("".join(rows).encode())
+    code, out, err = cli(capsys, "inspect", path, "--base", "16", "--json")
+    assert code == 0, err
+    assert json.loads(out)["count"] == 1280 and json.loads(out)["findings"] == []
+    code, out, err = cli(capsys, "scan", path, "-c", "pi", "--json")
+    assert code == 0, err
+    damaged = path.read_bytes().replace(b"\t|\t128\r \n", b"\t|\t127\r \n")
+    path.write_bytes(damaged)
+    code, out, err = cli(capsys, "verify", path, "-c", "pi", "--json")
+    assert code == 1, err
+    lf = json.loads(out)["file"]["label_finding"]
+    assert (lf["line"], lf["end"], lf["expected"], lf["found"]) == (4, "end", 128, "127")

@@ -163,9 +163,11 @@ class LabelSyntax:
             # Matched on the reversed chunk, where an end label starts its line: the pattern then
             # begins with a line break, which Python's re scans for fast (forwards, a pattern that
             # ends at the line's end is tried at every blank or mark, several times slower).
-            # Forwards it reads ``sep (label) [ \t]* \r*`` up to the line break; every separator
+            # Forwards it reads ``sep (label) [ \t\r]*`` up to the line break, as the line pattern
+            # does (blanks and CRs in any order: a blank after a CRLF's CR is no label); the CRs
+            # just before the line break stay, the rest goes with the label; every separator
             # pattern reads the same reversed.
-            bulk = rb"(\n\r*)[ \t]*(" + lab + rb")" + sep
+            bulk = rb"(\n\r*)[\r \t]*(" + lab + rb")" + sep
         object.__setattr__(self, "_line", re.compile(line))
         object.__setattr__(self, "_bulk", re.compile(bulk))
 

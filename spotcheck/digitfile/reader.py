@@ -171,7 +171,15 @@ class DigitFile:
                 parts.append(src.read_at(a, b - a).translate(None, WS))
             else:
                 parts.append(self._read_indexed(src, q, last - q + 1))
-        out = b"".join(parts).decode("ascii")
+        raw = b"".join(parts)
+        if raw.translate(None, b"0123456789ABCDEFabcdef" if self.base == 16 else b"0123456789"):
+            # The first pass validated every byte, so this is a file changed since, or a reading
+            # of the random-access path that the first pass did not make: never hand it out.
+            raise DigitFileError(
+                f"{self.path}: the digits at positions {p}-{p + n - 1} do not read as the first pass "
+                "read them; was the file changed?"
+            )
+        out = raw.decode("ascii")
         return out.upper() if self.base == 16 else out
 
     def _offset_regular(self, p: int) -> int:

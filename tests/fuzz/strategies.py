@@ -5,11 +5,7 @@ from __future__ import annotations
 from hypothesis import assume
 from hypothesis import strategies as st
 
-from tests.fuzz.writer import HEADERS, Label, Spec
-
-MARK_SEPS = (":", ": ", " : ", "|", " | ", "\t|\t")
-LONE_SEPS = (" : ", " | ", "\t|\t")  # a label on a line alone has a blank beside its mark
-BLANK_SEPS = (" ", "  ", "\t")
+from tests.fuzz.writer import BLANK_SEPS, HEADERS, LONE_SEPS, MARK_SEPS, Label, Spec
 
 
 @st.composite

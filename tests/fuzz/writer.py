@@ -20,6 +20,11 @@ HEADERS = (
     "source: our own run #7, 2 cores",
 )
 
+# The separators labels are set off with (the generators draw from these).
+MARK_SEPS = (":", ": ", " : ", "|", " | ", "\t|\t")
+LONE_SEPS = (" : ", " | ", "\t|\t")  # a label on a line alone has a blank beside its mark
+BLANK_SEPS = (" ", "  ", "\t")
+
 
 @dataclass(frozen=True)
 class Label:
