@@ -7,15 +7,21 @@ the compiled kernel is not built or a modulus is beyond the kernel's range.
 from __future__ import annotations
 
 from collections.abc import Sequence
-
-try:  # gmpy2 is a hard dependency, but keep the twin usable without it.
-    from gmpy2 import mpz as _mpz
-    from gmpy2 import powmod as _powmod
-except ImportError:  # pragma: no cover - exercised only without gmpy2
-    _mpz = int  # type: ignore[assignment,misc]
-    _powmod = pow  # type: ignore[assignment]
+from functools import cache
+from typing import Any
 
 __all__ = ["head_sum_py"]
+
+
+@cache
+def _arithmetic() -> tuple[Any, Any]:
+    """``(mpz, powmod)`` of gmpy2, imported on the twin's first use (it costs a command's
+    start-up 20-40 ms, and the compiled kernel does not need it); ints without gmpy2."""
+    try:  # gmpy2 is a hard dependency, but keep the twin usable without it.
+        from gmpy2 import mpz, powmod
+    except ImportError:  # pragma: no cover - exercised only without gmpy2
+        return int, pow
+    return mpz, powmod
 
 
 def head_sum_py(
@@ -44,14 +50,15 @@ def head_sum_py(
         raise ValueError("head range reaches a negative exponent")
     bits = 64 * words
     mask = (1 << bits) - 1
-    total = _mpz(0)
+    mpz, powmod = _arithmetic()
+    total = mpz(0)
     pairs = list(zip(js, cs, strict=True))
     for k in range(k0, k1):
         exponent = big_d - e * k
         negate = alternating and (k & 1)
         mk = m * k
         for j, c in pairs:
-            n = q * _mpz(mk + j) ** s
-            r = _powmod(2, exponent, n) * (-c if negate else c) % n
+            n = q * mpz(mk + j) ** s
+            r = powmod(2, exponent, n) * (-c if negate else c) % n
             total += (r << bits) // n
     return int(total & mask), (k1 - k0) * len(pairs)
