@@ -44,8 +44,9 @@
  * call): every N < 2^63, 0 <= D < 2^64, |c| < 2^62, 1 <= words <= 16,
  * D - e*(k1-1) >= 0, k0 >= 0, s <= 63, e < 2^32.
  *
- * Portability: plain C99 plus unsigned __int128 where the compiler has it
- * (else 32-bit halves; -DSPOTCHECK_NO_INT128 forces that path), and >> of a
+ * Portability: plain C99 plus unsigned __int128 for the 64x64-bit product where
+ * the compiler has it (else 32-bit halves; -DSPOTCHECK_NO_INT128 forces that
+ * path; the vector paths need no 128-bit type), and >> of a
  * negative int64_t taken as an arithmetic shift (gcc, clang and MSVC do so).
  */
 #define PY_SSIZE_T_CLEAN
@@ -105,6 +106,21 @@ ALWAYS_INLINE void mul_wide(uint64_t a, uint64_t b, uint64_t *hi, uint64_t *lo)
     *hi = p11 + (p01 >> 32) + (p10 >> 32) + (mid >> 32);
 }
 #endif
+
+/* acc + low + (high << 32) + carry over one 64-bit word: the word stays in
+ * *acc and what passes 2^64 goes to *carry (below 2^34 here); plain 64-bit
+ * arithmetic, so the vector paths need no 128-bit integer type. */
+ALWAYS_INLINE void add_column(uint64_t *acc, uint64_t low, uint64_t high, uint64_t *carry)
+{
+    uint64_t hi = high >> 32, t = low + (high << 32);
+    hi += t < low;
+    uint64_t u = t + *acc;
+    hi += u < t;
+    uint64_t v = u + *carry;
+    hi += v < u;
+    *acc = v;
+    *carry = hi;
+}
 
 ALWAYS_INLINE uint64_t mul_hi(uint64_t a, uint64_t b)
 {
@@ -1355,7 +1371,7 @@ TARGET_AVX2 static inline void fractions_avx2_kind(batch_t *bt, int words, uint6
         NH[h] = _mm256_srli_epi64(_mm256_loadu_si256(N + h), 32);
         NP[h] = _mm256_sub_epi64(zero, _mm256_loadu_si256((const __m256i *)(bt->ninv + 4 * h)));
     }
-    unsigned __int128 carry = 0;
+    uint64_t carry = 0;
     for (int idx = 0; idx < words; idx++) {
         __m256i SL = zero, SH = zero;
         for (int h = 0; h < H; h++) {
@@ -1366,10 +1382,7 @@ TARGET_AVX2 static inline void fractions_avx2_kind(batch_t *bt, int words, uint6
             SH = _mm256_add_epi64(SH, _mm256_and_si256(d, lo32));
             _mm256_storeu_si256(T + h, t);
         }
-        unsigned __int128 total = (unsigned __int128)hsum_avx2(SL) + ((unsigned __int128)hsum_avx2(SH) << 32) +
-                                  acc[idx] + carry;
-        acc[idx] = (uint64_t)total;
-        carry = total >> 64; /* dropped past the top word (mod 2^P) */
+        add_column(acc + idx, hsum_avx2(SL), hsum_avx2(SH), &carry); /* past the top word: dropped (mod 2^P) */
     }
 }
 
@@ -1402,7 +1415,7 @@ TARGET_AVX2 static void fractions_avx2(batch_t *bt, int words, uint64_t *acc) /*
     const __m512i zero = _mm512_setzero_si512(), lo32 = _mm512_set1_epi64(0xffffffff);                                 \
     for (int h = 0; h < H5; h++)                                                                                       \
         NP[h] = _mm512_sub_epi64(zero, _mm512_loadu_si512(bt->ninv + 8 * h));                                          \
-    unsigned __int128 carry = 0;                                                                                       \
+    uint64_t carry = 0;                                                                                       \
     for (int idx = 0; idx < words; idx++) {                                                                            \
         __m512i SL = zero, SH = zero;                                                                                  \
         for (int h = 0; h < H5; h++) {                                                                                 \
@@ -1414,11 +1427,8 @@ TARGET_AVX2 static void fractions_avx2(batch_t *bt, int words, uint64_t *acc) /*
             SH = _mm512_add_epi64(SH, _mm512_and_si512(d, lo32));                                                      \
             _mm512_storeu_si512(bt->x + 8 * h, t);                                                                     \
         }                                                                                                              \
-        unsigned __int128 total = (unsigned __int128)(uint64_t)_mm512_reduce_add_epi64(SL) +                           \
-                                  ((unsigned __int128)(uint64_t)_mm512_reduce_add_epi64(SH) << 32) + acc[idx] +        \
-                                  carry;                                                                               \
-        acc[idx] = (uint64_t)total;                                                                                    \
-        carry = total >> 64;                                                                                           \
+        add_column(acc + idx, (uint64_t)_mm512_reduce_add_epi64(SL), (uint64_t)_mm512_reduce_add_epi64(SH),            \
+                   &carry);                                                                                            \
     }
 
 TARGET_AVX512 static void fractions32_avx512(batch_t *bt, int words, uint64_t *acc) /* n < 2^32 */
@@ -1480,36 +1490,46 @@ static int path_ok[NPATHS];             /* set once at import */
 static const char *path_why[NPATHS];    /* why a path is not available */
 static volatile int active = PATH_PORTABLE;
 
-static void detect_paths(void)
+/* Which paths a CPU with these features offers, why the others are not, and
+ * the default (the fastest offered, benchmarks/kernel.py): the whole dispatch
+ * rule, a pure function so that the tests can ask it about CPUs other than the
+ * one they run on (paths_for() in Python). */
+static int offer_paths(int avx2, int avx512f, int ifma, int ok[NPATHS], const char *why[NPATHS])
 {
     for (int i = 0; i < NPATHS; i++) {
-        path_ok[i] = i <= PATH_SCALAR;
-        path_why[i] = "";
+        ok[i] = i <= PATH_SCALAR;
+        why[i] = "";
     }
 #if HAVE_X86_PATHS
-    __builtin_cpu_init();
-    int avx2 = __builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma");
-    int avx512f = __builtin_cpu_supports("avx512f");
-    int ifma = avx512f && __builtin_cpu_supports("avx512ifma");
-    path_ok[PATH_AVX2] = avx2;
-    path_why[PATH_AVX2] = avx2 ? "" : "this CPU (or its OS) lacks AVX2 and FMA";
-    path_ok[PATH_AVX512F] = avx512f;
-    path_why[PATH_AVX512F] = avx512f ? "" : "this CPU (or its OS) lacks AVX-512F";
-    path_ok[PATH_AVX512IFMA] = path_ok[PATH_IFMA52] = ifma;
-    path_why[PATH_AVX512IFMA] = path_why[PATH_IFMA52] =
-        ifma ? "" : "this CPU (or its OS) lacks AVX-512F with AVX-512 IFMA";
+    ifma = ifma && avx512f;
+    ok[PATH_AVX2] = avx2;
+    why[PATH_AVX2] = avx2 ? "" : "this CPU (or its OS) lacks AVX2 and FMA";
+    ok[PATH_AVX512F] = avx512f;
+    why[PATH_AVX512F] = avx512f ? "" : "this CPU (or its OS) lacks AVX-512F";
+    ok[PATH_AVX512IFMA] = ok[PATH_IFMA52] = ifma;
+    why[PATH_AVX512IFMA] = why[PATH_IFMA52] = ifma ? "" : "this CPU (or its OS) lacks AVX-512F with AVX-512 IFMA";
 #else
+    (void)avx2, (void)avx512f, (void)ifma;
     for (int i = PATH_AVX2; i < NPATHS; i++)
-        path_why[i] = "not built: the extension was compiled without x86-64 vector support";
+        why[i] = "not built: the extension was compiled without x86-64 vector support";
 #endif
-    /* the default: the fastest path offered (benchmarks/kernel.py) */
     static const int preference[] = {PATH_AVX512IFMA, PATH_AVX512F, PATH_AVX2};
-    active = PATH_PORTABLE;
     for (int i = 0; i < 3; i++)
-        if (path_ok[preference[i]]) {
-            active = preference[i];
-            break;
-        }
+        if (ok[preference[i]])
+            return preference[i];
+    return PATH_PORTABLE;
+}
+
+static void detect_paths(void)
+{
+    int avx2 = 0, avx512f = 0, ifma = 0;
+#if HAVE_X86_PATHS
+    __builtin_cpu_init();
+    avx2 = __builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma");
+    avx512f = __builtin_cpu_supports("avx512f");
+    ifma = __builtin_cpu_supports("avx512ifma");
+#endif
+    active = offer_paths(avx2, avx512f, ifma, path_ok, path_why);
 }
 
 static void run_path(int path, const job_t *jb, uint64_t *acc)
@@ -1825,7 +1845,52 @@ static PyObject *head_sum_path(PyObject *self, PyObject *const *args, Py_ssize_t
     return head_sum_common(args + 1, NULL, i);
 }
 
+static PyObject *py_paths_for(PyObject *self, PyObject *args)
+{
+    (void)self;
+    int avx2, avx512f, ifma, ok[NPATHS];
+    const char *why[NPATHS];
+    if (!PyArg_ParseTuple(args, "ppp:paths_for", &avx2, &avx512f, &ifma))
+        return NULL;
+    int chosen = offer_paths(avx2, avx512f, ifma, ok, why);
+    PyObject *offered = PyList_New(0), *missing = PyDict_New(), *out = NULL;
+    if (offered == NULL || missing == NULL)
+        goto done;
+    for (int i = 0; i < NPATHS; i++) {
+        PyObject *item = PyUnicode_FromString(ok[i] ? PATHS[i].name : why[i]);
+        int failed = item == NULL || (ok[i] ? PyList_Append(offered, item)
+                                             : PyDict_SetItemString(missing, PATHS[i].name, item));
+        Py_XDECREF(item);
+        if (failed)
+            goto done;
+    }
+    PyObject *tuple = PyList_AsTuple(offered);
+    if (tuple != NULL)
+        out = Py_BuildValue("(NOs)", tuple, missing, PATHS[chosen].name);
+done:
+    Py_XDECREF(offered);
+    Py_XDECREF(missing);
+    return out;
+}
+
+/* _add_column(acc, low, high, carry) -> (word, carry): add_column, for the tests. */
+static PyObject *py_add_column(PyObject *self, PyObject *args)
+{
+    (void)self;
+    unsigned long long acc, low, high, carry;
+    if (!PyArg_ParseTuple(args, "KKKK:_add_column", &acc, &low, &high, &carry))
+        return NULL;
+    uint64_t a = acc, c = carry;
+    add_column(&a, low, high, &c);
+    return Py_BuildValue("(KK)", (unsigned long long)a, (unsigned long long)c);
+}
+
 static PyMethodDef kernel_methods[] = {
+    {"_add_column", py_add_column, METH_VARARGS,
+     "_add_column(acc, low, high, carry) -> (word, carry): one column of the vector paths' fraction sums."},
+    {"paths_for", py_paths_for, METH_VARARGS,
+     "paths_for(avx2, avx512f, avx512ifma) -> (offered, {name: reason}, default): the paths a CPU with these\n"
+     "features would offer (the dispatch rule, on features other than this CPU's)."},
     {"paths", py_paths, METH_NOARGS,
      "paths() -> the names of the kernel paths this CPU offers, from the baseline 'portable' up."},
     {"unavailable_paths", py_unavailable_paths, METH_NOARGS,
