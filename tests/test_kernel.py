@@ -12,6 +12,7 @@ import os
 import subprocess
 import sys
 import threading
+from collections.abc import Mapping
 from pathlib import Path
 
 import pytest
@@ -506,7 +507,7 @@ def test_spotcheck_kernel_refuses_a_path_it_cannot_run(value: str) -> None:
 # --- physical cores (the default of --workers) ---------------------------------
 
 
-def fake_topology(root: Path, cpus: dict[int, tuple[int, int, str] | None]) -> Path:
+def fake_topology(root: Path, cpus: Mapping[int, tuple[int, int, str] | None]) -> Path:
     """A sysfs cpu tree: cpu -> (package, core, siblings) or None for no topology."""
     for cpu, topo in cpus.items():
         d = root / f"cpu{cpu}" / "topology"

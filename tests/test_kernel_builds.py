@@ -1,15 +1,17 @@
 """The kernel's dispatch rule on CPUs other than this one, and the kernel built
-the other ways its header promises (no 128-bit integer type, no vector paths).
+the other ways its header promises (no 128-bit integer type, no vector paths,
+another compiler).
 
 `paths_for` is the rule `detect_paths` applies at import, as a pure function:
 asked about an AVX2-only CPU or a CPU with no vector extension at all, it must
 offer what such a machine would get, whatever this machine has.
 
 The other builds are compiled here with the C compiler of this Python (the one
-the install used) into a temporary folder, loaded under their own file name
-(their static state is their own, the installed kernel is untouched), and each
+the install used), and with clang where it is installed, into a temporary
+folder, loaded under their own file name (their static state is their own,
+the installed kernel is untouched), and each
 path they offer is compared with the twin bit for bit on the same generated
-calls as `test_kernel.py`. Without a C compiler the builds are skipped with the
+calls as `test_kernel.py`. Without the compiler a build is skipped with the
 reason; the dispatch tests need only the installed kernel.
 """
 
@@ -89,28 +91,38 @@ def test_dispatch_rule_agrees_with_this_cpu() -> None:
     assert fresh.stdout.strip() == default
 
 
-def _compiler() -> list[str] | None:
-    cc = (sysconfig.get_config_var("CC") or "cc").split()
+def _compiler(name: str) -> list[str] | None:
+    """The command for "cc" (this Python's own compiler, the one the install used) or "clang"."""
+    cc = (sysconfig.get_config_var("CC") or "cc").split() if name == "cc" else [name]
     return cc if shutil.which(cc[0]) else None
 
 
-BUILDS = {
+FLAGS = {
+    "default": [],
     "no-int128": ["-DSPOTCHECK_NO_INT128"],
     "no-simd": ["-DSPOTCHECK_NO_SIMD"],
     "no-int128-no-simd": ["-DSPOTCHECK_NO_INT128", "-DSPOTCHECK_NO_SIMD"],
 }
+# this Python's compiler built the installed kernel already ("default"); clang, where it is installed,
+# builds it as shipped and without the 128-bit type
+BUILDS = [("cc", flags) for flags in FLAGS if flags != "default"] + [
+    ("clang", "default"),
+    ("clang", "no-int128"),
+]
 SOURCE = Path(_kernel.__file__).resolve().parent / "_kernel.c"
 
 
-@pytest.fixture(scope="module", params=sorted(BUILDS))
+@pytest.fixture(scope="module", params=BUILDS, ids=[f"{cc}-{flags}" for cc, flags in BUILDS])
 def other_build(request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPathFactory) -> ModuleType:
-    cc = _compiler()
+    compiler, flags = request.param
+    cc = _compiler(compiler)
     if cc is None:
-        pytest.skip(f"no C compiler ({sysconfig.get_config_var('CC')!r}) to build the kernel variants")
+        pytest.skip(f"no {compiler} compiler here to build the kernel with")
     if not SOURCE.exists():
         pytest.skip(f"the kernel's source is not installed beside it ({SOURCE})")
-    name = request.param
-    target = tmp_path_factory.mktemp(name) / f"_kernel{sysconfig.get_config_var('EXT_SUFFIX')}"
+    target = (
+        tmp_path_factory.mktemp(f"{compiler}-{flags}") / f"_kernel{sysconfig.get_config_var('EXT_SUFFIX')}"
+    )
     command = [
         *cc,
         "-O2",
@@ -118,7 +130,7 @@ def other_build(request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPat
         "-fPIC",
         "-Wall",
         f"-I{sysconfig.get_paths()['include']}",
-        *BUILDS[name],
+        *FLAGS[flags],
         str(SOURCE),
         "-o",
         str(target),
@@ -129,7 +141,7 @@ def other_build(request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPat
     assert spec is not None and spec.loader is not None
     module = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(module)
-    module.build_name = name  # type: ignore[attr-defined]
+    module.build_name = flags  # type: ignore[attr-defined]
     return module
 
 
