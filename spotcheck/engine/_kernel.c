@@ -792,25 +792,8 @@ static void run_job_batched(const job_t *jb, uint64_t *acc, const simd_path_t *p
 
 /* ---- AVX2 (+FMA): 4 lanes of 64 bits, B = 32 ---------------------------- */
 
-/* n^-1 mod 2^64 for odd n (any 64-bit n): three Newton steps mod 2^32
- * (5 -> 10 -> 20 -> 40 correct bits) on the low halves, then one step mod
- * 2^64 from 32-bit pieces: x (2 - n x) with x < 2^32. */
-TARGET_AVX2 static inline __m256i inv64_avx2(__m256i n)
-{
-    const __m256i two = _mm256_set1_epi32(2), lo32 = _mm256_set1_epi64x(0xffffffff);
-    __m256i x = _mm256_xor_si256(_mm256_mullo_epi32(n, _mm256_set1_epi32(3)), two);
-    for (int i = 0; i < 3; i++)
-        x = _mm256_mullo_epi32(x, _mm256_sub_epi32(two, _mm256_mullo_epi32(n, x)));
-    x = _mm256_and_si256(x, lo32);
-    __m256i t = _mm256_add_epi64(_mm256_mul_epu32(n, x),
-                                 _mm256_slli_epi64(_mm256_mul_epu32(_mm256_srli_epi64(n, 32), x), 32));
-    __m256i u = _mm256_sub_epi64(_mm256_set1_epi64x(2), t);
-    return _mm256_add_epi64(_mm256_mul_epu32(x, u),
-                            _mm256_slli_epi64(_mm256_mul_epu32(x, _mm256_srli_epi64(u, 32)), 32));
-}
-
 /* n^-1 mod 2^32 in the low 32 bits of each lane, for odd n: the Newton steps
- * of inv64_avx2 on mul_epu32 (whose products are exact mod 2^32; the high
+ * of inv64_avx512 on mul_epu32 (whose products are exact mod 2^32; the high
  * halves of the lanes are left as they fall).  The small ladders need no
  * more: their moduli are below 2^29, so their fraction words are summed by
  * fractions32_avx2, which reads only these 32 bits. */
@@ -1053,7 +1036,10 @@ TARGET_AVX2 static uint64_t fill_avx2(batch_t *bt, int at, uint64_t run, const r
 
 /* ---- AVX-512F: 8 lanes of 64 bits, B = 64 ------------------------------- */
 
-TARGET_AVX512 static inline __m512i inv64_avx512(__m512i n) /* as inv64_avx2 */
+/* n^-1 mod 2^64 for odd n (any 64-bit n): three Newton steps mod 2^32
+ * (5 -> 10 -> 20 -> 40 correct bits) on the low halves, then one step mod
+ * 2^64 from 32-bit pieces: x (2 - n x) with x < 2^32. */
+TARGET_AVX512 static inline __m512i inv64_avx512(__m512i n)
 {
     const __m512i two = _mm512_set1_epi32(2);
     __m512i x = _mm512_xor_si512(_mm512_mullo_epi32(n, _mm512_set1_epi32(3)), two);
