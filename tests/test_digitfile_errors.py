@@ -121,6 +121,23 @@ def test_stray_character_in_labelled_file(tmp_path):
     expect_error(path, DigitFileError, "stray character '?'", f"at byte {at} (line 34,")
 
 
+@pytest.mark.parametrize("suffix", ["", ".gz"])
+def test_stray_character_far_into_a_long_line_has_its_true_column(tmp_path, suffix):
+    # After 1,000 lines of 100 digits (beyond what detection reads), a line of 200,000 digits with a
+    # stray byte at its column 150,001: the column is counted from the line's start, not from a
+    # bounded look back (it was at most 65,536), in a plain and in a compressed file alike.
+    digits = (PI16 * 101)[:300_000]
+    head = "3.\n" + "".join(digits[i : i + 100] + "\n" for i in range(0, 100_000, 100))
+    long_line = digits[100_000:250_000] + "Z" + digits[250_001:300_000]
+    text = head + long_line + "\n"
+    at = len(head) + 150_000
+    assert text[at] == "Z"
+    path = tmp_path / f"long-line.txt{suffix}"
+    data = text.encode()
+    path.write_bytes(gzip.compress(data) if suffix else data)
+    expect_error(path, DigitFileError, "stray character 'Z'", f"at byte {at} (line 1002, column 150001)")
+
+
 def test_stray_character_in_regular_file_late(tmp_path):
     # A regular file broken only in its last line: the fast loop falls back and reports it.
     text = "3." + rows(PI16) + "# end of digits\n"

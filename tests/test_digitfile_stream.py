@@ -98,7 +98,7 @@ def loops(request, monkeypatch: pytest.MonkeyPatch) -> str:
 
 def _small_chunks(monkeypatch: pytest.MonkeyPatch, seed: int) -> None:
     """Chunk sizes that put chunk and index-step edges everywhere (INDEX_STEP is the index module's
-    one setting: it also bounds how far back a stray byte's column is counted, for both passes)."""
+    one setting, for both passes)."""
     rng = random.Random(seed)
     monkeypatch.setattr(stream_mod, "STREAM_CHUNK_BYTES", rng.choice((1, 7, 64, 300, 4 << 20)))
     monkeypatch.setattr(stream_mod, "LABELLED_STREAM_CHUNK_BYTES", rng.choice((1000, 4096, 2 << 20)))

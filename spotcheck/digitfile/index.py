@@ -101,24 +101,26 @@ class IndexResult:
     content_bytes: int = 0
 
 
-def line_of(src: ByteSource, offset: int) -> int:
-    """1-based line number of byte ``offset`` (counts line breaks from the start)."""
-    lines, pos = 1, 0
+def line_of(src: ByteSource, offset: int) -> tuple[int, int]:
+    """``(line, column)`` of byte ``offset``, both 1-based, from one pass that counts line
+    breaks from the start (the column in bytes, however long the line)."""
+    lines, pos, line_start = 1, 0, 0
     while pos < offset:
         data = src.read_at(pos, min(CHUNK_BYTES, offset - pos))
         if not data:
             break
-        lines += data.count(b"\n")
+        breaks = data.count(b"\n")
+        if breaks:
+            lines += breaks
+            line_start = pos + data.rfind(b"\n") + 1
         pos += len(data)
-    return lines
+    return lines, offset - line_start + 1
 
 
 def stray_error(src: ByteSource, plan: Detection, base: int, offset: int, byte: int) -> DigitFileError:
     name = os.path.basename(src.path)
-    line = line_of(src, offset)
+    line, col = line_of(src, offset)
     ch = repr(chr(byte)) if 0x20 <= byte < 0x7F else f"byte 0x{byte:02X}"
-    back = src.read_at(max(0, offset - INDEX_STEP), offset - max(0, offset - INDEX_STEP))
-    col = len(back) - (back.rfind(b"\n") + 1) + 1
     where = f"at byte {offset} (line {line}, column {col})"
     if base == 10 and byte in HEX_LETTERS:
         if plan.explicit_base:
