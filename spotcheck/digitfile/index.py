@@ -498,4 +498,9 @@ def _raise_labelled_stray(
             at = lo + b0 + body.find(bad[:1])
             raise stray_error(src, plan, base, off + at, data[at])
         lo += len(text) + 1
-    raise DigitFileError(f"{os.path.basename(src.path)}: unreadable labelled lines near byte {off}")
+    # Every line's own split found only allowed bytes, yet the chunk's bulk split did not: the two
+    # readings of one label syntax disagree. That is the reader's fault, never a guess to make.
+    raise DigitFileError(
+        f"{os.path.basename(src.path)}: the labelled lines from byte {off} split two different ways "
+        "in spotcheck's reader (a fault of spotcheck, not of the file: please report it with the file)"
+    )
