@@ -234,6 +234,23 @@ def test_both_ends_are_read_as_labels(name: str, tmp_path: Path, capsys) -> None
     assert "position labels at both line ends" in table_cell(out, "layout")
 
 
+@pytest.mark.parametrize(
+    ("name", "said"),
+    [
+        ("first-line-only", "a position label on the first digit line only"),
+        ("hexdump-colon", "position labels at line start"),
+        ("end-label-ungrouped", "position labels at line end"),
+    ],
+)
+def test_inspect_says_where_the_labels_are(name: str, said: str, tmp_path: Path, capsys) -> None:
+    make, which = LAYOUTS[name]
+    path = tmp_path / f"{name}.txt"
+    path.write_bytes(make(DEC if which == "dec" else HEX).encode())
+    code, out, err = cli(capsys, "inspect", path)
+    assert code == 0, err
+    assert said in table_cell(out, "layout")
+
+
 @pytest.mark.parametrize("command", ["verify", "locate"])
 def test_changed_end_label_is_a_finding_and_exit_1(command: str, tmp_path: Path, capsys) -> None:
     rows = both_colon(DEC).split("\n")

@@ -401,8 +401,12 @@ def show_inspect(result: InspectResult, *, as_json: bool) -> None:
     if lay.group_size:
         layout_bits.append(f"groups of {lay.group_size}")
     if lay.labels:
-        where = "both line ends" if lay.labels == "both" else f"line {lay.labels}"
-        layout_bits.append(f"position labels at {where}")
+        layout_bits.append(
+            {
+                "both": "position labels at both line ends",
+                "first-line": "a position label on the first digit line only",
+            }.get(lay.labels, f"position labels at line {lay.labels}")
+        )
     if lay.header_lines:
         layout_bits.append(f"{lay.header_lines} header lines")
     layout_bits.append(f"{lay.access} access")
