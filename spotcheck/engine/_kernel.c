@@ -1401,7 +1401,7 @@ TARGET_AVX2 static void fractions_avx2(batch_t *bt, int words, uint64_t *acc) /*
     const __m512i zero = _mm512_setzero_si512(), lo32 = _mm512_set1_epi64(0xffffffff);                                 \
     for (int h = 0; h < H5; h++)                                                                                       \
         NP[h] = _mm512_sub_epi64(zero, _mm512_loadu_si512(bt->ninv + 8 * h));                                          \
-    uint64_t carry = 0;                                                                                       \
+    uint64_t carry = 0;                                                                                                \
     for (int idx = 0; idx < words; idx++) {                                                                            \
         __m512i SL = zero, SH = zero;                                                                                  \
         for (int h = 0; h < H5; h++) {                                                                                 \
