@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 import pytest
-from hypothesis import given, settings
+from hypothesis import example, given, settings
 from hypothesis import strategies as st
 
 from spotcheck.digitfile import index, stream
 from spotcheck.digitfile.charsets import class_table
+from spotcheck.digitfile.detect import LabelSyntax
 
 _index = pytest.importorskip("spotcheck.digitfile._index")
 
@@ -121,51 +122,84 @@ def test_extract_finds_a_stray_byte_at_every_place() -> None:
                 )
 
 
-def _line_text(draw, where: str, sep: str, radix: int, base: int) -> bytes:
+def _line_text(draw, where: str, radix: int, base: int) -> bytes:
     digits = "0123456789ABCDEFabcdef" if base == 16 else "0123456789"
     body = draw(st.text(alphabet=digits + " \t", max_size=30))
-    label = draw(
-        st.text(alphabet="0123456789" + ("ABCDEFabcdef" if radix == 16 else ""), min_size=0, max_size=20)
-    )
-    s = draw(st.sampled_from((":", " : ", "|", "\t|", " ", "\t", "  ", "")))
+
+    def label() -> str:
+        return draw(
+            st.text(alphabet="0123456789" + ("ABCDEFabcdef" if radix == 16 else ""), min_size=0, max_size=20)
+        )
+
+    def sep() -> str:
+        return draw(st.sampled_from((":", " : ", "|", "\t|", " ", "\t", "  ", "")))
+
     pad = draw(st.sampled_from(("", " ", "\t")))
-    text = f"{pad}{label}{s}{body}" if where == "start" else f"{body}{s}{label}{pad}"
+    if where == "start":
+        text = f"{pad}{label()}{sep()}{body}"
+    elif where == "end":
+        text = f"{body}{sep()}{label()}{pad}"
+    else:
+        text = f"{pad}{label()}{sep()}{body}{sep()}{label()}{pad}"
     return text.encode() + draw(st.sampled_from((b"\n", b"\r\n", b"\n", b"\r\r\n")))
+
+
+def _label_text(value: int, radix: int) -> str:
+    return str(value) if radix == 10 else format(value, "x")
 
 
 @st.composite
 def labelled_chunks(draw):
+    """A chunk of lines for ``extract_labelled``: mostly lines whose labels agree (so the loops get
+    far), some lines of any shape, maybe one byte changed; labels at the start, the end or both."""
     base = draw(st.sampled_from((10, 16)))
-    where = draw(st.sampled_from(("start", "end")))
-    sep = draw(st.sampled_from(("mark", "blank")))
+    where = draw(st.sampled_from(("start", "end", "both")))
     radix = draw(st.sampled_from((10, 16)))
-    kind = draw(st.sampled_from((0, 1, 2)))
-    unit = draw(st.sampled_from((1, 2)))
-    before = draw(st.integers(0, 10**6))
-    # Mostly lines whose labels agree, so the loops get far; some lines of any shape.
+    # per label column (one, or the start and the end label): sep, kind, unit
+    cols = [
+        (
+            draw(st.sampled_from(("mark", "blank"))),
+            draw(st.sampled_from((0, 1, 2))),
+            draw(st.sampled_from((1, 2))),
+        )
+        for _ in range(2 if where == "both" else 1)
+    ]
+    unit = max(u for _, _, u in cols)
+    before = draw(st.integers(0, 10**6)) * unit
     lines = []
     pos = before
     for _ in range(draw(st.integers(0, 12))):
         if draw(st.integers(0, 3)) == 0:
-            lines.append(_line_text(draw, where, sep, radix, base))
+            lines.append(_line_text(draw, where, radix, base))
             continue
         nd = draw(st.integers(0, 20)) * unit
         body = "".join(draw(st.sampled_from("0123456789")) for _ in range(nd))
-        c = pos + nd if kind == 2 else pos
-        value = c // unit + (kind == 1)
-        label = str(value) if radix == 10 else format(value, "x")
-        s = (":", " | ", "\t:\t")[nd % 3] if sep == "mark" else (" ", "\t ")[nd % 2]
-        if not nd and sep == "blank" and where == "end":
-            s = " "
-        text = f"{label}{s}{body}" if where == "start" else f"{body}{s}{label}"
+        labels = []
+        seps = []
+        for sep, kind, u in cols:
+            c = pos + nd if kind == 2 else pos
+            labels.append(_label_text(c // u + (kind == 1), radix))
+            seps.append((":", " | ", "\t:\t")[nd % 3] if sep == "mark" else (" ", "\t ")[nd % 2])
+        if where == "start":
+            text = f"{labels[0]}{seps[0]}{body}"
+        elif where == "end":
+            if not nd and cols[0][0] == "blank":
+                seps[0] = " "
+            text = f"{body}{seps[0]}{labels[0]}"
+        else:
+            if not nd and cols[1][0] == "blank" and draw(st.booleans()):
+                seps[1] = "  "  # a blank for each separator: a plain line without digits
+            text = f"{labels[0]}{seps[0]}{body}{seps[1]}{labels[1]}"
         lines.append(text.encode() + b"\n")
         pos += nd
     data = b"".join(lines) + draw(st.sampled_from((b"", b"12", b"12:3")))
     if data and draw(st.booleans()):
         at = draw(st.integers(0, len(data) - 1))
         data = data[:at] + bytes([draw(st.sampled_from(_BYTES))]) + data[at + 1 :]
-    most = draw(st.integers(1, 18 if radix == 10 else 16))
-    layout = (0 if where == "start" else 1, 0 if sep == "mark" else 1, radix, most, kind, unit)
+    layout: tuple[int, ...] = (("start", "end", "both").index(where),)
+    for sep, kind, u in cols:
+        most = draw(st.integers(1, 18 if radix == 10 else 16))
+        layout += (0 if sep == "mark" else 1, radix, most, kind, u)
     return data, base, layout, before
 
 
@@ -193,3 +227,57 @@ def test_extract_labelled_takes_plain_lines_and_stops_at_the_others() -> None:
         )
         assert (used, nd, lines, stop, bytes(out[:nd])) == (data.index(b"10:"), 9, 4, 2, b"123456789")
         assert entries == [(1, 0, 1), (5, 8, 2), (9, 19, 4)] and last == 19
+
+
+def test_extract_labelled_reads_both_ends() -> None:
+    table, norm = class_table(10), stream.norm_table(10)
+    # start labels count the digits before, end labels through the line; the fourth end label lies
+    data = b"   0: 1234 5678 : 8\n   8: 9012  :  12\r\n \n  12:  : 12\n12: 3456 : 15\n"
+    layout = (2, 0, 10, 18, 0, 1, 0, 10, 18, 2, 1)
+    for fn in (_index.extract_labelled, stream.extract_labelled_py):
+        out = bytearray(len(data))
+        used, nd, lines, stop, entries, last = fn(data, table, norm, out, 0, layout, 0, 0, 1, 1, -1)
+        assert (used, nd, lines, stop, bytes(out[:nd])) == (
+            data.index(b"12: 3456"),
+            12,
+            4,
+            2,
+            b"123456789012",
+        )
+        assert entries == [(1, 0, 1), (9, 20, 2)] and last == 20
+        with pytest.raises(ValueError):
+            fn(data, table, norm, out, 0, layout[:6] + (0,), 0, 0, 1, 1, -1)  # "both" needs 11 ints
+        with pytest.raises(ValueError):
+            fn(data, table, norm, out, 0, (0, *layout[1:]), 0, 0, 1, 1, -1)  # one end needs 6
+
+
+_SYNTAX_OF = {
+    (w, s, r): LabelSyntax(w, r, s) for w in ("start", "end") for s in ("mark", "blank") for r in (10, 16)
+}
+
+
+@settings(max_examples=400, deadline=None)
+@given(labelled_chunks())
+# a blank before an end mark is the end separator's: no blank is left for the start's
+@example((b"0 :0\n", 10, (2, 1, 10, 1, 0, 1, 0, 10, 1, 0, 1), 0))
+@example((b"1  20\n1 2 20\n", 10, (2, 1, 10, 18, 0, 1, 1, 10, 18, 0, 1), 0))
+def test_the_loops_plain_lines_split_as_the_line_rule_splits_them(case) -> None:
+    """A line the loops take is read as the index pass's own rule (``LabelSyntax.split_labels``)
+    reads it: the same labels, the same body digits."""
+    data, base, layout, _before = case
+    where = ("start", "end", "both")[layout[0]]
+    seps = [("mark", "blank")[layout[i]] for i in range(1, len(layout), 5)]
+    radix = layout[2]
+    syntax = (
+        LabelSyntax(where, radix, seps[0], seps[1])
+        if where == "both"
+        else _SYNTAX_OF[(where, seps[0], radix)]
+    )
+    for raw in data.split(b"\n")[:-1]:
+        text = raw[:-1] if raw.endswith(b"\r") else raw
+        split = stream.plain_split(base, layout, text) if text.strip(b" \t") else None
+        if split is None:
+            continue
+        found, b0, b1 = syntax.split_labels(text)
+        assert found == split[0], text
+        assert text[b0:b1].translate(None, b" \t") == split[1].translate(None, b" \t"), text

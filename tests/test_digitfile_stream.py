@@ -248,7 +248,7 @@ def test_index_pass_through_the_stream_loops_is_the_same(
 def test_a_layout_the_loops_do_not_know_is_read_by_the_index_pass(
     tmp_path: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
-    # A Detection field added later (say, labels at both ends) that is set on a file: the stream
+    # A Detection field added later (a layout the loops do not know) that is set on a file: the stream
     # must not guess; it runs the index pass first and streams from the opened file.
     from spotcheck.digitfile.detect import Detection
 
@@ -273,3 +273,29 @@ def test_a_layout_the_loops_do_not_know_is_read_by_the_index_pass(
         df = s.finish()
     with df:
         assert df.count == 5000 and df.layout.labels == "start"
+
+
+@pytest.mark.parametrize("loops_kind", ["compiled", "python"])
+def test_labels_at_both_ends_stream_in_one_pass(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch, loops_kind: str
+) -> None:
+    """Start labels before, end labels through the line, one end label lying: one read, the digits,
+    and the index pass's own finding."""
+    if loops_kind == "python":
+        monkeypatch.setattr(stream_mod, "extract_labelled", stream_mod.extract_labelled_py)
+    elif not COMPILED:
+        pytest.skip("the compiled loops were not built (or SPOTCHECK_PURE is set)")
+    rng = random.Random(9)
+    digits = "".join(rng.choice("0123456789") for _ in range(5000))
+    lines = [f"{i:>6}: {digits[i : i + 50]} : {i + 50 + (i == 2500)}" for i in range(0, 5000, 50)]
+    path = tmp_path / "both.txt"
+    path.write_text("3.\n" + "\n".join(lines) + "\n")
+    with open_stream(path) as s:
+        assert s.how == "read and checked in one pass"
+        assert b"".join(s.chunks()).decode() == digits
+        df = s.finish()
+    want = _reference(str(path), None, False)
+    with df:
+        assert (df.count, df.layout.labels, df.layout.end_label_meaning) == (5000, "both", "through")
+        assert [(f.line, f.end, f.found) for f in df.findings] == [(52, "end", "2551")]
+        assert want[1][2] == df.findings

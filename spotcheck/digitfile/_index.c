@@ -22,13 +22,15 @@
  *
  * extract_labelled(data, table, norm, out, out_pos, layout, before, offset, line,
  *                  step, last_index) -> (consumed, digits, lines, stop, entries, last_index)
- *     The same for whole lines carrying a position label.  ``layout`` is the
+ *     The same for whole lines carrying position labels.  ``layout`` is the
  *     tuple (where, sep, radix, max_label, kind, unit): where 0 start / 1 end;
  *     sep 0 ':' or '|' with optional blanks / 1 blanks; radix 10 or 16 of the
  *     label; max_label its most characters (at most 18); kind 0 before / 1
  *     first / 2 through (stream.py's KIND codes) and unit 1 or 2 (digits or
- *     bytes) of what it counts.  Lines are taken in order while each has the
- *     plain form of its layout (see parse_line) and its label equals the count
+ *     bytes) of what it counts.  For labels at both ends, where is 2 and five
+ *     more ints (sep, radix, max_label, kind, unit) follow for the end label;
+ *     the first five are the start label's.  Lines are taken in order while each has the
+ *     plain form of its layout (see read_line) and its label equals the count
  *     its meaning implies; the loop stops at the first line that does not (stop
  *     1: a line of another form; 2: a label that disagrees; 0: no complete line
  *     left), before it, and Python's line reader takes that line.  ``before`` is
@@ -272,8 +274,18 @@ done:
 
 /* --- labelled lines -------------------------------------------------------------------------------- */
 
+/* One label column: sep 0 ':' or '|' with optional blanks / 1 blanks; radix 10 or 16; at most
+ * max_label characters; what it counts: kind 0 before / 1 first / 2 through, in unit 1 (digits) or
+ * 2 (bytes). */
 typedef struct {
-    int where, sep, radix, max_label, kind, unit;
+    int sep, radix, max_label, kind, unit;
+} LabelEnd;
+
+/* where 0: a label at the line start (column a); 1: at the end (a); 2: at both ends (a the start
+ * label, b the end label). */
+typedef struct {
+    int where;
+    LabelEnd a, b;
 } LabelLayout;
 
 static int label_value(unsigned char c, int radix) {
@@ -285,81 +297,159 @@ static int label_value(unsigned char c, int radix) {
     return -1;
 }
 
-/* Read one line s[0..e) (line break and one trailing CR removed) in its plain form:
- *   start: [blanks] label sep body      end: body sep label [blanks]
- * where label is 1..max_label label characters, sep ':' or '|' with optional blanks
- * around it (sep 0) or one or more blanks (sep 1), and body holds only digits and
- * blanks.  A line of blanks only is plain too (no label, no digits).  These are
- * exactly the lines on which LabelSyntax.split_line finds this label and body (its
- * patterns are greedy and a label is a maximal run of label characters ended by a
- * separator); any other line returns 0 and is left to Python's line reader.
- * Copies the body's digits to o (scratch unless the caller keeps them), sets
- * *has_label, *value and *nd.  Returns 1 when the line is plain. */
-static int read_line(const unsigned char *s, Py_ssize_t e, const LabelLayout *L, const Tables *tb,
-                     unsigned char *o, int *has_label, uint64_t *value, Py_ssize_t *nd) {
-    Py_ssize_t k = 0, l0, l1;
-    *has_label = 0;
-    *nd = 0;
-    while (k < e && is_blank(s[k])) k++;
-    if (k == e) return 1; /* blanks only */
-    if (L->where == 0) {
-        l0 = k;
-        while (k < e && label_value(s[k], L->radix) >= 0) k++;
-        l1 = k;
-        if (L->sep == 0) {
-            while (k < e && is_blank(s[k])) k++;
-            if (k == e || (s[k] != ':' && s[k] != '|')) return 0;
-            k++;
-        } else if (k == e || !is_blank(s[k])) {
-            return 0;
-        }
+/* The label s[l0..l1): 1..max_label characters of its radix (the caller has checked them), its value
+ * to *v.  0 when it is empty or too long. */
+static int label_at(const unsigned char *s, Py_ssize_t l0, Py_ssize_t l1, const LabelEnd *c, uint64_t *v) {
+    if (l1 - l0 < 1 || l1 - l0 > c->max_label) return 0;
+    uint64_t x = 0;
+    for (Py_ssize_t j = l0; j < l1; j++) x = x * (uint64_t)c->radix + (uint64_t)label_value(s[j], c->radix);
+    *v = x;
+    return 1;
+}
+
+/* A start label at s[k..] (k past the line's leading blanks) and its separator: the index just
+ * after the separator's ':' or '|' (sep 0) or its first blank (sep 1), or -1.  Blanks after that
+ * belong to the body, which skips them. */
+static Py_ssize_t start_label(const unsigned char *s, Py_ssize_t k, Py_ssize_t e, const LabelEnd *c, uint64_t *v) {
+    Py_ssize_t l0 = k;
+    while (k < e && label_value(s[k], c->radix) >= 0) k++;
+    if (!label_at(s, l0, k, c, v)) return -1;
+    if (c->sep == 0) {
         while (k < e && is_blank(s[k])) k++;
-        if (copy_body(s, k, e, o, tb, nd) != e) return 0;
-    } else if (L->sep == 0) {
-        k = copy_body(s, 0, e, o, tb, nd);
+        if (k == e || (s[k] != ':' && s[k] != '|')) return -1;
+    } else if (k == e || !is_blank(s[k])) {
+        return -1;
+    }
+    return k + 1;
+}
+
+/* The body and an end label in s[b0..e): body sep label [blanks].  Copies the body's digits to o
+ * and sets *nd; 1 when that is the form of s[b0..e).  With blanks as the separator the label is
+ * the last word, and a blank must stand before it within s[b0..e). */
+static int end_label(const unsigned char *s, Py_ssize_t b0, Py_ssize_t e, const LabelEnd *c, const Tables *tb,
+                     unsigned char *o, Py_ssize_t *nd, uint64_t *v) {
+    Py_ssize_t k, l0, l1;
+    if (c->sep == 0) {
+        k = copy_body(s, b0, e, o, tb, nd);
         if (k == e || (s[k] != ':' && s[k] != '|')) return 0;
         k++;
         while (k < e && is_blank(s[k])) k++;
         l0 = k;
-        while (k < e && label_value(s[k], L->radix) >= 0) k++;
+        while (k < e && label_value(s[k], c->radix) >= 0) k++;
         l1 = k;
         while (k < e && is_blank(s[k])) k++;
         if (k != e) return 0;
     } else {
         k = e;
-        while (k > 0 && is_blank(s[k - 1])) k--;
+        while (k > b0 && is_blank(s[k - 1])) k--;
         l1 = k;
-        while (k > 0 && !is_blank(s[k - 1])) k--;
+        while (k > b0 && !is_blank(s[k - 1])) k--;
         l0 = k;
-        if (l0 == 0) return 0; /* no blank before the last word */
+        if (l0 == b0) return 0; /* no blank before the last word */
         for (Py_ssize_t j = l0; j < l1; j++)
-            if (label_value(s[j], L->radix) < 0) return 0;
-        if (copy_body(s, 0, l0, o, tb, nd) != l0) return 0;
+            if (label_value(s[j], c->radix) < 0) return 0;
+        if (copy_body(s, b0, l0, o, tb, nd) != l0) return 0;
     }
-    if (l1 - l0 < 1 || l1 - l0 > L->max_label) return 0;
-    uint64_t v = 0;
-    for (Py_ssize_t j = l0; j < l1; j++) v = v * (uint64_t)L->radix + (uint64_t)label_value(s[j], L->radix);
+    return label_at(s, l0, l1, c, v);
+}
+
+/* The end label of s[0..e) as LabelSyntax("end").split_line finds it: the last word after a
+ * separator, then blanks.  Sets [*l0, *l1) to the label and returns where the separator starts
+ * (its first blank, or its mark when no blank precedes it): the body ends there.  -1 when the
+ * line ends otherwise. */
+static Py_ssize_t find_end_label(const unsigned char *s, Py_ssize_t e, const LabelEnd *c, Py_ssize_t *l0,
+                                 Py_ssize_t *l1, uint64_t *v) {
+    Py_ssize_t k = e;
+    while (k > 0 && is_blank(s[k - 1])) k--;
+    *l1 = k;
+    while (k > 0 && label_value(s[k - 1], c->radix) >= 0) k--;
+    *l0 = k;
+    if (k > 0 && !is_blank(s[k - 1]) && s[k - 1] != ':' && s[k - 1] != '|') return -1; /* not a whole word */
+    if (!label_at(s, *l0, *l1, c, v)) return -1;
+    if (c->sep == 0) {
+        while (k > 0 && is_blank(s[k - 1])) k--;
+        if (k == 0 || (s[k - 1] != ':' && s[k - 1] != '|')) return -1;
+        k--;
+    } else if (k == 0 || !is_blank(s[k - 1])) {
+        return -1;
+    }
+    while (k > 0 && is_blank(s[k - 1])) k--;
+    return k;
+}
+
+/* Read one line s[0..e) (line break and one trailing CR removed) in its plain form:
+ *   start: [blanks] label sep body      end: body sep label [blanks]
+ *   both:  [blanks] label sep body sep label [blanks]
+ * where a label is 1..max_label label characters, sep ':' or '|' with optional blanks
+ * around it (sep 0) or one or more blanks (sep 1), and body holds only digits and
+ * blanks.  A line of blanks only is plain too (no label, no digits).  These are
+ * exactly the lines on which LabelSyntax.split_labels finds the label(s) and a body of
+ * digits and blanks (its patterns are greedy and a label is a maximal run of label
+ * characters ended by a separator; for both ends the end label is split off first and
+ * the start label from what is left, here as there: a blank before an end mark belongs
+ * to the end's separator); any other line returns 0 and is left to
+ * Python's line reader.  Copies the body's digits to o (scratch unless the caller keeps
+ * them), sets *has_label, the label values (v[0] the start or only label, v[1] the end
+ * label of "both") and *nd.  Returns 1 when the line is plain. */
+static int read_line(const unsigned char *s, Py_ssize_t e, const LabelLayout *L, const Tables *tb,
+                     unsigned char *o, int *has_label, uint64_t v[2], Py_ssize_t *nd) {
+    Py_ssize_t k = 0;
+    *has_label = 0;
+    *nd = 0;
+    while (k < e && is_blank(s[k])) k++;
+    if (k == e) return 1; /* blanks only */
+    if (L->where == 1) {
+        if (!end_label(s, 0, e, &L->a, tb, o, nd, &v[0])) return 0;
+    } else if (L->where == 0) {
+        Py_ssize_t b0 = start_label(s, k, e, &L->a, &v[0]);
+        if (b0 < 0 || copy_body(s, b0, e, o, tb, nd) != e) return 0;
+    } else { /* both: the end label first, then the start label from what is left */
+        Py_ssize_t l0, l1, b1 = find_end_label(s, e, &L->b, &l0, &l1, &v[1]);
+        if (b1 < 0) return 0;
+        Py_ssize_t b0 = start_label(s, k, b1, &L->a, &v[0]);
+        if (b0 < 0 || copy_body(s, b0, b1, o, tb, nd) != b1) return 0;
+    }
     *has_label = 1;
-    *value = v;
     return 1;
+}
+
+/* Does the label value v say what column c implies for a line of nd digits after pos? */
+static int label_agrees(const LabelEnd *c, uint64_t v, Py_ssize_t pos, Py_ssize_t nd) {
+    Py_ssize_t n = c->kind == 2 ? pos + nd : pos;
+    return n % c->unit == 0 && v == (uint64_t)(n / c->unit + (c->kind == 1));
+}
+
+static int end_ok(const LabelEnd *c) {
+    return (c->sep == 0 || c->sep == 1) && (c->radix == 10 || c->radix == 16) && c->max_label >= 1 &&
+           c->max_label <= (c->radix == 10 ? 18 : 16) && c->kind >= 0 && c->kind <= 2 && (c->unit == 1 || c->unit == 2);
 }
 
 static PyObject *extract_labelled(PyObject *self, PyObject *args) {
     Py_buffer data, table, norm, out;
     Py_ssize_t out_pos, before, offset, line, step, last_index;
+    PyObject *layout;
     LabelLayout L;
     (void)self;
-    if (!PyArg_ParseTuple(args, "y*y*y*w*n(iiiiii)nnnnn", &data, &table, &norm, &out, &out_pos, &L.where,
-                          &L.sep, &L.radix, &L.max_label, &L.kind, &L.unit, &before, &offset, &line, &step,
-                          &last_index))
+    if (!PyArg_ParseTuple(args, "y*y*y*w*nOnnnnn", &data, &table, &norm, &out, &out_pos, &layout, &before, &offset,
+                          &line, &step, &last_index))
         return NULL;
+    L.b = (LabelEnd){0, 10, 1, 0, 1};
+    Py_ssize_t fields = PyTuple_Check(layout) ? PyTuple_GET_SIZE(layout) : -1;
+    if (!PyArg_ParseTuple(layout, "iiiiii|iiiii;extract_labelled: layout is a tuple of 6 or 11 ints", &L.where,
+                          &L.a.sep, &L.a.radix, &L.a.max_label, &L.a.kind, &L.a.unit, &L.b.sep, &L.b.radix,
+                          &L.b.max_label, &L.b.kind, &L.b.unit)) {
+        PyBuffer_Release(&data);
+        PyBuffer_Release(&table);
+        PyBuffer_Release(&norm);
+        PyBuffer_Release(&out);
+        return NULL;
+    }
     PyObject *ret = NULL, *entries = NULL;
     Py_ssize_t *ent = NULL, n_ent = 0;
     Tables tb;
     if (make_tables(&tb, &table, &norm) < 0) goto done;
-    if (out_pos < 0 || out.len - out_pos < data.len || (L.where != 0 && L.where != 1) || (L.sep != 0 && L.sep != 1) ||
-        (L.radix != 10 && L.radix != 16) || L.max_label < 1 || L.max_label > (L.radix == 10 ? 18 : 16) ||
-        L.kind < 0 || L.kind > 2 || (L.unit != 1 && L.unit != 2) || step < 1 || before < 0) {
+    if (out_pos < 0 || out.len - out_pos < data.len || L.where < 0 || L.where > 2 || fields != (L.where == 2 ? 11 : 6) ||
+        !end_ok(&L.a) || !end_ok(&L.b) || step < 1 || before < 0) {
         PyErr_SetString(PyExc_ValueError, "extract_labelled: bad layout or buffer sizes");
         goto done;
     }
@@ -379,12 +469,14 @@ static PyObject *extract_labelled(PyObject *self, PyObject *args) {
         Py_ssize_t len = nlp - s, e = len, nd = 0;
         if (e > 0 && s[e - 1] == '\r') e--;
         int has_label;
-        uint64_t value = 0;
+        uint64_t v[2] = {0, 0};
         /* The digits land at o + k; they count only when the line is taken. */
-        if (!read_line(s, e, &L, &tb, o + k, &has_label, &value, &nd)) { stop = 1; break; }
+        if (!read_line(s, e, &L, &tb, o + k, &has_label, v, &nd)) { stop = 1; break; }
         if (has_label) {
-            Py_ssize_t c = L.kind == 2 ? pos + nd : pos;
-            if (c % L.unit != 0 || value != (uint64_t)(c / L.unit + (L.kind == 1))) { stop = 2; break; }
+            if (!label_agrees(&L.a, v[0], pos, nd) || (L.where == 2 && !label_agrees(&L.b, v[1], pos, nd))) {
+                stop = 2;
+                break;
+            }
         } else if (nd) {
             stop = 1; /* a digit line without a label: Python records it */
             break;

@@ -86,7 +86,7 @@ KIND = {"before": 0, "first": 1, "through": 2}
 # it through the index pass first (two reads, never a misreading).
 _KNOWN_FIELDS = frozenset(
     "base base_how explicit_base integer_part header_lines first_line_no labels syntax meaning "
-    "first_label first_label_text digits_offset seg_end seg_cols seg_digits head_digits sample_digits "
+    "end_meaning first_label first_label_text first_end_label_text digits_offset seg_end seg_cols seg_digits head_digits sample_digits "
     "template newline letter_case whole_file_in_head notes".split()
 )
 
@@ -132,25 +132,75 @@ def extract_py(
     return len(digits), stray, data.count(b"\n", 0, end), regular
 
 
-_PATTERNS: dict[tuple[int, int, int, int, int], re.Pattern[bytes]] = {}
+_PATTERNS: dict[tuple[int, ...], tuple[re.Pattern[bytes], ...]] = {}
 
 
-def _plain_line(base: int, where: int, sep: int, radix: int, most: int) -> re.Pattern[bytes]:
-    """The plain form of a labelled line (the lines the loops take; see ``parse_line`` in _index.c)."""
-    key = (base, where, sep, radix, most)
-    rx = _PATTERNS.get(key)
-    if rx is None:
-        lab = rb"([0-9]{1,%d})" % most if radix == 10 else rb"([0-9A-Fa-f]{1,%d})" % most
-        body = rb"([" + re.escape(digit_set(base)) + rb" \t]*)"
+def _lab(radix: int, most: int) -> bytes:
+    return rb"([0-9]{1,%d})" % most if radix == 10 else rb"([0-9A-Fa-f]{1,%d})" % most
+
+
+def _patterns(base: int, layout: tuple[int, ...]) -> tuple[re.Pattern[bytes], ...]:
+    """The plain form of a labelled line (the lines the loops take; see ``read_line`` in _index.c):
+    one end, one pattern with groups (label, body) or (body, label); both ends, the end label's
+    pattern (searched), the start label's (matched on what is left) and the body's."""
+    key = (base, *layout)
+    got = _PATTERNS.get(key)
+    if got is None:
+        where, digits = layout[0], re.escape(digit_set(base))
+        body = rb"([" + digits + rb" \t]*)"
         mark = rb"[ \t]*[:|][ \t]*"
+        sep1 = mark if layout[1] == 0 else rb"[ \t]+"
         if where == 0:
-            pat = rb"[ \t]*" + lab + (mark if sep == 0 else rb"[ \t]+") + body
-        elif sep == 0:
-            pat = body + mark + lab + rb"[ \t]*"
+            got = (re.compile(rb"[ \t]*" + _lab(*layout[2:4]) + sep1 + body),)
+        elif where == 1 and layout[1] == 0:
+            got = (re.compile(body + mark + _lab(*layout[2:4]) + rb"[ \t]*"),)
+        elif where == 1:
+            got = (re.compile(rb"([" + digits + rb" \t]*[ \t])" + _lab(*layout[2:4]) + rb"[ \t]*"),)
         else:
-            pat = rb"([" + re.escape(digit_set(base)) + rb" \t]*[ \t])" + lab + rb"[ \t]*"
-        rx = _PATTERNS[key] = re.compile(pat)
-    return rx
+            sep2 = mark if layout[6] == 0 else rb"[ \t]+"
+            got = (
+                re.compile(sep2 + _lab(*layout[7:9]) + rb"[ \t]*\Z"),
+                re.compile(rb"[ \t]*" + _lab(*layout[2:4]) + sep1),
+                re.compile(body),
+            )
+        _PATTERNS[key] = got
+    return got
+
+
+def plain_split(base: int, layout: tuple[int, ...], text: bytes) -> tuple[tuple[bytes, ...], bytes] | None:
+    """``(labels, body)`` of a line that is not blanks only, when it has the plain form the loops
+    take (labels: the one label, or the start and the end label); None otherwise.  Labels at both
+    ends split as ``LabelSyntax.split_labels`` splits them: the end label off first, then the
+    start label from what is left."""
+    pats = _patterns(base, layout)
+    if layout[0] != 2:
+        m = pats[0].fullmatch(text)
+        if m is None:
+            return None
+        return ((m.group(1),), m.group(2)) if layout[0] == 0 else ((m.group(2),), m.group(1))
+    me = pats[0].search(text)
+    if me is None:
+        return None
+    b1 = me.start()
+    ms = pats[1].match(text, 0, b1)
+    if ms is None or pats[2].fullmatch(text, ms.end(), b1) is None:
+        return None
+    return (ms.group(1), me.group(1)), text[ms.end() : b1]
+
+
+def _end_ok(sep: int, radix: int, most: int, kind: int, unit: int) -> bool:
+    return (
+        sep in (0, 1)
+        and radix in (10, 16)
+        and 1 <= most <= (18 if radix == 10 else 16)
+        and kind in (0, 1, 2)
+        and unit in (1, 2)
+    )
+
+
+def _agrees(label: bytes, radix: int, kind: int, unit: int, pos: int, nd: int) -> bool:
+    c = pos + nd if kind == 2 else pos
+    return not c % unit and int(label, radix) == c // unit + (kind == 1)
 
 
 def extract_labelled_py(
@@ -159,7 +209,7 @@ def extract_labelled_py(
     norm: bytes,
     out: bytearray,
     out_pos: int,
-    layout: tuple[int, int, int, int, int, int],
+    layout: tuple[int, ...],
     before: int,
     offset: int,
     line: int,
@@ -167,23 +217,25 @@ def extract_labelled_py(
     last_index: int,
 ) -> tuple[int, int, int, int, list[tuple[int, int, int]], int]:
     """Python twin of ``_index.extract_labelled``:
-    ``(bytes consumed, digits written, lines, stop, index entries, last index offset)``."""
+    ``(bytes consumed, digits written, lines, stop, index entries, last index offset)``.
+
+    ``layout`` is ``(where, sep, radix, most, kind, unit)`` for a label at one end
+    (where 0 start, 1 end), or for labels at both ends (where 2) those five of the
+    start label's followed by the end label's."""
     data = bytes(data)
-    where, sep, radix, most, kind, unit = layout
+    where = layout[0] if layout else -1
     if (
         len(out) - out_pos < len(data)
-        or where not in (0, 1)
-        or sep not in (0, 1)
-        or radix not in (10, 16)
-        or not 1 <= most <= (18 if radix == 10 else 16)
-        or kind not in (0, 1, 2)
-        or unit not in (1, 2)
+        or where not in (0, 1, 2)
+        or len(layout) != (11 if where == 2 else 6)
+        or not all(_end_ok(*layout[i : i + 5]) for i in range(1, len(layout), 5))
         or step < 1
         or before < 0
     ):
         raise ValueError("extract_labelled: bad layout or buffer sizes")
     base = 16 if table[ord("A")] == ord("d") else 10
-    rx = _plain_line(base, where, sep, radix, most)
+    # (radix, kind, unit) of each label column
+    columns = [(layout[i + 1], layout[i + 3], layout[i + 4]) for i in range(1, len(layout), 5)]
     lo, k, lines, pos, stop = 0, 0, 0, before, 0
     entries: list[tuple[int, int, int]] = []
     while lo < len(data):
@@ -194,23 +246,18 @@ def extract_labelled_py(
         text = data[lo:nl]
         if text.endswith(b"\r"):
             text = text[:-1]
-        if not text.strip(b" \t"):
-            label, body = None, b""
-        else:
-            m = rx.fullmatch(text)
-            if m is None:
+        split = None
+        if text.strip(b" \t"):
+            split = plain_split(base, layout, text)
+            if split is None:
                 stop = 1
                 break
-            body, label = (m.group(2), m.group(1)) if where == 0 else (m.group(1), m.group(2))
-        digits = body.translate(norm, b" \t")
+        digits = split[1].translate(norm, b" \t") if split else b""
         nd = len(digits)
-        if label is not None:
-            c = pos + nd if kind == 2 else pos
-            if c % unit or int(label, radix) != c // unit + (kind == 1):
-                stop = 2
-                break
-        elif nd:
-            stop = 1
+        if split is not None and not all(
+            _agrees(label, r, kd, u, pos, nd) for label, (r, kd, u) in zip(split[0], columns, strict=True)
+        ):
+            stop = 2
             break
         if nd:
             if offset + lo - last_index >= step:
@@ -243,7 +290,7 @@ if os.environ.get("SPOTCHECK_PURE", "").strip().lower() not in ("1", "true", "ye
 
 
 def _most_label_chars(syntax: LabelSyntax) -> int | None:
-    """The most characters of a label, read off the syntax's own pattern (None: not the known shape)."""
+    """The most characters of a label, read off a one-sided syntax's own pattern (None: not the known shape)."""
     rx: re.Pattern[bytes] = syntax._line  # type: ignore[attr-defined]
     found = re.findall(rb"\]\{1,(\d+)\}\)", rx.pattern)
     if len(found) != 1:
@@ -252,23 +299,38 @@ def _most_label_chars(syntax: LabelSyntax) -> int | None:
     return most if 1 <= most <= (18 if syntax.radix == 10 else 16) else None
 
 
+def _loop_layout(plan: Detection) -> tuple[int, ...] | None:
+    """The ``layout`` argument of ``extract_labelled`` for the plan's labels (None: a layout the
+    loops do not know): where, then sep, radix, most, kind and unit of each label column."""
+    syntax = plan.syntax
+    if type(syntax) is not LabelSyntax or syntax.where not in ("start", "end", "both"):
+        return None
+    meanings = (plan.meaning, plan.end_meaning) if syntax.where == "both" else (plan.meaning,)
+    layout: tuple[int, ...] = (("start", "end", "both").index(syntax.where),)
+    for end, meaning in zip(syntax.ends, meanings, strict=True):
+        most = _most_label_chars(end)
+        if (
+            type(end) is not LabelSyntax
+            or end.sep not in ("mark", "blank")
+            or meaning is None
+            or meaning.kind not in KIND
+            or meaning.unit not in (1, 2)
+            or most is None
+        ):
+            return None
+        layout += (0 if end.sep == "mark" else 1, end.radix, most, KIND[meaning.kind], meaning.unit)
+    return layout
+
+
 def _streamable(plan: Detection) -> bool:
     """True when the loops here read this layout exactly as the index pass does."""
     for f in dataclasses.fields(plan):
         if f.name not in _KNOWN_FIELDS and getattr(plan, f.name) not in (None, False, 0, "", [], ()):
             return False
-    syntax = plan.syntax
-    if syntax is None:
-        return True
-    return (
-        type(syntax) is LabelSyntax
-        and syntax.where in ("start", "end")
-        and syntax.sep in ("mark", "blank")
-        and plan.meaning is not None
-        and plan.meaning.kind in KIND
-        and plan.meaning.unit in (1, 2)
-        and _most_label_chars(syntax) is not None
-    )
+    both = plan.syntax is not None and plan.syntax.where == "both"
+    if not both and (plan.end_meaning is not None or plan.first_end_label_text is not None):
+        return False  # an end column's facts on a plan without one: not a layout known here
+    return plan.syntax is None or _loop_layout(plan) is not None
 
 
 class _Pass:
@@ -424,28 +486,30 @@ class _Pass:
         base, syntax, meaning = plan.base, plan.syntax, plan.meaning
         assert base is not None and syntax is not None and meaning is not None
         name = os.path.basename(src.path)
-        check = _LabelCheck(meaning, syntax, self.strict, name)
+        both = syntax.where == "both"
+        # One check per label column, as the index pass keeps them: the start and the end label for
+        # "both", else the one column.
+        meanings = (meaning, plan.end_meaning) if both else (meaning,)
+        checks = [
+            _LabelCheck(m, s, self.strict, name, both)
+            for m, s in zip(meanings, syntax.ends, strict=True)
+            if m is not None
+        ]
+        first_texts = (plan.first_label_text, plan.first_end_label_text) if both else (plan.first_label_text,)
         d1 = len(plan.seg_digits)
-        if plan.first_label_text is not None:
-            check.feed(plan.first_label_text.encode(), 0, d1, plan.first_line_no, plan.digits_offset)
-        elif d1:
-            check.no_label(plan.first_line_no, plan.digits_offset, 0)
+        for check, first_text in zip(checks, first_texts, strict=True):
+            if first_text is not None:
+                check.feed(first_text.encode(), 0, d1, plan.first_line_no, plan.digits_offset)
+            elif d1:
+                check.no_label(plan.first_line_no, plan.digits_offset, 0)
         res = IndexResult(
             count=d1, regular=False, unit=None, unit_digits=0, unit_cols=[], region_start=plan.seg_end
         )
         tail = plan.seg_digits[-TAIL_DIGITS:].upper()
         if d1 and self.emit:
             yield plan.seg_digits.upper()
-        most = _most_label_chars(syntax)
-        assert most is not None
-        layout = (
-            0 if syntax.where == "start" else 1,
-            0 if syntax.sep == "mark" else 1,
-            syntax.radix,
-            most,
-            KIND[meaning.kind],
-            meaning.unit,
-        )
+        layout = _loop_layout(plan)
+        assert layout is not None and len(checks) == len(syntax.ends)
         table, norm, allowed = class_table(base), norm_table(base), allowed_set(base)
         off, pos, line = plan.seg_end, d1, plan.first_line_no + 1
         last_index = -step
@@ -472,17 +536,18 @@ class _Pass:
                 nl = data.find(b"\n", lo)
                 end = nl if nl >= 0 else len(data)
                 raw = data[lo:end]
-                label, b0, b1 = syntax.split_line(raw[:-1] if raw.endswith(b"\r") else raw)
+                found, b0, b1 = syntax.split_labels(raw[:-1] if raw.endswith(b"\r") else raw)
                 body = raw[b0:b1]
                 bad = body.translate(None, allowed)
                 if bad:
                     at = lo + b0 + body.find(bad[:1])
                     raise stray_error(src, plan, base, off + at, data[at])
                 digits = body.translate(norm, WS)
-                if label is not None:
-                    check.feed(label, pos, len(digits), line, off + lo)
-                elif digits:
-                    check.no_label(line, off + lo, pos)
+                for check, label in zip(checks, found, strict=True):
+                    if label is not None:
+                        check.feed(label, pos, len(digits), line, off + lo)
+                    elif digits:
+                        check.no_label(line, off + lo, pos)
                 if digits:
                     if off + lo - last_index >= step:
                         res.index_pos.append(pos + 1)
@@ -504,8 +569,11 @@ class _Pass:
                 if self.emit:
                     yield from self._hand_out(out, k)
         src.check_unchanged()
-        res.findings = check.finish()
+        res.findings = sorted(
+            (f for check in checks for f in check.finish()), key=lambda f: (f.line is None, f.line or 0)
+        )
         res.label_meaning = meaning.name
+        res.end_label_meaning = plan.end_meaning.name if both and plan.end_meaning else None
         res.count, res.last_digits, res.content_bytes = pos, tail, off
         self.scan = res
 
