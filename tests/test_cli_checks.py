@@ -265,7 +265,7 @@ def test_checkpoint_auto_is_one_journal_per_check_request(capsys, tmp_path, monk
     assert code == 1
     said = [ln.split("checkpoint: ", 1)[1] for ln in err.splitlines() if ln.startswith("checkpoint: ")]
     assert len(said) == 1 and Path(said[0]).parent == tmp_path / "cache" / "spotcheck"
-    assert "pi-bellard-pi-astray_txt-n30000-" in Path(said[0]).name
+    assert Path(said[0]).name.startswith("pi-bellard-n30000-")  # not the file name: a renamed file finds it
     code, payload = as_json(capsys, "locate", path, "--budget", "0", "--checkpoint", "auto")
     assert code == 1 and payload["first_mismatch"] == 20_001
     assert [p.name for p in (tmp_path / "cache" / "spotcheck").iterdir()] == [Path(said[0]).name]

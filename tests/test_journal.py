@@ -688,3 +688,71 @@ def test_check_journal_refuses_another_request(tmp_path: Path, capsys) -> None:
     assert journal.read_bytes() == before  # left alone
     assert run(["verify", str(one), "--checkpoint", str(tmp_path)]) == 2  # a directory is no journal
     assert "is a directory" in capsys.readouterr().err
+
+
+def _verify_blocks(path: Path, checkpoint: str | bool) -> tuple[int, int, str]:
+    """(blocks loaded, blocks computed, journal path) of one verify run with a checkpoint."""
+    from spotcheck.checks import common, verify_file
+
+    calls: list[tuple[int, int, int]] = []
+    real = common.extract
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(common, "extract", lambda *a, **kw: _record(real, calls, *a, **kw))
+        seen: list[str] = []
+        result = verify_file(
+            str(path), samples=2, seed=4, budget=0.0, checkpoint=checkpoint, on_checkpoint=seen.append
+        )
+    assert result.exit_code == 0
+    return sum(c[1] for c in calls), sum(c[2] for c in calls), seen[0]
+
+
+@pytest.mark.parametrize("how", ["file", "auto"])
+def test_a_moved_and_renamed_file_resumes_its_check_journal(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch, how: str
+) -> None:
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    first = tmp_path / "a" / "pi.txt"
+    first.parent.mkdir()
+    first.write_text("3." + pi_hex(30_000) + "\n")  # gmpy2/MPFR's pi
+    checkpoint: str | bool = str(tmp_path / "check.journal") if how == "file" else True
+    loaded, computed, journal = _verify_blocks(first, checkpoint)
+    assert loaded == 0 and computed > 0
+    moved = tmp_path / "b" / "copy of pi.txt"
+    moved.parent.mkdir()
+    first.rename(moved)
+    loaded2, computed2, journal2 = _verify_blocks(moved, checkpoint)
+    assert (loaded2, computed2, journal2) == (computed, 0, journal)  # every block read back, none again
+    # the same size, one digit changed near the middle: another file, its journal refused
+    text = moved.read_text()
+    at = len(text) // 2
+    other = tmp_path / "other.txt"
+    other.write_text(text[:at] + ("1" if text[at] != "1" else "2") + text[at + 1 :])
+    if how == "file":
+        with pytest.raises(CheckpointError, match="another request"):
+            _verify_blocks(other, checkpoint)
+    else:
+        assert _verify_blocks(other, checkpoint)[2] != journal  # a journal of its own
+
+
+def test_a_check_journal_keyed_by_the_file_path_is_still_resumed(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """Journals written before files were named by their fingerprint named them by their absolute
+    path: such a journal, for the same file, still resumes (given as a file, and under auto)."""
+    from spotcheck.checks import common
+
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    path = tmp_path / "pi.txt"
+    path.write_text("3." + pi_hex(30_000) + "\n")
+    real_request = common.check_checkpoint_request
+    real_path = common.check_checkpoint_path
+    with monkeypatch.context() as mp:  # the key and the auto name as they were
+        mp.setattr(common, "check_checkpoint_request", common._legacy_request)
+        mp.setattr(common, "check_checkpoint_path", lambda facts: str(common._legacy_auto_path(facts)))
+        _, computed, journal = _verify_blocks(path, True)
+        assert computed > 0 and "-pi_txt-" in Path(journal).name
+        assert json.loads(Path(journal).read_text().split("\t")[0])["request"]["file"]["path"] == str(path)
+    assert common.check_checkpoint_request is real_request and common.check_checkpoint_path is real_path
+    for checkpoint in (True, journal):
+        loaded, computed2, used = _verify_blocks(path, checkpoint)
+        assert (loaded, computed2, used) == (computed, 0, journal)

@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import os
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any, TypeVar
 
 from spotcheck.digitfile import DigitFile, open_digit_file
@@ -29,6 +31,7 @@ Plan = list[tuple[str, int]]
 # --- tuning -----------------------------------------------------------------
 DEFAULT_WINDOW = 16  # digits compared per check
 MAX_WINDOW = 64
+FINGERPRINT_BYTES = 1 << 20  # stored bytes hashed at each end of a file to name it in a journal
 # ---------------------------------------------------------------------------
 
 
@@ -205,18 +208,51 @@ def open_run(
     return CheckRun(df, facts, oracle, estimate)
 
 
+def file_fingerprint(path: str) -> str:
+    """What names a file in a check's journal: SHA-256 (first 32 hex digits) of its size and of its
+    first and last ``FINGERPRINT_BYTES`` stored bytes, read from the file as it lies on disk (read only).
+
+    It does not change when the file is moved, renamed or copied; a journal never holds anything
+    but the constant's own head-sum blocks, so the fingerprint keeps journals apart and cannot make
+    a verdict wrong even where two files share it.
+    """
+    import hashlib
+
+    with open(path, "rb") as f:
+        size = os.fstat(f.fileno()).st_size
+        h = hashlib.sha256(b"%d\n" % size)
+        h.update(f.read(FINGERPRINT_BYTES))
+        f.seek(max(FINGERPRINT_BYTES, size - FINGERPRINT_BYTES))
+        h.update(f.read(FINGERPRINT_BYTES))
+    return h.hexdigest()[:32]
+
+
 def check_checkpoint_request(facts: FileFacts) -> dict[str, Any]:
     """What a check's journal is keyed by: the constant, its formula (with its coefficients) and the file.
 
-    The file is named by its absolute path, size in bytes and the digits under
-    check, so a journal made for another file (or a ``digits`` journal) is
-    refused, never mixed in.
+    The file is named by its fingerprint (:func:`file_fingerprint`), size in bytes
+    and the digits under check, so a journal made for another file (or a ``digits``
+    journal) is refused, never mixed in, and a moved or renamed file resumes its own.
     """
-    import os
+    request = _formula_request(facts)
+    request["file"] = {
+        "fingerprint": file_fingerprint(facts.path),
+        "size_bytes": facts.size_bytes,
+        "checked": facts.checked,
+    }
+    return request
 
+
+def _formula_request(facts: FileFacts) -> dict[str, Any]:
     name, f = resolve_formula(facts.constant, facts.formula)
     request = checkpoint_request(name, f, 1, 1)
     del request["position"], request["count"]
+    return request
+
+
+def _legacy_request(facts: FileFacts) -> dict[str, Any]:
+    """The request journals written before 2026-12-03 carry: the file named by its absolute path."""
+    request = _formula_request(facts)
     request["file"] = {
         "path": os.path.abspath(facts.path),
         "size_bytes": facts.size_bytes,
@@ -227,19 +263,31 @@ def check_checkpoint_request(facts: FileFacts) -> dict[str, Any]:
 
 def check_checkpoint_path(facts: FileFacts) -> str:
     """The journal ``checkpoint=True`` (``--checkpoint auto``) uses for a check: the cache-directory rule of
-    :func:`spotcheck.engine.journal.request_path`, labelled by constant, formula and file name."""
-    import os
+    :func:`spotcheck.engine.journal.request_path`, labelled by constant, formula and the digits under check
+    (not the file's name, so that a renamed file finds its journal).  A journal an earlier version made
+    for this file under its own name is used when there is no other."""
+    label = f"{facts.constant}-{facts.formula}-n{facts.checked}"
+    path = request_path(label, check_checkpoint_request(facts))
+    if not path.exists():
+        old = _legacy_auto_path(facts)
+        if old.exists():
+            return str(old)
+    return str(path)
 
+
+def _legacy_auto_path(facts: FileFacts) -> Path:
+    """Where ``--checkpoint auto`` kept a check's journal before 2026-12-03 (named after the file)."""
     label = f"{facts.constant}-{facts.formula}-{os.path.basename(facts.path)}-n{facts.checked}"
-    return str(request_path(label, check_checkpoint_request(facts)))
+    return request_path(label, _legacy_request(facts))
 
 
 def check_journal(path: str, facts: FileFacts) -> Journal:
-    """The one journal of a check's engine windows (opened, or refused before any work)."""
+    """The one journal of a check's engine windows (opened, or refused before any work); a journal
+    written by an earlier version for this same file, under its path, is taken too."""
     from spotcheck.engine.series import series_of
 
     _, f = resolve_formula(facts.constant, facts.formula)
-    return Journal(path, series_of(f), check_checkpoint_request(facts))
+    return Journal(path, series_of(f), check_checkpoint_request(facts), also=(_legacy_request(facts),))
 
 
 ResultT = TypeVar("ResultT", VerifyResult, LocateResult)

@@ -49,6 +49,7 @@ import hashlib
 import json
 import os
 import tempfile
+from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
@@ -134,10 +135,18 @@ class Journal:
     :class:`CheckpointError` before any block is computed.
     """
 
-    def __init__(self, path: str | os.PathLike[str], series: Series, request: dict[str, Any]) -> None:
+    def __init__(
+        self,
+        path: str | os.PathLike[str],
+        series: Series,
+        request: dict[str, Any],
+        also: Sequence[dict[str, Any]] = (),
+    ) -> None:
         self.path = Path(path)
         self.series = series
         self.request = json.loads(json.dumps(request))  # a plain JSON copy
+        self.also = [json.loads(json.dumps(r)) for r in also]
+        """Other requests a file may name and still be this one's (an earlier version's key of the same work)."""
         self.damaged = 0
         """Complete lines skipped on reading because their checksum failed."""
         self.failure: str | None = None
@@ -175,7 +184,7 @@ class Journal:
         if header.get("version") != JOURNAL_VERSION:
             raise self._refuse(f"unsupported checkpoint version {header.get('version')!r}")
         request = header.get("request")
-        if request != self.request:
+        if request != self.request and request not in self.also:
             req = request if isinstance(request, dict) else {}
             diff = sorted(k for k in set(req) | set(self.request) if req.get(k) != self.request.get(k))
             theirs = ", ".join(f"{k} {req.get(k)!r}" for k in diff)
