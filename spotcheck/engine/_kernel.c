@@ -873,10 +873,10 @@ TARGET_AVX2 static inline __m256d pow2_pd_avx2(__m256i a, int e)
 TARGET_AVX2 static inline void ladder32_avx2(batch_t *bt, const int full)
 {
     /* n and f are read from the batch where they lie (copies into local
-     * arrays become memcpy calls); the lane bits are shifted there in place */
+     * arrays become memcpy calls) */
     __m256i X[H], NP[H];
     const __m256i *N = (const __m256i *)bt->n;
-    __m256i *F = (__m256i *)bt->f;
+    const __m256i *F = (const __m256i *)bt->f;
     const __m256i zero = _mm256_setzero_si256();
     const uint64_t fmax = bt->fmax, fmin = bt->fmin;
     /* The top bits: with sh = top_shift(max f, TOP32), lane l starts from
@@ -904,18 +904,14 @@ TARGET_AVX2 static inline void ladder32_avx2(batch_t *bt, const int full)
                 X[h] = _mm256_min_epu32(X[h], _mm256_sub_epi32(X[h], _mm256_loadu_si256(N + h)));
         }
     }
-    /* the lanes' own bits: bit b of f moved to the sign bit of G, which
-     * selects x or 2x (blendv reads only the sign bit); G doubles per step */
-    const __m128i up = _mm_cvtsi32_si128(64 - low);
-    for (int h = 0; h < H && low; h++)
-        _mm256_storeu_si256(F + h, _mm256_sll_epi64(_mm256_loadu_si256(F + h), up));
+    /* the lanes' own bits: y = x << (bit b of f), i.e. x or 2x (2x < 2^32 as
+     * above), by a per-lane shift; f is only read */
+    const __m256i one = _mm256_set1_epi64x(1);
     for (int b = low - 1; b >= 0; b--) {
+        const __m128i cnt = _mm_cvtsi32_si128(b);
         for (int h = 0; h < H; h++) {
-            __m256i g = _mm256_loadu_si256(F + h);
-            __m256i y = _mm256_castpd_si256(_mm256_blendv_pd(_mm256_castsi256_pd(X[h]),
-                                                             _mm256_castsi256_pd(_mm256_add_epi64(X[h], X[h])),
-                                                             _mm256_castsi256_pd(g)));
-            _mm256_storeu_si256(F + h, _mm256_add_epi64(g, g));
+            __m256i bit = _mm256_and_si256(_mm256_srl_epi64(_mm256_loadu_si256(F + h), cnt), one);
+            __m256i y = _mm256_sllv_epi64(X[h], bit);
             __m256i t = _mm256_mul_epu32(X[h], y);
             __m256i m = _mm256_mul_epu32(t, NP[h]);
             X[h] = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, _mm256_loadu_si256(N + h))), 32);
@@ -966,7 +962,7 @@ TARGET_AVX2 static inline __m256d mulmod_avx2(__m256d a, __m256d b, __m256d n, _
 TARGET_AVX2 static void medium_avx2(batch_t *bt)
 {
     __m256d X[H], ND[H], NI[H];
-    __m256i *F = (__m256i *)bt->f; /* read and shifted in place, as in ladder32_avx2 */
+    const __m256i *F = (const __m256i *)bt->f; /* read where it lies, as in ladder32_avx2 */
     const __m256d d1 = _mm256_set1_pd(1.0);
     const uint64_t fmax = bt->fmax, fmin = bt->fmin;
     /* the top bits as in ladder32_avx2: x starts at 2^(f >> sh) mod n with
@@ -990,14 +986,11 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
             for (int h = 0; h < H; h++)
                 X[h] = mulmod_avx2(X[h], X[h], ND[h], NI[h]);
     }
-    const __m128i up = _mm_cvtsi32_si128(64 - low); /* the lanes' own bits, as in small_avx2 */
-    for (int h = 0; h < H && low; h++)
-        _mm256_storeu_si256(F + h, _mm256_sll_epi64(_mm256_loadu_si256(F + h), up));
-    for (int b = low - 1; b >= 0; b--) {
+    for (int b = low - 1; b >= 0; b--) { /* the lanes' own bits: bit b of f shifted to the sign bit */
+        const __m128i up = _mm_cvtsi32_si128(63 - b);   /* that blendv reads: x or 2x (exact) */
         for (int h = 0; h < H; h++) {
-            __m256i g = _mm256_loadu_si256(F + h);
-            __m256d y = _mm256_blendv_pd(X[h], _mm256_add_pd(X[h], X[h]), _mm256_castsi256_pd(g)); /* exact */
-            _mm256_storeu_si256(F + h, _mm256_add_epi64(g, g));
+            __m256i g = _mm256_sll_epi64(_mm256_loadu_si256(F + h), up);
+            __m256d y = _mm256_blendv_pd(X[h], _mm256_add_pd(X[h], X[h]), _mm256_castsi256_pd(g));
             X[h] = mulmod_avx2(X[h], y, ND[h], NI[h]);
         }
     }
