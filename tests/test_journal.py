@@ -756,3 +756,79 @@ def test_a_check_journal_keyed_by_the_file_path_is_still_resumed(
     for checkpoint in (True, journal):
         loaded, computed2, used = _verify_blocks(path, checkpoint)
         assert (loaded, computed2, used) == (computed, 0, journal)
+
+
+# --- one run at a time; an empty file ----------------------------------------------------
+
+
+REQUEST = checkpoint_request("pi", PI_BELLARD, POSITION, 14)
+
+
+def test_a_journal_in_use_is_refused_until_its_run_closes_it(finished: Path) -> None:
+    before = finished.read_bytes()
+    first = Journal(finished, SERIES, REQUEST)
+    with pytest.raises(CheckpointError, match="another spotcheck run is using it"):
+        Journal(finished, SERIES, REQUEST)  # a second journal on the file, even in this process
+    with pytest.raises(CheckpointError, match="another spotcheck run is using it"):
+        run_with(finished)
+    assert finished.read_bytes() == before  # the refused runs left it alone
+    kept = first.blocks_kept
+    first.close()
+    again = Journal(finished, SERIES, REQUEST)  # compaction replaced the file: its new self is free
+    assert again.loaded == kept > 0
+    again.close(compact=False)
+    Journal(finished, SERIES, REQUEST).close()  # closed without compaction: free too
+
+
+def test_a_journal_locked_by_another_process_exits_2_before_any_work(
+    finished: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    from spotcheck.cli import run
+
+    holder = subprocess.Popen(
+        [
+            sys.executable,
+            "-c",
+            "import fcntl, os, sys, time\n"
+            f"fd = os.open({str(finished)!r}, os.O_RDONLY)\n"
+            "fcntl.flock(fd, fcntl.LOCK_EX)\n"
+            "print('held', flush=True)\n"
+            "sys.stdin.read()\n",
+        ],
+        stdin=subprocess.PIPE,
+        stdout=subprocess.PIPE,
+        text=True,
+    )
+    try:
+        assert holder.stdout is not None and holder.stdout.readline() == "held\n"
+        before = finished.read_bytes()
+        argv = ["digits", "pi", "--at", str(POSITION), "--count", "14", "--checkpoint", str(finished)]
+        assert run(argv) == 2
+        err = [ln for ln in capsys.readouterr().err.splitlines() if ln.startswith("error:")]
+        assert len(err) == 1 and "is using it" in err[0], err
+        assert finished.read_bytes() == before
+    finally:
+        holder.communicate("")
+    assert run_with(finished).digits == EXPECTED  # let go: a run takes the journal again
+
+
+def test_an_empty_file_gets_its_first_line_before_any_work(tmp_path: Path) -> None:
+    """An empty file (``mktemp``'s, say) is a new journal: its first line is on disk at once, so
+    a run killed before its end leaves a journal the next run reads."""
+    path = tmp_path / "made-by-mktemp"
+    path.touch()
+    journal = Journal(path, SERIES, REQUEST)
+    lines, torn = read_lines(path)
+    assert (
+        torn == b""
+        and len(lines) == 1
+        and lines[0]
+        == {
+            "format": "spotcheck-journal",
+            "version": 2,
+            "request": REQUEST,
+        }
+    )
+    journal.close(compact=False)  # as after kill -9: nothing compacted
+    assert run_with(path).digits == EXPECTED  # the file is read as a journal, and filled
+    assert Journal(path, SERIES, REQUEST).loaded == len(all_blocks(path)) > 0

@@ -36,7 +36,13 @@ Reading:
   another program's file, and the file is left alone.
 
 A file that cannot be created or opened for appending is refused at once,
-before any work.  A write that fails later (disk full, file-size limit) is
+before any work.  So is a file another run is using: a run holds an
+exclusive lock (``flock``) on its journal from before it reads the file until
+it closes it, and a second run (another process, or a second journal on the
+same file in this one) is refused at once instead of appending to it in
+turn and losing the other's records at compaction.  Where the platform or
+the filesystem has no such locks, the journal goes on unlocked.  An empty
+file is a new journal: its first line is written before any work.  A write that fails later (disk full, file-size limit) is
 not an error: :attr:`Journal.failure` says why, the run goes on without the
 file, and the blocks already written stay valid.  At the end of a run the
 file is *compacted*: rewritten atomically (temporary file, ``fsync``,
@@ -50,6 +56,11 @@ import json
 import os
 import tempfile
 from collections.abc import Sequence
+
+try:
+    import fcntl
+except ImportError:  # pragma: no cover - platforms without flock: journals are not locked
+    fcntl = None  # type: ignore[assignment]
 from pathlib import Path
 from typing import Any
 
@@ -156,11 +167,51 @@ class Journal:
         self._sections: dict[tuple[int, int], dict[str, Any]] = {}
         self._records: dict[tuple[int, int], dict[int, BlockRecord]] = {}
         self._fd: int | None = None
+        self._lock_fd: int | None = None
         if self.path.is_dir():
             raise self._refuse("it is a directory")
-        valid_length = self._load() if self.path.exists() else None
-        self._open_for_append(valid_length)
+        try:
+            if self.path.exists():
+                self._take_lock()  # before reading: no other run is writing it meanwhile
+            valid_length = self._load() if self.path.exists() else None
+            self._open_for_append(valid_length)
+            if self._lock_fd is None:
+                self._take_lock()  # a file this run made
+        except BaseException:
+            self._stop_quietly()
+            raise
         self.loaded = self.blocks_kept
+
+    def _take_lock(self) -> None:
+        """Hold an exclusive lock on the journal file until :meth:`close` (CheckpointError if another
+        run holds one).  A file replaced meanwhile (another run's compaction) is locked afresh."""
+        if fcntl is None:  # pragma: no cover
+            return
+        for _ in range(8):
+            try:
+                fd = os.open(self.path, os.O_RDONLY)
+            except OSError as exc:
+                raise self._refuse(f"it cannot be read ({exc.strerror or exc})") from None
+            try:
+                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except BlockingIOError:
+                os.close(fd)
+                raise self._refuse(
+                    "another spotcheck run is using it (the file is locked); let that run end or use another file"
+                ) from None
+            except OSError:  # a filesystem without locks: go on unlocked
+                os.close(fd)
+                return
+            try:
+                held, now = os.fstat(fd), os.stat(self.path)
+                same = (held.st_dev, held.st_ino) == (now.st_dev, now.st_ino)
+            except OSError:  # the name is gone: try again
+                same = False
+            if same:
+                self._lock_fd = fd
+                return
+            os.close(fd)  # the name points at another file now: lock that one
+        raise self._refuse("it keeps being replaced by another run")
 
     # -- reading ------------------------------------------------------------
     def _refuse(self, why: str) -> CheckpointError:
@@ -272,13 +323,21 @@ class Journal:
     # -- writing ------------------------------------------------------------
     def _open_for_append(self, valid_length: int | None) -> None:
         try:
-            if valid_length is None:  # a new file: its first line, durable before any work
+            header = journal_line(
+                {"format": JOURNAL_FORMAT, "version": JOURNAL_VERSION, "request": self.request}
+            )
+            if valid_length is None:  # a new file, made whole with its first line, durable before any work
                 self.path.parent.mkdir(parents=True, exist_ok=True)
-                header = {"format": JOURNAL_FORMAT, "version": JOURNAL_VERSION, "request": self.request}
-                _write_atomic(self.path, journal_line(header))
+                if not _write_new(self.path, header):
+                    raise self._refuse(
+                        "another spotcheck run created it at the same moment; let that run end"
+                    )
             self._fd = os.open(self.path, os.O_WRONLY | os.O_APPEND)
             if valid_length is not None and valid_length < os.fstat(self._fd).st_size:
                 os.ftruncate(self._fd, valid_length)  # cut a torn last line
+            if valid_length == 0:  # an empty file (made by mktemp, say), locked by this run: its first line
+                os.write(self._fd, header.encode("utf-8"))
+                os.fsync(self._fd)
         except OSError as exc:
             self._fd = None
             why = exc.strerror or str(exc)
@@ -326,11 +385,14 @@ class Journal:
         self._append(journal_line({"block": [record.d, record.words, *record.to_list()]}))
 
     def close(self, *, compact: bool = True) -> None:
-        """Stop appending; with ``compact``, rewrite the file in order without damaged lines."""
+        """Stop appending; with ``compact``, rewrite the file in order without damaged lines.  The
+        file's lock is let go last."""
         if self._fd is None:
+            self._unlock()
             return
-        self._stop_quietly()
+        self._stop_fd()
         if not compact:
+            self._unlock()
             return
         lines = [
             journal_line({"format": JOURNAL_FORMAT, "version": JOURNAL_VERSION, "request": self.request})
@@ -343,14 +405,71 @@ class Journal:
             _write_atomic(self.path, "".join(lines))
         except OSError as exc:  # the journal as appended stays valid
             self.failure = f"compacting the checkpoint {self.path} failed ({exc.strerror or exc})"
+        finally:
+            self._unlock()
 
-    def _stop_quietly(self) -> None:
+    def _stop_fd(self) -> None:
         fd, self._fd = self._fd, None
         if fd is not None:
             try:
                 os.close(fd)
             except OSError:
                 pass
+
+    def _unlock(self) -> None:
+        fd, self._lock_fd = self._lock_fd, None
+        if fd is not None:
+            try:
+                os.close(fd)  # closing the locked descriptor lets the lock go
+            except OSError:
+                pass
+
+    def _stop_quietly(self) -> None:
+        self._stop_fd()
+        self._unlock()
+
+
+def _write_new(path: Path, text: str) -> bool:
+    """Create ``path`` holding ``text``, whole or not at all; False when ``path`` exists by then
+    (a hard link from a finished temporary file never replaces anything; where the filesystem has
+    no hard links, a rename does)."""
+    fd, tmp = tempfile.mkstemp(prefix=path.name + ".", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        try:
+            os.link(tmp, path)
+        except FileExistsError:
+            return False
+        except OSError:  # no hard links here
+            if path.exists():
+                return False
+            os.replace(tmp, path)
+            tmp = ""
+    finally:
+        if tmp:
+            try:
+                os.unlink(tmp)
+            except OSError:
+                pass
+    _sync_folder(path)
+    return True
+
+
+def _sync_folder(path: Path) -> None:
+    """Make a new name in ``path``'s folder durable."""
+    try:
+        dir_fd = os.open(path.parent, os.O_RDONLY)
+    except OSError:  # pragma: no cover - platforms without directory fds
+        return
+    try:
+        os.fsync(dir_fd)
+    except OSError:  # pragma: no cover
+        pass
+    finally:
+        os.close(dir_fd)
 
 
 def _write_atomic(path: Path, text: str) -> None:
@@ -368,13 +487,4 @@ def _write_atomic(path: Path, text: str) -> None:
         except OSError:
             pass
         raise
-    try:  # make the rename itself durable
-        dir_fd = os.open(path.parent, os.O_RDONLY)
-    except OSError:  # pragma: no cover - platforms without directory fds
-        return
-    try:
-        os.fsync(dir_fd)
-    except OSError:  # pragma: no cover
-        pass
-    finally:
-        os.close(dir_fd)
+    _sync_folder(path)  # make the rename itself durable
