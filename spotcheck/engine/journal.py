@@ -429,16 +429,33 @@ class Journal:
         self._unlock()
 
 
-def _write_new(path: Path, text: str) -> bool:
-    """Create ``path`` holding ``text``, whole or not at all; False when ``path`` exists by then
-    (a hard link from a finished temporary file never replaces anything; where the filesystem has
-    no hard links, a rename does)."""
+def _synced_temp(path: Path, text: str) -> str:
+    """A temporary file beside ``path`` holding ``text``, written and fsync'd; its name."""
     fd, tmp = tempfile.mkstemp(prefix=path.name + ".", suffix=".tmp", dir=path.parent)
     try:
         with os.fdopen(fd, "w", encoding="utf-8") as fh:
             fh.write(text)
             fh.flush()
             os.fsync(fh.fileno())
+    except BaseException:
+        _unlink_quietly(tmp)
+        raise
+    return tmp
+
+
+def _unlink_quietly(name: str) -> None:
+    try:
+        os.unlink(name)
+    except OSError:
+        pass
+
+
+def _write_new(path: Path, text: str) -> bool:
+    """Create ``path`` holding ``text``, whole or not at all; False when ``path`` exists by then
+    (a hard link from a finished temporary file never replaces anything; where the filesystem has
+    no hard links, a rename does)."""
+    tmp = _synced_temp(path, text)
+    try:
         try:
             os.link(tmp, path)
         except FileExistsError:
@@ -447,13 +464,9 @@ def _write_new(path: Path, text: str) -> bool:
             if path.exists():
                 return False
             os.replace(tmp, path)
-            tmp = ""
     finally:
-        if tmp:
-            try:
-                os.unlink(tmp)
-            except OSError:
-                pass
+        if os.path.exists(tmp):
+            _unlink_quietly(tmp)
     _sync_folder(path)
     return True
 
@@ -474,17 +487,10 @@ def _sync_folder(path: Path) -> None:
 
 def _write_atomic(path: Path, text: str) -> None:
     """Replace ``path`` by ``text`` so that a crash leaves the old or the new file, never half."""
-    fd, tmp = tempfile.mkstemp(prefix=path.name + ".", suffix=".tmp", dir=path.parent)
+    tmp = _synced_temp(path, text)
     try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
         os.replace(tmp, path)
     except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
+        _unlink_quietly(tmp)
         raise
     _sync_folder(path)  # make the rename itself durable
