@@ -323,7 +323,23 @@ def looks_binary(head: bytes) -> bool:
     return bool(controls) or len(odd) > 0.3 * len(sample)
 
 
+def first_control(head: bytes) -> int:
+    """Index of the first byte of ``head`` that is not text (0 when there is none in its first 4096)."""
+    return next((i for i, c in enumerate(head[:4096]) if c not in _TEXT_BYTES), 0)
+
+
 _COMPRESSION_SUFFIXES = (".gz", ".gzip", ".bz2", ".xz")
+
+
+_UTF16_MARKS = ((b"\xff\xfe", "utf-16le"), (b"\xfe\xff", "utf-16be"))
+
+
+def utf16_encoding(head: bytes) -> str | None:
+    """``"utf-16le"`` or ``"utf-16be"`` when the content starts with that byte order mark, else None."""
+    for prefix, encoding in _UTF16_MARKS:
+        if head.startswith(prefix):
+            return encoding
+    return None
 
 
 def packed_reading(head: bytes, path: str, packed: bool | None) -> bool:
@@ -332,7 +348,8 @@ def packed_reading(head: bytes, path: str, packed: bool | None) -> bool:
     ``packed`` (the caller's choice) wins; otherwise text content is text, and
     binary content is packed hex when the name ends in one of ``PACKED_SUFFIXES``
     (before any compression suffix) or its first 32 bytes are the leading hex
-    digits of a known constant.  Any other binary content is an error.
+    digits of a known constant; else text when it starts with a UTF-16 byte
+    order mark.  Any other binary content is an error.
     """
     if packed is not None:
         return packed
@@ -348,7 +365,9 @@ def packed_reading(head: bytes, path: str, packed: bool | None) -> bool:
     digits = head[:32].hex().upper()
     if match_constant(digits, None, 16, len(digits)).name is not None:
         return True
-    at = next((i for i, c in enumerate(head[:4096]) if c not in _TEXT_BYTES), 0)
+    if utf16_encoding(head) is not None:
+        return False  # text stored as UTF-16 (the reader decodes it)
+    at = first_control(head)
     raise DigitFileError(
         f"{os.path.basename(path)}: binary content (byte 0x{head[at]:02X} at byte {at}): not digit text, "
         "not gzip/bzip2/xz, and not packed hex digits of a known constant "

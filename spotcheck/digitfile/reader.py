@@ -25,13 +25,16 @@ from spotcheck.digitfile.detect import (
     LABEL_CHOICES,
     Detection,
     detect_text,
+    first_control,
+    looks_binary,
     newline_of,
     packed_reading,
+    utf16_encoding,
 )
 from spotcheck.digitfile.guess import ConstantMatch, explicit_constant, guess_constant, match_constant
 from spotcheck.digitfile.index import CHUNK_BYTES, INDEX_STEP, IndexResult, Progress, build_index
 from spotcheck.digitfile.model import Finding, InspectResult, Layout
-from spotcheck.digitfile.source import ByteSource, open_source
+from spotcheck.digitfile.source import ByteSource, Utf16Source, open_source
 from spotcheck.errors import DigitFileError, UsageError
 
 __all__ = ["DigitFile", "open_digit_file", "inspect_file", "EDGE_DIGITS"]
@@ -357,6 +360,19 @@ def detect_source(
         raise DigitFileError(f"{name}: {what}")
     if packed_reading(head, src.path, packed):
         return src, None, head
+    encoding = utf16_encoding(head)
+    if encoding is not None:  # text stored as UTF-16: read as the characters it holds
+        src = Utf16Source(src, encoding)
+        head = src.read_at(0, HEAD_BYTES)
+        eof = len(head) < HEAD_BYTES
+        if not head:
+            raise DigitFileError(f"{name}: its {src.compression} content is empty")
+        if looks_binary(head):  # as for one-byte text: control characters are no digit file
+            at = first_control(head)
+            raise DigitFileError(
+                f"{name}: character U+{head[at]:04X} at byte {2 + 2 * at} of this {encoding} file: "
+                "not a digit, space, line break or header text"
+            )
     cr_only = newline_of(head) == "\r"
     if cr_only:
         src = _CarriageReturns(src)  # type: ignore[assignment]

@@ -15,7 +15,15 @@ whose decompressors cannot be copied, a restart from the beginning of the file. 
 that read many windows should therefore read them in increasing order; the
 reader's ``iter_chunks`` does.  (We keep no decompressor checkpoints.)
 
-Both sources remember the file's size and modification time when opened and
+A :class:`Utf16Source` reads text stored as UTF-16 with its byte order mark
+(what Windows PowerShell's ``>`` and Notepad's "Unicode" write) over either of
+them: its content is the text's characters, one byte each, so offsets, lines
+and columns are those of the decoded text (as for compressed files, where they
+are those of the decompressed content).  Only characters below U+0080 can be
+digit-file text; any other, or half a character at the end, is an error that
+names the character and its stored byte offset.
+
+Every source remembers the file's size and modification time when opened and
 raise :class:`DigitFileError` when either has changed, so a file that is still
 being written is reported instead of read half-way.
 """
@@ -37,7 +45,14 @@ from typing import IO, Protocol
 from spotcheck.digitfile.gzipseek import GzipSeeker, TruncatedError
 from spotcheck.errors import DigitFileError, FileAccessError
 
-__all__ = ["ByteSource", "PlainSource", "CompressedSource", "open_source", "detect_compression"]
+__all__ = [
+    "ByteSource",
+    "PlainSource",
+    "CompressedSource",
+    "Utf16Source",
+    "open_source",
+    "detect_compression",
+]
 
 # Bytes skipped per read when a compressed stream moves forward.
 SKIP_BYTES = 4 << 20
@@ -246,6 +261,47 @@ class CompressedSource:
         if self._fd >= 0:
             os.close(self._fd)
             self._fd = -1
+
+
+class Utf16Source:
+    """UTF-16 text (after its byte order mark) read as the one-byte characters it holds."""
+
+    def __init__(self, inner: ByteSource, encoding: str) -> None:
+        self._inner = inner
+        self.path = inner.path
+        self.size_bytes = inner.size_bytes
+        self.encoding = encoding
+        self.compression: str | None = f"{inner.compression}, {encoding}" if inner.compression else encoding
+        """The stored form: the encoding, after the compression if there is one."""
+        self._low = 0 if encoding == "utf-16le" else 1  # where a character's low byte lies
+
+    def read_at(self, offset: int, n: int) -> bytes:
+        if n <= 0:
+            return b""
+        raw = self._inner.read_at(2 + 2 * offset, 2 * n)
+        if len(raw) % 2:
+            raise DigitFileError(
+                f"{os.path.basename(self.path)}: {self.encoding} text ends in half a character "
+                f"(byte {2 + 2 * offset + len(raw) - 1})"
+            )
+        low, high = raw[self._low :: 2], raw[1 - self._low :: 2]
+        if high.count(0) != len(high) or not low.isascii():
+            i = next(j for j in range(len(low)) if high[j] or low[j] >= 0x80)
+            code = (high[i] << 8) | low[i]
+            raise DigitFileError(
+                f"{os.path.basename(self.path)}: character U+{code:04X} at byte {2 + 2 * (offset + i)} of this "
+                f"{self.encoding} file: not a digit, space, line break or header text"
+            )
+        return low
+
+    def stored_bytes_done(self, offset: int) -> int:
+        return self._inner.stored_bytes_done(2 + 2 * offset)
+
+    def check_unchanged(self) -> None:
+        self._inner.check_unchanged()
+
+    def close(self) -> None:
+        self._inner.close()
 
 
 def _check_same(path: str, st: os.stat_result, size: int, mtime: int) -> None:
