@@ -42,9 +42,10 @@ it closes it, and a second run (another process, or a second journal on the
 same file in this one) is refused at once instead of appending to it in
 turn and losing the other's records at compaction.  Where the platform or
 the filesystem has no such locks, the journal goes on unlocked.  An empty
-file is a new journal: its first line is written before any work.  A write that fails later (disk full, file-size limit) is
-not an error: :attr:`Journal.failure` says why, the run goes on without the
-file, and the blocks already written stay valid.  At the end of a run the
+file is a new journal: its first line is written before any work.  A write
+that fails later (disk full, file-size limit) is not an error:
+:attr:`Journal.failure` says why, the run goes on without the file, and the
+blocks already written stay valid.  At the end of a run the
 file is *compacted*: rewritten atomically (temporary file, ``fsync``,
 ``os.replace``) with each section's records in order and no damaged lines.
 """
@@ -56,17 +57,17 @@ import json
 import os
 import tempfile
 from collections.abc import Sequence
-
-try:
-    import fcntl
-except ImportError:  # pragma: no cover - platforms without flock: journals are not locked
-    fcntl = None  # type: ignore[assignment]
 from pathlib import Path
 from typing import Any
 
 from spotcheck.engine.blocks import BlockRecord, BlockRequest, block_problem
 from spotcheck.engine.series import Series
 from spotcheck.errors import CheckpointError
+
+try:
+    import fcntl
+except ImportError:  # pragma: no cover - platforms without flock: journals are not locked
+    fcntl = None  # type: ignore[assignment]
 
 __all__ = [
     "Journal",
