@@ -986,8 +986,9 @@ TARGET_AVX2 static void medium_avx2(batch_t *bt)
             for (int h = 0; h < H; h++)
                 X[h] = mulmod_avx2(X[h], X[h], ND[h], NI[h]);
     }
-    for (int b = low - 1; b >= 0; b--) { /* the lanes' own bits: bit b of f shifted to the sign bit */
-        const __m128i up = _mm_cvtsi32_si128(63 - b);   /* that blendv reads: x or 2x (exact) */
+    /* the lanes' own bits: bit b of f shifted to the sign bit, which blendv reads: x or 2x (exact) */
+    for (int b = low - 1; b >= 0; b--) {
+        const __m128i up = _mm_cvtsi32_si128(63 - b);
         for (int h = 0; h < H; h++) {
             __m256i g = _mm256_sll_epi64(_mm256_loadu_si256(F + h), up);
             __m256d y = _mm256_blendv_pd(X[h], _mm256_add_pd(X[h], X[h]), _mm256_castsi256_pd(g));
