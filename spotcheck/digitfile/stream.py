@@ -86,7 +86,8 @@ KIND = {"before": 0, "first": 1, "through": 2}
 # it through the index pass first (two reads, never a misreading).
 _KNOWN_FIELDS = frozenset(
     "base base_how explicit_base integer_part header_lines first_line_no labels syntax meaning "
-    "end_meaning first_label first_label_text first_end_label_text digits_offset seg_end seg_cols seg_digits head_digits sample_digits "
+    "end_meaning first_label first_label_text first_end_label_text digits_offset seg_end seg_cols "
+    "seg_digits head_digits sample_digits "
     "template newline letter_case whole_file_in_head notes".split()
 )
 
