@@ -251,11 +251,6 @@ def test_extract_labelled_reads_both_ends() -> None:
             fn(data, table, norm, out, 0, (0, *layout[1:]), 0, 0, 1, 1, -1)  # one end needs 6
 
 
-_SYNTAX_OF = {
-    (w, s, r): LabelSyntax(w, r, s) for w in ("start", "end") for s in ("mark", "blank") for r in (10, 16)
-}
-
-
 @settings(max_examples=400, deadline=None)
 @given(labelled_chunks())
 # a blank before an end mark is the end separator's: no blank is left for the start's
@@ -268,11 +263,7 @@ def test_the_loops_plain_lines_split_as_the_line_rule_splits_them(case) -> None:
     where = ("start", "end", "both")[layout[0]]
     seps = [("mark", "blank")[layout[i]] for i in range(1, len(layout), 5)]
     radix = layout[2]
-    syntax = (
-        LabelSyntax(where, radix, seps[0], seps[1])
-        if where == "both"
-        else _SYNTAX_OF[(where, seps[0], radix)]
-    )
+    syntax = LabelSyntax(where, radix, *seps)  # "both": the start's separator, then the end's
     for raw in data.split(b"\n")[:-1]:
         text = raw[:-1] if raw.endswith(b"\r") else raw
         split = stream.plain_split(base, layout, text) if text.strip(b" \t") else None

@@ -748,7 +748,9 @@ def test_a_check_journal_keyed_by_the_file_path_is_still_resumed(
     real_path = common.check_checkpoint_path
     with monkeypatch.context() as mp:  # the key and the auto name as they were
         mp.setattr(common, "check_checkpoint_request", common._legacy_request)
-        mp.setattr(common, "check_checkpoint_path", lambda facts: str(common._legacy_auto_path(facts)))
+        mp.setattr(
+            common, "check_checkpoint_path", lambda facts, request=None: str(common._legacy_auto_path(facts))
+        )
         _, computed, journal = _verify_blocks(path, True)
         assert computed > 0 and "-pi_txt-" in Path(journal).name
         assert json.loads(Path(journal).read_text().split("\t")[0])["request"]["file"]["path"] == str(path)

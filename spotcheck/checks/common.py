@@ -195,8 +195,9 @@ def open_run(
             facts, workers=workers, cluster=cluster is not None, checkpoint=bool(checkpoint)
         )
         if checkpoint and get_constant(facts.constant).evaluation is None:
-            path = check_checkpoint_path(facts) if checkpoint is True else str(checkpoint)
-            journal = check_journal(path, facts)
+            request = check_checkpoint_request(facts)  # reads the file's ends once
+            path = check_checkpoint_path(facts, request) if checkpoint is True else str(checkpoint)
+            journal = check_journal(path, facts, request)
     except BaseException:
         df.close()
         raise
@@ -261,13 +262,14 @@ def _legacy_request(facts: FileFacts) -> dict[str, Any]:
     return request
 
 
-def check_checkpoint_path(facts: FileFacts) -> str:
+def check_checkpoint_path(facts: FileFacts, request: dict[str, Any] | None = None) -> str:
     """The journal ``checkpoint=True`` (``--checkpoint auto``) uses for a check: the cache-directory rule of
     :func:`spotcheck.engine.journal.request_path`, labelled by constant, formula and the digits under check
     (not the file's name, so that a renamed file finds its journal).  A journal an earlier version made
-    for this file under its own name is used when there is no other."""
+    for this file under its own name is used when there is no other.  ``request``: the check's
+    :func:`check_checkpoint_request`, when the caller has it."""
     label = f"{facts.constant}-{facts.formula}-n{facts.checked}"
-    path = request_path(label, check_checkpoint_request(facts))
+    path = request_path(label, request if request is not None else check_checkpoint_request(facts))
     if not path.exists():
         old = _legacy_auto_path(facts)
         if old.exists():
@@ -281,13 +283,15 @@ def _legacy_auto_path(facts: FileFacts) -> Path:
     return request_path(label, _legacy_request(facts))
 
 
-def check_journal(path: str, facts: FileFacts) -> Journal:
+def check_journal(path: str, facts: FileFacts, request: dict[str, Any] | None = None) -> Journal:
     """The one journal of a check's engine windows (opened, or refused before any work); a journal
     written by an earlier version for this same file, under its path, is taken too."""
     from spotcheck.engine.series import series_of
 
     _, f = resolve_formula(facts.constant, facts.formula)
-    return Journal(path, series_of(f), check_checkpoint_request(facts), also=(_legacy_request(facts),))
+    if request is None:
+        request = check_checkpoint_request(facts)
+    return Journal(path, series_of(f), request, also=(_legacy_request(facts),))
 
 
 ResultT = TypeVar("ResultT", VerifyResult, LocateResult)

@@ -323,49 +323,17 @@ static Py_ssize_t start_label(const unsigned char *s, Py_ssize_t k, Py_ssize_t e
     return k + 1;
 }
 
-/* The body and an end label in s[b0..e): body sep label [blanks].  Copies the body's digits to o
- * and sets *nd; 1 when that is the form of s[b0..e).  With blanks as the separator the label is
- * the last word, and a blank must stand before it within s[b0..e). */
-static int end_label(const unsigned char *s, Py_ssize_t b0, Py_ssize_t e, const LabelEnd *c, const Tables *tb,
-                     unsigned char *o, Py_ssize_t *nd, uint64_t *v) {
-    Py_ssize_t k, l0, l1;
-    if (c->sep == 0) {
-        k = copy_body(s, b0, e, o, tb, nd);
-        if (k == e || (s[k] != ':' && s[k] != '|')) return 0;
-        k++;
-        while (k < e && is_blank(s[k])) k++;
-        l0 = k;
-        while (k < e && label_value(s[k], c->radix) >= 0) k++;
-        l1 = k;
-        while (k < e && is_blank(s[k])) k++;
-        if (k != e) return 0;
-    } else {
-        k = e;
-        while (k > b0 && is_blank(s[k - 1])) k--;
-        l1 = k;
-        while (k > b0 && !is_blank(s[k - 1])) k--;
-        l0 = k;
-        if (l0 == b0) return 0; /* no blank before the last word */
-        for (Py_ssize_t j = l0; j < l1; j++)
-            if (label_value(s[j], c->radix) < 0) return 0;
-        if (copy_body(s, b0, l0, o, tb, nd) != l0) return 0;
-    }
-    return label_at(s, l0, l1, c, v);
-}
-
 /* The end label of s[0..e) as LabelSyntax("end").split_line finds it: the last word after a
- * separator, then blanks.  Sets [*l0, *l1) to the label and returns where the separator starts
- * (its first blank, or its mark when no blank precedes it): the body ends there.  -1 when the
- * line ends otherwise. */
-static Py_ssize_t find_end_label(const unsigned char *s, Py_ssize_t e, const LabelEnd *c, Py_ssize_t *l0,
-                                 Py_ssize_t *l1, uint64_t *v) {
+ * separator, then blanks.  Sets *v to its value and returns where the separator starts (its
+ * first blank, or its mark when no blank precedes it): the body ends there.  -1 when the line
+ * ends otherwise. */
+static Py_ssize_t find_end_label(const unsigned char *s, Py_ssize_t e, const LabelEnd *c, uint64_t *v) {
     Py_ssize_t k = e;
     while (k > 0 && is_blank(s[k - 1])) k--;
-    *l1 = k;
+    const Py_ssize_t l1 = k;
     while (k > 0 && label_value(s[k - 1], c->radix) >= 0) k--;
-    *l0 = k;
     if (k > 0 && !is_blank(s[k - 1]) && s[k - 1] != ':' && s[k - 1] != '|') return -1; /* not a whole word */
-    if (!label_at(s, *l0, *l1, c, v)) return -1;
+    if (!label_at(s, k, l1, c, v)) return -1;
     if (c->sep == 0) {
         while (k > 0 && is_blank(s[k - 1])) k--;
         if (k == 0 || (s[k - 1] != ':' && s[k - 1] != '|')) return -1;
@@ -399,12 +367,13 @@ static int read_line(const unsigned char *s, Py_ssize_t e, const LabelLayout *L,
     while (k < e && is_blank(s[k])) k++;
     if (k == e) return 1; /* blanks only */
     if (L->where == 1) {
-        if (!end_label(s, 0, e, &L->a, tb, o, nd, &v[0])) return 0;
+        Py_ssize_t b1 = find_end_label(s, e, &L->a, &v[0]);
+        if (b1 < 0 || copy_body(s, 0, b1, o, tb, nd) != b1) return 0;
     } else if (L->where == 0) {
         Py_ssize_t b0 = start_label(s, k, e, &L->a, &v[0]);
         if (b0 < 0 || copy_body(s, b0, e, o, tb, nd) != e) return 0;
     } else { /* both: the end label first, then the start label from what is left */
-        Py_ssize_t l0, l1, b1 = find_end_label(s, e, &L->b, &l0, &l1, &v[1]);
+        Py_ssize_t b1 = find_end_label(s, e, &L->b, &v[1]);
         if (b1 < 0) return 0;
         Py_ssize_t b0 = start_label(s, k, b1, &L->a, &v[0]);
         if (b0 < 0 || copy_body(s, b0, b1, o, tb, nd) != b1) return 0;
