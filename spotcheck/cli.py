@@ -13,23 +13,42 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Annotated, Any
 
+import importlib
+
 import typer
 
 from spotcheck import __version__
 from spotcheck.errors import SpotcheckError
 
 
-def _flags_look_like_flags() -> None:
-    """Show boolean flags without a ``<bool>`` value column in the help (typer with click >= 8.2)."""
+def _plain_metavars() -> None:
+    """Show FILE, N and the like in the help as written, not ``{file}``, ``<str>`` or ``<bool>``.
+
+    typer (with click >= 8.2) puts a required argument's name in braces in the
+    usage line and its click type (``<str>``) beside it; every parameter here
+    has a metavar of its own, and a flag takes no value.
+    """
     import typer.core
 
+    arg = typer.core.TyperArgument
+    if not getattr(arg.make_metavar, "_spotcheck", False):
+        original_metavar = arg.make_metavar
+
+        def make_metavar(self: Any, ctx: Any, *, usage: bool = False) -> str:
+            if self.metavar is not None:
+                return str(self.metavar) if self.required or not usage else f"[{self.metavar}]"
+            result: str = original_metavar(self, ctx, usage=usage)
+            return result
+
+        make_metavar._spotcheck = True  # type: ignore[attr-defined]
+        setattr(arg, "make_metavar", make_metavar)  # noqa: B010 - typer versions type it differently
     for cls in (typer.core.TyperOption, typer.core.TyperArgument):
-        original = getattr(cls, "display_type_rich", None)
+        original = getattr(cls, "display_type_rich", None)  # older typer: the type column
         if original is None or getattr(original, "_spotcheck", False):
             continue
 
         def display(self: Any, ctx: Any, _original: Any = original) -> str | None:
-            if getattr(self, "is_flag", False):
+            if getattr(self, "is_flag", False) or isinstance(self, typer.core.TyperArgument):
                 return None
             result: str | None = _original(self, ctx)
             return result
@@ -38,7 +57,92 @@ def _flags_look_like_flags() -> None:
         setattr(cls, "display_type_rich", display)  # noqa: B010 - typer versions type it differently
 
 
-_flags_look_like_flags()
+_plain_metavars()
+
+WHOLE_NUMBER_FORMS = "1000000, 1,000,000, 1e6 or 10^6"
+MAX_WHOLE_DIGITS = 40  # a position or count longer than this is a typing mistake, not a request
+
+
+def parse_whole(text: str) -> int:
+    """A position or count as people type it: ``1000000``, ``1,000,000``, ``1e6``, ``2.5e9``, ``10^6``.
+
+    Raises ``ValueError`` with a sentence for the user when ``text`` is not a
+    whole number (``1.5e0``, ``1e-3``) or not a number at all.
+
+    >>> parse_whole("1e9"), parse_whole("10^9"), parse_whole("1,000,000"), parse_whole("2.5e3")
+    (1000000000, 1000000000, 1000000, 2500)
+    """
+    import re
+    from fractions import Fraction
+
+    t = text.strip()
+    if re.fullmatch(r"[+-]?\d{1,3}(,\d{3})+", t):
+        t = t.replace(",", "")
+    power = re.fullmatch(r"(\d+)\s*\^\s*(\d+)", t)
+    if power:
+        base, exp = int(power.group(1)), int(power.group(2))
+        if base > 1 and exp * math.log10(base) > MAX_WHOLE_DIGITS:
+            raise ValueError(f"{text} is too large")
+        return int(base**exp)
+    sci = re.fullmatch(r"[+-]?(\d[\d_]*(\.\d*)?|\.\d+)([eE]([+-]?\d+))?", t)
+    if not sci:
+        raise ValueError(f"{text!r} is not a whole number (write it as {WHOLE_NUMBER_FORMS})")
+    if sci.group(4) is not None and abs(int(sci.group(4))) > MAX_WHOLE_DIGITS:
+        raise ValueError(f"{text} is too large" if int(sci.group(4)) > 0 else f"{text} is not a whole number")
+    value = Fraction(t)
+    if value.denominator != 1:
+        raise ValueError(f"{text} is {float(value):g}, not a whole number")
+    return int(value)
+
+
+def _click() -> Any:
+    """The click typer builds on: its own copy (typer 0.2x vendors it) or the click package."""
+    try:
+        return importlib.import_module("typer._click.types")
+    except ImportError:  # older typer: click itself
+        return importlib.import_module("click.types")
+
+
+_ParamType: Any = _click().ParamType
+
+
+class _Whole(_ParamType):
+    """The one parser of positions and counts on the command line (:func:`parse_whole`)."""
+
+    name = "integer"
+
+    def __init__(self, minimum: int | None = None) -> None:
+        self.minimum = minimum
+
+    def convert(self, value: Any, param: Any, ctx: Any) -> int:
+        if isinstance(value, int) and not isinstance(value, bool):
+            n = value
+        else:
+            try:
+                n = parse_whole(str(value))
+            except ValueError as exc:
+                self.fail(str(exc), param, ctx)
+        if self.minimum is not None and n < self.minimum:
+            self.fail(f"must be {self.minimum} or more, got {value}", param, ctx)
+        return n
+
+
+WHOLE = _Whole()
+
+
+class _Text(_ParamType):
+    """A plain string argument whose metavar (FILE, NAME) is the whole of its help column."""
+
+    name = "text"
+
+    def get_metavar(self, param: Any, ctx: Any = None) -> str:
+        return ""
+
+    def convert(self, value: Any, param: Any, ctx: Any) -> str:
+        return str(value)
+
+
+TEXT = _Text()
 
 app = typer.Typer(
     add_completion=False,
@@ -51,15 +155,26 @@ EXIT_OK, EXIT_MISMATCH, EXIT_BAD_INPUT = 0, 1, 2
 
 FormulaFileOpt = Annotated[
     list[Path] | None,
-    typer.Option("--formula-file", help="TOML file defining extra constants (repeatable)."),
+    typer.Option("--formula-file", metavar="FILE", help="TOML file defining extra constants (repeatable)."),
 ]
 JsonOpt = Annotated[
     bool, typer.Option("--json", help="Print one JSON object instead of the terminal report.")
 ]
-QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", help="Print as little as possible (no progress).")]
+QuietOpt = Annotated[
+    bool,
+    typer.Option(
+        "--quiet", "-q", help="Print nothing: the exit code is the answer (errors still go to stderr)."
+    ),
+]
 WorkersOpt = Annotated[
     int | None,
-    typer.Option("--workers", "-w", min=1, help="Threads for the head sum (default: one per physical core)."),
+    typer.Option(
+        "--workers",
+        "-w",
+        metavar="N",
+        click_type=_Whole(minimum=1),
+        help="Threads for the head sum (default: one per physical core).",
+    ),
 ]
 
 
@@ -112,13 +227,23 @@ CheckpointOpt = Annotated[
 
 @app.command()
 def digits(
-    constant: Annotated[str, typer.Argument(help="Constant name (see `spotcheck constants`).")],
+    constant: Annotated[
+        str, typer.Argument(metavar="NAME", click_type=TEXT, help="Constant name (see `spotcheck constants`).")
+    ],
     at: Annotated[
-        int, typer.Option("--at", help="Position of the first digit (1 = first after the point).")
+        int,
+        typer.Option(
+            "--at",
+            metavar="POSITION",
+            click_type=WHOLE,
+            help="Position of the first digit (1 = first after the point; 1e9 and 10^9 work).",
+        ),
     ] = 1,
-    count: Annotated[int, typer.Option("--count", "-n", help="Number of hex digits.")] = 16,
+    count: Annotated[
+        int, typer.Option("--count", "-n", metavar="N", click_type=WHOLE, help="Number of hex digits.")
+    ] = 16,
     formula: Annotated[
-        str | None, typer.Option("--formula", help="Formula key (default: the fastest).")
+        str | None, typer.Option("--formula", metavar="KEY", help="Formula key (default: the fastest).")
     ] = None,
     cross_check_: Annotated[
         bool,
@@ -136,9 +261,11 @@ def digits(
         ),
     ] = None,
     as_json: JsonOpt = False,
-    quiet: QuietOpt = False,
+    quiet: Annotated[
+        bool, typer.Option("--quiet", "-q", help="Print the digits alone (no estimate, no progress).")
+    ] = False,
 ) -> None:
-    """Print certified hexadecimal digits of CONSTANT from position --at."""
+    """Print certified hexadecimal digits of constant NAME from position --at."""
     import signal
     import threading
 
@@ -278,19 +405,35 @@ def constants(formula_file: FormulaFileOpt = None, as_json: JsonOpt = False) -> 
     show_constants(all_constants(), as_json=as_json)
 
 
-FileArg = Annotated[str, typer.Argument(help="Digit file (plain, gzip, bzip2 or xz; hex or decimal).")]
+FileArg = Annotated[
+    str,
+    typer.Argument(
+        metavar="FILE", click_type=TEXT, help="Digit file (plain, gzip, bzip2 or xz; hex or decimal)."
+    ),
+]
 ConstantOpt = Annotated[
     str | None,
-    typer.Option("--constant", "-c", help="Constant of the file (default: guessed from its digits)."),
+    typer.Option(
+        "--constant", "-c", metavar="NAME", help="Constant of the file (default: guessed from its digits)."
+    ),
 ]
 BaseOpt = Annotated[
-    int | None, typer.Option("--base", help="Base of the file's digits, 10 or 16 (default: detected).")
+    int | None,
+    typer.Option("--base", metavar="10|16", help="Base of the file's digits, 10 or 16 (default: detected)."),
 ]
 FormulaOpt = Annotated[
-    str | None, typer.Option("--formula", help="Formula key for the engine (default: the fastest).")
+    str | None,
+    typer.Option("--formula", metavar="KEY", help="Formula key for the engine (default: the fastest)."),
 ]
-WindowOpt = Annotated[int, typer.Option("--window", help="Digits compared per check.")]
-LimitOpt = Annotated[int | None, typer.Option("--limit", help="Check only the first N digits of the file.")]
+WindowOpt = Annotated[
+    int, typer.Option("--window", metavar="N", click_type=WHOLE, help="Digits compared per check.")
+]
+LimitOpt = Annotated[
+    int | None,
+    typer.Option(
+        "--limit", metavar="N", click_type=WHOLE, help="Check only the first N digits of the file."
+    ),
+]
 ClusterOpt = Annotated[
     str | None,
     typer.Option(
@@ -302,20 +445,25 @@ ClusterOpt = Annotated[
 IgnoreLabelsOpt = Annotated[
     bool,
     typer.Option(
-        "--ignore-labels", help="Check the digits even when position labels disagree with their count."
+        "--ignore-labels",
+        help="Leave out the finding of position labels that disagree with the digit count (the digits "
+        "are checked either way; exit 0 when they all match).",
     ),
 ]
 LabelsOpt = Annotated[
     str | None,
     typer.Option(
         "--labels",
+        metavar="start|end|both|none",
         help="Where position labels are when the layout cannot tell: start, end, both (each end) or none.",
     ),
 ]
 ReferenceOpt = Annotated[
     str,
     typer.Option(
-        "--reference", help="Full-computation library for scans: arb (python-flint) or mpfr (gmpy2)."
+        "--reference",
+        metavar="arb|mpfr",
+        help="Full-computation library for scans: arb (python-flint) or mpfr (gmpy2).",
     ),
 ]
 
@@ -463,12 +611,21 @@ def _silence_stdout() -> None:
 def verify(
     ctx: typer.Context,
     file: FileArg,
-    samples: Annotated[int, typer.Option("--samples", "-s", help="Random windows to check.")] = 8,
+    samples: Annotated[
+        int, typer.Option("--samples", "-s", metavar="N", click_type=WHOLE, help="Random windows to check.")
+    ] = 8,
     seed: Annotated[
-        int | None, typer.Option("--seed", help="Seed for the random windows (printed either way).")
+        int | None,
+        typer.Option("--seed", metavar="N", help="Seed for the random windows (printed either way)."),
     ] = None,
     at: Annotated[
-        list[int] | None, typer.Option("--at", help="Also check the window at this position (repeatable).")
+        list[int] | None,
+        typer.Option(
+            "--at",
+            metavar="POSITION",
+            click_type=WHOLE,
+            help="Also check the window at this position (repeatable; 1e9 and 10^9 work).",
+        ),
     ] = None,
     budget: Annotated[
         float,
@@ -659,7 +816,7 @@ def inspect(
 
 @app.command()
 def schema() -> None:
-    """Print the JSON schema of the --json reports of verify, locate and scan."""
+    """Print the JSON schema of the --json reports of verify, locate, scan and compare."""
     from spotcheck.checks.schema import REPORT_SCHEMA
     from spotcheck.report.console import emit_json
 
@@ -669,9 +826,12 @@ def schema() -> None:
 @app.command()
 def compare(
     file_a: Annotated[
-        Path, typer.Argument(metavar="A", help="One copy (plain, gzip, bzip2 or xz; hex or decimal).")
+        str,
+        typer.Argument(
+            metavar="A", click_type=TEXT, help="One copy (plain, gzip, bzip2 or xz; hex or decimal)."
+        ),
     ],
-    file_b: Annotated[Path, typer.Argument(metavar="B", help="The other copy (any layout).")],
+    file_b: Annotated[str, typer.Argument(metavar="B", click_type=TEXT, help="The other copy (any layout).")],
     constant: ConstantOpt = None,
     base: BaseOpt = None,
     formula: FormulaOpt = None,

@@ -40,6 +40,7 @@ from spotcheck.formulas import get_constant
 
 from .common import DEFAULT_WINDOW, HexOracle, first_label_finding, needs
 from .results import LabelFinding
+from .schema import SCHEMA_VERSION
 from .scan import diff_runs, merge_runs
 
 __all__ = ["compare_files", "compare_open", "CompareResult", "CopyFacts", "DiffRun", "ExtraDigits"]
@@ -199,7 +200,7 @@ class CompareResult:
         return {
             "command": "compare",
             "verdict": self.verdict,
-            "schema_version": 1,
+            "schema_version": SCHEMA_VERSION,
             "a": asdict(self.a),
             "b": asdict(self.b),
             "base": self.base,

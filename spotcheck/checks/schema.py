@@ -1,4 +1,4 @@
-"""The documented JSON schema of ``verify``, ``locate`` and ``scan`` reports (``--json``).
+"""The documented JSON schema of ``verify``, ``locate``, ``scan`` and ``compare`` reports (``--json``).
 
 A JSON Schema (draft 2020-12) as plain data; ``spotcheck schema`` prints it and
 the tests validate real reports against it.  Fields may be added in later
@@ -11,7 +11,8 @@ from typing import Any
 
 SCHEMA_VERSION = 2
 """2: ``locate`` says ``match`` only after every digit was compared (``unconfirmed`` otherwise);
-label findings are damage (``labels_consistent``); ``exhaustive`` and ``covered`` in every report."""
+label findings are damage (``labels_consistent``); ``exhaustive`` and ``covered`` in every report.
+One version for every kind of report: ``compare`` reports carry it too (they said 1 before)."""
 
 _INT_OR_NULL = {"type": ["integer", "null"]}
 _STR_OR_NULL = {"type": ["string", "null"]}
@@ -281,6 +282,7 @@ COMPARE_SCHEMA: dict[str, Any] = {
     "required": [
         "command",
         "verdict",
+        "schema_version",
         "a",
         "b",
         "base",
@@ -300,7 +302,7 @@ COMPARE_SCHEMA: dict[str, Any] = {
     "properties": {
         "command": {"const": "compare"},
         "verdict": {"enum": ["identical", "differ", "incomplete"]},
-        "schema_version": {"type": "integer"},
+        "schema_version": {"const": SCHEMA_VERSION},
         "a": _COPY,
         "b": _COPY,
         "base": {"enum": [10, 16]},
