@@ -883,7 +883,9 @@ def _warn_if_no_kernel() -> None:
     if backend.BACKEND != "c" and "SPOTCHECK_PURE" not in os.environ:
         from spotcheck.report.console import warning_line
 
-        warning_line(f"running on the slow path: {backend.BACKEND_NOTE}")
+        from spotcheck.report.digits import slower_phrase
+
+        warning_line(f"running on the {backend.BACKEND_NOTE}, {slower_phrase()}")
 
 
 def run(argv: list[str] | None = None) -> int:

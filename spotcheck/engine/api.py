@@ -179,14 +179,22 @@ def _years(seconds: float) -> str:
     return f"{years:.3g} core-years" if years >= 1 else f"{seconds / 86400:.3g} core-days"
 
 
+_PATH_WORDS = {
+    "compiled": "compiled kernel",
+    "twin": "pure-Python path",
+    "compiled+twin": "compiled kernel and the pure-Python path",
+}
+
+
 def refuse_if_infeasible(estimate: CostEstimate, name: str) -> None:
     """Raise :class:`InfeasibleError` (with the estimate) when ``estimate`` cannot finish."""
     if estimate.feasible:
         return
     why = f"; {estimate.why}" if estimate.why else ""
+    path = _PATH_WORDS.get(estimate.path, estimate.path)
     raise InfeasibleError(
         f"position {estimate.position:,} of {name} is out of reach: about "
-        f"{_years(estimate.cpu_seconds)} of CPU time on the {estimate.path} path{why} "
+        f"{_years(estimate.cpu_seconds)} of CPU time on the {path}{why} "
         f"(the limit is {_years(estimate.limit_seconds)})",
         estimate,
         estimate.hint,
@@ -359,7 +367,7 @@ def fast_path_position(formula: Formula) -> int:
     """Last position whose whole head sum runs on the compiled kernel (0 without one).
 
     Beyond it, the terms whose moduli ``q (m k + j)^s`` reach 2^63 go to the
-    pure twin: still exact, but about 20 times slower per term.
+    pure-Python path: still exact, but about ``backend.PURE_SLOWDOWN`` times slower per term.
     """
     series = series_of(formula)
     k = backend.kernel_k_limit(series)

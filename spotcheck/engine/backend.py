@@ -46,6 +46,15 @@ HeadSum = Callable[
     [int, int, int, int, int, int, int, bool, Sequence[int], Sequence[int], int], tuple[int, int]
 ]
 
+# How much slower the pure-Python head sum is per term than the compiled kernel's
+# fastest path; the one figure the CLI and the README quote.  Measured 2026-12-05
+# (AMD EPYC, 2 vCPUs, avx2 fma bmi2 adx, no avx512, load 2.5; pi BBP, 128 bits,
+# benchmarks/kernel.py's ns_per_term): 946-990 ns against 6.04-6.47 ns at
+# position 10^7 (146-164x in three runs), 988-1022 ns against 8.25 ns at 10^9
+# (120-124x); past the kernel's limit (2 * 10^18) 1,151 ns against 9.5 ns for
+# the avx2 path at 10^11 (121x).
+PURE_SLOWDOWN = 150
+
 _PURE_ENV = "SPOTCHECK_PURE"
 _KERNEL_ENV = "SPOTCHECK_KERNEL"  # forces one path of the compiled kernel (_kernel.paths())
 
@@ -54,14 +63,14 @@ _kernel_head_sum: HeadSum | None = None
 
 if os.environ.get(_PURE_ENV, "").strip().lower() in ("1", "true", "yes", "on"):
     BACKEND = "python"
-    BACKEND_NOTE = f"pure Python/gmpy2 ({_PURE_ENV} is set)"
+    BACKEND_NOTE = f"pure-Python path ({_PURE_ENV} is set)"
 else:
     try:
         from spotcheck.engine import _kernel  # type: ignore[attr-defined]
         from spotcheck.engine._kernel import head_sum as _kernel_head_sum  # type: ignore[import-not-found,no-redef]
     except ImportError as exc:  # the extension was not built
         BACKEND = "python"
-        BACKEND_NOTE = f"pure Python/gmpy2 (compiled kernel not available: {exc})"
+        BACKEND_NOTE = f"pure-Python path (compiled kernel not available: {exc})"
     else:
         BACKEND = "c"
         _offered = ", ".join(_kernel.paths())
@@ -145,16 +154,18 @@ def kernel_split(series: Series, big_d: int, words: int, k_total: int | None = N
     if BACKEND != "c" or _kernel_head_sum is None:
         return Split(0, f"the compiled kernel is not in use ({BACKEND_NOTE})")
     if words > KERNEL_MAX_WORDS:
-        return Split(0, f"{64 * words} fractional bits exceed the kernel's {64 * KERNEL_MAX_WORDS}")
+        return Split(0, f"{64 * words} bits of precision exceed the compiled kernel's {64 * KERNEL_MAX_WORDS}")
     if big_d > KERNEL_MAX_EXPONENT:
-        return Split(0, f"the exponent D = {big_d} exceeds the kernel's 64-bit limit")
+        return Split(0, "the position is beyond the reach of the compiled kernel's 64-bit arithmetic")
     if any(abs(c) >= KERNEL_MAX_COEFFICIENT for c in series.cs):
-        return Split(0, "a coefficient exceeds the kernel's 62-bit limit")
+        return Split(0, "a coefficient of the formula exceeds the compiled kernel's 62-bit limit")
     limit = kernel_k_limit(series)
     if limit >= total:
         return Split(limit, "")
     bits = KERNEL_MAX_MODULUS.bit_length() - 1
-    return Split(limit, f"from k = {limit:,} the moduli q (m k + j)^s reach 2^{bits}, the kernel's limit")
+    return Split(
+        limit, f"from term k = {limit:,} on, the moduli q (m k + j)^s reach 2^{bits}, the compiled kernel's limit"
+    )
 
 
 def head_block(series: Series, big_d: int, k0: int, k1: int, words: int) -> tuple[int, int]:

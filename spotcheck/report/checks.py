@@ -13,6 +13,7 @@ from spotcheck.report.console import (
     STYLE_OK,
     STYLE_WARN,
     emit_json,
+    plural,
     stdout_console,
     warning_line,
 )
@@ -32,15 +33,6 @@ def result_payload(result: CheckResult, repeat: str) -> dict[str, Any]:
     out = result.to_dict()
     out["repeat"] = repeat
     return out
-
-
-def plural(n: int, word: str, many: str | None = None) -> str:
-    """``1 wrong digit``, ``2 wrong digits``.
-
-    >>> plural(1, "run"), plural(3, "run"), plural(2, "prefix", "prefixes")
-    ('1 run', '3 runs', '2 prefixes')
-    """
-    return f"{n:,} {word if n == 1 else (many or word + 's')}"
 
 
 def coverage_phrase(result: CheckResult) -> str:
@@ -384,7 +376,7 @@ def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool)
     )
     for m in _meaning(result):
         con.print(m)
-    con.print(f"{result.evaluations} evaluations in {result.seconds:.2f} s", style=STYLE_DIM)
+    con.print(f"{plural(result.evaluations, 'evaluation')} in {result.seconds:.2f} s", style=STYLE_DIM)
     con.print(f"repeat: {repeat}", style=STYLE_DIM)
 
 

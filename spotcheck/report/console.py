@@ -37,6 +37,15 @@ def stderr_console() -> Any:
     return Console(stderr=True, highlight=False, soft_wrap=True)
 
 
+def plural(n: int, word: str, many: str | None = None) -> str:
+    """``1 wrong digit``, ``2 wrong digits``.
+
+    >>> plural(1, "run"), plural(3, "run"), plural(2, "prefix", "prefixes")
+    ('1 run', '3 runs', '2 prefixes')
+    """
+    return f"{n:,} {word if n == 1 else (many or word + 's')}"
+
+
 def emit_json(payload: dict[str, Any]) -> None:
     sys.stdout.write(json.dumps(payload, indent=2, sort_keys=False) + "\n")
 

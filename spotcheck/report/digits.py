@@ -6,6 +6,7 @@ import time
 from typing import Any
 
 from spotcheck.engine.api import CostEstimate, DigitResult, fast_path_position
+from spotcheck.engine.backend import PURE_SLOWDOWN
 from spotcheck.formulas import Constant
 from spotcheck.report.console import (
     PROGRESS_DELAY,
@@ -14,6 +15,7 @@ from spotcheck.report.console import (
     STYLE_DIM,
     STYLE_OK,
     emit_json,
+    plural,
     stderr_console,
     stdout_console,
 )
@@ -36,12 +38,18 @@ def duration(seconds: float) -> str:
     return f"{seconds / (365.25 * 86400):.3g} years"
 
 
+def slower_phrase() -> str:
+    """How much slower the pure-Python path is, in the one figure the project states."""
+    return f"about {PURE_SLOWDOWN} times slower per term than the compiled kernel"
+
+
 def estimate_line(est: CostEstimate, formula: str) -> str:
     """One line: what the run will cost, on which path and why."""
     path = {
         "compiled": "compiled kernel",
-        "twin": "pure twin (about 50 times slower per term)",
-        "compiled+twin": f"compiled kernel, then the pure twin for {est.twin_terms / est.terms:.0%} of the terms",
+        "twin": f"pure-Python path ({slower_phrase()})",
+        "compiled+twin": f"compiled kernel, then the pure-Python path ({slower_phrase()}) "
+        f"for {est.twin_terms / est.terms:.0%} of the terms",
     }[est.path]
     why = f" because {est.why}" if est.why and est.path != "compiled" else ""
     wall = f", about {duration(est.wall_seconds)} on {est.workers} workers" if est.workers > 1 else ""
@@ -156,20 +164,24 @@ def digits_payload(
 
 
 def terms_summary(result: DigitResult) -> str:
-    """``N terms in S s``, or computed and loaded terms apart after a resume."""
+    """``N terms in S s (compiled kernel)``, computed and loaded terms apart after a resume, or the
+    full evaluation's time (it has no head terms)."""
+    if result.backend not in ("c", "python"):  # a full evaluation (Arb): no terms to count
+        return f"evaluated in full in {result.seconds:.3f} s"
+    path = "compiled kernel" if result.backend == "c" else "pure-Python path"
     if not result.terms_loaded:
-        return f"{result.terms:,} terms in {result.seconds:.3f} s"
+        return f"{plural(result.terms, 'term')} in {result.seconds:.3f} s ({path})"
     return (
         f"{result.terms:,} terms: {result.terms_computed:,} computed in {result.seconds:.3f} s, "
-        f"{result.terms_loaded:,} loaded from the checkpoint ({result.blocks_loaded:,} blocks)"
+        f"{result.terms_loaded:,} loaded from the checkpoint ({result.blocks_loaded:,} blocks) ({path})"
     )
 
 
 def full_evaluation_line(result: DigitResult) -> str:
     """Say that digits of a constant with no extraction formula come from a full evaluation."""
     return (
-        f"{result.constant} has no digit-extraction formula: these digits come from a full evaluation "
-        f"({result.formula_notation}) of every digit up to position {result.position + result.count - 1:,}"
+        f"{result.constant} has no digit-extraction formula: every digit up to position "
+        f"{result.position + result.count - 1:,} was computed ({result.formula_notation})"
     )
 
 
@@ -197,7 +209,7 @@ def show_digits(
     con.print(
         f"formula {result.formula}: {result.formula_notation}; certified by an interval of width "
         f"2^{result.width_log2:.1f} at {result.fraction_bits} fractional bits; "
-        f"{terms_summary(result)} ({result.backend} kernel)",
+        f"{terms_summary(result)}",
         style=STYLE_DIM,
     )
     if cross is not None:
@@ -263,7 +275,7 @@ def show_constants(constants: list[Constant], *, as_json: bool) -> None:
         for f in c.formulas:
             label = f"{f.key} (default)" if f.key == default and len(c.formulas) > 1 else f.key
             fast = fast_path_position(f)
-            reach = f"compiled kernel up to position {fast:.3g}" if fast else "pure Python path only"
+            reach = f"compiled kernel up to position {fast:.3g}" if fast else "pure-Python path only"
             con.print(f"  {label}: {f.notation()}")
             con.print(f"    [{STYLE_DIM}]{f.cost_per_bit:.2f} terms per bit; {reach}[/]")
             con.print(f"    [{STYLE_DIM}]source: {f.source}[/]")
