@@ -849,6 +849,10 @@ def compare(
     from spotcheck.report.console import progress_bar
 
     _typed_path.extend([str(file_a), str(file_b)])
+    if file_a == file_b == "-":
+        from spotcheck.errors import UsageError
+
+        raise UsageError("both copies are standard input (-): pipe one copy in and name the other file")
     _load_formula_files(formula_file)
     with progress_bar("compare", enabled=not (quiet or as_json)) as cb:
         result = compare_files(

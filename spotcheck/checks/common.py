@@ -219,7 +219,9 @@ def file_fingerprint(path: str) -> str:
     """
     import hashlib
 
-    with open(path, "rb") as f:
+    from spotcheck.digitfile.source import local_path
+
+    with open(local_path(path), "rb") as f:  # "-": the copy of standard input
         size = os.fstat(f.fileno()).st_size
         h = hashlib.sha256(b"%d\n" % size)
         h.update(f.read(FINGERPRINT_BYTES))

@@ -52,6 +52,8 @@ __all__ = [
     "Utf16Source",
     "open_source",
     "detect_compression",
+    "local_path",
+    "STDIN_NAME",
 ]
 
 # Bytes skipped per read when a compressed stream moves forward.
@@ -312,12 +314,77 @@ def _check_same(path: str, st: os.stat_result, size: int, mtime: int) -> None:
         )
 
 
-def open_source(path: str | os.PathLike[str]) -> ByteSource:
-    """Open ``path`` read-only and pick the plain or decompressing source."""
-    p = os.fspath(path)
-    st = _stat_checked(p)
+# --- standard input: "-" as the file --------------------------------------------
+STDIN_NAME = "-"
+_stdin_copy: list[str] = []  # the path of this process's copy, once made
+
+
+def stdin_copy() -> str:
+    """The path of a private copy of standard input, made on first use (the copy is removed at exit).
+
+    A check reads its file more than once and at positions out of order (detection, the first
+    pass, the windows), which a pipe cannot do; so standard input is copied once, as it
+    arrives, into a file of the temporary folder that only this user can read.  Standard input
+    itself is only read.  A terminal is refused, and so is a copy that does not fit (the
+    message says what to do).
+    """
+    if _stdin_copy:
+        return _stdin_copy[0]
+    import atexit
+    import tempfile
+
+    fd_in = 0  # the process's standard input, whatever wraps it in Python
     try:
-        fd = os.open(p, os.O_RDONLY | getattr(os, "O_CLOEXEC", 0) | getattr(os, "O_BINARY", 0))
+        os.fstat(fd_in)
+    except OSError:
+        raise FileAccessError(
+            errno.EBADF, "standard input (-) is closed: pipe the digits in or name the file"
+        ) from None
+    if os.isatty(fd_in):
+        raise FileAccessError(
+            errno.EINVAL,
+            "standard input (-) is a terminal, not a digit file: pipe the digits in or name the file",
+        )
+    out, name = tempfile.mkstemp(prefix="spotcheck-stdin-")
+    atexit.register(_remove_quietly, name)
+    try:
+        while chunk := os.read(fd_in, 1 << 20):
+            view = memoryview(chunk)
+            while view:
+                view = view[os.write(out, view) :]
+    except OSError as exc:
+        _remove_quietly(name)
+        raise FileAccessError(
+            exc.errno,
+            f"standard input (-) could not be copied to {os.path.dirname(name)} ({exc.strerror}): the checks read "
+            "a file more than once, so the copy needs as much room as the input; write it to a file where "
+            "there is room and name that file",
+        ) from None
+    finally:
+        os.close(out)
+    _stdin_copy.append(name)
+    return name
+
+
+def _remove_quietly(name: str) -> None:
+    try:
+        os.unlink(name)
+    except OSError:
+        pass
+
+
+def local_path(path: str | os.PathLike[str]) -> str:
+    """The file to open for ``path``: itself, or the copy of standard input for ``-``."""
+    p = os.fspath(path)
+    return stdin_copy() if p == STDIN_NAME else p
+
+
+def open_source(path: str | os.PathLike[str]) -> ByteSource:
+    """Open ``path`` read-only and pick the plain or decompressing source (``-``: standard input)."""
+    p = os.fspath(path)
+    st = _stat_checked(local_path(p))
+    try:
+        fd = os.open(local_path(p), os.O_RDONLY | getattr(os, "O_CLOEXEC", 0) | getattr(os, "O_BINARY", 0))
     except PermissionError:
         raise FileAccessError(errno.EACCES, f"permission denied: {p}") from None
     except OSError as exc:
