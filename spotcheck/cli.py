@@ -6,14 +6,13 @@ code 2; a certified mismatch is exit code 1; all-match is 0.
 
 from __future__ import annotations
 
+import importlib
 import math
 import os
 import sys
 from collections.abc import Callable
 from pathlib import Path
 from typing import Annotated, Any
-
-import importlib
 
 import typer
 
@@ -228,7 +227,8 @@ CheckpointOpt = Annotated[
 @app.command()
 def digits(
     constant: Annotated[
-        str, typer.Argument(metavar="NAME", click_type=TEXT, help="Constant name (see `spotcheck constants`).")
+        str,
+        typer.Argument(metavar="NAME", click_type=TEXT, help="Constant name (see `spotcheck constants`)."),
     ],
     at: Annotated[
         int,
@@ -430,9 +430,7 @@ WindowOpt = Annotated[
 ]
 LimitOpt = Annotated[
     int | None,
-    typer.Option(
-        "--limit", metavar="N", click_type=WHOLE, help="Check only the first N digits of the file."
-    ),
+    typer.Option("--limit", metavar="N", click_type=WHOLE, help="Check only the first N digits of the file."),
 ]
 ClusterOpt = Annotated[
     str | None,
@@ -886,7 +884,6 @@ def _warn_if_no_kernel() -> None:
 
     if backend.BACKEND != "c" and "SPOTCHECK_PURE" not in os.environ:
         from spotcheck.report.console import warning_line
-
         from spotcheck.report.digits import slower_phrase
 
         warning_line(f"running on the {backend.BACKEND_NOTE}, {slower_phrase()}")

@@ -279,3 +279,66 @@ def test_a_number_that_is_not_whole_is_an_error(args, message, capsys) -> None:
     code, out, err = cli(capsys, *args)
     assert (code, out) == (2, "")
     assert err == message + "\n"
+
+
+def _hex_file(path: Path, digits: str) -> Path:
+    path.write_text("\n".join(digits[i : i + 80] for i in range(0, len(digits), 80)) + "\n")
+    return path
+
+
+def test_compare_notes_are_worded_from_codes(capsys, tmp_path) -> None:
+    """The check gives codes and numbers; the report words them, on the terminal and in JSON."""
+    true = "".join((SAMPLES / "log2-hex.txt").read_text().split())  # 20,000 true digits (gmpy2, make_samples)
+    damaged = true[:5000] + "".join("0" if c != "0" else "1" for c in true[5000:5100]) + true[5100:]
+    a = _hex_file(tmp_path / "a.txt", true[:19990])
+    b = _hex_file(tmp_path / "b.txt", damaged)
+    code, out, _ = cli(capsys, "compare", a, b)
+    assert code == 1
+    assert "note: the first 64 of the run's 100 digits were checked" in out.splitlines()
+    assert (
+        "B is longer: 10 extra digits from position 19,991 (" + true[19990:20000].upper() + "...): right; "
+        "all 10 extra digits were checked"
+    ) in out.splitlines()
+    code, out, _ = cli(capsys, "compare", a, b, "--json")
+    payload = json.loads(out)
+    jsonschema.validate(payload, COMPARE_SCHEMA)
+    (run,) = payload["runs"]
+    assert run["notes"] == [{"code": "run-partly-checked", "checked": 64, "length": 100}]
+    assert run["note"] == "the first 64 of the run's 100 digits were checked"
+    assert payload["extra"]["notes"] == [{"code": "extra-all-checked", "checked": 10}]
+    assert payload["extra"]["note"] == "all 10 extra digits were checked"
+    shifted = _hex_file(tmp_path / "c.txt", true[:7000] + true[7003:])
+    code, out, _ = cli(capsys, "compare", a, shifted, "--json")
+    run = json.loads(out)["runs"][0]
+    assert run["notes"][0] == {"code": "shifted", "missing_in": "B", "digits": 3}
+    assert run["note"].startswith(
+        "copy B lacks 3 digits that the other has (or the other has 3 extra) at or before this position: "
+        "from here on the copies are shifted, so the comparison stops; the first 64 of the run's "
+    )
+
+
+def _code_strings(path: Path) -> str:
+    """Every string literal of a module's code (docstrings left out), joined."""
+    import ast
+
+    tree = ast.parse(path.read_text())
+    docstrings = {  # a string standing alone as a statement: a docstring, of a module, class, function or field
+        id(node.value)
+        for node in ast.walk(tree)
+        if isinstance(node, ast.Expr) and isinstance(node.value, ast.Constant)
+    }
+    return "\n".join(
+        n.value
+        for n in ast.walk(tree)
+        if isinstance(n, ast.Constant) and isinstance(n.value, str) and id(n) not in docstrings
+    )
+
+
+def test_checks_hold_no_sentences_for_notes() -> None:
+    """The notes of compare and the warnings of verify/locate are built in the report layer."""
+    compare_strings = _code_strings(ROOT / "spotcheck" / "checks" / "compare.py")
+    common_strings = _code_strings(ROOT / "spotcheck" / "checks" / "common.py")
+    for phrase in ("not arbitrated", "converted to hex", "were checked", "lacks"):
+        assert phrase not in compare_strings, phrase
+    for phrase in ("damaged record", "went on without it"):
+        assert phrase not in common_strings, phrase

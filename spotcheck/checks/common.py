@@ -23,7 +23,7 @@ from spotcheck.engine.plan import CostEstimate
 from spotcheck.errors import UsageError
 from spotcheck.formulas import get_constant
 
-from .results import FileFacts, LabelFinding, LocateResult, VerifyResult, WindowCheck
+from .results import FileFacts, LabelFinding, LocateResult, Note, VerifyResult, WindowCheck
 
 Progress = Callable[[int, int], None]
 Plan = list[tuple[str, int]]
@@ -308,11 +308,10 @@ def with_run_facts(run: CheckRun, result: ResultT) -> ResultT:
     if journal is not None:
         if journal.damaged:
             result.warnings.append(
-                f"{journal.damaged} damaged record(s) in the checkpoint {journal.path} were skipped "
-                "and their blocks computed again"
+                Note("checkpoint-damaged", {"records": journal.damaged, "checkpoint": str(journal.path)})
             )
         if journal.failure:
-            result.warnings.append(f"{journal.failure}; the check went on without it")
+            result.warnings.append(Note("checkpoint-failed", {"reason": journal.failure}))
     return result
 
 

@@ -39,9 +39,9 @@ from spotcheck.engine.api import leading_digits
 from spotcheck.formulas import get_constant
 
 from .common import DEFAULT_WINDOW, HexOracle, first_label_finding, needs
-from .results import LabelFinding
-from .schema import SCHEMA_VERSION
+from .results import LabelFinding, Note
 from .scan import diff_runs, merge_runs
+from .schema import SCHEMA_VERSION
 
 __all__ = ["compare_files", "compare_open", "CompareResult", "CopyFacts", "DiffRun", "ExtraDigits"]
 
@@ -94,7 +94,13 @@ class DiffRun:
     """Certified digits from ``start`` (hex files), when arbitrated."""
     right: str | None = None
     """``"A"``, ``"B"``, ``"both wrong"``, or None when not arbitrated."""
-    note: str = ""
+    notes: list[Note] = field(default_factory=list)
+    """What the report says about the run beside its verdict (worded in ``spotcheck.report.notes``)."""
+
+    def to_dict(self) -> dict[str, Any]:
+        out = {k: v for k, v in asdict(self).items() if k != "notes"}
+        out["notes"] = [n.to_dict() for n in self.notes]
+        return out
 
 
 @dataclass
@@ -110,7 +116,12 @@ class ExtraDigits:
     certified: str | None = None
     right: bool | None = None
     """True when the checked extra digits equal the certified ones; None when not arbitrated."""
-    note: str = ""
+    notes: list[Note] = field(default_factory=list)
+
+    def to_dict(self) -> dict[str, Any]:
+        out = {k: v for k, v in asdict(self).items() if k != "notes"}
+        out["notes"] = [n.to_dict() for n in self.notes]
+        return out
 
 
 @dataclass
@@ -209,9 +220,9 @@ class CompareResult:
             "method": self.method,
             "digits_compared": self.digits_compared,
             "differing_digits": self.differing_digits,
-            "runs": [asdict(r) for r in self.runs],
+            "runs": [r.to_dict() for r in self.runs],
             "runs_total": self.runs_total,
-            "extra": asdict(self.extra) if self.extra is not None else None,
+            "extra": self.extra.to_dict() if self.extra is not None else None,
             "integer_parts": self.integer_parts,
             "shift": self.shift,
             "keep": self.keep,
@@ -515,11 +526,8 @@ def _compare(
         shift=shift,
     )
     if shift is not None and shift_run is not None:
-        k = shift["digits"]
-        shift_run.note = (
-            f"copy {shift['missing_in']} lacks {k} digit{'s' if k > 1 else ''} that the other "
-            f"has (or the other has {k} extra) at or before this position: from here on the copies "
-            "are shifted, so the comparison stops"
+        shift_run.notes.append(
+            Note("shifted", {"missing_in": shift["missing_in"], "digits": shift["digits"]})
         )
         shift_run.length = common - shift_run.start + 1
     if da.count != db.count:
@@ -603,10 +611,6 @@ def _full_sample(df: DigitFile, run: DiffRun, have: str) -> str:
     return have if len(have) >= w else df.read(run.start, w)
 
 
-def _add_note(note: str, more: str) -> str:
-    return f"{note}; {more}" if note else more
-
-
 def _judge(a_ok: bool, b_ok: bool) -> str:
     return A if a_ok else B if b_ok else BOTH_WRONG
 
@@ -617,7 +621,7 @@ def _arbitrate_direct(
     """Each run's digits against ``certified(position, count)`` digits in the files' base."""
     for i, run in enumerate(result.runs):
         if i >= MAX_ARBITRATED_HEX:
-            run.note = _add_note(run.note, f"not arbitrated: only the first {MAX_ARBITRATED_HEX} runs are")
+            run.notes.append(Note("not-arbitrated-beyond-limit", {"limit": MAX_ARBITRATED_HEX, "base": 16}))
             continue
         t = time.perf_counter()
         w = min(run.length, ARBITRATE_DIGITS)
@@ -625,7 +629,7 @@ def _arbitrate_direct(
         run.certified = certified(run.start, w)
         run.right = _judge(run.a == run.certified, run.b == run.certified)
         if run.length > w:
-            run.note = _add_note(run.note, f"the first {w} of the run's {run.length:,} digits were checked")
+            run.notes.append(Note("run-partly-checked", {"checked": w, "length": run.length}))
         result.arbitration_seconds.append(time.perf_counter() - t)
     extra = result.extra
     if extra is not None:
@@ -637,9 +641,7 @@ def _arbitrate_direct(
         tail = df.read(end_pos, w) if end_pos > extra.start else ""
         extra.certified = certified(extra.start, w)
         extra.right = head == extra.certified and (not tail or tail == certified(end_pos, w))
-        extra.note = (
-            f"the first and last {w} extra digits were checked" if tail else f"all {w} extra digit(s) checked"
-        )
+        extra.notes.append(Note("extra-ends-checked" if tail else "extra-all-checked", {"checked": w}))
         result.arbitration_seconds.append(time.perf_counter() - t)
 
 
@@ -683,46 +685,40 @@ def _arbitrate_decimal(result: CompareResult, da: DigitFile, db: DigitFile, orac
     for i, run in enumerate(result.runs):
         end = run.start + min(run.length, ARBITRATE_DIGITS) - 1
         if blocked or i >= MAX_ARBITRATED_DECIMAL:
-            run.note = _add_note(
-                run.note,
-                (
-                    "not arbitrated: an earlier run had no right copy"
-                    if blocked
-                    else f"not arbitrated: only the first {MAX_ARBITRATED_DECIMAL} runs of a decimal pair are"
-                ),
+            run.notes.append(
+                Note("not-arbitrated-after-unresolved")
+                if blocked
+                else Note("not-arbitrated-beyond-limit", {"limit": MAX_ARBITRATED_DECIMAL, "base": 10})
             )
             continue
         need = estimate_conversion_bytes(end)
         if need > memory_budget():
-            run.note = _add_note(
-                run.note,
-                (f"not arbitrated: radix conversion of {end:,} digits needs about {need / 2**30:.1f} GiB"),
-            )
+            run.notes.append(Note("not-arbitrated-memory", {"digits": end, "bytes": need}))
             blocked = True
             continue
         t = time.perf_counter()
         basis = spliced(run.start)
         if basis is None:
             blocked = True
-            run.note = _add_note(run.note, "not arbitrated: an earlier run had no right copy")
+            run.notes.append(Note("not-arbitrated-after-unresolved"))
             continue
         w = end - run.start + 1
         run.a, run.b = _full_sample(da, run, run.a)[:w], _full_sample(db, run, run.b)[:w]
         right_a, right_b = check(basis, run.a, run.b)
         run.right = _judge(right_a, right_b)
-        run.note = _add_note(
-            run.note, f"prefixes of {end:,} digits converted to hex and checked against the engine"
-        )
+        run.notes.append(Note("prefixes-converted", {"digits": end}))
         blocked = run.right == BOTH_WRONG
         result.arbitration_seconds.append(time.perf_counter() - t)
     extra = result.extra
     if extra is not None:
         end = extra.start + min(extra.length, DEFAULT_WINDOW) - 1
         if blocked or len(result.runs) < result.runs_total or any(r.right is None for r in result.runs):
-            extra.note = "not arbitrated: a differing run before it has no right copy or was not arbitrated"
+            extra.notes.append(Note("not-arbitrated-after-unresolved"))
             return
         if estimate_conversion_bytes(end) > memory_budget():
-            extra.note = f"not arbitrated: radix conversion of {end:,} digits does not fit in memory"
+            extra.notes.append(
+                Note("not-arbitrated-memory", {"digits": end, "bytes": estimate_conversion_bytes(end)})
+            )
             return
         t = time.perf_counter()
         basis = spliced(extra.start)
@@ -730,5 +726,5 @@ def _arbitrate_decimal(result: CompareResult, da: DigitFile, db: DigitFile, orac
         if basis is None:
             return
         (extra.right,) = check(basis, df.read(extra.start, end - extra.start + 1))
-        extra.note = f"a prefix of {end:,} digits converted to hex and checked against the engine"
+        extra.notes.append(Note("prefixes-converted", {"digits": end}))
         result.arbitration_seconds.append(time.perf_counter() - t)

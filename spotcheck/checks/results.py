@@ -14,6 +14,7 @@ from .schema import SCHEMA_VERSION
 from .stats import false_match_chance, scattered_damage_bound
 
 __all__ = [
+    "Note",
     "LabelFinding",
     "FileFacts",
     "WindowCheck",
@@ -22,6 +23,22 @@ __all__ = [
     "MismatchRun",
     "ScanResult",
 ]
+
+
+@dataclass(frozen=True)
+class Note:
+    """Something a report says beside its verdict, as a code and its numbers.
+
+    The checks say what happened; the report layer (``spotcheck.report.notes``) words it.
+    JSON carries both: ``{"code": ..., **data}`` and the sentence.
+    """
+
+    code: str
+    data: dict[str, Any] = field(default_factory=dict)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"code": self.code, **self.data}
+
 
 MATCH, MISMATCH, INCOMPLETE, UNCONFIRMED = "match", "mismatch", "incomplete", "unconfirmed"
 EXIT_UNCONFIRMED = 3
@@ -102,8 +119,9 @@ class _Common:
     evaluations: int
     """Engine (or reference) evaluations made."""
     interrupted: bool
-    warnings: list[str] = field(default_factory=list, kw_only=True)
-    """What went wrong beside the check without changing its answer (a damaged checkpoint record, a failed write)."""
+    warnings: list[Note] = field(default_factory=list, kw_only=True)
+    """What went wrong beside the check without changing its answer (a damaged checkpoint record, a failed
+    write); the JSON report words them in ``warnings`` and gives the codes in ``warning_codes``."""
 
     @property
     def any_mismatch(self) -> bool:
@@ -177,7 +195,7 @@ class _Common:
             "exhaustive": self.exhaustive,
             "covered": [list(r) for r in self.covered],
             "covered_digits": self.covered_digits,
-            "warnings": list(self.warnings),
+            "warning_codes": [w.to_dict() for w in self.warnings],
         }
 
 

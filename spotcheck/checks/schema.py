@@ -15,6 +15,12 @@ label findings are damage (``labels_consistent``); ``exhaustive`` and ``covered`
 One version for every kind of report: ``compare`` reports carry it too (they said 1 before)."""
 
 _INT_OR_NULL = {"type": ["integer", "null"]}
+_NOTE = {
+    "type": "object",
+    "required": ["code"],
+    "properties": {"code": {"type": "string"}},
+    "description": "a note as a code and its numbers (the other keys); the report words it",
+}
 _STR_OR_NULL = {"type": ["string", "null"]}
 
 _FILE = {
@@ -135,6 +141,12 @@ _COMMON = {
         "items": {"type": "string"},
         "description": "what went wrong beside the check without changing its answer "
         "(damaged checkpoint records skipped and recomputed, a checkpoint write that failed)",
+    },
+    "warning_codes": {
+        "type": "array",
+        "items": _NOTE,
+        "description": "the same warnings as codes and numbers, in the same order "
+        "(checkpoint-damaged: records, checkpoint; checkpoint-failed: reason)",
     },
     "repeat": {"type": "string", "description": "a command line that repeats the run"},
 }
@@ -273,7 +285,13 @@ _DIFF_RUN = {
         "b": {"type": "string", "description": "copy B's digits from start"},
         "certified": {**_STR_OR_NULL, "description": "certified digits from start (hex files)"},
         "right": _RIGHT,
-        "note": {"type": "string"},
+        "note": {"type": "string", "description": "the notes in words, `; ` between them"},
+        "notes": {
+            "type": "array",
+            "items": _NOTE,
+            "description": "shifted, not-arbitrated-beyond-limit, not-arbitrated-after-unresolved, "
+            "not-arbitrated-memory, prefixes-converted, run-partly-checked",
+        },
     },
 }
 
@@ -327,7 +345,13 @@ COMPARE_SCHEMA: dict[str, Any] = {
                 "digits": {"type": "string"},
                 "certified": _STR_OR_NULL,
                 "right": {"type": ["boolean", "null"]},
-                "note": {"type": "string"},
+                "note": {"type": "string", "description": "the notes in words"},
+                "notes": {
+                    "type": "array",
+                    "items": _NOTE,
+                    "description": "extra-ends-checked, extra-all-checked, not-arbitrated-after-unresolved, "
+                    "not-arbitrated-memory, prefixes-converted",
+                },
             },
         },
         "integer_parts": {

@@ -154,7 +154,9 @@ def kernel_split(series: Series, big_d: int, words: int, k_total: int | None = N
     if BACKEND != "c" or _kernel_head_sum is None:
         return Split(0, f"the compiled kernel is not in use ({BACKEND_NOTE})")
     if words > KERNEL_MAX_WORDS:
-        return Split(0, f"{64 * words} bits of precision exceed the compiled kernel's {64 * KERNEL_MAX_WORDS}")
+        return Split(
+            0, f"{64 * words} bits of precision exceed the compiled kernel's {64 * KERNEL_MAX_WORDS}"
+        )
     if big_d > KERNEL_MAX_EXPONENT:
         return Split(0, "the position is beyond the reach of the compiled kernel's 64-bit arithmetic")
     if any(abs(c) >= KERNEL_MAX_COEFFICIENT for c in series.cs):
@@ -164,7 +166,8 @@ def kernel_split(series: Series, big_d: int, words: int, k_total: int | None = N
         return Split(limit, "")
     bits = KERNEL_MAX_MODULUS.bit_length() - 1
     return Split(
-        limit, f"from term k = {limit:,} on, the moduli q (m k + j)^s reach 2^{bits}, the compiled kernel's limit"
+        limit,
+        f"from term k = {limit:,} on, the moduli q (m k + j)^s reach 2^{bits}, the compiled kernel's limit",
     )
 
 

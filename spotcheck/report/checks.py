@@ -30,7 +30,12 @@ MAX_TABLE_ROWS = 40
 
 
 def result_payload(result: CheckResult, repeat: str) -> dict[str, Any]:
+    """The JSON report: the result's fields, its warnings in words (``warnings``) beside their codes
+    (``warning_codes``), and the repeat line."""
+    from spotcheck.report.notes import note_sentence
+
     out = result.to_dict()
+    out["warnings"] = [note_sentence(w, "check") for w in result.warnings]
     out["repeat"] = repeat
     return out
 
@@ -310,8 +315,10 @@ def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool)
         emit_json(result_payload(result, repeat))
         return
     if not quiet:
+        from spotcheck.report.notes import note_sentence
+
         for message in result.warnings:
-            warning_line(message)
+            warning_line(note_sentence(message, "check"))
     if quiet:
         return
     from rich import box

@@ -7,6 +7,7 @@ from typing import Any
 from spotcheck.checks.compare import CompareResult
 from spotcheck.report.checks import label_finding_sentence, plural
 from spotcheck.report.console import STYLE_BAD, STYLE_DIM, STYLE_OK, STYLE_WARN, emit_json, stdout_console
+from spotcheck.report.notes import notes_sentence
 
 MAX_TABLE_ROWS = 40
 
@@ -14,7 +15,13 @@ _RIGHT = {"A": "A is right", "B": "B is right", "both wrong": "both wrong", None
 
 
 def compare_payload(result: CompareResult, repeat: str) -> dict[str, Any]:
+    """The JSON report: the result's fields, each run's and the extra digits' ``note`` in words
+    beside their ``notes`` codes, and the repeat line."""
     out = result.to_dict()
+    for run, facts in zip(out["runs"], result.runs, strict=True):
+        run["note"] = notes_sentence(facts.notes)
+    if result.extra is not None:
+        out["extra"]["note"] = notes_sentence(result.extra.notes, "extra")
     out["repeat"] = repeat
     return out
 
@@ -110,7 +117,7 @@ def show_compare(result: CompareResult, repeat: str, *, as_json: bool, quiet: bo
                 f"(showing {min(len(result.runs), MAX_TABLE_ROWS)} of {result.runs_total:,} runs)",
                 style=STYLE_DIM,
             )
-        notes = sorted({r.note for r in result.runs if r.note})
+        notes = sorted({notes_sentence(r.notes) for r in result.runs if r.notes})
         for n in notes:
             con.print(f"note: {n}", style=STYLE_DIM)
     e = result.extra
@@ -118,7 +125,7 @@ def show_compare(result: CompareResult, repeat: str, *, as_json: bool, quiet: bo
         state = "right" if e.right else "wrong" if e.right is False else "not arbitrated"
         con.print(
             f"{e.longer} is longer: {plural(e.length, 'extra digit')} from position {e.start:,} ({e.digits}...): {state}"
-            + (f"; {e.note}" if e.note else "")
+            + (f"; {notes_sentence(e.notes, 'extra')}" if e.notes else "")
         )
     if result.verdict != "identical":
         con.print(
