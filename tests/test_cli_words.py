@@ -342,3 +342,37 @@ def test_checks_hold_no_sentences_for_notes() -> None:
         assert phrase not in compare_strings, phrase
     for phrase in ("damaged record", "went on without it"):
         assert phrase not in common_strings, phrase
+
+
+def test_check_rows_are_worded_from_codes(capsys) -> None:
+    code, out, _ = cli(capsys, "locate", SAMPLES / "pi-hex-astray.txt", "--json")
+    assert code == 1
+    confirm = [c for c in json.loads(out)["checks"] if c["kind"] == "confirm"]
+    assert [(c["note"], c["notes"]) for c in confirm] == [
+        ("the window just before the first wrong digit", [{"code": "window-before-first-wrong"}])
+    ]
+    code, out, _ = cli(capsys, "verify", SAMPLES / "e-decimal.txt", "--json")
+    assert code == 0
+    full = [c for c in json.loads(out)["checks"] if c["kind"] == "full"]
+    assert [(c["note"], c["notes"]) for c in full] == [
+        (
+            "all 20,000 digits compared with a full evaluation (Arb)",
+            [{"code": "full-evaluation-compared", "digits": 20000}],
+        )
+    ]
+
+
+@pytest.mark.parametrize(
+    ("module", "phrases"),
+    [
+        ("locate.py", ["the window just before"]),
+        ("full.py", ["digits compared with a full evaluation", "wrong digits in"]),
+        ("radix.py", ["hex digits determined by", "recomputed from the verified"]),
+        ("verify.py", ["wrong runs found by"]),
+        ("common.py", ["digits before the point"]),
+    ],
+)
+def test_check_rows_hold_no_sentences(module: str, phrases: list[str]) -> None:
+    strings = _code_strings(ROOT / "spotcheck" / "checks" / module)
+    for phrase in phrases:
+        assert phrase not in strings, phrase

@@ -125,7 +125,7 @@ def integer_part_check(facts: FileFacts) -> WindowCheck | None:
         expected=expected,
         found=facts.integer_part,
         match=found == expected,
-        note="digits before the point",
+        notes=(Note("integer-part"),),
         base=facts.base,
     )
 
@@ -383,7 +383,9 @@ class HexOracle:
             self._cache[key] = r.digits
         return self._cache[key]
 
-    def compare(self, df: DigitFile, kind: str, position: int, count: int, note: str = "") -> WindowCheck:
+    def compare(
+        self, df: DigitFile, kind: str, position: int, count: int, notes: tuple[Note, ...] = ()
+    ) -> WindowCheck:
         count = min(count, df.count - position + 1)
         if count < 1:
             raise ValueError(f"window at {position} lies outside the file")
@@ -397,7 +399,7 @@ class HexOracle:
             found=found,
             match=diff is None,
             first_difference=diff,
-            note=note,
+            notes=notes,
         )
 
 

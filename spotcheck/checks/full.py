@@ -21,7 +21,7 @@ from spotcheck.formulas import get_constant
 
 from .common import Progress, needs
 from .reference import memory_budget
-from .results import FileFacts, LocateResult, ScanResult, VerifyResult, WindowCheck
+from .results import FileFacts, LocateResult, Note, ScanResult, VerifyResult, WindowCheck
 from .scan import estimate_scan, scan_open
 
 __all__ = [
@@ -71,7 +71,7 @@ def check_affordable(facts: FileFacts, max_seconds: float = DEFAULT_MAX_SECONDS)
 def _rows(scan: ScanResult) -> list[WindowCheck]:
     f = scan.file
     rows = list(scan.checks)  # the integer part, when the file has one
-    note = f"all {scan.digits_compared:,} digits compared with a full evaluation (Arb)"
+    note = Note("full-evaluation-compared", {"digits": scan.digits_compared})
     for r in scan.runs[:MAX_ROWS]:
         rows.append(
             WindowCheck(
@@ -81,7 +81,7 @@ def _rows(scan: ScanResult) -> list[WindowCheck]:
                 found=r.found,
                 match=False,
                 first_difference=r.start,
-                note=f"{r.wrong:,} wrong digits in {r.length:,}; {note}",
+                notes=(Note("wrong-run", {"wrong": r.wrong, "length": r.length}), note),
                 base=f.base,
             )
         )
@@ -93,7 +93,7 @@ def _rows(scan: ScanResult) -> list[WindowCheck]:
                 expected="",
                 found="",
                 match=True,
-                note=note,
+                notes=(note,),
                 base=f.base,
             )
         )

@@ -20,7 +20,7 @@ from .common import (
     with_run_facts,
 )
 from .full import is_full, locate_full
-from .results import FileFacts, LocateResult, WindowCheck
+from .results import FileFacts, LocateResult, Note, WindowCheck
 from .scan import estimate_scan, scan_open
 
 __all__ = ["locate_file", "DEFAULT_BUDGET", "AFTER_SAMPLES"]
@@ -124,8 +124,8 @@ class _HexLocator:
         self.checks.extend(common_rows(self.facts))
 
     # -- plumbing -------------------------------------------------------------
-    def step(self, kind: str, position: int, count: int, note: str = "") -> WindowCheck:
-        c = self.oracle.compare(self.df, kind, position, count, note=note)
+    def step(self, kind: str, position: int, count: int, notes: tuple[Note, ...] = ()) -> WindowCheck:
+        c = self.oracle.compare(self.df, kind, position, count, notes=notes)
         self.checks.append(c)
         if self.progress:
             self.progress(min(len(self.checks), self.steps_total), self.steps_total)
@@ -255,7 +255,7 @@ class _HexLocator:
             self.found_by_bisection = first
             if first > 1:
                 a = max(1, first - w)
-                self.step("confirm", a, first - a, note="the window just before the first wrong digit")
+                self.step("confirm", a, first - a, notes=(Note("window-before-first-wrong"),))
         for i in range(1, AFTER_SAMPLES + 1):
             p = first + 1 + (n - first - w) * i // AFTER_SAMPLES
             if first < p <= n - w + 1 and not any(c.position == p for c in self.checks):

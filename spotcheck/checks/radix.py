@@ -39,7 +39,7 @@ from typing import Any, Protocol
 
 import gmpy2
 
-from .results import WindowCheck
+from .results import Note, WindowCheck
 
 __all__ = [
     "PrefixOutcome",
@@ -176,7 +176,7 @@ def prefix_steps(
                 found=found_hex,
                 match=diff is None,
                 first_difference=diff,
-                note=f"hex digits determined by the first {basis:,} decimal digits",
+                notes=(Note("hex-from-decimal-prefix", {"decimal_digits": basis}),),
                 base=16,
                 prefix=basis,
             )
@@ -216,7 +216,7 @@ def prefix_steps(
         found=digits[start - 1 : start - 1 + tail_w],
         match=q is None,
         first_difference=q,
-        note=f"decimal digits recomputed from the verified hex digits and {m} engine digits",
+        notes=(Note("decimal-recomputed", {"engine_digits": m}),),
         base=10,
         prefix=n,
     )

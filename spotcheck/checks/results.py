@@ -102,11 +102,17 @@ class WindowCheck:
     match: bool
     first_difference: int | None = None
     """Position of the first differing digit in the window, if any."""
-    note: str = ""
+    notes: tuple[Note, ...] = ()
+    """What the row is, as codes and numbers (worded in ``spotcheck.report.notes``; JSON ``note``)."""
     base: int = 16
     """Base in which ``position``, ``expected`` and ``found`` are written."""
     prefix: int | None = None
     """For radix-conversion checks: the decimal digits converted (the prefix length)."""
+
+    def to_dict(self) -> dict[str, Any]:
+        out = {k: v for k, v in asdict(self).items() if k != "notes"}
+        out["notes"] = [n.to_dict() for n in self.notes]
+        return out
 
 
 @dataclass
@@ -187,7 +193,7 @@ class _Common:
             "schema_version": SCHEMA_VERSION,
             "file": asdict(self.file),
             "method": self.method,
-            "checks": [asdict(c) for c in self.checks],
+            "checks": [c.to_dict() for c in self.checks],
             "seconds": round(self.seconds, 3),
             "evaluations": self.evaluations,
             "interrupted": self.interrupted,

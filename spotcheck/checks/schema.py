@@ -86,7 +86,13 @@ _CHECK = {
         "found": {"type": "string", "description": "the file's digits"},
         "match": {"type": "boolean"},
         "first_difference": _INT_OR_NULL,
-        "note": {"type": "string"},
+        "note": {"type": "string", "description": "what the row is, in words"},
+        "notes": {
+            "type": "array",
+            "items": _NOTE,
+            "description": "the same as codes and numbers: integer-part, window-before-first-wrong, "
+            "full-evaluation-compared, wrong-run, hex-from-decimal-prefix, decimal-recomputed, first-of-wrong-runs",
+        },
         "base": {"enum": [10, 16]},
         "prefix": {**_INT_OR_NULL, "description": "decimal digits converted, for radix-conversion checks"},
     },

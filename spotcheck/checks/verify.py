@@ -24,7 +24,7 @@ from .common import (
     with_run_facts,
 )
 from .full import is_full, verify_full
-from .results import FileFacts, VerifyResult, WindowCheck
+from .results import FileFacts, Note, VerifyResult, WindowCheck
 
 __all__ = ["verify_file", "MAX_SAMPLES", "DEFAULT_FULL_BUDGET"]
 
@@ -210,7 +210,7 @@ def _verify_hex(
                     found=run.found,
                     match=False,
                     first_difference=run.start,
-                    note=f"first of {scan.runs_total} wrong runs found by the full comparison",
+                    notes=(Note("first-of-wrong-runs", {"runs": scan.runs_total}),),
                 )
             )
     return VerifyResult(

@@ -36,6 +36,8 @@ def result_payload(result: CheckResult, repeat: str) -> dict[str, Any]:
 
     out = result.to_dict()
     out["warnings"] = [note_sentence(w, "check") for w in result.warnings]
+    for row, check in zip(out["checks"], result.checks, strict=True):
+        row["note"] = "; ".join(note_sentence(n, "check") for n in check.notes)
     out["repeat"] = repeat
     return out
 

@@ -75,6 +75,22 @@ _SENTENCES: dict[str, Callable[[dict[str, Any], str], str]] = {
     "extra-all-checked": _all_extra,
     "checkpoint-damaged": _damaged,
     "checkpoint-failed": lambda d, s: f"{d['reason']}; the check went on without it",
+    # rows of the checks table (JSON ``checks[].note``)
+    "integer-part": lambda d, s: "digits before the point",
+    "window-before-first-wrong": lambda d, s: "the window just before the first wrong digit",
+    "full-evaluation-compared": lambda d, s: (
+        f"all {d['digits']:,} digits compared with a full evaluation (Arb)"
+    ),
+    "wrong-run": lambda d, s: f"{plural(d['wrong'], 'wrong digit')} in {d['length']:,}",
+    "hex-from-decimal-prefix": lambda d, s: (
+        f"hex digits determined by the first {d['decimal_digits']:,} decimal digits"
+    ),
+    "decimal-recomputed": lambda d, s: (
+        f"decimal digits recomputed from the verified hex digits and {plural(d['engine_digits'], 'engine digit')}"
+    ),
+    "first-of-wrong-runs": lambda d, s: (
+        f"first of {plural(d['runs'], 'wrong run')} found by the full comparison"
+    ),
 }
 
 
