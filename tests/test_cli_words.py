@@ -365,8 +365,8 @@ def test_check_rows_are_worded_from_codes(capsys) -> None:
 @pytest.mark.parametrize(
     ("module", "phrases"),
     [
-        ("locate.py", ["the window just before"]),
-        ("full.py", ["digits compared with a full evaluation", "wrong digits in"]),
+        ("locate.py", ["the window just before the first wrong digit"]),
+        ("full.py", ["digits compared with a full evaluation (Arb)"]),
         ("radix.py", ["hex digits determined by", "recomputed from the verified"]),
         ("verify.py", ["wrong runs found by"]),
         ("common.py", ["digits before the point"]),
