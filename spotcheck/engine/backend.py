@@ -63,14 +63,16 @@ _kernel_head_sum: HeadSum | None = None
 
 if os.environ.get(_PURE_ENV, "").strip().lower() in ("1", "true", "yes", "on"):
     BACKEND = "python"
-    BACKEND_NOTE = f"pure-Python path ({_PURE_ENV} is set)"
+    _PURE_WHY = f"{_PURE_ENV} is set"
+    BACKEND_NOTE = f"pure-Python path ({_PURE_WHY})"
 else:
     try:
         from spotcheck.engine import _kernel  # type: ignore[attr-defined]
         from spotcheck.engine._kernel import head_sum as _kernel_head_sum  # type: ignore[import-not-found,no-redef]
     except ImportError as exc:  # the extension was not built
         BACKEND = "python"
-        BACKEND_NOTE = f"pure-Python path (compiled kernel not available: {exc})"
+        _PURE_WHY = f"compiled kernel not available: {exc}"
+        BACKEND_NOTE = f"pure-Python path ({_PURE_WHY})"
     else:
         BACKEND = "c"
         _offered = ", ".join(_kernel.paths())
@@ -152,7 +154,8 @@ def kernel_split(series: Series, big_d: int, words: int, k_total: int | None = N
     head = big_d // series.e + 1 if big_d >= 0 else 0
     total = head if k_total is None else k_total
     if BACKEND != "c" or _kernel_head_sum is None:
-        return Split(0, f"the compiled kernel is not in use ({BACKEND_NOTE})")
+        why = _PURE_WHY if BACKEND != "c" else BACKEND_NOTE
+        return Split(0, f"the compiled kernel is not in use ({why})")
     if words > KERNEL_MAX_WORDS:
         return Split(
             0, f"{64 * words} bits of precision exceed the compiled kernel's {64 * KERNEL_MAX_WORDS}"
