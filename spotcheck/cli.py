@@ -33,10 +33,11 @@ def _plain_metavars() -> None:
     if not getattr(arg.make_metavar, "_spotcheck", False):
         original_metavar = arg.make_metavar
 
-        def make_metavar(self: Any, ctx: Any, *, usage: bool = False) -> str:
+        def make_metavar(self: Any, *args: Any, **kwargs: Any) -> str:  # (ctx, *, usage) in typer 0.2x
             if self.metavar is not None:
+                usage = kwargs.get("usage", False)
                 return str(self.metavar) if self.required or not usage else f"[{self.metavar}]"
-            result: str = original_metavar(self, ctx, usage=usage)
+            result: str = original_metavar(self, *args, **kwargs)
             return result
 
         make_metavar._spotcheck = True  # type: ignore[attr-defined]
