@@ -409,7 +409,9 @@ def constants(formula_file: FormulaFileOpt = None, as_json: JsonOpt = False) -> 
 FileArg = Annotated[
     str,
     typer.Argument(
-        metavar="FILE", click_type=TEXT, help="Digit file (plain, gzip, bzip2 or xz; hex or decimal)."
+        metavar="FILE",
+        click_type=TEXT,
+        help="Digit file (plain, gzip, bzip2 or xz; hex or decimal); - reads standard input.",
     ),
 ]
 ConstantOpt = Annotated[
@@ -827,10 +829,17 @@ def compare(
     file_a: Annotated[
         str,
         typer.Argument(
-            metavar="A", click_type=TEXT, help="One copy (plain, gzip, bzip2 or xz; hex or decimal)."
+            metavar="A",
+            click_type=TEXT,
+            help="One copy (plain, gzip, bzip2 or xz; hex or decimal); - reads standard input.",
         ),
     ],
-    file_b: Annotated[str, typer.Argument(metavar="B", click_type=TEXT, help="The other copy (any layout).")],
+    file_b: Annotated[
+        str,
+        typer.Argument(
+            metavar="B", click_type=TEXT, help="The other copy (any layout; - reads standard input)."
+        ),
+    ],
     constant: ConstantOpt = None,
     base: BaseOpt = None,
     formula: FormulaOpt = None,

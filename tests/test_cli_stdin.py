@@ -131,3 +131,14 @@ def test_a_copy_that_does_not_fit_says_what_to_do(tmp_path) -> None:
         "room and name that file"
     )
     assert list(tmp_path.iterdir()) == []
+
+
+def test_help_says_dash_reads_standard_input(capsys, monkeypatch) -> None:
+    from spotcheck.cli import run
+
+    monkeypatch.setenv("COLUMNS", "200")
+    for command in ("verify", "locate", "scan", "inspect"):
+        assert run([command, "--help"]) == 0
+        assert "- reads standard input." in capsys.readouterr().out
+    assert run(["compare", "--help"]) == 0
+    assert "The other copy (any layout; - reads standard input)." in capsys.readouterr().out
