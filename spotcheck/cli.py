@@ -17,7 +17,7 @@ from typing import Annotated, Any
 import typer
 
 from spotcheck import __version__
-from spotcheck.errors import SpotcheckError
+from spotcheck.errors import InfeasibleError, SpotcheckError
 
 
 def _plain_metavars() -> None:
@@ -287,6 +287,7 @@ def digits(
         full_evaluation_line,
         infeasible_line,
         interrupted_line,
+        long_run_line,
         show_digits,
     )
 
@@ -337,8 +338,11 @@ def digits(
         estimates[key] = est
         if talk and (est.cpu_seconds >= ESTIMATE_SHOWN_SECONDS or not est.feasible):
             info_line(estimate_line(est, key))
+            longer = long_run_line(est)
+            if longer is not None:
+                info_line(longer)
         if not est.feasible:
-            raise UsageError(infeasible_line(_refusal(const.name, est), est.hint))
+            raise UsageError(infeasible_line(_refusal(const.name, est), est))
     for path in paths.values():
         if path is not None and talk:
             info_line(f"checkpoint: {path}")
@@ -542,8 +546,10 @@ def _hint(exc: Exception) -> str:
         "verify_each": "; check each with `spotcheck verify`",
         "labels": " (--labels start|end|both|none)",
     }
-    if getattr(exc, "hint", None) == "cluster":  # an infeasible request (InfeasibleError)
-        return "; running the head sum on a Dask cluster (--cluster ADDRESS) would make it feasible"
+    if isinstance(exc, InfeasibleError):  # what would bring it within reach, if anything
+        from spotcheck.report.digits import infeasible_hint
+
+        return infeasible_hint(exc.estimate)  # type: ignore[arg-type]
     return hints.get(parameter or "", "")
 
 
@@ -613,8 +619,11 @@ def verify(
     ctx: typer.Context,
     file: FileArg,
     samples: Annotated[
-        int, typer.Option("--samples", "-s", metavar="N", click_type=WHOLE, help="Random windows to check.")
-    ] = 8,
+        int | None,
+        typer.Option(
+            "--samples", "-s", metavar="N", click_type=WHOLE, help="Random windows to check (default 8)."
+        ),
+    ] = None,
     seed: Annotated[
         int | None,
         typer.Option("--seed", metavar="N", help="Seed for the random windows (printed either way)."),

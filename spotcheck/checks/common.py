@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 import os
+import random
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, TypeVar
@@ -403,6 +404,20 @@ class HexOracle:
         )
 
 
+def distinct_rows(rows: list[WindowCheck]) -> list[WindowCheck]:
+    """``rows`` with each comparison once: a row that compares the same digits at the same place as
+    an earlier one (two prefixes of a decimal file that determine the same hex window, a confirmation
+    of a window bisection already compared) is dropped; the first keeps its kind."""
+    seen: set[tuple[int, int, str, str]] = set()
+    out = []
+    for c in rows:
+        key = (c.base, c.position, c.expected, c.found)
+        if key not in seen:
+            seen.add(key)
+            out.append(c)
+    return out
+
+
 def clamp_window(window: int, count: int) -> int:
     if not 1 <= window <= MAX_WINDOW:
         raise UsageError(f"window must be between 1 and {MAX_WINDOW} digits, got {window}")
@@ -418,10 +433,57 @@ def _part(progress: Progress, done: int, weight: int, total: int) -> Callable[[f
     return say
 
 
+class Sampler:
+    """Random window positions in ``first..last``, each drawn once and none at a ``fixed`` position.
+
+    The random windows of a check are distinct and avoid the windows it checks
+    anyway (head, tail, positions asked for), so each adds evidence.  ``room``
+    is how many positions there are to draw from; ``draw()`` returns None once
+    every one was drawn.  When the room is plenty, the positions are those of
+    ``rng.randint(first, last)`` with repeats skipped.
+
+    Drawing without replacement from positions other than the clean fixed ones
+    keeps :func:`spotcheck.checks.stats.scattered_damage_bound` valid: the
+    chance that ``n`` distinct windows all miss a damaged fraction ``f`` is at
+    most ``(1 - f)^n``, and the clean fixed windows only lower the damaged
+    fraction among the positions drawn from below that of the whole file.
+
+    >>> import random
+    >>> s = Sampler(random.Random(1), 1, 5, fixed=(1, 5))
+    >>> s.room, sorted(s.batch(8)), s.draw()
+    (3, [2, 3, 4], None)
+    """
+
+    def __init__(self, rng: random.Random, first: int, last: int, fixed: Iterable[int] = ()) -> None:
+        self.rng, self.first, self.last = rng, first, last
+        self.taken = {p for p in fixed if first <= p <= last}
+        self.room = max(0, last - first + 1 - len(self.taken))
+
+    def draw(self) -> int | None:
+        if self.room <= 0:
+            return None
+        while True:  # expected tries: positions / room left
+            p = self.rng.randint(self.first, self.last)
+            if p not in self.taken:
+                break
+        self.taken.add(p)
+        self.room -= 1
+        return p
+
+    def batch(self, count: int) -> list[int]:
+        """``min(count, room)`` positions, sorted (all that are left when ``count`` reaches the room)."""
+        if count >= self.room:
+            out = [p for p in range(self.first, self.last + 1) if p not in self.taken]
+            self.taken.update(out)
+            self.room = 0
+            return out
+        return sorted(p for p in (self.draw() for _ in range(count)) if p is not None)
+
+
 def run_plan(
     plan: Plan,
     check: Callable[[str, int], None],
-    draw: Callable[[], int],
+    draw: Callable[[], int | None],
     budget: float | None,
     progress: Progress | None,
     *,
@@ -456,7 +518,10 @@ def run_plan(
             per = (time.perf_counter() - t0) / max(1, len(plan))
             while time.perf_counter() - t0 + per < budget:
                 t1 = time.perf_counter()
-                check("sample", draw())
+                where = draw()
+                if where is None:  # every position was drawn
+                    break
+                check("sample", where)
                 random_windows += 1
                 per = max(per, time.perf_counter() - t1)
     except KeyboardInterrupt:

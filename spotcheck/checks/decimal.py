@@ -35,8 +35,10 @@ from .common import (
     DEFAULT_WINDOW,
     HexOracle,
     Progress,
+    Sampler,
     clamp_window,
     common_rows,
+    distinct_rows,
     first_difference,
     needs,
     run_plan,
@@ -114,6 +116,7 @@ def verify_decimal(
     samples: int,
     seed: int,
     at: Sequence[int],
+    asked: int | None = None,
     window: int = DEFAULT_WINDOW,
     budget: float | None = None,
     oracle: HexOracle,
@@ -130,9 +133,11 @@ def verify_decimal(
     checks.append(_head_check(facts, df, w))
     conv = _converter(df, n)
     plan: list[tuple[str, int]] = [("tail", n)]
-    plan += [("user", min(n, p + w - 1)) for p in at]
-    lo = min(n, 2 * w)
-    plan += sorted(("sample", rng.randint(lo, n)) for _ in range(samples))
+    plan += [("user", q) for q in dict.fromkeys(min(n, p + w - 1) for p in at) if q != n]
+    # Random prefixes: distinct, none of the lengths checked anyway.
+    sampler = Sampler(rng, min(n, 2 * w), n, fixed=[length for _, length in plan])
+    room = sampler.room
+    plan += [("sample", length) for length in sampler.batch(samples)]
 
     within: list[Callable[[float], None] | None] = [None]
 
@@ -141,21 +146,21 @@ def verify_decimal(
         checks.extend(out.rows)
 
     try:
-        random_windows, interrupted = run_plan(
-            plan, check, lambda: rng.randint(lo, n), budget, progress, within=within
-        )
+        random_windows, interrupted = run_plan(plan, check, sampler.draw, budget, progress, within=within)
         bracket = decimal_bracket(checks, n)
         rounded = None
-        if bracket is not None and bracket[0] == bracket[1] and not interrupted:
+        if bracket is not None and not interrupted and _may_be_rounded(checks, n, w):
             try:
-                rounded = _rounded_last_digits(conv, df, n, bracket[0], oracle, w)
+                rounded = rounded_up_from(conv, df, n, oracle, w)
             except KeyboardInterrupt:
                 interrupted = True
+            if rounded is not None:  # the digits before it are the true ones: the first wrong is known
+                bracket = (rounded, rounded)
     finally:
         conv.close()
     return VerifyResult(
         file=facts,
-        checks=checks,
+        checks=distinct_rows(checks),
         method="radix conversion",
         seconds=time.perf_counter() - t0,
         evaluations=oracle.evaluations,
@@ -164,6 +169,8 @@ def verify_decimal(
         seed=seed,
         tail_position=n,
         random_windows=random_windows,
+        samples_asked=asked,
+        sample_room=room,
         first_wrong_bracket=bracket,
         rounded_from=rounded,
     )
@@ -197,28 +204,51 @@ def decimal_bracket(checks: Sequence[WindowCheck], n: int) -> tuple[int, int] | 
     return good + 1, min(bad, n)
 
 
-def _rounded_last_digits(
-    conv: Converter, df: DigitFile, n: int, first: int, oracle: HexOracle, w: int
-) -> int | None:
-    """``first`` when digits ``first..n`` are the true ones rounded up at the last digit, else None.
+def _may_be_rounded(checks: Sequence[WindowCheck], n: int, w: int) -> bool:
+    """Whether the failing checks leave room for a last digit rounded up (worth one more conversion).
 
-    Digits ``1..first-1`` are known right; the true digits ``first..n+1`` are
-    recomputed from them and engine digits, and the file's ``first..n`` must
-    equal the true ``first..n`` plus one, with true digit ``n+1`` at least 5.
+    Rounding up moves the value by less than ``10^-n``: the whole file's hex
+    window then differs at most in its last digits (its first half still
+    matches unless a carry runs through half the window, chance 16^-(w/2)),
+    and decimal digits differ only in the last ``w`` (unless the true digits
+    end in a run of ``w`` nines).
     """
-    if n - first + 2 > w or first < 1:
+    failing = [c for c in checks if not c.match and c.kind != "integer-part"]
+    for c in failing:
+        if c.prefix is not None and c.prefix < n:  # a shorter prefix is wrong: more than rounding
+            return False
+        if c.first_difference is None:
+            return False
+        if c.base == 10 and c.first_difference <= n - w:
+            return False
+        if c.base == 16 and c.first_difference < c.position + len(c.expected) // 2:
+            return False
+    return bool(failing)
+
+
+def rounded_up_from(conv: Converter, df: DigitFile, n: int, oracle: HexOracle, w: int) -> int | None:
+    """Where the file's wrong last digits start, when they are the true digits rounded up at digit ``n``.
+
+    That is the case exactly when the file's ``n`` digits, as an integer ``V``,
+    are ``V = T + 1`` with ``T`` the true first ``n`` digits and the true digit
+    ``n + 1`` at least 5.  Tested by one prefix check: ``T`` (the file's digits
+    minus one in the last place) followed by ``0``, whose first ``n`` digits must
+    convert to the engine's hex digits and whose decimal end must differ only at
+    digit ``n + 1``, where the true digit is 5 or more.  None otherwise.
+    """
+    k = 1
+    while k < n and df.read(n - k + 1, 1) == "0":  # a carry made trailing zeros: borrow through them
+        k += 1
+    last = df.read(n - k + 1, k)
+    if int(last) == 0:  # all zeros: V - 1 would need one digit fewer
         return None
-    out = conv.check(n, oracle.digits, max(w, n - first + 2), "confirm", basis=first - 1, suffix="0")
+    lowered = str(int(last) - 1).zfill(k)
+    out = conv.check(n - k, oracle.digits, w, "confirm", basis=n, suffix=lowered + "0")
     end = out.end
-    if end is None or end.position > first:
-        return None
-    true = end.expected[first - end.position : first - end.position + n - first + 2]
-    if len(true) != n - first + 2:
-        return None
-    upper, next_digit = true[:-1], int(true[-1])
-    found = df.read(first, n - first + 1)
-    if next_digit >= 5 and int(found) == int(upper) + 1 and len(str(int(upper) + 1)) <= len(found):
-        return first
+    if not out.match and end is not None and end.first_difference == n + 1:
+        true_next = end.expected[n + 1 - end.position]
+        if int(true_next) >= 5:
+            return n - k + 1 + next(i for i in range(k) if last[i] != lowered[i])
     return None
 
 
@@ -275,7 +305,7 @@ def locate_decimal(
             out = conv.check(min(n, bad + w - 1), oracle.digits, w, "confirm", basis=good)
             checks.extend(out.rows)
             bad_end = out.end
-            rounded = _rounded_last_digits(conv, df, n, first, oracle, w)
+            rounded = rounded_up_from(conv, df, n, oracle, w) if first > n - w else None
     except KeyboardInterrupt:
         interrupted = True
     finally:
@@ -315,7 +345,7 @@ def locate_decimal(
         rest = None
     return LocateResult(
         file=facts,
-        checks=checks,
+        checks=distinct_rows(checks),
         method="radix conversion",
         seconds=time.perf_counter() - t0,
         evaluations=oracle.evaluations,

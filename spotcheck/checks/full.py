@@ -126,6 +126,7 @@ def verify_full(
         wrong_digits=scan.wrong_digits,
         wrong_runs=scan.runs_total,
         wrong_spans=[(r.start, r.start + r.length - 1) for r in scan.runs],
+        rounded_from=scan.rounded_from,
     )
 
 
@@ -179,4 +180,5 @@ def locate_full(
         full_through_value=n,
         explanation=explanation,
         first_is_certain=first is not None,
+        rounded_from=scan.rounded_from,
     )

@@ -16,6 +16,7 @@ from .common import (
     Progress,
     clamp_window,
     common_rows,
+    distinct_rows,
     open_run,
     with_run_facts,
 )
@@ -175,7 +176,7 @@ class _HexLocator:
             found = self.df.read(first, len(expected))
         return LocateResult(
             file=self.facts,
-            checks=self.checks,
+            checks=distinct_rows(self.checks),
             method="digit extraction",
             seconds=time.perf_counter() - self.t0,
             evaluations=self.oracle.evaluations + self.scans,

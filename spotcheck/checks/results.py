@@ -212,6 +212,12 @@ class VerifyResult(_Common):
     tail_position: int | None
     """Where the tail check landed: a match there rules out a persistent error before it."""
     random_windows: int = 0
+    """Random windows checked (distinct; the head, the tail and ``--at`` windows are not among them)."""
+    samples_asked: int | None = None
+    """Random windows asked for (None: not asked, the default number was sought)."""
+    sample_room: int | None = None
+    """Distinct positions the random windows were drawn from (None: none were drawn, as when every
+    digit was compared instead); fewer than ``samples_asked`` in a short file."""
     full_through_value: int = 0
     """Digits 1..N compared with a full computation (0: sampled windows only)."""
     reference: str | None = None
@@ -250,6 +256,8 @@ class VerifyResult(_Common):
             tail_position=self.tail_position,
             scattered_bound=self.scattered_bound,
             random_windows=self.random_windows,
+            samples_asked=self.samples_asked,
+            sample_room=self.sample_room,
             reference=self.reference,
             wrong_digits=self.wrong_digits,
             wrong_runs=self.wrong_runs,
@@ -337,6 +345,8 @@ class ScanResult(_Common):
     wrong_digits: int
     runs: list[MismatchRun] = field(default_factory=list)
     runs_total: int = 0
+    rounded_from: int | None = None
+    """The wrong digits from this position to the end are the true ones rounded up at the last digit."""
 
     @property
     def any_mismatch(self) -> bool:
@@ -359,5 +369,6 @@ class ScanResult(_Common):
             first_mismatch=self.first_mismatch,
             mismatch_runs=[asdict(r) for r in self.runs],
             mismatch_runs_total=self.runs_total,
+            rounded_from=self.rounded_from,
         )
         return out

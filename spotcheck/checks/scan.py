@@ -12,7 +12,7 @@ from .common import Progress, common_rows, needs, open_checked
 from .reference import REFERENCES, estimate_reference, memory_budget, reference_digits, require_supported
 from .results import FileFacts, MismatchRun, ScanResult, WindowCheck
 
-__all__ = ["scan_file", "scan_open", "estimate_scan", "diff_runs", "merge_runs"]
+__all__ = ["scan_file", "scan_open", "estimate_scan", "diff_runs", "merge_runs", "rounded_up_from"]
 
 # --- tuning -----------------------------------------------------------------
 CHUNK_DIGITS = 1 << 20  # digits compared per step
@@ -114,8 +114,9 @@ def scan_open(
     raw: list[tuple[int, int, int]] = []
     compared = 0
     interrupted = False
+    whole = n == facts.checked  # then one digit more: was the last digit rounded up?
     try:
-        _, ref = reference_digits(facts.constant, facts.base, n, reference, threads, tick)
+        _, ref = reference_digits(facts.constant, facts.base, n + whole, reference, threads, tick)
     except KeyboardInterrupt:
         interrupted, ref = True, ""
     try:
@@ -147,6 +148,9 @@ def scan_open(
         )
         for first, last, wrong in merged[:MAX_RUNS_REPORTED]
     ]
+    rounded = None
+    if whole and not interrupted and compared == n and len(merged) == 1 and merged[0][1] == n:
+        rounded = rounded_up_from(df.read(merged[0][0], n - merged[0][0] + 1), ref, merged[0][0], facts.base)
     return ScanResult(
         file=facts,
         checks=checks,
@@ -159,7 +163,28 @@ def scan_open(
         wrong_digits=sum(w for _, _, w in raw),
         runs=runs,
         runs_total=len(merged),
+        rounded_from=rounded,
     )
+
+
+def rounded_up_from(found: str, ref: str, first: int, base: int) -> int | None:
+    """``first`` when the file's digits ``found`` (from ``first`` to the end, ``first`` the first wrong one)
+    are the true digits rounded up at the last place: one more than the true ones, read as an integer,
+    with the true digit after the end at least half the base.  ``ref`` holds the true digits from
+    position 1 to one past the end.  None otherwise (or when the stretch is implausibly long).
+
+    >>> rounded_up_from("6", "14159265358", 10, 10)  # pi: digit 10 is 5, digit 11 is 8
+    10
+    >>> rounded_up_from("7", "14159265358", 10, 10) is None
+    True
+    """
+    end = first + len(found) - 1
+    if len(found) > 64 or len(ref) < end + 1:
+        return None
+    true = ref[first - 1 : end]
+    if int(found, base) == int(true, base) + 1 and int(ref[end], base) * 2 >= base:
+        return first
+    return None
 
 
 def scan_file(

@@ -117,7 +117,8 @@ _COMMON = {
     "verdict": {
         "enum": ["match", "mismatch", "incomplete", "unconfirmed"],
         "description": "match (exit 0): every digit compared agrees; mismatch (exit 1); incomplete: "
-        "interrupted before anything was established (exit 130); unconfirmed (locate only, exit 3): "
+        "interrupted before the check finished, no wrong digit in what was compared so far (`covered`, "
+        "`checks`: what was established) (exit 130); unconfirmed (locate only, exit 3): "
         "no wrong digit found, but only windows were compared, so isolated damage is not ruled out",
     },
     "file": _FILE,
@@ -155,6 +156,12 @@ _COMMON = {
         "(checkpoint-damaged: records, checkpoint; checkpoint-failed: reason)",
     },
     "repeat": {"type": "string", "description": "a command line that repeats the run"},
+    "notes": {
+        "type": "array",
+        "items": {"type": "string"},
+        "description": "what the run did otherwise than asked (random windows not drawn because every "
+        "digit was compared, fewer distinct windows than asked in a short file), as the report says it",
+    },
 }
 
 VERIFY_SCHEMA: dict[str, Any] = {
@@ -168,7 +175,22 @@ VERIFY_SCHEMA: dict[str, Any] = {
         "false_match_chance": {"type": "number"},
         "tail_position": _INT_OR_NULL,
         "scattered_bound": {"type": ["number", "null"]},
-        "random_windows": {"type": "integer", "minimum": 0},
+        "random_windows": {
+            "type": "integer",
+            "minimum": 0,
+            "description": "distinct random windows checked (not the head, tail or --at ones); "
+            "scattered_bound is computed from them",
+        },
+        "samples_asked": {
+            "type": ["integer", "null"],
+            "minimum": 0,
+            "description": "random windows asked for (null: not asked, the default number was sought)",
+        },
+        "sample_room": {
+            **_INT_OR_NULL,
+            "description": "distinct positions the random windows were drawn from (null: none drawn, "
+            "every digit being compared instead)",
+        },
         "reference": {
             "enum": ["arb", "mpfr", None],
             "description": "the full computation every digit was compared with, or null (windows only)",
@@ -184,7 +206,7 @@ VERIFY_SCHEMA: dict[str, Any] = {
         },
         "rounded_from": {
             **_INT_OR_NULL,
-            "description": "decimal files: the digits from here to the end are the true ones rounded up",
+            "description": "the digits from here to the end are the true ones rounded up at the last digit",
         },
     },
 }
@@ -241,6 +263,10 @@ SCAN_SCHEMA: dict[str, Any] = {
         "first_mismatch": _INT_OR_NULL,
         "mismatch_runs": {"type": "array", "items": _RUN},
         "mismatch_runs_total": {"type": "integer", "minimum": 0},
+        "rounded_from": {
+            **_INT_OR_NULL,
+            "description": "the digits from here to the end are the true ones rounded up at the last digit",
+        },
     },
 }
 

@@ -16,6 +16,7 @@ from .common import (
     DEFAULT_WINDOW,
     HexOracle,
     Progress,
+    Sampler,
     clamp_window,
     common_rows,
     needs,
@@ -26,9 +27,10 @@ from .common import (
 from .full import is_full, verify_full
 from .results import FileFacts, Note, VerifyResult, WindowCheck
 
-__all__ = ["verify_file", "MAX_SAMPLES", "DEFAULT_FULL_BUDGET"]
+__all__ = ["verify_file", "MAX_SAMPLES", "DEFAULT_SAMPLES", "DEFAULT_FULL_BUDGET"]
 
 MAX_SAMPLES = 100_000
+DEFAULT_SAMPLES = 8  # random windows when none are asked for
 # Seconds a full comparison may take before verify falls back to sampled
 # windows.  A minute covers hex files of about 3*10^7 digits on a slow
 # machine (the reference computation runs at roughly 10^6 hex digits per
@@ -46,7 +48,7 @@ def verify_file(
     base: int | None = None,
     constant: str | None = None,
     formula: str | None = None,
-    samples: int = 8,
+    samples: int | None = None,
     seed: int | None = None,
     at: Sequence[int] = (),
     window: int = DEFAULT_WINDOW,
@@ -69,7 +71,10 @@ def verify_file(
     compared with certified engine digits; then, when the estimated time of a
     full comparison with ``reference`` (Arb or MPFR) fits ``budget``, every
     digit is compared with it (as ``scan`` does); otherwise ``samples`` random
-    windows are drawn, and more while ``sample_seconds`` allow.  Decimal
+    windows are drawn (:data:`DEFAULT_SAMPLES` when None; distinct, fewer in a
+    short file), and more while ``sample_seconds`` allow.  The result records
+    ``samples`` as asked (None: the default), so a report can say when they
+    were not drawn.  Decimal
     files go through radix conversion, which covers every digit
     (:func:`spotcheck.checks.decimal.verify_decimal`).  ``cluster`` and
     ``checkpoint`` serve deep windows: ``checkpoint`` is one journal file for
@@ -77,6 +82,8 @@ def verify_file(
     file of :func:`spotcheck.checks.common.check_checkpoint_path`), whose path
     goes to ``on_checkpoint`` once it is open.
     """
+    asked = samples
+    samples = DEFAULT_SAMPLES if samples is None else samples
     if not 0 <= samples <= MAX_SAMPLES:
         raise UsageError(f"samples must be between 0 and {MAX_SAMPLES}, got {samples}")
     if budget < 0:
@@ -114,6 +121,7 @@ def verify_file(
                     df,
                     facts,
                     samples=samples,
+                    asked=asked,
                     seed=seed,
                     at=at,
                     window=window,
@@ -129,6 +137,7 @@ def verify_file(
                 df,
                 facts,
                 samples,
+                asked,
                 seed,
                 at,
                 window,
@@ -157,6 +166,7 @@ def _verify_hex(
     df: DigitFile,
     facts: FileFacts,
     samples: int,
+    asked: int | None,
     seed: int,
     at: Sequence[int],
     window: int,
@@ -174,10 +184,16 @@ def _verify_hex(
     w = clamp_window(window, facts.checked)
     rng = random.Random(seed)
     last_start = facts.checked - w + 1
-    plan: list[tuple[str, int]] = [("head", 1), ("tail", last_start)]
-    plan += [("user", p) for p in at]
+    # A file no longer than the window has one window: the tail.
+    plan: list[tuple[str, int]] = [("head", 1)] if last_start > 1 else []
+    plan.append(("tail", last_start))
+    plan += [("user", p) for p in dict.fromkeys(at) if p not in (1, last_start)]
+    # Random windows: distinct, and none where a window is checked anyway.
+    sampler = Sampler(rng, 1, last_start, fixed=[where for _, where in plan])
+    room: int | None = None
     if full_reference is None:
-        plan += sorted(("sample", rng.randint(1, last_start)) for _ in range(samples))
+        room = sampler.room
+        plan += [("sample", p) for p in sampler.batch(samples)]
     checks: list[WindowCheck] = []
     checks.extend(common_rows(facts))
 
@@ -187,11 +203,12 @@ def _verify_hex(
     random_windows, interrupted = run_plan(
         plan,
         check,
-        lambda: rng.randint(1, last_start),
+        sampler.draw,
         budget if full_reference is None else None,
         progress,
     )
     full_through, wrong, runs, evaluations = 0, None, None, oracle.evaluations
+    rounded: int | None = None
     spans: list[tuple[int, int]] = []
     if full_reference is not None and not interrupted:
         from .scan import scan_open
@@ -199,7 +216,7 @@ def _verify_hex(
         scan = scan_open(df, facts, reference=full_reference, progress=progress, threads=oracle.workers)
         interrupted = scan.interrupted
         full_through, wrong, evaluations = scan.digits_compared, scan.wrong_digits, evaluations + 1
-        runs = scan.runs_total
+        runs, rounded = scan.runs_total, scan.rounded_from
         spans = [(r.start, r.start + r.length - 1) for r in scan.runs]
         for run in scan.runs[:1]:
             checks.append(
@@ -224,9 +241,12 @@ def _verify_hex(
         seed=seed,
         tail_position=last_start,
         random_windows=random_windows,
+        samples_asked=asked,
+        sample_room=room,
         full_through_value=full_through,
         reference=full_reference,
         wrong_digits=wrong,
         wrong_runs=runs,
         wrong_spans=spans,
+        rounded_from=rounded,
     )

@@ -30,7 +30,14 @@ from spotcheck.engine.series import Series
 if TYPE_CHECKING:
     from spotcheck.engine.journal import Journal
 
-__all__ = ["RunPlan", "CostEstimate", "estimate_series_cost", "BLOCK_K", "window_plan"]
+__all__ = [
+    "RunPlan",
+    "CostEstimate",
+    "estimate_series_cost",
+    "cluster_cores_needed",
+    "BLOCK_K",
+    "window_plan",
+]
 
 # --- tuning -----------------------------------------------------------------
 # Head terms per block in an ordinary run (no checkpoint, no cluster); blocks
@@ -44,6 +51,10 @@ BLOCK_K = 1 << 18
 # flight at once, so more does not finish either).
 MAX_LOCAL_CPU_SECONDS = 100 * 365.25 * 86400
 MAX_CLUSTER_CPU_SECONDS = 100_000 * 365.25 * 86400
+# The wall time a cluster of the size the estimate names would take (the
+# "cluster hint"): a year.  A cluster run keeps at most cluster.MAX_IN_FLIGHT
+# blocks, one core each, busy at once, so no hint names more cores than that.
+CLUSTER_REACH_SECONDS = 365.25 * 86400
 # Calibration: values of k timed per path, best of CALIBRATION_REPEATS.
 CALIBRATION_K_KERNEL = 1 << 13
 CALIBRATION_POINTS = 4  # places in the kernel's range of k where it is timed
@@ -127,7 +138,11 @@ class CostEstimate:
     limit_seconds: float
     """CPU seconds above which the request is refused."""
     hint: str | None
-    """What would make an infeasible request feasible: ``"cluster"``, or ``None`` if nothing."""
+    """What would make an infeasible request feasible: ``"cluster"`` (with ``cluster_cores``), or ``None``."""
+    cluster_cores: int | None = None
+    """Cores of a Dask cluster that would finish the head sum within :data:`CLUSTER_REACH_SECONDS`
+    when this machine's workers would not (None: no cluster was considered, this machine is enough,
+    or more cores than a cluster run keeps busy would be needed)."""
 
     def to_dict(self) -> dict[str, Any]:
         return asdict(self)
@@ -202,7 +217,10 @@ def estimate_series_cost(
     workers = max(1, workers)
     limit = MAX_CLUSTER_CPU_SECONDS if cluster else MAX_LOCAL_CPU_SECONDS
     feasible = cpu <= limit
-    hint = "cluster" if not feasible and not cluster and cpu <= MAX_CLUSTER_CPU_SECONDS else None
+    cores = cluster_cores_needed(cpu) if not cluster and cpu <= MAX_CLUSTER_CPU_SECONDS else None
+    if cores is not None and cores <= workers:
+        cores = None  # this machine's workers finish it within the same time
+    hint = "cluster" if not feasible and cores is not None else None
     return CostEstimate(
         position=position,
         count=count,
@@ -222,4 +240,18 @@ def estimate_series_cost(
         feasible=feasible,
         limit_seconds=limit,
         hint=hint,
+        cluster_cores=cores,
     )
+
+
+def cluster_cores_needed(cpu_seconds: float) -> int | None:
+    """Cores that finish ``cpu_seconds`` within :data:`CLUSTER_REACH_SECONDS`, or None when that is more
+    than a cluster run keeps busy (:data:`spotcheck.engine.cluster.MAX_IN_FLIGHT` blocks at once).
+
+    >>> cluster_cores_needed(200 * 365.25 * 86400), cluster_cores_needed(13_400 * 365.25 * 86400)
+    (200, None)
+    """
+    from spotcheck.engine.cluster import MAX_IN_FLIGHT
+
+    cores = max(1, math.ceil(cpu_seconds / CLUSTER_REACH_SECONDS))
+    return cores if cores <= MAX_IN_FLIGHT else None

@@ -39,11 +39,60 @@ def result_payload(result: CheckResult, repeat: str) -> dict[str, Any]:
     for row, check in zip(out["checks"], result.checks, strict=True):
         row["note"] = "; ".join(note_sentence(n, "check") for n in check.notes)
     out["repeat"] = repeat
+    out["notes"] = report_notes(result)
     return out
 
 
+def report_notes(result: CheckResult) -> list[str]:
+    """What the run did otherwise than asked, in words (printed, and ``notes`` in JSON)."""
+    if not isinstance(result, VerifyResult):
+        return []
+    from spotcheck.checks.verify import DEFAULT_SAMPLES
+
+    given = result.samples_asked
+    asked = DEFAULT_SAMPLES if given is None else given
+    option = "" if given is None else f" (--samples {given:,})"
+    if result.sample_room is None:
+        if given and result.reference is not None:
+            done = "was" if result.full_through else "was to be"
+            return [
+                f"no random window was drawn{option}: every digit {done} compared with {result.reference} "
+                "instead (--budget 0 checks windows only)"
+            ]
+        return []
+    decimal = result.method == "radix conversion"
+    what = "prefix" if decimal else "window"
+    room = result.sample_room
+    if room >= asked:
+        return []
+    if room == 0:
+        return [f"no random {what} was drawn{option}: the file has no {what} besides those checked anyway"]
+    drawn = plural(room, f"random {what}", f"random {what}es" if decimal else None)
+    return [f"{drawn} drawn, not {asked:,}{option}: the file has no other distinct {what}"]
+
+
+def windows_phrase(result: CheckResult) -> str:
+    """The windows compared, by kind: ``18 windows (head, tail and 16 random; 288 digits)``.
+
+    Random windows are named apart: they alone back the damage bound.
+    """
+    rows = [c for c in result.checks if c.position >= 1]
+    kinds = [c.kind for c in rows]
+    parts = [k for k in ("head", "tail") if k in kinds]
+    if kinds.count("user"):
+        parts.append(f"{kinds.count('user'):,} at the positions asked for")
+    if kinds.count("sample"):
+        parts.append(f"{kinds.count('sample'):,} random")
+    other = len(kinds) - sum(kinds.count(k) for k in ("head", "tail", "user", "sample"))
+    if other and parts:
+        parts.append(f"{other:,} more")
+    detail = ", ".join(parts[:-1]) + " and " + parts[-1] if len(parts) > 1 else "".join(parts)
+    inside = f"{detail}; " if detail and len(rows) > 1 else ""
+    return f"{plural(len(rows), 'window')} ({inside}{result.covered_digits:,} digits)"
+
+
 def coverage_phrase(result: CheckResult) -> str:
-    """What was compared: every digit, or how many windows (with the damage bound)."""
+    """What was compared: every digit, or which windows (with the damage bound and what backs it)."""
     if (
         isinstance(result, VerifyResult)
         and result.file.base == 10
@@ -54,12 +103,42 @@ def coverage_phrase(result: CheckResult) -> str:
     if result.full_through and result.exhaustive:
         ref = getattr(result, "reference", None) or "a full computation"
         return f"every digit compared with {ref}"
-    windows = sum(1 for c in result.checks if c.position >= 1)
-    how = "compared" if isinstance(result, LocateResult) else "sampled"
-    text = f"{plural(windows, 'window')} {how} ({result.covered_digits:,} digits)"
+    if result.exhaustive:
+        return f"every digit compared in {windows_phrase(result)}"
+    how = "compared" if isinstance(result, LocateResult) else "checked"
+    text = windows_phrase(result).replace(" (", f" {how} (", 1)
     if isinstance(result, VerifyResult) and result.scattered_bound is not None:
-        text += f"; damaged fraction below {result.scattered_bound:.2%} at 95%"
+        text += (
+            f"; damaged fraction below {result.scattered_bound:.2%} at 95% "
+            f"from the {plural(result.random_windows, 'random window')}"
+        )
     return text
+
+
+def established_phrase(result: CheckResult) -> str:
+    """What an interrupted check had established (no wrong digit so far), for its verdict line."""
+    if not result.covered:
+        return "interrupted before any digit was compared"
+    windows = sum(c.position >= 1 for c in result.checks)
+    agree = "matches" if windows == 1 else "match"
+    if result.full_through:
+        done = f"the first {result.full_through:,} digits agree with a full computation"
+        if windows:
+            done += f", and {plural(windows, 'window')} {agree}"
+    else:
+        done = f"{windows_phrase(result)} {agree}"
+    return f"interrupted before the check finished; no wrong digit so far: {done}"
+
+
+def _rounded_phrase(result: CheckResult) -> str | None:
+    """Where the file's last digits are the true ones rounded up (not a truncation), or None."""
+    first = getattr(result, "rounded_from", None)
+    if first is None:
+        return None
+    last = result.file.checked
+    if first == last:
+        return f"the last digit is the true expansion rounded up (digit {last:,}), not a truncation"
+    return f"digits {first:,} to {last:,} are the true ones rounded up at the last digit, not a truncation"
 
 
 def _verdict_line(result: CheckResult) -> tuple[str, str]:
@@ -85,7 +164,10 @@ def _verdict_line(result: CheckResult) -> tuple[str, str]:
                 f"MISMATCH  first wrong digit at position {result.first_mismatch:,} ({what}){rounding}{stop}",
                 STYLE_BAD,
             )
+        rounded = _rounded_phrase(result)
         wrong_digits = getattr(result, "wrong_digits", None)
+        if rounded is not None and not isinstance(result, LocateResult):
+            return f"MISMATCH  {rounded} ({what}){stop}", STYLE_BAD
         if wrong_digits:
             runs = (
                 result.runs_total if isinstance(result, ScanResult) else getattr(result, "wrong_runs", None)
@@ -104,14 +186,7 @@ def _verdict_line(result: CheckResult) -> tuple[str, str]:
             )
         if isinstance(result, VerifyResult) and result.first_wrong_bracket is not None:
             lo, hi = result.first_wrong_bracket
-            if result.rounded_from is not None:
-                where = (
-                    f"the last digit is the true expansion rounded up (digit {f.checked:,}), not a truncation"
-                    if result.rounded_from == f.checked
-                    else f"digits {result.rounded_from:,} to {f.checked:,} are the true ones rounded up at the "
-                    "last digit, not a truncation"
-                )
-            elif lo == hi:
+            if lo == hi:
                 where = f"the first wrong decimal digit is at position {lo:,}"
             else:
                 where = f"the first wrong decimal digit lies between positions {lo:,} and {hi:,}"
@@ -129,7 +204,7 @@ def _verdict_line(result: CheckResult) -> tuple[str, str]:
             STYLE_BAD,
         )
     if result.verdict == "incomplete":
-        return f"INCOMPLETE  interrupted before anything was established ({what})", STYLE_WARN
+        return f"INCOMPLETE  {established_phrase(result)} ({what})", STYLE_WARN
     if result.verdict == "unconfirmed":
         return (
             f"NOT RULED OUT  no wrong digit found, but isolated damage is not ruled out: "
@@ -180,18 +255,28 @@ def label_finding_sentence(lf: LabelFinding | None, copy: str = "") -> str | Non
 def file_map(result: CheckResult, width: int) -> tuple[str, list[tuple[int, int, str]]]:
     """The file drawn as ``width`` cells: which parts were checked, matched, or are damaged.
 
-    Returns the line and ``(start, end, style)`` spans for colouring.
+    Drawn from ``result.covered`` (one source of truth with the verdict): a
+    cell is checked when a compared range reaches into it, so a file compared
+    in full is checked from end to end however short it is.  Differing checks
+    and wrong runs are drawn over it.  Returns the line and ``(start, end, style)``
+    spans for colouring.
     """
     n = max(result.file.checked, 1)
     cells = [MAP_UNCHECKED] * width
     styles = [STYLE_DIM] * width
 
-    def cell(position: int) -> int:
+    def first_cell(position: int) -> int:
         return min(width - 1, max(0, (position - 1) * width // n))
 
-    if result.full_through:  # every digit 1..full_through was compared with a full computation
-        for i in range(cell(1), cell(result.full_through) + 1):
-            cells[i], styles[i] = MAP_MATCH, STYLE_OK
+    def last_cell(position: int) -> int:  # a digit of a short file spans several cells
+        return max(first_cell(position), min(width - 1, position * width // n - 1))
+
+    def paint(first: int, last: int, char: str, style: str) -> None:
+        for i in range(first_cell(first), last_cell(last) + 1):
+            cells[i], styles[i] = char, style
+
+    for first, last in result.covered:
+        paint(first, last, MAP_MATCH, STYLE_OK)
     damage_from: int | None = None
     damage_to = n
     if isinstance(result, LocateResult) and result.first_mismatch is not None:
@@ -199,31 +284,26 @@ def file_map(result: CheckResult, width: int) -> tuple[str, list[tuple[int, int,
         if result.rest != "wrong":
             damage_to = damage_from
     if damage_from is not None:
-        for i in range(cell(damage_from), cell(damage_to) + 1):
-            cells[i], styles[i] = MAP_DAMAGE, STYLE_BAD
+        paint(damage_from, damage_to, MAP_DAMAGE, STYLE_BAD)
     if isinstance(result, ScanResult):
         wrong = [(run.start, run.start + run.length - 1) for run in result.runs]
     else:
         wrong = getattr(result, "wrong_spans", [])
     for first, last in wrong:
-        for i in range(cell(first), cell(last) + 1):
-            cells[i], styles[i] = MAP_MISMATCH, STYLE_BAD
+        paint(first, last, MAP_MISMATCH, STYLE_BAD)
     for c in result.checks:
-        if c.position < 1:
+        if c.position < 1 or c.match:
             continue
         # A hex window of a decimal file is evidence about the decimal prefix it was converted from.
         if c.base == result.file.base:
-            i = cell(c.position)
+            paint(c.first_difference or c.position, c.first_difference or c.position, MAP_MISMATCH, STYLE_BAD)
         elif c.prefix is not None:
-            i = cell(c.prefix)
+            paint(c.prefix, c.prefix, MAP_MISMATCH, STYLE_BAD)
         else:
-            i = cell(round(c.position * math.log(c.base, result.file.base)))
-        if not c.match:
-            cells[i], styles[i] = MAP_MISMATCH, STYLE_BAD
-        elif cells[i] != MAP_MISMATCH:
-            cells[i], styles[i] = MAP_MATCH, STYLE_OK
+            at = round(c.position * math.log(c.base, result.file.base))
+            paint(at, at, MAP_MISMATCH, STYLE_BAD)
     if damage_from is not None:
-        cells[cell(damage_from)], styles[cell(damage_from)] = MAP_FIRST, STYLE_BAD
+        paint(damage_from, damage_from, MAP_FIRST, STYLE_BAD)
     spans: list[tuple[int, int, str]] = []
     for i, st in enumerate(styles):
         if spans and spans[-1][2] == st and spans[-1][1] == i:
@@ -333,6 +413,8 @@ def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool)
     labels = label_sentence(result)
     if labels is not None:
         con.print(labels, style=STYLE_BAD)
+    for note in report_notes(result):
+        con.print(f"note: {note}", style=STYLE_WARN)
     f = result.file
     con.print(
         f"{f.path}: {f.size_bytes:,} bytes{', ' + f.compression if f.compression else ''}; "

@@ -65,11 +65,46 @@ def window_estimate_line(est: CostEstimate) -> str:
     return f"deepest window (position {est.position:,}): " + estimate_line(est, "tail").split(": ", 1)[1]
 
 
-def infeasible_line(message: str, hint: str | None) -> str:
+def infeasible_line(message: str, est: CostEstimate) -> str:
     """The refusal of a position beyond reach, with what would make it feasible (CLI wording)."""
-    if hint == "cluster":
-        return f"{message}; running the head sum on a Dask cluster (--cluster ADDRESS) would make it feasible"
-    return f"{message}; no option makes it feasible"
+    return message + infeasible_hint(est)
+
+
+def infeasible_hint(est: CostEstimate) -> str:
+    """What would bring a refused request within reach: a cluster of a size the estimate computed, or nothing.
+
+    A cluster is named only with the cores that would finish the head sum in
+    about a year (``CostEstimate.cluster_cores``), never as a cure in general.
+    """
+    if est.hint == "cluster" and est.cluster_cores is not None:
+        return "; " + _cluster_offer(est, est.cluster_cores)
+    from spotcheck.engine.cluster import MAX_IN_FLIGHT
+
+    return (
+        f"; no option makes it feasible (a Dask cluster keeps at most {MAX_IN_FLIGHT:,} cores busy: "
+        f"about {duration(est.cpu_seconds / MAX_IN_FLIGHT)})"
+    )
+
+
+def _cluster_offer(est: CostEstimate, cores: int) -> str:
+    return (
+        f"a Dask cluster of about {cores:,} cores (--cluster ADDRESS) would finish the head sum in about "
+        f"{duration(est.cpu_seconds / cores)}"
+    )
+
+
+def long_run_line(est: CostEstimate) -> str | None:
+    """For a run this machine would take more than a year over: what a cluster of which size would take."""
+    if est.cluster_cores is None or not est.feasible:
+        return None
+    return (
+        f"this run would take about {duration(est.wall_seconds)} on {plural_workers(est.workers)}; "
+        + _cluster_offer(est, est.cluster_cores)
+    )
+
+
+def plural_workers(n: int) -> str:
+    return f"{n:,} worker" if n == 1 else f"{n:,} workers"
 
 
 def interrupted_line(progress: Any, checkpoint: str | None) -> str:
