@@ -108,9 +108,12 @@ def test_astray_file_is_located_exactly(workdir, start, seed) -> None:
     assert loc.found[0] != truth[start - 1] and loc.expected[0] == truth[start - 1]
     if N - start > 64:
         assert loc.rest == "wrong"
-    if start > 16:  # found by bisection: the window before it was compared too
-        confirm = [c for c in loc.checks if c.kind == "confirm"]
-        assert confirm and all(c.match for c in confirm)
+    if start > 16:  # found by bisection: the window just before it was compared too, and matches
+        before = [c for c in loc.checks if c.position >= 1 and c.position + len(c.found) == start]
+        assert before and all(c.match for c in before)
+        # listed once: for start = 17 that window is the head's, not repeated as a confirmation
+        keys = [(c.base, c.position, c.expected, c.found) for c in loc.checks]
+        assert len(keys) == len(set(keys))
 
 
 @st.composite
@@ -160,9 +163,14 @@ def test_scan_with_mpfr_reference(workdir, truth) -> None:
 
 def test_named_positions_and_budget(workdir, truth) -> None:
     small = write_hex(workdir, truth[:3000])  # cheap windows, so the budget surely draws some
-    v = verify_file(str(small), samples=0, seed=1, at=[5, 777, 2985], budget=0, sample_seconds=0.5)
-    assert [c.position for c in v.checks if c.kind == "user"] == [5, 777, 2985]
+    v = verify_file(str(small), samples=0, seed=1, at=[5, 777, 2985, 777], budget=0, sample_seconds=0.5)
+    # each window once: 2985 is the tail's window, and 777 was asked twice
+    assert [c.position for c in v.checks if c.kind == "user"] == [5, 777]
+    assert [c.position for c in v.checks if c.kind == "tail"] == [2985]
     assert v.random_windows >= 1  # the budget drew random windows
+    samples = [c.position for c in v.checks if c.kind == "sample"]
+    assert len(samples) == v.random_windows == len(set(samples))
+    assert not {1, 5, 777, 2985} & set(samples)
     assert v.exit_code == 0
     with pytest.raises(UsageError, match="outside the file"):
         verify_file(str(small), at=[3001])

@@ -42,7 +42,8 @@ def test_verify_clean_sample(capsys) -> None:
     code, out, _ = cli(capsys, "verify", SAMPLES / "pi-hex-clean.txt", "--seed", "42", "--budget", "0")
     assert code == 0
     first = out.splitlines()[0]
-    assert first.startswith("MATCH") and "windows sampled" in first and "below" in first
+    assert first.startswith("MATCH") and "10 windows checked (head, tail and 8 random; 160 digits)" in first
+    assert "damaged fraction below 31.23% at 95% from the 8 random windows" in first  # 1 - 0.05^(1/8)
     assert "--seed 42" in out  # the repeat line names the seed
     assert "16^-16" in out and "95% confidence" in out
 

@@ -218,7 +218,7 @@ def estimate_series_cost(
     limit = MAX_CLUSTER_CPU_SECONDS if cluster else MAX_LOCAL_CPU_SECONDS
     feasible = cpu <= limit
     cores = cluster_cores_needed(cpu) if not cluster and cpu <= MAX_CLUSTER_CPU_SECONDS else None
-    if cores is not None and cores <= workers:
+    if cores is not None and feasible and cores <= workers:
         cores = None  # this machine's workers finish it within the same time
     hint = "cluster" if not feasible and cores is not None else None
     return CostEstimate(

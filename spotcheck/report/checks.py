@@ -155,11 +155,8 @@ def _verdict_line(result: CheckResult) -> tuple[str, str]:
                     f"({what}); interrupted",
                     STYLE_BAD,
                 )
-            rounding = (
-                ": the last digits are the true expansion rounded up, not truncated"
-                if result.rounded_from is not None
-                else ""
-            )
+            rounded_at = _rounded_phrase(result)
+            rounding = f": {rounded_at}" if rounded_at is not None else ""
             return (
                 f"MISMATCH  first wrong digit at position {result.first_mismatch:,} ({what}){rounding}{stop}",
                 STYLE_BAD,

@@ -88,7 +88,8 @@ def infeasible_hint(est: CostEstimate) -> str:
 
 def _cluster_offer(est: CostEstimate, cores: int) -> str:
     return (
-        f"a Dask cluster of about {cores:,} cores (--cluster ADDRESS) would finish the head sum in about "
+        f"a Dask cluster of about {cores:,} {'core' if cores == 1 else 'cores'} (--cluster ADDRESS) would "
+        "finish the head sum in about "
         f"{duration(est.cpu_seconds / cores)}"
     )
 
