@@ -207,10 +207,15 @@ def test_position_beyond_reach_is_refused_with_the_estimate(capsys, position: st
     assert "core-years" in errors[0] and "Traceback" not in err
 
 
-def test_refusal_names_the_cluster_when_it_would_help(capsys) -> None:
+def test_refusal_names_the_cluster_when_it_would_help(capsys, monkeypatch) -> None:
+    from spotcheck.engine import plan
+
+    # 10^17 takes about 10^3 core-years: a cluster that keeps up to 1,024 cores busy finishes it
+    # within ten years (more in tests/test_cli_reports.py)
+    monkeypatch.setattr(plan, "CLUSTER_REACH_SECONDS", 10 * 365.25 * 86400)
     code, _, err = cli(capsys, "digits", "pi", "--at", str(10**17), "--count", "8")
     assert code == 2
-    assert "--cluster" in err.splitlines()[-1]
+    assert "cores (--cluster ADDRESS) would finish the head sum in about" in err.splitlines()[-1]
 
 
 def test_estimate_in_json(capsys) -> None:
