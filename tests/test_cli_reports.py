@@ -117,7 +117,10 @@ def test_a_ten_digit_file_has_one_window_and_says_so(capsys, tmp_path) -> None:
     code, out, _ = cli(capsys, "verify", path, "--budget", "0", "--seed", "1")
     assert code == 0
     lines = out.splitlines()
-    assert lines[0] == "MATCH  all 2 checks agree; every digit compared in 1 window (10 digits) (pi in base 16, 10 digits)"
+    assert (
+        lines[0]
+        == "MATCH  all 2 checks agree; every digit compared in 1 window (10 digits) (pi in base 16, 10 digits)"
+    )
     assert lines[1] == "note: no random window was drawn: the file has no window besides those checked anyway"
     assert out.count("243F6A8885  243F6A8885") == 1
     code, payload = as_json(capsys, "verify", path, "--budget", "0", "--seed", "1", "--samples", "8")
@@ -137,7 +140,10 @@ def test_a_short_file_draws_every_distinct_window_and_counts_them(capsys, tmp_pa
         "MATCH  all 16 checks agree; every digit compared in 15 windows (head, tail and 13 random; 30 digits) "
         "(pi in base 16, 30 digits)"
     )
-    assert lines[1] == "note: 13 random windows drawn, not 20 (--samples 20): the file has no other distinct window"
+    assert (
+        lines[1]
+        == "note: 13 random windows drawn, not 20 (--samples 20): the file has no other distinct window"
+    )
     code, payload = as_json(capsys, *args)
     positions = [c["position"] for c in payload["checks"] if c["position"] >= 1]
     assert sorted(positions) == list(range(1, 16))  # head 1, tail 15, and 2..14 once each
@@ -152,7 +158,10 @@ def test_a_ten_digit_decimal_file_draws_no_prefix_twice(capsys, tmp_path) -> Non
     assert lines[0] == (
         "MATCH  all 3 checks agree; every digit covered by radix conversion of the whole file (pi in base 10, 10 digits)"
     )
-    assert lines[1] == "note: no random prefix was drawn (--samples 8): the file has no prefix besides those checked anyway"
+    assert (
+        lines[1]
+        == "note: no random prefix was drawn (--samples 8): the file has no prefix besides those checked anyway"
+    )
     assert not any(ln.startswith("sample") for ln in out.splitlines())
 
 
@@ -165,7 +174,9 @@ def test_a_ten_digit_decimal_file_draws_no_prefix_twice(capsys, tmp_path) -> Non
     seed=st.integers(0, 2**32 - 1),
 )
 @example(first=1, size=0, fixed=[1], count=8, more=3, seed=0)  # a 10-digit file: no room at all
-def test_sampled_positions_are_distinct_and_avoid_the_fixed_ones(first, size, fixed, count, more, seed) -> None:
+def test_sampled_positions_are_distinct_and_avoid_the_fixed_ones(
+    first, size, fixed, count, more, seed
+) -> None:
     import random
 
     last = first + size
@@ -186,7 +197,9 @@ def test_samples_asked_for_but_not_drawn_when_every_digit_is_compared(capsys) ->
     code, out, _ = cli(capsys, *args)
     assert code == 0
     lines = out.splitlines()
-    assert lines[0] == "MATCH  all 3 checks agree; every digit compared with arb (pi in base 16, 50,000 digits)"
+    assert (
+        lines[0] == "MATCH  all 3 checks agree; every digit compared with arb (pi in base 16, 50,000 digits)"
+    )
     note = "no random window was drawn (--samples 5): every digit was compared with arb instead (--budget 0 checks windows only)"
     assert lines[1] == f"note: {note}"
     code, payload = as_json(capsys, *args)
@@ -238,7 +251,9 @@ def test_verify_interrupted_before_any_window_says_nothing_was_compared(capsys, 
 def test_locate_lists_each_comparison_once(capsys) -> None:
     code, out, _ = cli(capsys, "locate", SAMPLES / "pi-decimal-flipped.txt")
     assert code == 1
-    assert out.splitlines()[0] == "MISMATCH  first wrong digit at position 12,345 (pi in base 10, 30,000 digits)"
+    assert (
+        out.splitlines()[0] == "MISMATCH  first wrong digit at position 12,345 (pi in base 10, 30,000 digits)"
+    )
     assert out.count("hex 10,235 ") == 1
     rows = [ln.split() for ln in out.splitlines() if re.match(r"^(tail|bisection|confirm)", ln)]
     keys = [tuple(r[1:]) if r[1] != "(hex)" else tuple(r[2:]) for r in rows]
@@ -302,7 +317,10 @@ def test_e_rounded_at_its_last_digit_is_named_by_verify_locate_and_scan(capsys, 
         assert payload["rounded_from"] == 4999
     code, out, _ = cli(capsys, "locate", path)
     assert code == 1
-    assert out.splitlines()[0] == f"MISMATCH  first wrong digit at position 4,999 (e in base 10, 4,999 digits): {words}"
+    assert (
+        out.splitlines()[0]
+        == f"MISMATCH  first wrong digit at position 4,999 (e in base 10, 4,999 digits): {words}"
+    )
 
 
 def test_a_carry_through_the_last_digits_is_named_too(capsys, tmp_path) -> None:
@@ -340,7 +358,9 @@ def test_a_long_digits_run_says_its_estimate_and_the_cluster_size_that_would_fin
     def ctrl_c(*args: object, **kwargs: object) -> None:
         raise KeyboardInterrupt  # stop before any block: what matters is what was said first
 
-    monkeypatch.setattr(plan, "MAX_LOCAL_CPU_SECONDS", math.inf)  # let it start, whatever this machine's speed
+    monkeypatch.setattr(
+        plan, "MAX_LOCAL_CPU_SECONDS", math.inf
+    )  # let it start, whatever this machine's speed
     monkeypatch.setattr(api, "extract", ctrl_c)
     code, _, err = cli(capsys, "digits", "pi", "--at", 10**16, "--count", "8", "--workers", "2")
     assert code == 130
@@ -356,7 +376,9 @@ def test_a_long_digits_run_says_its_estimate_and_the_cluster_size_that_would_fin
     assert cores <= 1024 and days <= 365.25 and years * 2 <= cores * 1.01  # cores x 1 year >= CPU time
 
 
-def test_a_refusal_names_a_cluster_only_with_the_cores_that_bring_it_within_a_year(capsys, monkeypatch) -> None:
+def test_a_refusal_names_a_cluster_only_with_the_cores_that_bring_it_within_a_year(
+    capsys, monkeypatch
+) -> None:
     code, _, err = cli(capsys, "digits", "pi", "--at", 10**18, "--count", "8")
     assert code == 2
     last = err.splitlines()[-1]
@@ -371,12 +393,17 @@ def test_a_refusal_names_a_cluster_only_with_the_cores_that_bring_it_within_a_ye
     monkeypatch.setattr(plan, "CLUSTER_REACH_SECONDS", 10 * 365.25 * 86400)
     code, _, err = cli(capsys, "digits", "pi", "--at", 10**17, "--count", "8")
     assert code == 2
-    m = re.search(r"; a Dask cluster of about ([\d,]+) cores \(--cluster ADDRESS\) would finish the head sum in about ([\d.]+) years$", err.splitlines()[-1])
+    m = re.search(
+        r"; a Dask cluster of about ([\d,]+) cores \(--cluster ADDRESS\) would finish the head sum in about ([\d.]+) years$",
+        err.splitlines()[-1],
+    )
     assert m, err
     assert int(m[1].replace(",", "")) <= 1024 and float(m[2]) <= 10.0
 
 
 def test_a_digits_run_on_a_cluster_is_never_offered_a_cluster(capsys) -> None:
-    code, _, err = cli(capsys, "digits", "pi", "--at", 10**22, "--count", "8", "--cluster", "tcp://127.0.0.1:1")
+    code, _, err = cli(
+        capsys, "digits", "pi", "--at", 10**22, "--count", "8", "--cluster", "tcp://127.0.0.1:1"
+    )
     assert code == 2
     assert "Dask cluster of about" not in err and "no option makes it feasible" in err.splitlines()[-1]

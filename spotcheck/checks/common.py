@@ -518,10 +518,10 @@ def run_plan(
             per = (time.perf_counter() - t0) / max(1, len(plan))
             while time.perf_counter() - t0 + per < budget:
                 t1 = time.perf_counter()
-                where = draw()
-                if where is None:  # every position was drawn
+                drawn = draw()
+                if drawn is None:  # every position was drawn
                     break
-                check("sample", where)
+                check("sample", drawn)
                 random_windows += 1
                 per = max(per, time.perf_counter() - t1)
     except KeyboardInterrupt:

@@ -78,7 +78,7 @@ def windows_phrase(result: CheckResult) -> str:
     """
     rows = [c for c in result.checks if c.position >= 1]
     kinds = [c.kind for c in rows]
-    parts = [k for k in ("head", "tail") if k in kinds]
+    parts: list[str] = [k for k in ("head", "tail") if k in kinds]
     if kinds.count("user"):
         parts.append(f"{kinds.count('user'):,} at the positions asked for")
     if kinds.count("sample"):
