@@ -526,10 +526,13 @@ def _estimate_printer(silent: bool) -> Callable[[Any], None]:
 
     def say(est: Any) -> None:
         from spotcheck.report.console import info_line
-        from spotcheck.report.digits import ESTIMATE_SHOWN_SECONDS, window_estimate_line
+        from spotcheck.report.digits import ESTIMATE_SHOWN_SECONDS, long_run_line, window_estimate_line
 
         if not silent and est.cpu_seconds >= ESTIMATE_SHOWN_SECONDS:
             info_line(window_estimate_line(est))
+            longer = long_run_line(est)  # a window this machine takes over a year for
+            if longer is not None:
+                info_line(longer)
 
     return say
 

@@ -60,6 +60,9 @@ __all__ = [
 # integer, 10^n, the quotient and the division's temporaries), rounded up
 # from the figures of benchmarks/radix.py.
 BYTES_PER_DIGIT = 7
+# Trailing zeros a rounding carry may have left that the rounding test borrows through (a longer
+# run of true 9s before a rounded digit is too rare to look for).
+MAX_CARRY = 64
 # ---------------------------------------------------------------------------
 
 
@@ -237,7 +240,7 @@ def rounded_up_from(conv: Converter, df: DigitFile, n: int, oracle: HexOracle, w
     digit ``n + 1``, where the true digit is 5 or more.  None otherwise.
     """
     k = 1
-    while k < n and df.read(n - k + 1, 1) == "0":  # a carry made trailing zeros: borrow through them
+    while k < min(n, MAX_CARRY) and df.read(n - k + 1, 1) == "0":  # a carry left zeros: borrow through them
         k += 1
     last = df.read(n - k + 1, k)
     if int(last) == 0:  # all zeros: V - 1 would need one digit fewer
