@@ -111,7 +111,7 @@ def test_astray_file_is_located_exactly(workdir, start, seed) -> None:
     if start > 16:  # found by bisection: the window just before it was compared too, and matches
         before = [c for c in loc.checks if c.position >= 1 and c.position + len(c.found) == start]
         assert before and all(c.match for c in before)
-        # listed once: for start = 17 that window is the head's, not repeated as a confirmation
+        # listed once: for start = 17 the head's window is the confirmation's, shown as that
         keys = [(c.base, c.position, c.expected, c.found) for c in loc.checks]
         assert len(keys) == len(set(keys))
 

@@ -204,6 +204,9 @@ def test_samples_asked_for_but_not_drawn_when_every_digit_is_compared(capsys) ->
     assert lines[1] == f"note: {note}"
     code, payload = as_json(capsys, *args)
     assert payload["notes"] == [note]
+    assert payload["note_codes"] == [
+        {"code": "samples-not-drawn", "asked": 5, "reference": "arb", "compared": True}
+    ]
     assert payload["samples_asked"] == 5 and payload["sample_room"] is None and payload["random_windows"] == 0
     # not asked: nothing to say
     code, out, _ = cli(capsys, "verify", SAMPLES / "pi-hex-clean.txt", "--seed", "1")
@@ -384,7 +387,7 @@ def test_a_refusal_names_a_cluster_only_with_the_cores_that_bring_it_within_a_ye
     last = err.splitlines()[-1]
     assert re.fullmatch(
         r"error: position 1,000,000,000,000,000,000 of pi is out of reach: about [\d.e+]+ core-years of CPU "
-        r"time on the compiled path \(the limit is 100 core-years\); no option makes it feasible \(a Dask "
+        r"time on the compiled kernel \(the limit is 100 core-years\); no option makes it feasible \(a Dask "
         r"cluster keeps at most 1,024 cores busy: about [\d.]+ years\)",
         last,
     ), last

@@ -405,17 +405,17 @@ class HexOracle:
 
 
 def distinct_rows(rows: list[WindowCheck]) -> list[WindowCheck]:
-    """``rows`` with each comparison once: a row that compares the same digits at the same place as
-    an earlier one (two prefixes of a decimal file that determine the same hex window, a confirmation
-    of a window bisection already compared) is dropped; the first keeps its kind."""
-    seen: set[tuple[int, int, str, str]] = set()
-    out = []
-    for c in rows:
-        key = (c.base, c.position, c.expected, c.found)
-        if key not in seen:
-            seen.add(key)
-            out.append(c)
-    return out
+    """``rows`` with each comparison once: of the rows that compare the same digits at the same place
+    (two prefixes of a decimal file that determine the same hex window, a confirmation of a window
+    bisection or the head already compared), the last is kept, in its place: its role (``confirm``)
+    is the conclusion the earlier ones led to.
+
+    >>> a, b = WindowCheck("bisection", 5, "AB", "AB", True), WindowCheck("confirm", 5, "AB", "AB", True)
+    >>> [c.kind for c in distinct_rows([a, WindowCheck("tail", 9, "C", "C", True), b])]
+    ['tail', 'confirm']
+    """
+    last = {(c.base, c.position, c.expected, c.found): i for i, c in enumerate(rows)}
+    return [c for i, c in enumerate(rows) if last[(c.base, c.position, c.expected, c.found)] == i]
 
 
 def clamp_window(window: int, count: int) -> int:
@@ -478,6 +478,27 @@ class Sampler:
             self.room = 0
             return out
         return sorted(p for p in (self.draw() for _ in range(count)) if p is not None)
+
+
+def sample_notes(
+    given: int | None, sought: int, room: int | None, unit: str, *, reference: str | None, compared: bool
+) -> list[Note]:
+    """What a check's random windows came to, when not what was asked: none drawn because every digit
+    was compared (``samples-not-drawn``, said only when the number was ``given``), or fewer than
+    ``sought`` because the file has only ``room`` distinct ones (``samples-fewer``).  ``unit``:
+    ``window`` or ``prefix``."""
+    if room is None:
+        if given and reference is not None:
+            return [Note("samples-not-drawn", {"asked": given, "reference": reference, "compared": compared})]
+        return []
+    if room < sought:
+        return [
+            Note(
+                "samples-fewer",
+                {"asked": sought, "drawn_from": room, "unit": unit, "given": given is not None},
+            )
+        ]
+    return []
 
 
 def run_plan(

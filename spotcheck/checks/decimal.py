@@ -42,6 +42,7 @@ from .common import (
     first_difference,
     needs,
     run_plan,
+    sample_notes,
 )
 from .radix import Converter, PrefixOutcome, open_converter, prefix_steps, run_inline
 from .reference import memory_budget
@@ -174,6 +175,7 @@ def verify_decimal(
         random_windows=random_windows,
         samples_asked=asked,
         sample_room=room,
+        notes=sample_notes(asked, samples, room, "prefix", reference=None, compared=False),
         first_wrong_bracket=bracket,
         rounded_from=rounded,
     )

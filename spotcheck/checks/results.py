@@ -218,6 +218,9 @@ class VerifyResult(_Common):
     sample_room: int | None = None
     """Distinct positions the random windows were drawn from (None: none were drawn, as when every
     digit was compared instead); fewer than ``samples_asked`` in a short file."""
+    notes: list[Note] = field(default_factory=list)
+    """What the run did otherwise than asked (``samples-not-drawn``, ``samples-fewer``), as codes and
+    numbers; the JSON report words them in ``notes`` and gives the codes in ``note_codes``."""
     full_through_value: int = 0
     """Digits 1..N compared with a full computation (0: sampled windows only)."""
     reference: str | None = None
@@ -258,6 +261,7 @@ class VerifyResult(_Common):
             random_windows=self.random_windows,
             samples_asked=self.samples_asked,
             sample_room=self.sample_room,
+            note_codes=[n.to_dict() for n in self.notes],
             reference=self.reference,
             wrong_digits=self.wrong_digits,
             wrong_runs=self.wrong_runs,

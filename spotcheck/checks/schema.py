@@ -160,7 +160,7 @@ _COMMON = {
         "type": "array",
         "items": {"type": "string"},
         "description": "what the run did otherwise than asked (random windows not drawn because every "
-        "digit was compared, fewer distinct windows than asked in a short file), as the report says it",
+        "digit was compared, fewer distinct windows than asked in a short file), in words",
     },
 }
 
@@ -185,6 +185,12 @@ VERIFY_SCHEMA: dict[str, Any] = {
             "type": ["integer", "null"],
             "minimum": 0,
             "description": "random windows asked for (null: not asked, the default number was sought)",
+        },
+        "note_codes": {
+            "type": "array",
+            "items": _NOTE,
+            "description": "the same notes as codes and numbers, in the same order (samples-not-drawn: "
+            "asked, reference, compared; samples-fewer: asked, drawn_from, unit, given)",
         },
         "sample_room": {
             **_INT_OR_NULL,

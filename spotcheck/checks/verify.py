@@ -22,6 +22,7 @@ from .common import (
     needs,
     open_run,
     run_plan,
+    sample_notes,
     with_run_facts,
 )
 from .full import is_full, verify_full
@@ -243,6 +244,9 @@ def _verify_hex(
         random_windows=random_windows,
         samples_asked=asked,
         sample_room=room,
+        notes=sample_notes(
+            asked, samples, room, "window", reference=full_reference, compared=full_through > 0
+        ),
         full_through_value=full_through,
         reference=full_reference,
         wrong_digits=wrong,

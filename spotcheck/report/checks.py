@@ -44,31 +44,10 @@ def result_payload(result: CheckResult, repeat: str) -> dict[str, Any]:
 
 
 def report_notes(result: CheckResult) -> list[str]:
-    """What the run did otherwise than asked, in words (printed, and ``notes`` in JSON)."""
-    if not isinstance(result, VerifyResult):
-        return []
-    from spotcheck.checks.verify import DEFAULT_SAMPLES
+    """What the run did otherwise than asked, in words (printed as ``note:`` lines, ``notes`` in JSON)."""
+    from spotcheck.report.notes import note_sentence
 
-    given = result.samples_asked
-    asked = DEFAULT_SAMPLES if given is None else given
-    option = "" if given is None else f" (--samples {given:,})"
-    if result.sample_room is None:
-        if given and result.reference is not None:
-            done = "was" if result.full_through else "was to be"
-            return [
-                f"no random window was drawn{option}: every digit {done} compared with {result.reference} "
-                "instead (--budget 0 checks windows only)"
-            ]
-        return []
-    decimal = result.method == "radix conversion"
-    what = "prefix" if decimal else "window"
-    room = result.sample_room
-    if room >= asked:
-        return []
-    if room == 0:
-        return [f"no random {what} was drawn{option}: the file has no {what} besides those checked anyway"]
-    drawn = plural(room, f"random {what}", f"random {what}es" if decimal else None)
-    return [f"{drawn} drawn, not {asked:,}{option}: the file has no other distinct {what}"]
+    return [note_sentence(n, "check") for n in getattr(result, "notes", [])]
 
 
 def windows_phrase(result: CheckResult) -> str:

@@ -62,7 +62,27 @@ def _damaged(d: dict[str, Any], subject: str) -> str:  # noqa: ARG001
     )
 
 
+def _not_drawn(d: dict[str, Any], subject: str) -> str:  # noqa: ARG001
+    done = "was" if d["compared"] else "was to be"
+    return (
+        f"no random window was drawn (--samples {d['asked']:,}): every digit {done} compared with "
+        f"{d['reference']} instead (--budget 0 checks windows only)"
+    )
+
+
+def _fewer(d: dict[str, Any], subject: str) -> str:  # noqa: ARG001
+    unit, room = d["unit"], d["drawn_from"]
+    option = f" (--samples {d['asked']:,})" if d.get("given") else ""
+    if room == 0:
+        return f"no random {unit} was drawn{option}: the file has no {unit} besides those checked anyway"
+    many = "prefixes" if unit == "prefix" else None
+    drawn = plural(room, f"random {unit}", f"random {many}" if many else None)
+    return f"{drawn} drawn, not {d['asked']:,}{option}: the file has no other distinct {unit}"
+
+
 _SENTENCES: dict[str, Callable[[dict[str, Any], str], str]] = {
+    "samples-not-drawn": _not_drawn,
+    "samples-fewer": _fewer,
     "shifted": _shifted,
     "not-arbitrated-beyond-limit": _beyond_limit,
     "not-arbitrated-after-unresolved": _after_unresolved,
