@@ -84,7 +84,7 @@ def write_copy(path: str, digits_of, n: int, width: int, group: int, labels: boo
 def measure(a: str, b: str) -> None:
     """Child process: one comparison, reported as JSON."""
     from spotcheck.checks.compare import compare_files
-    from spotcheck.digitfile.stream import STREAM_PASS
+    from spotcheck.digitfile.loops import LOOPS
 
     t0 = time.perf_counter()
     r = compare_files(a, b)
@@ -99,7 +99,7 @@ def measure(a: str, b: str) -> None:
                 "keep": r.keep,
                 "digits": r.digits_compared,
                 "peak": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024,
-                "loops": STREAM_PASS,
+                "loops": LOOPS,
             }
         )
     )

@@ -200,6 +200,7 @@ def _version_callback(value: bool) -> None:
 
         print(f"spotcheck {__version__}")
         print(f"head-sum kernel: {backend.BACKEND_NOTE}")
+        print(f"digit-file loops: {backend.digitfile_loops().note}")
         raise typer.Exit(0)
 
 

@@ -12,10 +12,13 @@ settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ci" if os.environ.ge
 
 
 def pytest_report_header(config):  # noqa: ARG001 - pytest hook signature
-    """The kernel in use, the paths this CPU offers, and why the others are skipped."""
+    """The kernel in use, the paths this CPU offers, and why the others are skipped; the digit-file loops."""
     from spotcheck.engine import backend
 
-    lines = [f"spotcheck head-sum kernel: {backend.BACKEND_NOTE}"]
+    lines = [
+        f"spotcheck head-sum kernel: {backend.BACKEND_NOTE}",
+        f"spotcheck digit-file loops: {backend.digitfile_loops().note}",
+    ]
     try:
         from spotcheck.engine import _kernel  # type: ignore[attr-defined]
     except ImportError:

@@ -20,7 +20,7 @@ from hypothesis import example, given, settings
 from hypothesis import strategies as st
 
 from spotcheck.digitfile import DigitFile, inspect_file, open_digit_file
-from spotcheck.digitfile import index as scan_module
+from spotcheck.digitfile import passrules as scan_module
 
 N = 6000  # digits after the point in every test file
 

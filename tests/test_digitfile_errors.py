@@ -187,7 +187,7 @@ def test_unreadable_path(tmp_path):
 
 
 def test_file_growing_while_read(tmp_path, monkeypatch):
-    from spotcheck.digitfile import index as scan
+    from spotcheck.digitfile import passrules as scan
 
     monkeypatch.setattr(scan, "CHUNK_BYTES", 1024)
     path = tmp_path / "growing.txt"

@@ -16,7 +16,7 @@ from hypothesis import example, given, settings
 from hypothesis import strategies as st
 
 from spotcheck.digitfile import gzipseek, open_digit_file
-from spotcheck.digitfile import index as scan_module
+from spotcheck.digitfile import passrules as scan_module
 from spotcheck.digitfile.gzipseek import GzipSeeker, TruncatedError
 
 CONTENT = random.Random(9).randbytes(300_000)

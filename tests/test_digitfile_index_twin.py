@@ -1,4 +1,4 @@
-"""The compiled first-pass loop (digitfile/_index.c) against its Python twin (index.first_mismatch_py)."""
+"""The compiled loops (digitfile/_index.c) against their Python twins (digitfile/loops.py)."""
 
 from __future__ import annotations
 
@@ -6,9 +6,9 @@ import pytest
 from hypothesis import example, given, settings
 from hypothesis import strategies as st
 
-from spotcheck.digitfile import index, stream
-from spotcheck.digitfile.charsets import class_table
-from spotcheck.digitfile.detect import LabelSyntax
+from spotcheck.digitfile import loops
+from spotcheck.digitfile.charsets import class_table, norm_table
+from spotcheck.digitfile.syntax import LabelSyntax
 
 _index = pytest.importorskip("spotcheck.digitfile._index")
 
@@ -37,7 +37,7 @@ def test_compiled_loop_agrees_with_python(unit: bytes, reps: int, edits, base: i
             data[at % len(data)] = byte
     units = (unit * (reps + 1)).translate(None)[: len(data) + len(unit)]
     units = bytes(units)
-    want = index.first_mismatch_py(bytes(data), units, table)
+    want = loops.first_mismatch_py(bytes(data), units, table)
     assert _index.first_mismatch(bytes(data), units, table) == want
 
 
@@ -52,7 +52,7 @@ def test_compiled_loop_finds_the_exact_byte() -> None:
         assert (
             _index.first_mismatch(bytes(bad), units, table)
             == at
-            == index.first_mismatch_py(bytes(bad), units, table)
+            == loops.first_mismatch_py(bytes(bad), units, table)
         )
 
 
@@ -61,7 +61,7 @@ def test_short_units_are_refused() -> None:
         _index.first_mismatch(b"123", b"dd", class_table(10))
 
 
-# --- the stream's loops: _index.extract / extract_labelled against stream.extract_py / extract_labelled_py
+# --- the stream's loops: _index.extract / extract_labelled against loops.extract_py / extract_labelled_py
 # Contract: the same return tuple and the same digits written to ``out`` (bytes past the digits
 # written are scratch), on chunks that follow a layout and on chunks with any byte replaced.
 
@@ -69,9 +69,9 @@ _BYTES = b"0123456789abcdefABCDEF \t\r\n:|x.#\x00\xff"
 
 
 def _both_extract(data: bytes, base: int, units: bytes | None, out_pos: int) -> None:
-    table, norm = class_table(base), stream.norm_table(base)
+    table, norm = class_table(base), norm_table(base)
     outs = [bytearray(b"\xee" * (out_pos + len(data))) for _ in range(2)]
-    want = stream.extract_py(data, table, norm, outs[0], out_pos, units)
+    want = loops.extract_py(data, table, norm, outs[0], out_pos, units)
     got = _index.extract(data, table, norm, outs[1], out_pos, units)
     assert got == want
     k = want[0]
@@ -115,9 +115,7 @@ def test_extract_finds_a_stray_byte_at_every_place() -> None:
                 data = clean[:at] + bytes([byte]) + clean[at + 1 :]
                 _both_extract(data, base, None, 0)
                 assert (
-                    _index.extract(
-                        data, class_table(16), stream.norm_table(16), bytearray(len(data)), 0, None
-                    )[1]
+                    _index.extract(data, class_table(16), norm_table(16), bytearray(len(data)), 0, None)[1]
                     == at
                 )
 
@@ -207,10 +205,10 @@ def labelled_chunks(draw):
 @given(labelled_chunks(), st.integers(1, 40), st.integers(-50, 50), st.integers(0, 5))
 def test_extract_labelled_agrees_with_python(case, step: int, last_index: int, out_pos: int) -> None:
     data, base, layout, before = case
-    table, norm = class_table(base), stream.norm_table(base)
+    table, norm = class_table(base), norm_table(base)
     outs = [bytearray(b"\xee" * (out_pos + len(data))) for _ in range(2)]
     args = (layout, before, 1000, 7, step, last_index)
-    want = stream.extract_labelled_py(data, table, norm, outs[0], out_pos, *args)
+    want = loops.extract_labelled_py(data, table, norm, outs[0], out_pos, *args)
     got = _index.extract_labelled(data, table, norm, outs[1], out_pos, *args)
     assert got == want
     k = want[1]
@@ -218,9 +216,9 @@ def test_extract_labelled_agrees_with_python(case, step: int, last_index: int, o
 
 
 def test_extract_labelled_takes_plain_lines_and_stops_at_the_others() -> None:
-    table, norm = class_table(10), stream.norm_table(10)
+    table, norm = class_table(10), norm_table(10)
     data = b"0: 1234\n4: 5678\n  \n8 :9\n10: 1\n"  # the last label should be 9
-    for fn in (_index.extract_labelled, stream.extract_labelled_py):
+    for fn in (_index.extract_labelled, loops.extract_labelled_py):
         out = bytearray(len(data))
         used, nd, lines, stop, entries, last = fn(
             data, table, norm, out, 0, (0, 0, 10, 18, 0, 1), 0, 0, 1, 1, -1
@@ -230,11 +228,11 @@ def test_extract_labelled_takes_plain_lines_and_stops_at_the_others() -> None:
 
 
 def test_extract_labelled_reads_both_ends() -> None:
-    table, norm = class_table(10), stream.norm_table(10)
+    table, norm = class_table(10), norm_table(10)
     # start labels count the digits before, end labels through the line; the fourth end label lies
     data = b"   0: 1234 5678 : 8\n   8: 9012  :  12\r\n \n  12:  : 12\n12: 3456 : 15\n"
     layout = (2, 0, 10, 18, 0, 1, 0, 10, 18, 2, 1)
-    for fn in (_index.extract_labelled, stream.extract_labelled_py):
+    for fn in (_index.extract_labelled, loops.extract_labelled_py):
         out = bytearray(len(data))
         used, nd, lines, stop, entries, last = fn(data, table, norm, out, 0, layout, 0, 0, 1, 1, -1)
         assert (used, nd, lines, stop, bytes(out[:nd])) == (
@@ -266,7 +264,7 @@ def test_the_loops_plain_lines_split_as_the_line_rule_splits_them(case) -> None:
     syntax = LabelSyntax(where, radix, *seps)  # "both": the start's separator, then the end's
     for raw in data.split(b"\n")[:-1]:
         text = raw[:-1] if raw.endswith(b"\r") else raw
-        split = stream.plain_split(base, layout, text) if text.strip(b" \t") else None
+        split = loops.plain_split(base, layout, text) if text.strip(b" \t") else None
         if split is None:
             continue
         found, b0, b1 = syntax.split_labels(text)

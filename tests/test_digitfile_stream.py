@@ -24,13 +24,15 @@ from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from spotcheck.digitfile import index as index_mod
-from spotcheck.digitfile import open_digit_file, open_stream
+from spotcheck.digitfile import loops as loops_mod
+from spotcheck.digitfile import onepass, open_digit_file, open_stream
+from spotcheck.digitfile import passrules as rules
 from spotcheck.digitfile import stream as stream_mod
 from spotcheck.errors import DigitFileError, LabelError, SpotcheckError, UsageError
 from tests.fuzz.mutate import compress, mutation, random_spec
 from tests.fuzz.writer import suffix, write
 
-COMPILED = stream_mod.STREAM_PASS == "c"
+COMPILED = loops_mod.LOOPS == "c"
 
 
 def _reference(path: str, base: int | None, strict: bool) -> tuple[str, object]:
@@ -91,22 +93,24 @@ def loops(request, monkeypatch: pytest.MonkeyPatch) -> str:
         if not COMPILED:
             pytest.skip("the compiled loops were not built (or SPOTCHECK_PURE is set)")
     else:
-        monkeypatch.setattr(stream_mod, "extract", stream_mod.extract_py)
-        monkeypatch.setattr(stream_mod, "extract_labelled", stream_mod.extract_labelled_py)
+        monkeypatch.setattr(loops_mod, "extract", loops_mod.extract_py)
+        monkeypatch.setattr(loops_mod, "extract_labelled", loops_mod.extract_labelled_py)
     return str(request.param)
 
 
 def _small_chunks(monkeypatch: pytest.MonkeyPatch, seed: int) -> None:
-    """Chunk sizes that put chunk and index-step edges everywhere (INDEX_STEP is the index module's
-    one setting, for both passes)."""
+    """Chunk sizes that put chunk and index-step edges everywhere (INDEX_STEP and LABELLED_CHUNK_BYTES
+    are the pass rules' settings, one for both passes: a labelled line longer than the chunk is
+    refused by both alike)."""
     rng = random.Random(seed)
-    monkeypatch.setattr(stream_mod, "STREAM_CHUNK_BYTES", rng.choice((1, 7, 64, 300, 4 << 20)))
-    monkeypatch.setattr(stream_mod, "LABELLED_STREAM_CHUNK_BYTES", rng.choice((1000, 4096, 2 << 20)))
-    monkeypatch.setattr(index_mod, "INDEX_STEP", rng.choice((1, 5, 64, 64 << 10)))
+    monkeypatch.setattr(onepass, "STREAM_CHUNK_BYTES", rng.choice((1, 7, 64, 300, 4 << 20)))
+    monkeypatch.setattr(rules, "LABELLED_CHUNK_BYTES", rng.choice((1000, 4096, 2 << 20)))
+    monkeypatch.setattr(rules, "INDEX_STEP", rng.choice((1, 5, 64, 64 << 10)))
 
 
 @settings(max_examples=250, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(seed=st.integers(0, 2**32 - 1), mutate=st.booleans(), strict=st.booleans())
+@example(seed=90494, mutate=True, strict=False)  # a line longer than the labelled chunk
 @example(seed=1, mutate=False, strict=False)
 @example(seed=5, mutate=True, strict=True)
 def test_stream_reads_what_the_index_pass_reads(
@@ -170,7 +174,7 @@ def test_a_stray_byte_anywhere_is_the_index_pass_error(
         "grouped": lambda i, d: " ".join(d[j : j + 8] for j in range(0, len(d), 8)),
     }[where]
     clean = Path(_labelled(tmp_path / "c.txt", digits, 64, fmt)).read_bytes()
-    monkeypatch.setattr(index_mod, "INDEX_STEP", 100)
+    monkeypatch.setattr(rules, "INDEX_STEP", 100)
     for at in sorted(rng.sample(range(200, len(clean)), 25)) + [len(clean) - 2]:
         if clean[at] in b"\n\r":
             continue
@@ -204,7 +208,7 @@ def test_gzip_crlf_cr_only_and_packed_stream(tmp_path: Path, loops: str) -> None
 
 
 def test_progress_and_misuse(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    monkeypatch.setattr(stream_mod, "STREAM_CHUNK_BYTES", 10_000)
+    monkeypatch.setattr(onepass, "STREAM_CHUNK_BYTES", 10_000)
     path = tmp_path / "a.txt"
     path.write_text("3.\n" + "\n".join("1415926535" * 10 for _ in range(2000)) + "\n")
     with open_stream(path) as s:
@@ -228,7 +232,7 @@ def test_progress_and_misuse(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) ->
 def test_index_pass_through_the_stream_loops_is_the_same(
     tmp_path: Path, monkeypatch: pytest.MonkeyPatch, seed: int, mutate: bool, strict: bool
 ) -> None:
-    if not (COMPILED and index_mod.FIRST_PASS == "c"):
+    if not COMPILED:
         pytest.skip("the compiled loops were not built (or SPOTCHECK_PURE is set)")
     rng = random.Random(seed)
     spec = random_spec(rng, max_digits=rng.choice((60, 400, 3000)))
@@ -258,11 +262,11 @@ def test_a_layout_the_loops_do_not_know_is_read_by_the_index_pass(
 
     plan = Later(**{f.name: None for f in dataclasses.fields(Detection)})
     plan.syntax = None
-    assert stream_mod._streamable(plan)
+    assert loops_mod.reads(plan)
     plan.end_labels = "something"
-    assert not stream_mod._streamable(plan)
+    assert not loops_mod.reads(plan)
     # The fallback reads what the index pass reads.
-    monkeypatch.setattr(stream_mod, "_streamable", lambda plan: False)
+    monkeypatch.setattr(stream_mod, "reads", lambda plan: False)
     rng = random.Random(8)
     digits = "".join(rng.choice("0123456789") for _ in range(5000))
     path = tmp_path / "f.txt"
@@ -282,7 +286,7 @@ def test_labels_at_both_ends_stream_in_one_pass(
     """Start labels before, end labels through the line, one end label lying: one read, the digits,
     and the index pass's own finding."""
     if loops_kind == "python":
-        monkeypatch.setattr(stream_mod, "extract_labelled", stream_mod.extract_labelled_py)
+        monkeypatch.setattr(loops_mod, "extract_labelled", loops_mod.extract_labelled_py)
     elif not COMPILED:
         pytest.skip("the compiled loops were not built (or SPOTCHECK_PURE is set)")
     rng = random.Random(9)

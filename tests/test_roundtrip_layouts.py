@@ -15,7 +15,7 @@ from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from spotcheck.digitfile import open_digit_file
-from spotcheck.digitfile.detect import BOTH_SYNTAXES, SEPARATORS, SYNTAXES
+from spotcheck.digitfile.syntax import BOTH_SYNTAXES, SEPARATORS, SYNTAXES
 from tests.fuzz.oracle import round_trip
 from tests.fuzz.strategies import specs
 from tests.fuzz.writer import HEADERS, Label, Spec, suffix, write

@@ -30,8 +30,9 @@ Positions follow the package convention: digit 1 is the first after the point.
 
 from __future__ import annotations
 
+from spotcheck.digitfile.file import DigitFile
 from spotcheck.digitfile.model import Finding, InspectResult, Layout
-from spotcheck.digitfile.reader import DigitFile, inspect_file, open_digit_file
+from spotcheck.digitfile.reader import inspect_file, open_digit_file
 from spotcheck.digitfile.stream import DigitStream, open_stream
 
 __all__ = [

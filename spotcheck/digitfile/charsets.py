@@ -1,6 +1,6 @@
-"""Byte sets and translation tables shared by detection, scanning and reading.
+"""Byte sets and translation tables shared by detection, the passes and reading.
 
-No layout rule lives here: labels, separators and headers are detect.py's alone.
+No layout rule lives here: labels and separators are syntax.py's, headers detect.py's.
 """
 
 from __future__ import annotations
@@ -13,6 +13,7 @@ __all__ = [
     "digit_set",
     "allowed_set",
     "class_table",
+    "norm_table",
 ]
 
 DEC = b"0123456789"
@@ -38,4 +39,13 @@ def class_table(base: int) -> bytes:
         table[c] = ord("d")
     for c in WS:
         table[c] = c
+    return bytes(table)
+
+
+def norm_table(base: int) -> bytes:
+    """A 256-byte table: each digit of ``base`` -> its upper-case form (other bytes unchanged)."""
+    table = bytearray(range(256))
+    if base == 16:
+        for c in b"abcdef":
+            table[c] = c - 32
     return bytes(table)

@@ -1,22 +1,29 @@
-"""The first pass over a text digit file: it validates every byte and builds the index.
+"""The index pass: the first pass over a text digit file at open; it validates every byte and builds the index.
 
 The pass validates every byte, counts the digits, checks position labels and
 builds what random access needs, in bounded memory (one chunk of
 ``CHUNK_BYTES`` at a time, read with ``pread`` or from the decompressor).
+Its result, label checks and errors are ``passrules.py``'s, shared with the
+read-and-check pass.
 
-Three loops, fastest first:
+While the compiled loops serve (``USE_STREAM_LOOPS``), every layout they read
+goes through them (``onepass.index_pass``: ``first_mismatch`` on a chunk that
+follows the regular unit, ``extract`` / ``extract_labelled`` on any other).  The
+loops below are the reference that the tests compare the compiled ones with, and
+they serve a layout the compiled loops do not read:
 
 * **regular**: the file repeats one unit (a line, or a group of a file without
-  line breaks).  A whole chunk is checked with one ``bytes.translate`` into
-  character classes and one comparison with the unit repeated; nothing else is
-  needed, and position -> byte offset is arithmetic afterwards;
+  line breaks).  A whole chunk is checked with ``first_mismatch`` against the
+  unit repeated; nothing else is needed, and position -> byte offset is
+  arithmetic afterwards;
 * **indexed**: any other unlabelled layout.  A chunk is validated with one
   ``translate(None, allowed)``; every ``INDEX_STEP`` bytes the digits are
   counted and a sparse index entry (position, byte offset, line) is kept;
 * **labelled**: lines with position labels are walked line by line (labels
   must be read one by one to be checked), with index entries at line starts.
-  A chunk whose labels all agree is checked with list operations instead; for
-  labels at both ends each column is checked against its own meaning.
+  A chunk whose labels all agree is checked with list operations instead
+  (``LabelMeaning.expect_all``); for labels at both ends each column is checked
+  against its own meaning.
 
 The first unit that breaks the regular pattern moves the pass to the indexed
 loop; index entries for the part already seen are filled in by arithmetic.
@@ -25,206 +32,34 @@ loop; index entries for the part already seen are filled in by arithmetic.
 from __future__ import annotations
 
 import os
-from array import array
-from collections.abc import Callable
-from dataclasses import dataclass, field
 from itertools import accumulate
 
-from spotcheck.digitfile.charsets import HEX_LETTERS, WS, allowed_set, class_table, digit_set
-from spotcheck.digitfile.detect import Detection, LabelMeaning, LabelSyntax
-from spotcheck.digitfile.model import Finding
+from spotcheck.digitfile import loops
+from spotcheck.digitfile import passrules as rules
+from spotcheck.digitfile.charsets import WS, allowed_set, class_table, digit_set
+from spotcheck.digitfile.detect import Detection
+from spotcheck.digitfile.onepass import index_pass
+from spotcheck.digitfile.passrules import (
+    TAIL_DIGITS,
+    IndexResult,
+    Progress,
+    finish_labels,
+    label_checks,
+    new_result,
+    read_whole_lines,
+    stray_error,
+)
 from spotcheck.digitfile.source import ByteSource
-from spotcheck.errors import DigitFileError, LabelError
+from spotcheck.digitfile.syntax import LabelMeaning, LabelSyntax
+from spotcheck.errors import DigitFileError
 
-__all__ = ["IndexResult", "build_index", "line_of", "Progress", "CHUNK_BYTES", "INDEX_STEP"]
+__all__ = ["build_index", "USE_STREAM_LOOPS"]
 
-# --- tuning -----------------------------------------------------------------
-CHUNK_BYTES = 8 << 20  # bytes examined per step of the pass
-LABELLED_CHUNK_BYTES = 2 << 20  # bytes of labelled lines examined per step
-INDEX_STEP = 64 << 10  # bytes between sparse index entries (a window read parses at most this much)
-TAIL_DIGITS = 64  # last digits kept for inspect
-MAX_FINDINGS = 20  # findings of one kind kept in full; the rest are counted
-
-
-def first_mismatch_py(data: bytes, units: bytes, table: bytes) -> int:
-    """Index of the first byte of ``data`` whose class (``table``) differs from ``units``, or -1."""
-    classes = data.translate(table)
-    if classes == units[: len(data)]:
-        return -1
-    for i, (a, b) in enumerate(zip(classes, units, strict=False)):
-        if a != b:
-            return i
-    return len(data)  # units shorter than data: not reached by the pass
-
-
-first_mismatch = first_mismatch_py
-FIRST_PASS = "python"
-if os.environ.get("SPOTCHECK_PURE", "").strip().lower() not in ("1", "true", "yes", "on"):
-    try:
-        from spotcheck.digitfile._index import (  # type: ignore[import-not-found]
-            first_mismatch as _first_mismatch_c,
-        )
-    except ImportError:  # the optional extension was not built: the Python twin serves
-        pass
-    else:
-        first_mismatch = _first_mismatch_c
-        FIRST_PASS = "c"
-
-USE_STREAM_LOOPS = FIRST_PASS == "c"
-"""The pass goes through the compiled loops of the read-and-check stream
-(``stream.index_pass``: the same rules, findings and errors; a regular chunk is
-still checked by ``first_mismatch`` alone) when they know the layout; False keeps
+USE_STREAM_LOOPS = loops.LOOPS == "c"
+"""The pass goes through the compiled loops of the read-and-check pass
+(``onepass.index_pass``: the same rules, findings and errors; a regular chunk is
+still checked by ``first_mismatch`` alone) when they read the layout; False keeps
 the loops below for every layout (the tests' reference)."""
-
-Progress = Callable[[int, int], None]
-"""``progress(done, total)`` in bytes of the file as stored: for a compressed
-file, the compressed bytes consumed so far out of the file's size."""
-
-
-@dataclass
-class IndexResult:
-    count: int
-    """Digits after the point, first line included."""
-    regular: bool
-    unit: bytes | None
-    unit_digits: int
-    unit_cols: list[int]
-    region_start: int
-    index_pos: array = field(default_factory=lambda: array("q"))
-    index_off: array = field(default_factory=lambda: array("q"))
-    index_line: array = field(default_factory=lambda: array("q"))
-    last_digits: bytes = b""
-    findings: list[Finding] = field(default_factory=list)
-    label_meaning: str | None = None
-    end_label_meaning: str | None = None
-    """For labels at both ends: what the end labels count (``label_meaning``: the start labels)."""
-    content_bytes: int = 0
-
-
-def line_of(src: ByteSource, offset: int) -> tuple[int, int]:
-    """``(line, column)`` of byte ``offset``, both 1-based, from one pass that counts line
-    breaks from the start (the column in bytes, however long the line)."""
-    lines, pos, line_start = 1, 0, 0
-    while pos < offset:
-        data = src.read_at(pos, min(CHUNK_BYTES, offset - pos))
-        if not data:
-            break
-        breaks = data.count(b"\n")
-        if breaks:
-            lines += breaks
-            line_start = pos + data.rfind(b"\n") + 1
-        pos += len(data)
-    return lines, offset - line_start + 1
-
-
-def stray_error(src: ByteSource, plan: Detection, base: int, offset: int, byte: int) -> DigitFileError:
-    name = os.path.basename(src.path)
-    line, col = line_of(src, offset)
-    ch = repr(chr(byte)) if 0x20 <= byte < 0x7F else f"byte 0x{byte:02X}"
-    where = f"at byte {offset} (line {line}, column {col})"
-    if base == 10 and byte in HEX_LETTERS:
-        if plan.explicit_base:
-            return DigitFileError(f"{name}: {ch} {where} is not a decimal digit, but base 10 was requested")
-        return DigitFileError(
-            f"{name}: mixed bases: hex digit {ch} {where}, but the first {plan.sample_digits} digits are all decimal"
-        )
-    what = "hex" if base == 16 else "decimal"
-    return DigitFileError(f"{name}: stray character {ch} {where}: not a {what} digit, space or line break")
-
-
-class _LabelCheck:
-    """Checks every label of one column against the count its meaning (from detection) implies.
-
-    ``side`` says which column (``"start"`` or ``"end"``); ``both`` is True when
-    the lines carry a label at each end, and the messages then name the end.
-    """
-
-    def __init__(
-        self, meaning: LabelMeaning, syntax: LabelSyntax, strict: bool, name: str, both: bool = False
-    ) -> None:
-        self.meaning = meaning
-        self.syntax = syntax
-        self.strict = strict
-        self.name = name
-        self.side = syntax.where
-        self.what = f"{syntax.where} label" if both else "label"
-        self.findings: list[Finding] = []
-        self.mismatches = 0
-        self.missing = 0
-
-    def feed(self, label: bytes, before: int, nd: int, line: int, offset: int) -> None:
-        want = self.meaning.expect(before, nd)
-        if want is None or self.syntax.value(label) != want:
-            self.mismatch(label, before, nd, line, offset)
-
-    def mismatch(self, label: bytes, before: int, nd: int, line: int, offset: int) -> None:
-        want = self.meaning.expect(before, nd)
-        text = label.decode("ascii")
-        if want is None:
-            n = before + nd if self.meaning.kind == "through" else before
-            msg = f"{self.what} {text} disagrees with the digits: {n} digits are not a whole number of bytes"
-            want = -1
-        else:
-            shown = str(want) if self.syntax.radix == 10 else format(want, "X")
-            msg = f"{self.what} {text} disagrees with the digits: {self.meaning.explain()} is {shown}"
-        if self.strict:
-            raise LabelError(f"{self.name}: labels that lie: line {line}: {msg}")
-        self.mismatches += 1
-        if self.mismatches <= MAX_FINDINGS:
-            pos = before + 1 if nd else None
-            self.findings.append(
-                Finding(
-                    "label-mismatch",
-                    msg,
-                    line=line,
-                    byte_offset=offset,
-                    position=pos,
-                    expected=want,
-                    found=text,
-                    end=self.side,
-                )
-            )
-
-    def no_label(self, line: int, offset: int, before: int) -> None:
-        self.missing += 1
-        at = f" at its {self.side}" if self.what != "label" else ""
-        msg = f"a digit line without a position label{at}, unlike the lines around it"
-        if self.strict:
-            raise LabelError(f"{self.name}: line {line}: {msg}")
-        if self.missing <= MAX_FINDINGS:
-            self.findings.append(
-                Finding(
-                    "label-missing", msg, line=line, byte_offset=offset, position=before + 1, end=self.side
-                )
-            )
-
-    def finish(self) -> list[Finding]:
-        out = list(self.findings)
-        if self.mismatches > MAX_FINDINGS:
-            out.append(
-                Finding(
-                    "label-mismatch",
-                    f"{self.mismatches} labels disagree with the digits in all; "
-                    f"the first {MAX_FINDINGS} are listed",
-                )
-            )
-        if self.missing > MAX_FINDINGS:
-            out.append(Finding("label-missing", f"{self.missing} digit lines have no {self.what} in all"))
-        return out
-
-
-def read_whole_lines(src: ByteSource, off: int, size: int, name: str) -> bytes:
-    """Up to ``size`` bytes from ``off``, cut after the last line break (a labelled pass reads whole lines).
-
-    Empty at the end of the file; a line longer than ``size`` is an error.
-    """
-    data = src.read_at(off, size)
-    if len(data) == size:
-        cut = data.rfind(b"\n") + 1
-        if cut == 0:
-            raise DigitFileError(f"{name}: a labelled line at byte {off} is longer than {size} bytes")
-        data = data[:cut]
-    return data
 
 
 def build_index(
@@ -237,17 +72,13 @@ def build_index(
 ) -> IndexResult:
     """Run the pass from ``plan.seg_end`` to the end of the content."""
     if USE_STREAM_LOOPS:
-        from spotcheck.digitfile.stream import index_pass  # imported here: stream.py imports this module
-
         fast = index_pass(src, plan, strict_labels=strict_labels, progress=progress)
         if fast is not None:
             return fast
     total = src.size_bytes
     d1 = len(plan.seg_digits)
     tail = plan.seg_digits[-TAIL_DIGITS:]
-    res = IndexResult(
-        count=d1, regular=False, unit=None, unit_digits=0, unit_cols=[], region_start=plan.seg_end
-    )
+    res = new_result(plan)
     name = os.path.basename(src.path)
     if plan.syntax is not None:
         return _scan_labelled(src, plan, base, res, tail, strict_labels, progress, total, name)
@@ -257,7 +88,7 @@ def build_index(
     if unit and b"d" in unit and b"?" not in unit:
         width = unit.count(b"d")
         p = len(unit)
-        k = max(1, CHUNK_BYTES // p)
+        k = max(1, rules.CHUNK_BYTES // p)
         n = k * p
         units = unit * k
         table = class_table(base)
@@ -265,7 +96,7 @@ def build_index(
         keep = (TAIL_DIGITS // width + 2) * p  # bytes of the previous chunk that hold the last digits
         while True:
             data = src.read_at(off, n)
-            if len(data) == n and first_mismatch(data, units, table) < 0:
+            if len(data) == n and loops.first_mismatch(data, units, table) < 0:
                 pos += k * width
                 off += n
                 prev = data
@@ -287,7 +118,7 @@ def build_index(
                     return res
             # The pattern breaks in this chunk: index what was regular, then go on indexed.
             units_done = (off - plan.seg_end) // p
-            step = max(1, INDEX_STEP // p)
+            step = max(1, rules.INDEX_STEP // p)
             nl = unit.count(b"\n")
             for j in range(0, units_done, step):
                 res.index_pos.append(d1 + j * width + 1)
@@ -299,15 +130,16 @@ def build_index(
             break
     allowed = allowed_set(base)
     while True:
-        data = src.read_at(off, CHUNK_BYTES)
+        data = src.read_at(off, rules.CHUNK_BYTES)
         if not data:
             break
         bad = data.translate(None, allowed)
         if bad:
             at = data.find(bad[:1])
             raise stray_error(src, plan, base, off + at, data[at])
-        for i in range(0, len(data), INDEX_STEP):
-            blk = data[i : i + INDEX_STEP]
+        step = rules.INDEX_STEP
+        for i in range(0, len(data), step):
+            blk = data[i : i + step]
             digits = blk.translate(None, WS)
             if digits:
                 res.index_pos.append(pos + 1)
@@ -336,25 +168,16 @@ def _scan_labelled(
 ) -> IndexResult:
     syntax, meaning = plan.syntax, plan.meaning
     assert syntax is not None and meaning is not None
-    both = syntax.where == "both"
-    meanings: tuple[LabelMeaning, ...] = (meaning,)
-    if both:
-        assert plan.end_meaning is not None
-        meanings = (meaning, plan.end_meaning)
-    # One check per label column: the start and the end labels for "both", else the one column.
-    checks = [_LabelCheck(m, s, strict, name, both) for m, s in zip(meanings, syntax.ends, strict=True)]
+    # One check per label column: the start and the end label for "both", else the one column.
+    checks = label_checks(plan, strict, name)
+    meanings = tuple(check.meaning for check in checks)
     d1 = len(plan.seg_digits)
-    first_texts = (plan.first_label_text, plan.first_end_label_text) if both else (plan.first_label_text,)
-    for check, first_text in zip(checks, first_texts, strict=True):
-        if first_text is not None:
-            check.feed(first_text.encode(), 0, d1, plan.first_line_no, plan.digits_offset)
-        elif d1:
-            check.no_label(plan.first_line_no, plan.digits_offset, 0)
     allowed = allowed_set(base)
     digit_bytes = digit_set(base)
     off, pos, line = plan.seg_end, d1, plan.first_line_no + 1
-    last_index = -INDEX_STEP
-    chunk = min(CHUNK_BYTES, LABELLED_CHUNK_BYTES)  # line lists cost ~5 times the chunk in memory
+    step = rules.INDEX_STEP
+    last_index = -step
+    chunk = min(rules.CHUNK_BYTES, rules.LABELLED_CHUNK_BYTES)  # line lists cost ~5 times the chunk in memory
     while True:
         data = read_whole_lines(src, off, chunk, name)
         if not data:
@@ -388,7 +211,7 @@ def _scan_labelled(
                     elif nd:
                         check.no_label(line, off + lo, pos)
                 if nd:
-                    if off + lo - last_index >= INDEX_STEP:
+                    if off + lo - last_index >= step:
                         res.index_pos.append(pos + 1)
                         res.index_off.append(off + lo)
                         res.index_line.append(line)
@@ -402,11 +225,7 @@ def _scan_labelled(
         off += len(data)
         if progress:
             progress(src.stored_bytes_done(off), total)
-    res.findings = sorted(
-        (f for check in checks for f in check.finish()), key=lambda f: (f.line is None, f.line or 0)
-    )
-    res.label_meaning = meaning.name
-    res.end_label_meaning = plan.end_meaning.name if both and plan.end_meaning else None
+    finish_labels(res, checks, plan)
     res.count, res.last_digits, res.content_bytes = pos, tail, off
     return res
 
@@ -423,19 +242,8 @@ def _column_agrees(cleaned: bytes, found: list[bytes], pos: int, meaning: LabelM
     if len(found) != len(pieces) or not pieces:
         return False
     ends = list(accumulate(map(len, pieces), initial=pos))
-    unit = meaning.unit
-    if unit != 1 and any(e % unit for e in ends):
-        return False
     got = list(map(int, found)) if radix == 10 else [int(f, 16) for f in found]
-    if meaning.kind == "through" and unit == 1:
-        return got == ends[1:]
-    if meaning.kind == "before":
-        expected = [e // unit for e in ends[:-1]]
-    elif meaning.kind == "first":
-        expected = [e // unit + 1 for e in ends[:-1]]
-    else:
-        expected = [e // unit for e in ends[1:]]
-    return got == expected
+    return got == meaning.expect_all(ends)
 
 
 def _labelled_chunk_fast(
@@ -463,19 +271,11 @@ def _labelled_chunk_fast(
     if len(found) != len(pieces) or len(raw) != len(pieces) or not pieces:
         return None
     ends = list(accumulate(map(len, pieces), initial=pos))
-    unit = meaning.unit
-    if any(e % unit for e in ends):
-        return None
-    if meaning.kind == "before":
-        expected = [e // unit for e in ends[:-1]]
-    elif meaning.kind == "first":
-        expected = [e // unit + 1 for e in ends[:-1]]
-    else:
-        expected = [e // unit for e in ends[1:]]
-    if [int(f, syntax.radix) for f in found] != expected:
+    expected = meaning.expect_all(ends)
+    if expected is None or [int(f, syntax.radix) for f in found] != expected:
         return None
     n = len(pieces)
-    step = max(1, n * INDEX_STEP // max(1, len(data)))
+    step = max(1, n * rules.INDEX_STEP // max(1, len(data)))
     start = off
     for k in range(0, n, step):
         if ends[k + 1] > ends[k]:

@@ -15,11 +15,20 @@ read from the extension itself (``MAX_MODULUS``, ``MAX_EXPONENT``,
 ``MAX_COEFFICIENT``, ``MAX_WORDS``), and :func:`kernel_split` is the one place
 that decides which terms of a head sum go to the kernel and which to the twin
 (:func:`head_block` sums a block that way).
+
+It also chooses for the digit-file layer's loops (:func:`digitfile_loops`): the
+compiled extension ``spotcheck.digitfile._index`` when it was built (and has
+every loop) and ``SPOTCHECK_PURE`` is not set, else their Python twins; the same
+rule as for the kernel, asked once.  The extension is a C module without Python
+imports of its own; it is imported by name at the first call (from
+``digitfile.loops`` as it loads, or for ``--version``), never when this module
+loads, so the engine does not depend on the layer above it.
 """
 
 from __future__ import annotations
 
 import functools
+import importlib
 import os
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
@@ -30,6 +39,9 @@ from spotcheck.engine.series import Series
 __all__ = [
     "BACKEND",
     "BACKEND_NOTE",
+    "DigitfileLoops",
+    "digitfile_loops",
+    "pure_requested",
     "KERNEL_MAX_MODULUS",
     "KERNEL_MAX_EXPONENT",
     "KERNEL_MAX_COEFFICIENT",
@@ -61,7 +73,13 @@ _KERNEL_ENV = "SPOTCHECK_KERNEL"  # forces one path of the compiled kernel (_ker
 head_sum: HeadSum
 _kernel_head_sum: HeadSum | None = None
 
-if os.environ.get(_PURE_ENV, "").strip().lower() in ("1", "true", "yes", "on"):
+
+def pure_requested() -> bool:
+    """True when ``SPOTCHECK_PURE`` asks for the Python twins of every compiled loop."""
+    return os.environ.get(_PURE_ENV, "").strip().lower() in ("1", "true", "yes", "on")
+
+
+if pure_requested():
     BACKEND = "python"
     _PURE_WHY = f"{_PURE_ENV} is set"
     BACKEND_NOTE = f"pure-Python path ({_PURE_WHY})"
@@ -185,3 +203,41 @@ def head_block(series: Series, big_d: int, k0: int, k1: int, words: int) -> tupl
         v, t = head_sum_py(big_d, split, k1, *args, words)
         value, terms = (value + v) & ((1 << (64 * words)) - 1), terms + t
     return value, terms
+
+
+_DIGITFILE_EXTENSION = "spotcheck.digitfile._index"
+_DIGITFILE_LOOPS = ("first_mismatch", "extract", "extract_labelled")
+
+
+@dataclass(frozen=True)
+class DigitfileLoops:
+    """The choice for the digit-file passes' inner loops."""
+
+    module: object | None
+    """The compiled extension, or None: the Python twins serve."""
+    backend: str
+    """``"c"`` or ``"python"``."""
+    note: str
+    """Why, for ``spotcheck --version`` and the pytest header."""
+
+
+@functools.cache
+def digitfile_loops() -> DigitfileLoops:
+    """The compiled digit-file loops when they were built and ``SPOTCHECK_PURE`` is not set, else None.
+
+    An extension without one of the loops (built from an older source) is not used either.
+    """
+    if pure_requested():
+        return DigitfileLoops(None, "python", f"Python twins ({_PURE_ENV} is set)")
+    try:
+        module = importlib.import_module(_DIGITFILE_EXTENSION)
+    except ImportError as exc:
+        return DigitfileLoops(None, "python", f"Python twins (compiled loops not available: {exc})")
+    missing = [name for name in _DIGITFILE_LOOPS if not hasattr(module, name)]
+    if missing:
+        return DigitfileLoops(
+            None, "python", f"Python twins ({_DIGITFILE_EXTENSION} lacks {', '.join(missing)}: rebuild it)"
+        )
+    return DigitfileLoops(
+        module, "c", f"compiled C loops ({_DIGITFILE_EXTENSION}: {', '.join(_DIGITFILE_LOOPS)})"
+    )

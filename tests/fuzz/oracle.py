@@ -8,7 +8,7 @@ import re
 import tempfile
 
 from spotcheck.digitfile import open_digit_file
-from spotcheck.digitfile.detect import AmbiguousLayoutError
+from spotcheck.digitfile.readings import AmbiguousLayoutError
 from spotcheck.errors import SpotcheckError
 from tests.fuzz.writer import BLANK_SEPS, LONE_SEPS, MARK_SEPS, Label, Spec, Written, suffix, write
 
