@@ -5,7 +5,7 @@
  *     differs from units[i], or -1 when every byte matches.  ``units`` is the
  *     layout's repeating unit of classes, repeated to at least len(data);
  *     ``table`` is 256 bytes (digit -> 'd', blank and line breaks kept, anything
- *     else '?').  Twin: index.first_mismatch_py.
+ *     else '?').  Twin: loops.first_mismatch_py.
  *
  * extract(data, table, norm, out, out_pos, units) -> (digits, stray, newlines, regular)
  *     Validates every byte of an unlabelled chunk and copies its digits out:
@@ -18,15 +18,17 @@
  *     not, -1 without units (with as many digits as units has 'd's, 1 means every
  *     class equals units[i]: the caller compares the counts).  ``out`` must hold
  *     out_pos + len(data) bytes (bytes past the digits written are scratch).
- *     Twin: stream.extract_py.
+ *     Twin: loops.extract_py.
  *
  * extract_labelled(data, table, norm, out, out_pos, layout, before, offset, line,
  *                  step, last_index) -> (consumed, digits, lines, stop, entries, last_index)
- *     The same for whole lines carrying position labels.  ``layout`` is the
- *     tuple (where, sep, radix, max_label, kind, unit): where 0 start / 1 end;
+ *     The same for whole lines carrying position labels.  ``layout`` is
+ *     loops.LoopLayout.codes(), the one description of a labelled layout for these
+ *     loops (the codes are syntax.py's WHERE_CODES, SEP_CODES and KIND_CODES):
+ *     the tuple (where, sep, radix, max_label, kind, unit): where 0 start / 1 end;
  *     sep 0 ':' or '|' with optional blanks / 1 blanks; radix 10 or 16 of the
  *     label; max_label its most characters (at most 18); kind 0 before / 1
- *     first / 2 through (stream.py's KIND codes) and unit 1 or 2 (digits or
+ *     first / 2 through and unit 1 or 2 (digits or
  *     bytes) of what it counts.  For labels at both ends, where is 2 and five
  *     more ints (sep, radix, max_label, kind, unit) follow for the end label;
  *     the first five are the start label's.  Lines are taken in order while each has the
@@ -37,7 +39,8 @@
  *     the count of digits before ``data``; ``offset`` and ``line`` are the byte
  *     offset and line number of data[0]; an index entry (position, offset,
  *     line) is made at the start of a line holding digits once ``step`` bytes
- *     have passed since ``last_index``.  Twin: stream.extract_labelled_py.
+ *     have passed since ``last_index``.  Twin: loops.extract_labelled_py.  label_agrees
+ *     below is the compiled form of syntax.LabelMeaning.agrees, the one label rule.
  *
  * Runs of digits are taken eight bytes at a time (digit_bits, a test on a 64-bit word), on
  * little-endian targets with gcc or clang and the standard tables; elsewhere, byte by byte.
@@ -57,7 +60,7 @@
 
 typedef struct {
     uint32_t T[256];
-    int words; /* 1: the tables are charsets.class_table / stream.norm_table, so the word loop may run */
+    int words; /* 1: the tables are charsets.class_table / charsets.norm_table, so the word loop may run */
     int hex;
 } Tables;
 

@@ -223,7 +223,8 @@ class DigitfileLoops:
 
 @functools.cache
 def digitfile_loops() -> DigitfileLoops:
-    """The compiled digit-file loops when they were built and ``SPOTCHECK_PURE`` is not set, else None.
+    """The choice for the digit-file loops: the compiled extension when it was built and
+    ``SPOTCHECK_PURE`` is not set, else the Python twins (``module`` None).
 
     An extension without one of the loops (built from an older source) is not used either.
     """
