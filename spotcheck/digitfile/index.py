@@ -43,6 +43,7 @@ from spotcheck.digitfile.passrules import (
     TAIL_DIGITS,
     IndexResult,
     Progress,
+    check_line,
     finish_labels,
     label_checks,
     new_result,
@@ -205,11 +206,7 @@ def _scan_labelled(
                 found, b0, b1 = syntax.split_labels(text[:-1] if text.endswith(b"\r") else text)
                 body = text[b0:b1]
                 nd = len(body) - len(body.translate(None, digit_bytes))
-                for check, label in zip(checks, found, strict=True):
-                    if label is not None:
-                        check.feed(label, pos, nd, line, off + lo)
-                    elif nd:
-                        check.no_label(line, off + lo, pos)
+                check_line(checks, found, pos, nd, line, off + lo)
                 if nd:
                     if off + lo - last_index >= step:
                         res.index_pos.append(pos + 1)

@@ -30,6 +30,7 @@ from spotcheck.digitfile.passrules import (
     TAIL_DIGITS,
     IndexResult,
     Progress,
+    check_line,
     finish_labels,
     label_checks,
     new_result,
@@ -238,11 +239,7 @@ class ReadPass:
                     at = lo + b0 + body.find(bad[:1])
                     raise stray_error(src, plan, base, off + at, data[at])
                 digits = body.translate(norm, WS)
-                for check, label in zip(checks, found, strict=True):
-                    if label is not None:
-                        check.feed(label, pos, len(digits), line, off + lo)
-                    elif digits:
-                        check.no_label(line, off + lo, pos)
+                check_line(checks, found, pos, len(digits), line, off + lo)
                 if digits:
                     if off + lo - last_index >= step:
                         res.index_pos.append(pos + 1)

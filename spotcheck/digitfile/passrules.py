@@ -33,6 +33,7 @@ __all__ = [
     "LabelCheck",
     "Progress",
     "TAIL_DIGITS",
+    "check_line",
     "finish_labels",
     "label_checks",
     "line_of",
@@ -230,6 +231,18 @@ def label_checks(plan: Detection, strict: bool, name: str) -> list[LabelCheck]:
         elif d1:
             check.no_label(plan.first_line_no, plan.digits_offset, 0)
     return checks
+
+
+def check_line(
+    checks: list[LabelCheck], found: tuple[bytes | None, ...], before: int, nd: int, line: int, offset: int
+) -> None:
+    """The labels ``found`` on one line (one per column, None where a column has none) checked
+    against a line of ``nd`` digits after ``before``; a digit line without a label is recorded."""
+    for check, label in zip(checks, found, strict=True):
+        if label is not None:
+            check.feed(label, before, nd, line, offset)
+        elif nd:
+            check.no_label(line, offset, before)
 
 
 def finish_labels(res: IndexResult, checks: list[LabelCheck], plan: Detection) -> None:
