@@ -634,11 +634,11 @@ typedef struct {
     void (*fractions52)(batch_t *bt, int words, uint64_t *acc); /* all n < 2^52 (NULL: fractions) */
 } simd_path_t;
 
-/* Residues of a full batch by the path's narrowest ladder that takes every
- * modulus of it, then the fraction words of all its terms. */
-static void flush_batch(batch_t *bt, const simd_path_t *path, int words, uint64_t *acc)
+/* Residues x = c 2^f mod n of a full batch of B terms by the path's
+ * narrowest ladder that takes every modulus of it (ninv is stored too: full
+ * 64 bits by ladder64, at least the low 32 bits by the vector ladders). */
+ALWAYS_INLINE void batch_residues(batch_t *bt, const simd_path_t *path, const int B)
 {
-    const int B = path->batch;
     const uint64_t nor = bt->nmax; /* below a power of two iff every n is */
     if (path->small && nor < path->small_limit)
         path->small(bt);
@@ -650,6 +650,13 @@ static void flush_batch(batch_t *bt, const simd_path_t *path, int words, uint64_
         path->wide(bt);
     else
         ladder64(bt, B);
+}
+
+/* acc += the fraction words of the batch's residues bt->x (walked down in
+ * place), by the path's vector digits where it has them. */
+ALWAYS_INLINE void batch_fractions(batch_t *bt, const simd_path_t *path, const int B, int words, uint64_t *acc)
+{
+    const uint64_t nor = bt->nmax;
     if (path->fractions32 && nor < ((uint64_t)1 << 32))
         path->fractions32(bt, words, acc);
     else if (path->fractions52 && nor < ((uint64_t)1 << 52))
@@ -660,6 +667,13 @@ static void flush_batch(batch_t *bt, const simd_path_t *path, int words, uint64_
         add_fractions(64, bt->x, bt->n, bt->ninv, words, acc);
     else
         add_fractions(32, bt->x, bt->n, bt->ninv, words, acc);
+}
+
+/* Residues of a full batch, then the fraction words of all its terms. */
+static void flush_batch(batch_t *bt, const simd_path_t *path, int words, uint64_t *acc)
+{
+    batch_residues(bt, path, path->batch);
+    batch_fractions(bt, path, path->batch, words, acc);
     batch_reset(bt);
 }
 
@@ -1522,6 +1536,246 @@ static void run_path(int path, const job_t *jb, uint64_t *acc)
         run_job_batched(jb, acc, &PATHS[path]);
 }
 
+/* ==== Combs of windows ======================================================
+ *
+ * head_sum_comb sums the heads of count windows at exponents
+ * D_i = D_0 + i * step (i = 0 .. count-1) in one pass over the terms.  A
+ * term (k, j) has the same modulus N = 2^v n in every window and the
+ * exponent E_i = D_i - e k, which grows by step from one window to the next.
+ * Window i holds the term in its head when E_i >= 0; it takes it by
+ * slow_term when E_i < v and by big_exponent_term when E_i - v + 64W passes
+ * 2^64, exactly as run_job would for that window alone.  Since E_i grows
+ * with i, the windows holding the term by the ordinary rule form one range
+ * [first, stop), and for them
+ *
+ *     x_first     = c 2^(E_first - v + 64W) mod n      (the path's ladder)
+ *     x_(i+1)     = x_i 2^step mod n = mont_mul(x_i, T) with
+ *     T           = 2^(step + 64) mod n                (the ladder, c = 1),
+ *
+ * mont_mul(a, b) = a b 2^-64 mod n being exact in [0, n) for a, b < n < 2^63
+ * (redc).  Each x_i is the very residue r_(W+1) that run_job computes for
+ * window i, so the fraction words added to window i's accumulator are the
+ * single window's, bit for bit, and each window's bound [value, value +
+ * terms) of evaluate.py holds as it does alone.  A lane that window i does
+ * not take (i outside [first, stop)) contributes the residue 0, whose words
+ * are all 0.  The comb shares only the two ladders of a term; every window
+ * still pays one Montgomery product and its fraction words per term.
+ *
+ * Terms go into batches of the path (64 or 128 terms; portable and scalar:
+ * 64 terms on ladder64, the 64-bit scalar ladder, and add_fractions), the
+ * batch's residues by batch_residues, T by a second batch_residues with
+ * f = step + 64 and c = 1, then window by window the words by
+ * batch_fractions.  Limits (checked in the glue and in backend.py):
+ * those of head_sum with D = D_0 + (count - 1) step, 1 <= count <= MAX_COMB,
+ * step < 2^63; the block's k range is clipped to the deepest window's head. */
+
+#define MAX_COMB 4096
+
+typedef struct {
+    uint64_t D0, step;
+    uint32_t count;
+    uint64_t *acc; /* count * words words: window i's sum at acc + i * words */
+} comb_t;
+
+typedef struct {
+    batch_t bt;
+    uint64_t xs[BATCH], T[BATCH];
+    uint64_t first[BATCH], stop[BATCH]; /* the windows [first, stop) take the lane's residue */
+    uint32_t wmin, wmax;                /* over the lanes put in so far */
+    int multi;                          /* some lane serves two windows or more: T is needed */
+} comb_batch_t;
+
+static void comb_reset(comb_batch_t *cb)
+{
+    batch_reset(&cb->bt);
+    cb->wmin = UINT32_MAX;
+    cb->wmax = 0;
+    cb->multi = 0;
+}
+
+/* How the windows of a batch advance their residues x_i -> x_i 2^step mod n:
+ * COMB_MONT64 (any n < 2^63, scalar): mont_mul by T = 2^(step + 64) mod n;
+ * on the avx2 path, COMB_MONT32 (n < 2^31): 32-bit Montgomery by
+ * T = 2^(step + 32) mod n, and COMB_FMA (n < 2^48): FMA doubles by
+ * T = 2^step mod n (see comb_windows_avx2).  comb_offset gives the extra
+ * power of two folded into T. */
+enum { COMB_MONT64 = 0, COMB_MONT32 = 1, COMB_FMA = 2 };
+
+static const int comb_offset[] = {64, 32, 0};
+
+#if HAVE_X86_PATHS
+static void comb_windows_avx2(comb_batch_t *cb, int words, const comb_t *cm, int kind);
+#endif
+
+static void comb_flush(comb_batch_t *cb, const simd_path_t *path, const int B, const comb_t *cm, int words)
+{
+    batch_t *bt = &cb->bt;
+    int kind = COMB_MONT64;
+#if HAVE_X86_PATHS
+    if (path == &PATHS[PATH_AVX2])
+        kind = bt->nmax < NARROW_LIMIT ? COMB_MONT32 : bt->nmax < FMA_LIMIT ? COMB_FMA : COMB_MONT64;
+#endif
+    batch_residues(bt, path, B);
+    memcpy(cb->xs, bt->x, sizeof(uint64_t) * (size_t)B);
+    if (cb->multi) { /* T = 2^(step + offset) mod n: see the enum */
+        const uint64_t f = cm->step + (uint64_t)comb_offset[kind];
+        for (int l = 0; l < B; l++) {
+            bt->f[l] = f;
+            bt->cm[l] = bt->n[l] > 1; /* 1 mod n */
+        }
+        bt->fmax = bt->fmin = f;
+        batch_residues(bt, path, B);
+        memcpy(cb->T, bt->x, sizeof(uint64_t) * (size_t)B);
+    }
+    for (int l = 0; l < B; l++) /* add_fractions reads 64 bits of it, the vector digits 32 */
+        bt->ninv[l] = inverse64(bt->n[l]);
+#if HAVE_X86_PATHS
+    if (kind != COMB_MONT64) {
+        comb_windows_avx2(cb, words, cm, kind);
+        comb_reset(cb);
+        return;
+    }
+#endif
+    for (uint32_t w = cb->wmin; w < cb->wmax; w++) {
+        for (int l = 0; l < B; l++)
+            bt->x[l] = cb->first[l] <= w && w < cb->stop[l] ? cb->xs[l] : 0;
+        batch_fractions(bt, path, B, words, cm->acc + (size_t)w * (size_t)words);
+        if (w + 1 < cb->wmax)
+            for (int l = 0; l < B; l++)
+                if (cb->first[l] <= w && w + 1 < cb->stop[l])
+                    cb->xs[l] = mont_mul(cb->xs[l], cb->T[l], bt->n[l], bt->ninv[l]);
+    }
+    comb_reset(cb);
+}
+
+#if HAVE_X86_PATHS
+/* The windows of an avx2 batch (64 terms), four lanes a register.  Window w
+ * takes lane l's residue x where first <= w < stop, else 0 (a blend by two
+ * 64-bit compares: first, stop and w are below 2^32), then x advances by T:
+ *   COMB_MONT32, n < 2^31: with x, T < n, t = x T < n^2 < 2^62, m n < 2^63,
+ *     so t + m n < 2^64 and (t + m n) / 2^32 = x T 2^-32 mod n lies below
+ *     n^2 / 2^32 + n < 2n; min_epu32(x, x - n) brings it to [0, n) (as in
+ *     ladder32_avx2's full steps).  T = 2^(step + 32) mod n gives x 2^step.
+ *   COMB_FMA, n < 2^48: mulmod_avx2(x, T) with x, T < n (|x T / n| < n <
+ *     2^49) is exact in (-n, n); adding n to a negative result gives x 2^step
+ *     mod n in [0, n).  The residues stay doubles between windows.
+ * The fraction words then come from the path's vector digits. */
+TARGET_AVX2 static void comb_windows_avx2(comb_batch_t *cb, int words, const comb_t *cm, int kind)
+{
+    batch_t *bt = &cb->bt;
+    const int Hc = 16;
+    const __m256i zero = _mm256_setzero_si256();
+    __m256d XD[16], TD[16], ND[16], NI[16];
+    if (kind == COMB_FMA)
+        for (int h = 0; h < Hc; h++) {
+            ND[h] = u52_to_pd_avx2(_mm256_loadu_si256((const __m256i *)(bt->n + 4 * h)));
+            NI[h] = _mm256_div_pd(_mm256_set1_pd(1.0), ND[h]);
+            XD[h] = u52_to_pd_avx2(_mm256_loadu_si256((const __m256i *)(cb->xs + 4 * h)));
+            TD[h] = u52_to_pd_avx2(_mm256_loadu_si256((const __m256i *)(cb->T + 4 * h)));
+        }
+    for (uint32_t w = cb->wmin; w < cb->wmax; w++) {
+        const __m256i W = _mm256_set1_epi64x((int64_t)w), W1 = _mm256_set1_epi64x((int64_t)w + 1);
+        for (int h = 0; h < Hc; h++) {
+            const __m256i first = _mm256_loadu_si256((const __m256i *)(cb->first + 4 * h));
+            const __m256i stop = _mm256_loadu_si256((const __m256i *)(cb->stop + 4 * h));
+            const __m256i on = _mm256_andnot_si256(_mm256_cmpgt_epi64(first, W), _mm256_cmpgt_epi64(stop, W));
+            const __m256i next = _mm256_and_si256(on, _mm256_cmpgt_epi64(stop, W1));
+            if (kind == COMB_MONT32) {
+                const __m256i n = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
+                const __m256i np = _mm256_sub_epi64(zero, _mm256_loadu_si256((const __m256i *)(bt->ninv + 4 * h)));
+                const __m256i x = _mm256_loadu_si256((const __m256i *)(cb->xs + 4 * h));
+                _mm256_storeu_si256((__m256i *)(bt->x + 4 * h), _mm256_and_si256(x, on));
+                __m256i t = _mm256_mul_epu32(x, _mm256_loadu_si256((const __m256i *)(cb->T + 4 * h)));
+                __m256i m = _mm256_mul_epu32(t, np);
+                __m256i y = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, n)), 32);
+                y = _mm256_min_epu32(y, _mm256_sub_epi32(y, n)); /* below 2^32, high halves zero */
+                _mm256_storeu_si256((__m256i *)(cb->xs + 4 * h), _mm256_blendv_epi8(x, y, next));
+            } else {
+                _mm256_storeu_si256((__m256i *)(bt->x + 4 * h), _mm256_and_si256(pd_to_u52_avx2(XD[h]), on));
+                __m256d r = mulmod_avx2(XD[h], TD[h], ND[h], NI[h]);
+                r = _mm256_add_pd(r, _mm256_and_pd(_mm256_cmp_pd(r, _mm256_setzero_pd(), _CMP_LT_OQ), ND[h]));
+                XD[h] = _mm256_blendv_pd(XD[h], r, _mm256_castsi256_pd(next));
+            }
+        }
+        uint64_t *acc = cm->acc + (size_t)w * (size_t)words;
+        if (bt->nmax < ((uint64_t)1 << 32))
+            fractions32_avx2(bt, words, acc);
+        else
+            fractions_avx2(bt, words, acc);
+    }
+}
+#endif
+
+/* Every term of the job (jb->D is the deepest window's D, jb->k1 clipped to
+ * its head) into every window that holds it; see the section's comment. */
+static void run_comb(const job_t *jb, const comb_t *cm, comb_batch_t *cb, const simd_path_t *path)
+{
+    comb_reset(cb);
+    const int B = path->batch ? path->batch : 64;
+    const uint64_t extra = 64 * (uint64_t)jb->words, M = UINT64_MAX - extra, e = jb->e;
+    const uint64_t D0 = cm->D0, step = cm->step;
+    const uint32_t count = cm->count;
+    const int words = jb->words;
+    int fill = 0;
+    for (Py_ssize_t p = 0; p < jb->npairs; p++) {
+        uint32_t a = 0; /* the first window whose head holds k: never decreases with k */
+        for (uint64_t k = jb->k0; k < jb->k1; k++) {
+            const uint64_t ek = e * k; /* <= jb->D: k1 is clipped */
+            while (a < count && D0 + a * step < ek)
+                a++;
+            if (a == count)
+                break;
+            const uint64_t base = jb->m * k + jb->js[p];
+            uint64_t N = jb->q;
+            for (unsigned i = 0; i < jb->s; i++)
+                N *= base; /* below 2^63: checked in parse_job */
+            const int v = trailing_zeros(N);
+            const uint64_t odd = N >> v;
+            const int64_t c = jb->alternating && (k & 1) ? -jb->cs[p] : jb->cs[p];
+            uint32_t first = a, stop = count;
+            for (; first < count && D0 + first * step - ek < (uint64_t)v; first++)
+                slow_term(N, D0 + first * step - ek, c, words, cm->acc + (size_t)first * (size_t)words);
+            for (; stop > first && D0 + (stop - 1) * step - ek - v > M; stop--)
+                big_exponent_term(odd, D0 + (stop - 1) * step - ek - v, c, words,
+                                  cm->acc + (size_t)(stop - 1) * (size_t)words);
+            if (first == stop)
+                continue;
+            batch_t *bt = &cb->bt;
+            bt->n[fill] = odd;
+            bt->f[fill] = D0 + first * step - ek - v + extra;
+            bt->cm[fill] = coeff_mod(c, odd);
+            bt->nmax = odd > bt->nmax ? odd : bt->nmax;
+            bt->fmax = bt->f[fill] > bt->fmax ? bt->f[fill] : bt->fmax;
+            bt->fmin = bt->f[fill] < bt->fmin ? bt->f[fill] : bt->fmin;
+            cb->first[fill] = first;
+            cb->stop[fill] = stop;
+            cb->wmin = first < cb->wmin ? first : cb->wmin;
+            cb->wmax = stop > cb->wmax ? stop : cb->wmax;
+            cb->multi |= stop - first > 1;
+            if (++fill == B) {
+                comb_flush(cb, path, B, cm, words);
+                fill = 0;
+            }
+        }
+    }
+    if (fill) {
+        for (int l = fill; l < B; l++) { /* pad with n = 1 in no window: contributes 0 */
+            cb->bt.n[l] = 1;
+            cb->bt.f[l] = cb->bt.f[0];
+            cb->bt.cm[l] = 0;
+            cb->first[l] = cb->stop[l] = 0;
+        }
+        comb_flush(cb, path, B, cm, words);
+    }
+}
+
+static const simd_path_t COMB_SCALAR = {.name = "scalar", .features = "", .batch = 64};
+
+static void run_comb_path(int path, const job_t *jb, const comb_t *cm, comb_batch_t *cb)
+{
+    run_comb(jb, cm, cb, path <= PATH_SCALAR ? &COMB_SCALAR : &PATHS[path]);
+}
+
 /* ---- Python glue ------------------------------------------------------- */
 
 /* A non-negative integer below 2^64 (OverflowError otherwise). */
@@ -1646,8 +1900,8 @@ static void free_job(job_t *jb)
     PyMem_Free(jb->cs);
 }
 
-/* (value, terms) with value = acc as a little-endian integer. */
-static PyObject *build_result(const uint64_t *acc, int words, PyObject *k0, PyObject *k1, Py_ssize_t npairs)
+/* acc[0 .. words-1] as a little-endian integer. */
+static PyObject *acc_value(const uint64_t *acc, int words)
 {
     PyObject *value = PyLong_FromUnsignedLongLong(acc[words - 1]);
     PyObject *shift = PyLong_FromLong(64);
@@ -1658,7 +1912,16 @@ static PyObject *build_result(const uint64_t *acc, int words, PyObject *k0, PyOb
         Py_XDECREF(t);
         Py_XDECREF(w);
     }
+    if (shift == NULL)
+        Py_CLEAR(value);
     Py_XDECREF(shift);
+    return value;
+}
+
+/* (value, terms) with value = acc as a little-endian integer. */
+static PyObject *build_result(const uint64_t *acc, int words, PyObject *k0, PyObject *k1, Py_ssize_t npairs)
+{
+    PyObject *value = acc_value(acc, words);
     PyObject *span = value ? PyNumber_Subtract(k1, k0) : NULL;
     PyObject *np = span ? PyLong_FromSsize_t(npairs) : NULL;
     PyObject *terms = np ? PyNumber_Multiply(span, np) : NULL;
@@ -1825,6 +2088,110 @@ static PyObject *head_sum_path(PyObject *self, PyObject *const *args, Py_ssize_t
     return head_sum_common(args + 1, NULL, i);
 }
 
+/* The comb's glue: head_sum_comb(D0, step, count, k0, k1, m, s, e, q,
+ * alternating, js, cs, words) -> [(value, terms)] per window, as
+ * head_sum_comb_py.  The limits are head_sum's for the deepest window
+ * (parse_job on D = D0 + (count - 1) step and k1 clipped to its head), and
+ * 1 <= count <= MAX_COMB, step < 2^63. */
+static PyObject *head_sum_comb_common(PyObject *const *args, int path)
+{
+    uint64_t D0, step, count, k0, k1, e;
+    if (as_u64(args[0], "D0", &D0) || as_u64(args[1], "step", &step) || as_u64(args[2], "count", &count) ||
+        as_u64(args[3], "k0", &k0) || as_u64(args[4], "k1", &k1) || as_u64(args[7], "e", &e))
+        return NULL;
+    if (count < 1 || count > MAX_COMB) {
+        PyErr_Format(PyExc_ValueError, "a comb has 1 .. %d windows", MAX_COMB);
+        return NULL;
+    }
+    if (step >= ((uint64_t)1 << 63) || (count > 1 && step > (UINT64_MAX - D0) / (count - 1))) {
+        PyErr_SetString(PyExc_OverflowError, "the comb's deepest D must be below 2^64 (and its step below 2^63)");
+        return NULL;
+    }
+    const uint64_t Dlast = D0 + (count - 1) * step;
+    uint64_t kend = k1;
+    if (e && kend > 0 && Dlast / e < kend - 1)
+        kend = Dlast / e + 1;
+    job_t jb;
+    memset(&jb, 0, sizeof jb);
+    uint64_t *acc = NULL;
+    comb_batch_t *cb = NULL;
+    PyObject *out = NULL, *dl = NULL, *ke = NULL;
+    Py_ssize_t npairs = 0;
+    int words = 1;
+    if (kend > k0) {
+        dl = PyLong_FromUnsignedLongLong(Dlast);
+        ke = PyLong_FromUnsignedLongLong(kend);
+        if (dl == NULL || ke == NULL)
+            goto done;
+        PyObject *const a[11] = {dl, args[3], ke, args[5], args[6], args[7], args[8], args[9], args[10], args[11],
+                                 args[12]};
+        if (parse_job(a, &jb))
+            goto done;
+        words = jb.words;
+        npairs = jb.npairs;
+        acc = PyMem_Calloc((size_t)count * (size_t)words, sizeof(uint64_t));
+        cb = PyMem_Malloc(sizeof *cb);
+        if (acc == NULL || cb == NULL) {
+            PyErr_NoMemory();
+            goto done;
+        }
+        const comb_t cm = {D0, step, (uint32_t)count, acc};
+        Py_BEGIN_ALLOW_THREADS
+        run_comb_path(path, &jb, &cm, cb);
+        Py_END_ALLOW_THREADS
+    }
+    out = PyList_New((Py_ssize_t)count);
+    for (uint64_t i = 0; out && i < count; i++) {
+        uint64_t Di = D0 + i * step, end = kend;
+        if (e && end > 0 && Di / e < end - 1)
+            end = Di / e + 1;
+        PyObject *value = acc ? acc_value(acc + i * (uint64_t)words, words) : PyLong_FromLong(0);
+        PyObject *span = PyLong_FromUnsignedLongLong(end > k0 ? end - k0 : 0);
+        PyObject *np = PyLong_FromSsize_t(npairs);
+        PyObject *terms = span && np ? PyNumber_Multiply(span, np) : NULL;
+        PyObject *pair = value && terms ? PyTuple_Pack(2, value, terms) : NULL;
+        Py_XDECREF(value);
+        Py_XDECREF(span);
+        Py_XDECREF(np);
+        Py_XDECREF(terms);
+        if (pair == NULL)
+            Py_CLEAR(out);
+        else
+            PyList_SET_ITEM(out, (Py_ssize_t)i, pair);
+    }
+done:
+    free_job(&jb);
+    PyMem_Free(acc);
+    PyMem_Free(cb);
+    Py_XDECREF(dl);
+    Py_XDECREF(ke);
+    return out;
+}
+
+static PyObject *head_sum_comb(PyObject *self, PyObject *const *args, Py_ssize_t nargs)
+{
+    (void)self;
+    if (nargs != 13) {
+        PyErr_Format(PyExc_TypeError, "head_sum_comb takes 13 arguments (%zd given)", nargs);
+        return NULL;
+    }
+    return head_sum_comb_common(args, active);
+}
+
+/* _head_sum_comb_path(path, D0, step, count, ...): head_sum_comb on a named path (tests, benchmarks). */
+static PyObject *head_sum_comb_path(PyObject *self, PyObject *const *args, Py_ssize_t nargs)
+{
+    (void)self;
+    if (nargs != 14) {
+        PyErr_Format(PyExc_TypeError, "_head_sum_comb_path takes 14 arguments (%zd given)", nargs);
+        return NULL;
+    }
+    int i = path_index(args[0], 1);
+    if (i < 0)
+        return NULL;
+    return head_sum_comb_common(args + 1, i);
+}
+
 static PyObject *py_paths_for(PyObject *self, PyObject *args)
 {
     (void)self;
@@ -1884,6 +2251,12 @@ static PyMethodDef kernel_methods[] = {
      "head_sum(D, k0, k1, m, s, e, q, alternating, js, cs, words) -> (value, terms)\n\n"
      "The compiled twin of spotcheck.engine.head_py.head_sum_py (same result).\n"
      "The exact sum lies in [value, value + terms) units of 2^-(64*words), mod 1."},
+    {"head_sum_comb", (PyCFunction)(void (*)(void))head_sum_comb, METH_FASTCALL,
+     "head_sum_comb(D0, step, count, k0, k1, m, s, e, q, alternating, js, cs, words) -> [(value, terms)]\n\n"
+     "The compiled twin of spotcheck.engine.head_py.head_sum_comb_py: the head sums of the windows at\n"
+     "D0 + i * step (i < count) over k0 <= k < k1, each clipped to its window's head, in one pass."},
+    {"_head_sum_comb_path", (PyCFunction)(void (*)(void))head_sum_comb_path, METH_FASTCALL,
+     "_head_sum_comb_path(path, D0, step, count, ...): head_sum_comb on a named path."},
     {"_head_sum_variant", (PyCFunction)(void (*)(void))head_sum_variant, METH_FASTCALL,
      "head_sum(..., lanes, step) with a chosen interleave and doubling step (benchmarks)."},
     {NULL, NULL, 0, NULL},
@@ -1908,7 +2281,7 @@ PyMODINIT_FUNC PyInit__kernel(void)
     PyObject *exponent = PyLong_FromUnsignedLongLong(UINT64_MAX);
     PyObject *coeff = PyLong_FromLongLong(COEFF_LIMIT);
     if (PyModule_AddStringConstant(mod, "ARITHMETIC", KERNEL_ARITH) ||
-        PyModule_AddIntConstant(mod, "MAX_WORDS", MAX_WORDS) ||
+        PyModule_AddIntConstant(mod, "MAX_WORDS", MAX_WORDS) || PyModule_AddIntConstant(mod, "MAX_COMB", MAX_COMB) ||
         PyModule_AddIntConstant(mod, "LANES", BEST_LANES) || PyModule_AddIntConstant(mod, "STEP", BEST_STEP) ||
         limit == NULL || exponent == NULL || coeff == NULL) {
         Py_XDECREF(limit);

@@ -14,7 +14,8 @@ The compiled kernel only accepts machine-sized arguments.  Its limits are
 read from the extension itself (``MAX_MODULUS``, ``MAX_EXPONENT``,
 ``MAX_COEFFICIENT``, ``MAX_WORDS``), and :func:`kernel_split` is the one place
 that decides which terms of a head sum go to the kernel and which to the twin
-(:func:`head_block` sums a block that way).
+(:func:`head_block` sums a block that way; :func:`head_block_comb` sums one
+block for a comb of windows, cutting the comb at the kernel's ``MAX_COMB``).
 
 It also chooses for the digit-file layer's loops (:func:`digitfile_loops`): the
 compiled extension ``spotcheck.digitfile._index`` when it was built (and has
@@ -33,7 +34,7 @@ import os
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
-from spotcheck.engine.head_py import head_sum_py
+from spotcheck.engine.head_py import head_sum_comb_py, head_sum_py
 from spotcheck.engine.series import Series
 
 __all__ = [
@@ -46,9 +47,12 @@ __all__ = [
     "KERNEL_MAX_EXPONENT",
     "KERNEL_MAX_COEFFICIENT",
     "KERNEL_MAX_WORDS",
+    "KERNEL_MAX_COMB",
     "Split",
     "head_block",
+    "head_block_comb",
     "head_sum",
+    "head_sum_comb",
     "head_sum_py",
     "kernel_k_limit",
     "kernel_split",
@@ -70,8 +74,15 @@ PURE_SLOWDOWN = 150
 _PURE_ENV = "SPOTCHECK_PURE"
 _KERNEL_ENV = "SPOTCHECK_KERNEL"  # forces one path of the compiled kernel (_kernel.paths())
 
+HeadSumComb = Callable[
+    [int, int, int, int, int, int, int, int, int, bool, Sequence[int], Sequence[int], int],
+    list[tuple[int, int]],
+]
+
 head_sum: HeadSum
 _kernel_head_sum: HeadSum | None = None
+head_sum_comb: HeadSumComb
+_kernel_head_sum_comb: HeadSumComb | None = None
 
 
 def pure_requested() -> bool:
@@ -87,6 +98,7 @@ else:
     try:
         from spotcheck.engine import _kernel  # type: ignore[attr-defined]
         from spotcheck.engine._kernel import head_sum as _kernel_head_sum  # type: ignore[import-not-found,no-redef]
+        from spotcheck.engine._kernel import head_sum_comb as _kernel_head_sum_comb  # type: ignore[import-not-found,no-redef]
     except ImportError as exc:  # the extension was not built
         BACKEND = "python"
         _PURE_WHY = f"compiled kernel not available: {exc}"
@@ -108,6 +120,8 @@ else:
 
                 raise UsageError(_why)
 
+            _kernel_head_sum_comb = _kernel_head_sum  # type: ignore[assignment]
+
             BACKEND_NOTE = f"compiled C kernel refused: {_problem}"
         else:
             _why_path = f"{_KERNEL_ENV} is set" if _forced else "the fastest this CPU offers"
@@ -117,6 +131,7 @@ else:
             )
 
 head_sum = _kernel_head_sum if _kernel_head_sum is not None else head_sum_py
+head_sum_comb = _kernel_head_sum_comb if _kernel_head_sum_comb is not None else head_sum_comb_py
 
 
 # The compiled kernel's limits, as the extension states them (0 when it was
@@ -130,6 +145,8 @@ KERNEL_MAX_MODULUS: int = int(getattr(_extension, "MAX_MODULUS", 0))
 KERNEL_MAX_EXPONENT: int = int(getattr(_extension, "MAX_EXPONENT", 0))
 KERNEL_MAX_COEFFICIENT: int = int(getattr(_extension, "MAX_COEFFICIENT", 0))
 KERNEL_MAX_WORDS: int = int(getattr(_extension, "MAX_WORDS", 0))
+# Windows of one call of the kernel's comb entry (longer combs are cut).
+KERNEL_MAX_COMB: int = int(getattr(_extension, "MAX_COMB", 0))
 
 
 @functools.lru_cache(maxsize=256)
@@ -242,3 +259,43 @@ def digitfile_loops() -> DigitfileLoops:
     return DigitfileLoops(
         module, "c", f"compiled C loops ({_DIGITFILE_EXTENSION}: {', '.join(_DIGITFILE_LOOPS)})"
     )
+
+
+def head_block_comb(
+    series: Series, big_d0: int, step: int, count: int, k0: int, k1: int, words: int
+) -> list[tuple[int, int]]:
+    """The head sums over ``k0 <= k < k1`` of the windows at ``D_i = big_d0 + i * step``.
+
+    Entry ``i`` is ``head_block(series, D_i, k0, end_i, words)`` with the
+    block clipped to window ``i``'s head (``head_py.comb_heads``), bit for
+    bit.  Windows with ``D_i < 0`` have no head; one window is a single head
+    sum; the kernel takes the terms below the kernel/twin split of the
+    deepest window, in combs of at most ``KERNEL_MAX_COMB`` windows, and the
+    twin the rest.
+    """
+    if count < 1 or step < 0:
+        raise ValueError("a comb has at least one window and a step >= 0")
+    out = [(0, 0)] * count
+    start = 0 if big_d0 >= 0 else min(count, -(-(-big_d0) // step) if step else count)
+    if start == count:
+        return out
+    big_d0 += start * step
+    live = count - start
+    if live == 1:
+        end = k1 if series.e == 0 else min(k1, big_d0 // series.e + 1)
+        out[start] = head_block(series, big_d0, k0, end, words) if end > k0 else (0, 0)
+        return out
+    last = big_d0 + (live - 1) * step
+    split = min(max(kernel_split(series, last, words).k_split, k0), k1)
+    args = (series.m, series.s, series.e, series.q, series.alternating, series.js, series.cs)
+    sums = [(0, 0)] * live
+    if split > k0:
+        for first in range(0, live, KERNEL_MAX_COMB):
+            n = min(KERNEL_MAX_COMB, live - first)
+            sums[first : first + n] = head_sum_comb(big_d0 + first * step, step, n, k0, split, *args, words)
+    if k1 > split:
+        mask = (1 << (64 * words)) - 1
+        twin = head_sum_comb_py(big_d0, step, live, split, k1, *args, words)
+        sums = [((v + w) & mask, t + u) for (v, t), (w, u) in zip(sums, twin, strict=True)]
+    out[start:] = sums
+    return out
