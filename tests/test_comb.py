@@ -241,3 +241,105 @@ def test_backend_comb_is_separate_blocks(args: tuple, cut: int) -> None:
         want.append(backend.head_block(series, big_d, k0, end, words) if end > k0 else (0, 0))
     assert got == want
     assert got == head_sum_comb_py(*args)
+
+
+# --- the engine: each window certified by its own interval ---------------------
+
+from spotcheck.engine.api import extract, extract_comb  # noqa: E402
+from spotcheck.engine.comb import comb_window_digits  # noqa: E402
+from spotcheck.engine.evaluate import frac_interval, words_for  # noqa: E402
+from spotcheck.errors import UsageError  # noqa: E402
+
+FORMULAS = [(c.name, f.key) for c in BUILTIN_CONSTANTS.values() for f in c.formulas]
+# Bailey, Borwein, Plouffe (1997), table of hex digits of pi, as tests/test_kernel.py quotes it.
+TABLE_1997 = {10**6: "26C65E52CB4593", 10**7: "17AF5863EFED8D", 10**8: "ECB840E21926EC"}
+
+
+@settings(max_examples=25, deadline=None)
+@given(
+    formula=st.sampled_from(FORMULAS),
+    position=st.integers(1, 20_000),
+    gap=st.integers(1, 3000) | st.integers(1, 8),
+    count=st.integers(1, 128),
+    digits=st.integers(1, 30),
+)
+@example(formula=("pi", "bbp"), position=1, gap=1, count=128, digits=1)
+def test_comb_digits_are_the_windows_alone(
+    formula: tuple[str, str], position: int, gap: int, count: int, digits: int
+) -> None:
+    comb_matches_windows_alone(formula, position, gap, count, digits)
+
+
+@settings(max_examples=12, deadline=None)
+@given(
+    formula=st.sampled_from(FORMULAS),
+    position=st.integers(1, 2000),
+    gap=st.integers(1, 100),
+    count=st.integers(1, 24),
+    digits=st.integers(1, 30),
+)
+def test_comb_digits_are_the_windows_alone_on_the_twin(
+    formula: tuple[str, str], position: int, gap: int, count: int, digits: int
+) -> None:
+    """Every term on the twin (the kernel not in use), smaller combs."""
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setattr(backend, "BACKEND", "python")
+        comb_matches_windows_alone(formula, position, gap, count, digits)
+
+
+def comb_matches_windows_alone(
+    formula: tuple[str, str], position: int, gap: int, count: int, digits: int
+) -> None:
+    constant, key = formula
+    series = series_of(BUILTIN_CONSTANTS[constant].formula(key))
+    windows = comb_window_digits(series, position, gap, count, digits)
+    assert [w.position for w in windows] == [position + i * gap for i in range(count)]
+    words = words_for(series, 4 * (position + (count - 1) * gap - 1), digits)
+    for w in windows:
+        assert w.digits == extract(constant, w.position, digits, formula=key).digits
+        if not w.alone:  # the very interval frac_interval gives the window alone at that precision
+            alone = frac_interval(series, 4 * (w.position - 1), words)
+            assert (w.interval.lo, w.interval.hi, w.interval.bits, w.interval.terms) == (
+                alone.lo,
+                alone.hi,
+                alone.bits,
+                alone.terms,
+            )
+
+
+@pytest.mark.parametrize("position", [10**6, 10**7])
+def test_comb_holds_the_1997_table(position: int) -> None:
+    """The table's entry is window 3 of a comb of 6 windows 12,345 positions apart (kernel, threads)."""
+    gap = 12_345
+    windows = comb_window_digits(PI_BBP, position - 3 * gap, gap, 6, 14, workers=2)
+    assert windows[3].position == position
+    assert windows[3].digits == TABLE_1997[position]
+    assert not windows[3].alone
+
+
+@pytest.mark.slow
+def test_comb_holds_the_1997_table_at_10_8() -> None:
+    gap = 10**6 + 7
+    windows = comb_window_digits(PI_BBP, 10**8 - 5 * gap, gap, 8, 14, workers=2)
+    assert windows[5].digits == TABLE_1997[10**8]
+
+
+def test_extract_comb() -> None:
+    result = extract_comb("pi", 10**4, 1000, 5, 12, formula="bbp")
+    assert result.positions == (10**4, 11_000, 12_000, 13_000, 14_000)
+    assert result.digits == tuple(extract("pi", p, 12, formula="bbp").digits for p in result.positions)
+    assert result.alone == 0 and result.fraction_bits == 128
+
+
+@pytest.mark.parametrize(
+    ("args", "words"),
+    [
+        (("pi", 1, 0, 3), "gap"),
+        (("pi", 1, 5, 0), "count"),
+        (("e", 1, 5, 3), "no digit-extraction formula"),
+        (("pi", 1, 5, 3, 500), "digits exceed"),
+    ],
+)
+def test_extract_comb_refuses(args: tuple, words: str) -> None:
+    with pytest.raises(UsageError, match=words):
+        extract_comb(*args)

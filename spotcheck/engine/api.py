@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 import operator
 import os
+import time
 from collections.abc import Callable
 from dataclasses import asdict, dataclass
 from pathlib import Path
@@ -21,9 +22,11 @@ from spotcheck.formulas import Formula, get_constant
 
 __all__ = [
     "CostEstimate",
+    "CombResult",
     "CrossCheck",
     "DigitResult",
     "cross_check",
+    "extract_comb",
     "estimate_cost",
     "extract",
     "hex_digits",
@@ -308,6 +311,76 @@ def extract(
         blocks_computed=sum(iv.blocks_computed for iv in intervals),
         checkpoint=str(path) if path is not None else None,
         warnings=tuple(warnings),
+    )
+
+
+@dataclass(frozen=True)
+class CombResult:
+    """Certified digits at a comb of positions ``position + i * gap`` (:func:`extract_comb`)."""
+
+    constant: str
+    formula: str
+    positions: tuple[int, ...]
+    digits: tuple[str, ...]
+    """The digits at each position, each certified by its own interval."""
+    width_log2: float
+    """log2 of the widest certifying interval."""
+    fraction_bits: int
+    terms: int
+    """Head and tail terms over all windows (a term shared by windows counts once per window)."""
+    alone: int
+    """Windows the shared precision did not certify, evaluated again alone."""
+    seconds: float
+    backend: str
+
+
+def extract_comb(
+    constant: str | Formula,
+    position: int,
+    gap: int,
+    count: int,
+    digits: int = 16,
+    *,
+    formula: str | None = None,
+    workers: int = 1,
+) -> CombResult:
+    """``digits`` certified hex digits at each of ``count`` positions ``position + i * gap``.
+
+    One pass over the head terms serves every window (the comb,
+    :mod:`spotcheck.engine.comb`); the digits are those of each window
+    evaluated alone.
+
+    >>> extract_comb("pi", 1, 8, 2, 8).digits
+    ('243F6A88', '85A308D3')
+    """
+    p, n = check_request(position, digits)
+    if isinstance(constant, str) and get_constant(constant).evaluation is not None:
+        raise UsageError(f"{constant} has no digit-extraction formula, so it has no comb of windows")
+    for name_, value in (("gap", gap), ("count", count)):
+        if isinstance(value, bool) or not isinstance(value, int) or value < 1:
+            raise UsageError(f"the comb's {name_} must be a positive integer, not {value!r}")
+    from spotcheck.engine.comb import comb_window_digits
+
+    name, f = resolve_formula(constant, formula)
+    series = series_of(f)
+    t0 = time.perf_counter()
+    try:
+        windows = comb_window_digits(series, p, gap, count, n, workers=workers)
+    except ValueError as exc:
+        raise UsageError(str(exc)) from exc
+    seconds = time.perf_counter() - t0
+    widest = max((w.interval for w in windows), key=lambda iv: iv.width_log2)
+    return CombResult(
+        constant=name,
+        formula=f.key,
+        positions=tuple(w.position for w in windows),
+        digits=tuple(w.digits for w in windows),
+        width_log2=round(widest.width_log2, 2),
+        fraction_bits=widest.bits,
+        terms=sum(w.interval.terms for w in windows),
+        alone=sum(w.alone for w in windows),
+        seconds=seconds,
+        backend=backend.BACKEND,
     )
 
 

@@ -276,7 +276,7 @@ def head_block_comb(
     if count < 1 or step < 0:
         raise ValueError("a comb has at least one window and a step >= 0")
     out = [(0, 0)] * count
-    start = 0 if big_d0 >= 0 else min(count, -(-(-big_d0) // step) if step else count)
+    start = 0 if big_d0 >= 0 else min(count, (step - 1 - big_d0) // step if step else count)
     if start == count:
         return out
     big_d0 += start * step

@@ -34,6 +34,7 @@ from spotcheck.errors import CertificationError
 __all__ = [
     "Interval",
     "frac_interval",
+    "interval_from",
     "certified_hex_prefix",
     "window_digits",
     "MAX_WORDS",
@@ -139,8 +140,12 @@ def frac_interval(series: Series, d: int, words: int, plan: RunPlan | None = Non
     """A certified interval for ``frac(2^d * C)`` with ``64 * words`` fractional bits."""
     if d < 0:
         raise ValueError("bit offset must be >= 0")
+    return interval_from(series, d, words, head_fixed(series, d, words, plan))
+
+
+def interval_from(series: Series, d: int, words: int, head: HeadSum) -> Interval:
+    """The certified interval at bit offset ``d`` from a finished head sum and the tail."""
     bits = 64 * words
-    head = head_fixed(series, d, words, plan)
     tail, n_tail, rem = tail_fixed(series, d, bits)
     base = (head.value + tail) % (1 << bits)
     return Interval(

@@ -1,0 +1,118 @@
+"""Certified digits at a comb of positions, one pass over the head terms for all of them.
+
+A *comb* is ``count`` windows of ``digits`` hex digits at the positions
+``position + i * gap`` (``i < count``), i.e. at bit offsets
+``d_i = d_0 + i * 4 gap``.  A head term ``(k, j)`` has the same modulus
+``N = q (m k + j)^s`` in every window, and its exponent grows by ``4 gap``
+from one window to the next, so its residue in window ``i + 1`` is its
+residue in window ``i`` times ``2^(4 gap) mod N``
+(:func:`spotcheck.engine.head_py.head_sum_comb_py`, ``head_sum_comb`` in the
+kernel): every window after the first costs one modular product and its
+fraction words per term instead of a ladder.
+
+Only the arithmetic is shared.  Each window keeps its own head (the terms
+with ``D_i - e k >= 0``, so a term in the tail of a shallow window and the
+head of a deeper one is summed for the deeper one only), its own tail, its
+own remainder bound and so its own :class:`~spotcheck.engine.evaluate.Interval`,
+built exactly as :func:`~spotcheck.engine.evaluate.frac_interval` builds it
+for the window alone.  All windows are summed with the precision of the
+deepest (``words_for`` grows with the offset); a window whose interval does
+not certify its digits at that precision is evaluated again alone by
+:func:`~spotcheck.engine.evaluate.window_digits`, so a digit is never guessed
+and the digits are always those of the window evaluated alone.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
+
+from spotcheck.engine import backend
+from spotcheck.engine.blocks import HeadSum
+from spotcheck.engine.evaluate import (
+    Interval,
+    certified_hex_prefix,
+    interval_from,
+    window_capacity,
+    window_digits,
+    words_for,
+)
+from spotcheck.engine.plan import BLOCK_K
+from spotcheck.engine.series import Series
+
+__all__ = ["CombWindow", "comb_heads_fixed", "comb_window_digits"]
+
+
+@dataclass(frozen=True)
+class CombWindow:
+    """One window of a comb: its position, certified digits and interval."""
+
+    position: int
+    digits: str
+    interval: Interval
+    alone: bool = False
+    """True when the comb's precision did not certify it and it was evaluated alone."""
+
+
+def comb_heads_fixed(
+    series: Series, d0: int, step: int, count: int, words: int, *, workers: int = 1, block_k: int = BLOCK_K
+) -> list[HeadSum]:
+    """The head sums of the windows at bit offsets ``d0 + i * step`` with ``64 * words`` bits.
+
+    Blocks of ``block_k`` values of k over the deepest window's head, on
+    ``workers`` threads (the kernel releases the GIL); each block's sums go to
+    the windows whose heads hold its k (``backend.head_block_comb``).
+    """
+    big_d0 = d0 - series.shift
+    k_total = series.head_length(d0 + (count - 1) * step)
+    blocks = [(k, min(k + block_k, k_total)) for k in range(0, k_total, block_k)]
+    mask = (1 << (64 * words)) - 1
+    values, terms = [0] * count, [0] * count
+
+    def one(block: tuple[int, int]) -> list[tuple[int, int]]:
+        return backend.head_block_comb(series, big_d0, step, count, block[0], block[1], words)
+
+    results: Iterator[list[tuple[int, int]]]
+    if workers > 1 and len(blocks) > 1:
+        with ThreadPoolExecutor(max_workers=workers) as pool:
+            results = iter(list(pool.map(one, blocks)))
+    else:
+        results = map(one, blocks)
+    for sums in results:
+        for i, (v, t) in enumerate(sums):
+            values[i] = (values[i] + v) & mask
+            terms[i] += t
+    return [HeadSum(v, t, 0, 0, len(blocks)) for v, t in zip(values, terms, strict=True)]
+
+
+def comb_window_digits(
+    series: Series, position: int, gap: int, count: int, digits: int, *, workers: int = 1
+) -> list[CombWindow]:
+    """``digits`` certified hex digits at each of the positions ``position + i * gap``, ``i < count``.
+
+    One pass over the head terms serves every window (see the module
+    docstring); each window is certified by its own interval, and evaluated
+    alone if the shared precision does not settle it.  Raises ``ValueError``
+    when ``digits`` exceeds one window's capacity at the deepest position.
+    """
+    if position < 1 or gap < 1 or count < 1 or digits < 1:
+        raise ValueError("a comb needs position >= 1, gap >= 1, count >= 1 and digits >= 1")
+    d0, step = 4 * (position - 1), 4 * gap
+    d_last = d0 + (count - 1) * step
+    if digits > window_capacity(series, d_last):
+        raise ValueError(
+            f"{digits} digits exceed one window's {window_capacity(series, d_last)} at that depth"
+        )
+    words = words_for(series, d_last, digits)
+    heads = comb_heads_fixed(series, d0, step, count, words, workers=workers)
+    out = []
+    for i, head in enumerate(heads):
+        d = d0 + i * step
+        interval = interval_from(series, d, words, head)
+        found = certified_hex_prefix(interval, digits)
+        alone = len(found) < digits
+        if alone:  # never guessed: this window alone, with more bits
+            found, interval = window_digits(series, d, digits, words=words + 1)
+        out.append(CombWindow(position + i * gap, found, interval, alone))
+    return out
