@@ -144,7 +144,7 @@ def deepest_fits(call: tuple, step: int, count: int) -> int:
 
 @st.composite
 def kernel_combs(draw: st.DrawFn) -> tuple:
-    """builtin_combs inside the kernel's moduli (k below the first k whose moduli reach 2^63)."""
+    """builtin_combs inside the kernel's limits (k below the first k whose moduli reach 2^63, D_0 >= 0)."""
     args = draw(builtin_combs())
     series = next(
         s
@@ -156,7 +156,13 @@ def kernel_combs(draw: st.DrawFn) -> tuple:
     if k1 > limit:
         k1 = limit
         k0 = min(k0, k1 - 1)
-    return (*args[:3], k0, k1, *args[5:])
+    return (
+        max(0, args[0]),
+        *args[1:3],
+        k0,
+        k1,
+        *args[5:],
+    )  # the kernel takes D_0 >= 0 (backend peels the rest)
 
 
 @pytest.mark.parametrize("name", PATH_PARAMS)

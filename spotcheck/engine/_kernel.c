@@ -1582,14 +1582,15 @@ typedef struct {
     uint64_t xs[BATCH], T[BATCH];
     uint64_t first[BATCH], stop[BATCH]; /* the windows [first, stop) take the lane's residue */
     uint32_t wmin, wmax;                /* over the lanes put in so far */
+    uint32_t first_max, stop_min;       /* over the lanes put in so far (not the padding) */
     int multi;                          /* some lane serves two windows or more: T is needed */
 } comb_batch_t;
 
 static void comb_reset(comb_batch_t *cb)
 {
     batch_reset(&cb->bt);
-    cb->wmin = UINT32_MAX;
-    cb->wmax = 0;
+    cb->wmin = cb->stop_min = UINT32_MAX;
+    cb->wmax = cb->first_max = 0;
     cb->multi = 0;
 }
 
@@ -1627,15 +1628,15 @@ static void comb_flush(comb_batch_t *cb, const simd_path_t *path, const int B, c
         batch_residues(bt, path, B);
         memcpy(cb->T, bt->x, sizeof(uint64_t) * (size_t)B);
     }
-    for (int l = 0; l < B; l++) /* add_fractions reads 64 bits of it, the vector digits 32 */
-        bt->ninv[l] = inverse64(bt->n[l]);
 #if HAVE_X86_PATHS
-    if (kind != COMB_MONT64) {
+    if (kind != COMB_MONT64) { /* bt->ninv: the low 32 bits from avx2's ladders, all the vector digits read */
         comb_windows_avx2(cb, words, cm, kind);
         comb_reset(cb);
         return;
     }
 #endif
+    for (int l = 0; l < B; l++) /* add_fractions and mont_mul read 64 bits of it */
+        bt->ninv[l] = inverse64(bt->n[l]);
     for (uint32_t w = cb->wmin; w < cb->wmax; w++) {
         for (int l = 0; l < B; l++)
             bt->x[l] = cb->first[l] <= w && w < cb->stop[l] ? cb->xs[l] : 0;
@@ -1666,6 +1667,7 @@ TARGET_AVX2 static void comb_windows_avx2(comb_batch_t *cb, int words, const com
     const int Hc = 16;
     const __m256i zero = _mm256_setzero_si256();
     __m256d XD[16], TD[16], ND[16], NI[16];
+    uint64_t np[BATCH];
     if (kind == COMB_FMA)
         for (int h = 0; h < Hc; h++) {
             ND[h] = u52_to_pd_avx2(_mm256_loadu_si256((const __m256i *)(bt->n + 4 * h)));
@@ -1673,28 +1675,37 @@ TARGET_AVX2 static void comb_windows_avx2(comb_batch_t *cb, int words, const com
             XD[h] = u52_to_pd_avx2(_mm256_loadu_si256((const __m256i *)(cb->xs + 4 * h)));
             TD[h] = u52_to_pd_avx2(_mm256_loadu_si256((const __m256i *)(cb->T + 4 * h)));
         }
+    else
+        for (int h = 0; h < Hc; h++)
+            _mm256_storeu_si256((__m256i *)(np + 4 * h),
+                                _mm256_sub_epi64(zero, _mm256_loadu_si256((const __m256i *)(bt->ninv + 4 * h))));
     for (uint32_t w = cb->wmin; w < cb->wmax; w++) {
+        /* every lane on (padding lanes hold 0 and stay 0): no masks */
+        const int all = w >= cb->first_max && w + 1 < cb->stop_min;
         const __m256i W = _mm256_set1_epi64x((int64_t)w), W1 = _mm256_set1_epi64x((int64_t)w + 1);
         for (int h = 0; h < Hc; h++) {
-            const __m256i first = _mm256_loadu_si256((const __m256i *)(cb->first + 4 * h));
-            const __m256i stop = _mm256_loadu_si256((const __m256i *)(cb->stop + 4 * h));
-            const __m256i on = _mm256_andnot_si256(_mm256_cmpgt_epi64(first, W), _mm256_cmpgt_epi64(stop, W));
-            const __m256i next = _mm256_and_si256(on, _mm256_cmpgt_epi64(stop, W1));
+            __m256i on = zero, next = zero;
+            if (!all) {
+                const __m256i first = _mm256_loadu_si256((const __m256i *)(cb->first + 4 * h));
+                const __m256i stop = _mm256_loadu_si256((const __m256i *)(cb->stop + 4 * h));
+                on = _mm256_andnot_si256(_mm256_cmpgt_epi64(first, W), _mm256_cmpgt_epi64(stop, W));
+                next = _mm256_and_si256(on, _mm256_cmpgt_epi64(stop, W1));
+            }
             if (kind == COMB_MONT32) {
                 const __m256i n = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
-                const __m256i np = _mm256_sub_epi64(zero, _mm256_loadu_si256((const __m256i *)(bt->ninv + 4 * h)));
                 const __m256i x = _mm256_loadu_si256((const __m256i *)(cb->xs + 4 * h));
-                _mm256_storeu_si256((__m256i *)(bt->x + 4 * h), _mm256_and_si256(x, on));
+                _mm256_storeu_si256((__m256i *)(bt->x + 4 * h), all ? x : _mm256_and_si256(x, on));
                 __m256i t = _mm256_mul_epu32(x, _mm256_loadu_si256((const __m256i *)(cb->T + 4 * h)));
-                __m256i m = _mm256_mul_epu32(t, np);
+                __m256i m = _mm256_mul_epu32(t, _mm256_loadu_si256((const __m256i *)(np + 4 * h)));
                 __m256i y = _mm256_srli_epi64(_mm256_add_epi64(t, _mm256_mul_epu32(m, n)), 32);
                 y = _mm256_min_epu32(y, _mm256_sub_epi32(y, n)); /* below 2^32, high halves zero */
-                _mm256_storeu_si256((__m256i *)(cb->xs + 4 * h), _mm256_blendv_epi8(x, y, next));
+                _mm256_storeu_si256((__m256i *)(cb->xs + 4 * h), all ? y : _mm256_blendv_epi8(x, y, next));
             } else {
-                _mm256_storeu_si256((__m256i *)(bt->x + 4 * h), _mm256_and_si256(pd_to_u52_avx2(XD[h]), on));
+                const __m256i x = pd_to_u52_avx2(XD[h]);
+                _mm256_storeu_si256((__m256i *)(bt->x + 4 * h), all ? x : _mm256_and_si256(x, on));
                 __m256d r = mulmod_avx2(XD[h], TD[h], ND[h], NI[h]);
                 r = _mm256_add_pd(r, _mm256_and_pd(_mm256_cmp_pd(r, _mm256_setzero_pd(), _CMP_LT_OQ), ND[h]));
-                XD[h] = _mm256_blendv_pd(XD[h], r, _mm256_castsi256_pd(next));
+                XD[h] = all ? r : _mm256_blendv_pd(XD[h], r, _mm256_castsi256_pd(next));
             }
         }
         uint64_t *acc = cm->acc + (size_t)w * (size_t)words;
@@ -1706,55 +1717,145 @@ TARGET_AVX2 static void comb_windows_avx2(comb_batch_t *cb, int words, const com
 }
 #endif
 
+/* One term (k, pair p) into every window that holds it (a = the first
+ * window whose head holds k): slow_term and big_exponent_term for the
+ * windows where run_job would use them, the rest as one lane of the batch. */
+static void comb_term(const job_t *jb, const comb_t *cm, comb_batch_t *cb, const simd_path_t *path, const int B,
+                      int *fill, uint64_t k, Py_ssize_t p, uint32_t a)
+{
+    const uint64_t extra = 64 * (uint64_t)jb->words, M = UINT64_MAX - extra, ek = jb->e * k;
+    const uint64_t D0 = cm->D0, step = cm->step;
+    const int words = jb->words;
+    const uint64_t base = jb->m * k + jb->js[p];
+    uint64_t N = jb->q;
+    for (unsigned i = 0; i < jb->s; i++)
+        N *= base; /* below 2^63: checked in parse_job */
+    const int v = trailing_zeros(N);
+    const uint64_t odd = N >> v;
+    const int64_t c = jb->alternating && (k & 1) ? -jb->cs[p] : jb->cs[p];
+    uint32_t first = a, stop = cm->count;
+    for (; first < stop && D0 + first * step - ek < (uint64_t)v; first++)
+        slow_term(N, D0 + first * step - ek, c, words, cm->acc + (size_t)first * (size_t)words);
+    for (; stop > first && D0 + (stop - 1) * step - ek - v > M; stop--)
+        big_exponent_term(odd, D0 + (stop - 1) * step - ek - v, c, words, cm->acc + (size_t)(stop - 1) * (size_t)words);
+    if (first == stop)
+        return;
+    batch_t *bt = &cb->bt;
+    const int l = *fill;
+    bt->n[l] = odd;
+    bt->f[l] = D0 + first * step - ek - v + extra;
+    bt->cm[l] = coeff_mod(c, odd);
+    bt->nmax = odd > bt->nmax ? odd : bt->nmax;
+    bt->fmax = bt->f[l] > bt->fmax ? bt->f[l] : bt->fmax;
+    bt->fmin = bt->f[l] < bt->fmin ? bt->f[l] : bt->fmin;
+    cb->first[l] = first;
+    cb->stop[l] = stop;
+    cb->wmin = first < cb->wmin ? first : cb->wmin;
+    cb->wmax = stop > cb->wmax ? stop : cb->wmax;
+    cb->first_max = first > cb->first_max ? first : cb->first_max;
+    cb->stop_min = stop < cb->stop_min ? stop : cb->stop_min;
+    cb->multi |= stop - first > 1;
+    if (++*fill == B) {
+        comb_flush(cb, path, B, cm, words);
+        *fill = 0;
+    }
+}
+
 /* Every term of the job (jb->D is the deepest window's D, jb->k1 clipped to
- * its head) into every window that holds it; see the section's comment. */
+ * its head) into every window that holds it; see the section's comment.
+ * Pair by pair and k by k, a = the first window whose head holds k (it never
+ * decreases with k).  The common case goes in runs, as in run_job_batched:
+ * when s = 1, q is odd and ctz(j) < ctz(m), every modulus has v = t =
+ * ctz(j) and odd part b + step_n k; for the k in [lo, hi) (no window's
+ * exponent beyond 64 bits, |c| < n, E >= t in the deepest window) where
+ * window a holds k with E_a >= t (so no window takes it by slow_term, and the
+ * windows before a do not hold it), the term goes to windows [a, count), and
+ * so do the next k up to the last one with D_a - e k >= t: a whole run is
+ * written by the path's fill, with no branch per term. */
 static void run_comb(const job_t *jb, const comb_t *cm, comb_batch_t *cb, const simd_path_t *path)
 {
     comb_reset(cb);
     const int B = path->batch ? path->batch : 64;
-    const uint64_t extra = 64 * (uint64_t)jb->words, M = UINT64_MAX - extra, e = jb->e;
+    const uint64_t extra = 64 * (uint64_t)jb->words, e = jb->e, m = jb->m, q = jb->q, D = jb->D;
     const uint64_t D0 = cm->D0, step = cm->step;
     const uint32_t count = cm->count;
-    const int words = jb->words;
     int fill = 0;
     for (Py_ssize_t p = 0; p < jb->npairs; p++) {
-        uint32_t a = 0; /* the first window whose head holds k: never decreases with k */
-        for (uint64_t k = jb->k0; k < jb->k1; k++) {
-            const uint64_t ek = e * k; /* <= jb->D: k1 is clipped */
+        const uint64_t j = jb->js[p];
+        const int64_t c0 = jb->cs[p];
+        const int tight = jb->s == 1 && (q & 1) && m != 0 && j != 0 && c0 != 0 && trailing_zeros(j) < trailing_zeros(m);
+        uint64_t t = 0, stepn = 0, b = 0, ca = 0, lo = 0, hi = 0;
+        if (tight) { /* the bounds of run_job_batched's tight loop, for the deepest window */
+            t = (uint64_t)trailing_zeros(j);
+            stepn = q * (m >> t);
+            b = q * (j >> t);
+            ca = c0 < 0 ? (uint64_t)(-c0) : (uint64_t)c0;
+            const uint64_t M = UINT64_MAX - extra;
+            lo = jb->k0;
+            hi = jb->k1;
+            if (D < t)
+                hi = lo;
+            else if (e && (D - t) / e + 1 < hi)
+                hi = (D - t) / e + 1;
+            if (D >= t && D - t > M) {
+                uint64_t need = D - t - M;
+                uint64_t kk = e ? need / e + (need % e != 0) : UINT64_MAX;
+                lo = kk > lo ? kk : lo;
+            }
+            if (b <= ca) {
+                uint64_t kk = (ca - b) / stepn + 1;
+                lo = kk > lo ? kk : lo;
+            }
+        }
+        const uint64_t neg_odd = jb->alternating ? 1 : 0, negc = c0 < 0;
+        uint32_t a = 0;
+        uint64_t k = jb->k0;
+        while (k < jb->k1) {
+            const uint64_t ek = e * k; /* <= D: k1 is clipped */
             while (a < count && D0 + a * step < ek)
                 a++;
             if (a == count)
                 break;
-            const uint64_t base = jb->m * k + jb->js[p];
-            uint64_t N = jb->q;
-            for (unsigned i = 0; i < jb->s; i++)
-                N *= base; /* below 2^63: checked in parse_job */
-            const int v = trailing_zeros(N);
-            const uint64_t odd = N >> v;
-            const int64_t c = jb->alternating && (k & 1) ? -jb->cs[p] : jb->cs[p];
-            uint32_t first = a, stop = count;
-            for (; first < count && D0 + first * step - ek < (uint64_t)v; first++)
-                slow_term(N, D0 + first * step - ek, c, words, cm->acc + (size_t)first * (size_t)words);
-            for (; stop > first && D0 + (stop - 1) * step - ek - v > M; stop--)
-                big_exponent_term(odd, D0 + (stop - 1) * step - ek - v, c, words,
-                                  cm->acc + (size_t)(stop - 1) * (size_t)words);
-            if (first == stop)
+            const uint64_t Ea = D0 + a * step - ek;
+            if (!(tight && k >= lo && k < hi && Ea >= t)) {
+                comb_term(jb, cm, cb, path, B, &fill, k, p, a);
+                k++;
                 continue;
-            batch_t *bt = &cb->bt;
-            bt->n[fill] = odd;
-            bt->f[fill] = D0 + first * step - ek - v + extra;
-            bt->cm[fill] = coeff_mod(c, odd);
-            bt->nmax = odd > bt->nmax ? odd : bt->nmax;
-            bt->fmax = bt->f[fill] > bt->fmax ? bt->f[fill] : bt->fmax;
-            bt->fmin = bt->f[fill] < bt->fmin ? bt->f[fill] : bt->fmin;
-            cb->first[fill] = first;
-            cb->stop[fill] = stop;
-            cb->wmin = first < cb->wmin ? first : cb->wmin;
-            cb->wmax = stop > cb->wmax ? stop : cb->wmax;
-            cb->multi |= stop - first > 1;
-            if (++fill == B) {
-                comb_flush(cb, path, B, cm, words);
-                fill = 0;
+            }
+            uint64_t end = hi; /* the run: the k up to the last with D_a - e k >= t */
+            if (e && (Ea - t) / e + 1 < end - k)
+                end = k + (Ea - t) / e + 1;
+            while (k < end) {
+                batch_t *bt = &cb->bt;
+                uint64_t run = end - k < (uint64_t)(B - fill) ? end - k : (uint64_t)(B - fill);
+                uint64_t n = b + stepn * k, f = D0 + a * step - e * k - t + extra;
+                bt->fmax = f > bt->fmax ? f : bt->fmax;
+                const run_t r = {n, stepn, f, e, ca, negc, neg_odd, k};
+                uint64_t i = path->fill ? path->fill(bt, fill, run, &r) : 0;
+                uint64_t kk = k + i;
+                for (n += stepn * i, f -= e * i; i < run; i++, kk++, n += stepn, f -= e) {
+                    uint64_t neg = negc ^ (neg_odd & kk);
+                    bt->n[fill + i] = n;
+                    bt->f[fill + i] = f;
+                    bt->cm[fill + i] = neg ? n - ca : ca;
+                }
+                for (i = 0; i < run; i++) {
+                    cb->first[fill + i] = a;
+                    cb->stop[fill + i] = count;
+                }
+                bt->nmax = bt->n[fill + run - 1] > bt->nmax ? bt->n[fill + run - 1] : bt->nmax;
+                bt->fmin = bt->f[fill + run - 1] < bt->fmin ? bt->f[fill + run - 1] : bt->fmin;
+                cb->wmin = a < cb->wmin ? a : cb->wmin;
+                cb->wmax = count;
+                cb->first_max = a > cb->first_max ? a : cb->first_max;
+                cb->stop_min = count < cb->stop_min ? count : cb->stop_min;
+                cb->multi |= count - a > 1;
+                fill += (int)run;
+                k += run;
+                if (fill == B) {
+                    comb_flush(cb, path, B, cm, jb->words);
+                    fill = 0;
+                }
             }
         }
     }
@@ -1765,7 +1866,7 @@ static void run_comb(const job_t *jb, const comb_t *cm, comb_batch_t *cb, const 
             cb->bt.cm[l] = 0;
             cb->first[l] = cb->stop[l] = 0;
         }
-        comb_flush(cb, path, B, cm, words);
+        comb_flush(cb, path, B, cm, jb->words);
     }
 }
 
