@@ -44,6 +44,12 @@
  * call): every N < 2^63, 0 <= D < 2^64, |c| < 2^62, 1 <= words <= 16,
  * D - e*(k1-1) >= 0, k0 >= 0, s <= 63, e < 2^32.
  *
+ * head_sum_comb (the twin: head_sum_comb_py) sums the heads of a comb of
+ * windows D_i = D_0 + i step in one pass: a term's residue in window i + 1 is
+ * its residue in window i times 2^step mod n, so after the ladder for the
+ * first window that holds it and one for 2^step, every further window costs
+ * one Montgomery product and its fraction words ("Combs of windows" below).
+ *
  * Portability: plain C99 plus unsigned __int128 for the 64x64-bit product where
  * the compiler has it (else 32-bit halves; -DSPOTCHECK_NO_INT128 forces that
  * path; the vector paths need no 128-bit type), and >> of a
@@ -1565,7 +1571,11 @@ static void run_path(int path, const job_t *jb, uint64_t *acc)
  * 64 terms on ladder64, the 64-bit scalar ladder, and add_fractions), the
  * batch's residues by batch_residues, T by a second batch_residues with
  * f = step + 64 and c = 1, then window by window the words by
- * batch_fractions.  Limits (checked in the glue and in backend.py):
+ * batch_fractions.  On avx2 the products are vector ones below 2^48, with T
+ * = 2^(step + 32) or 2^step mod n (comb_windows_avx2, its bounds beside it);
+ * the AVX-512 paths use the scalar mont_mul with their own ladders and
+ * digits (correct by the same argument; not yet tuned, and not run on the
+ * machines this was written on).  Limits (checked in the glue and in backend.py):
  * those of head_sum with D = D_0 + (count - 1) step, 1 <= count <= MAX_COMB,
  * step < 2^63; the block's k range is clipped to the deepest window's head. */
 
