@@ -1671,8 +1671,74 @@ static void comb_flush(comb_batch_t *cb, const simd_path_t *path, const int B, c
  *     2^49) is exact in (-n, n); adding n to a negative result gives x 2^step
  *     mod n in [0, n).  The residues stay doubles between windows.
  * The fraction words then come from the path's vector digits. */
+/* COMB_MONT32 with the words of each window computed from the residues in
+ * registers, for 1 to 3 words (fractions32_avx2's digits, its loops turned
+ * inside out: the column sums of a word do not depend on the order of the
+ * lanes, and they go into acc word by word with the carry exactly as
+ * there).  The digit d = -r n^-1 mod 2^32 comes from mullo_epi32, which
+ * leaves 0 in the high half of each lane since r < n < 2^32 has a zero high
+ * half: so d needs no mask before it is summed (below 2^32 each, 16 of them
+ * per lane of a column sum). */
+TARGET_AVX2 __attribute__((always_inline)) static inline void comb_mont32_avx2(comb_batch_t *cb, const int words,
+                                                                             const comb_t *cm)
+{
+    batch_t *bt = &cb->bt;
+    const __m256i zero = _mm256_setzero_si256();
+    uint64_t np[BATCH];
+    for (int h = 0; h < 16; h++)
+        _mm256_storeu_si256((__m256i *)(np + 4 * h),
+                            _mm256_sub_epi64(zero, _mm256_loadu_si256((const __m256i *)(bt->ninv + 4 * h))));
+    for (uint32_t w = cb->wmin; w < cb->wmax; w++) {
+        const int all = w >= cb->first_max && w + 1 < cb->stop_min; /* every lane on: no masks */
+        const __m256i W = _mm256_set1_epi64x((int64_t)w), W1 = _mm256_set1_epi64x((int64_t)w + 1);
+        __m256i S[2 * MAX_WORDS];
+        for (int i = 0; i < 2 * words; i++)
+            S[i] = zero;
+        for (int h = 0; h < 16; h++) {
+            const __m256i n = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h));
+            const __m256i NP = _mm256_loadu_si256((const __m256i *)(np + 4 * h));
+            const __m256i x = _mm256_loadu_si256((const __m256i *)(cb->xs + 4 * h));
+            __m256i on = zero, next = zero;
+            if (!all) {
+                const __m256i first = _mm256_loadu_si256((const __m256i *)(cb->first + 4 * h));
+                const __m256i stop = _mm256_loadu_si256((const __m256i *)(cb->stop + 4 * h));
+                on = _mm256_andnot_si256(_mm256_cmpgt_epi64(first, W), _mm256_cmpgt_epi64(stop, W));
+                next = _mm256_and_si256(on, _mm256_cmpgt_epi64(stop, W1));
+            }
+            __m256i t = all ? x : _mm256_and_si256(x, on), d;
+            for (int idx = 0; idx < words; idx++) { /* DIGIT32, n < 2^32 */
+                d = _mm256_mullo_epi32(t, NP); /* t < 2^32: the high half of each lane is 0 */
+                t = _mm256_srli_epi64(_mm256_add_epi64(_mm256_mul_epu32(d, n), t), 32);
+                S[2 * idx] = _mm256_add_epi64(S[2 * idx], d);
+                d = _mm256_mullo_epi32(t, NP);
+                t = _mm256_srli_epi64(_mm256_add_epi64(_mm256_mul_epu32(d, n), t), 32);
+                S[2 * idx + 1] = _mm256_add_epi64(S[2 * idx + 1], d);
+            }
+            /* x 2^step mod n: see comb_windows_avx2 */
+            __m256i p = _mm256_mul_epu32(x, _mm256_loadu_si256((const __m256i *)(cb->T + 4 * h)));
+            __m256i m = _mm256_mul_epu32(p, NP);
+            __m256i y = _mm256_srli_epi64(_mm256_add_epi64(p, _mm256_mul_epu32(m, n)), 32);
+            y = _mm256_min_epu32(y, _mm256_sub_epi32(y, n));
+            _mm256_storeu_si256((__m256i *)(cb->xs + 4 * h), all ? y : _mm256_blendv_epi8(x, y, next));
+        }
+        uint64_t *acc = cm->acc + (size_t)w * (size_t)words, carry = 0;
+        for (int idx = 0; idx < words; idx++)
+            add_column(acc + idx, hsum_avx2(S[2 * idx]), hsum_avx2(S[2 * idx + 1]), &carry);
+    }
+}
+
 TARGET_AVX2 static void comb_windows_avx2(comb_batch_t *cb, int words, const comb_t *cm, int kind)
 {
+    if (kind == COMB_MONT32) { /* words known at compile time for the common precisions */
+        if (words == 1)
+            comb_mont32_avx2(cb, 1, cm);
+        else if (words == 2)
+            comb_mont32_avx2(cb, 2, cm);
+        else if (words == 3)
+            comb_mont32_avx2(cb, 3, cm);
+        if (words <= 3)
+            return;
+    }
     batch_t *bt = &cb->bt;
     const int Hc = 16;
     const __m256i zero = _mm256_setzero_si256();
