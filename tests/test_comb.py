@@ -224,6 +224,11 @@ def test_kernel_comb_limits_are_enforced(change: dict[int, int], error: type[Exc
 
 def test_kernel_comb_limits_match_backend() -> None:
     assert backend.KERNEL_MAX_COMB == _kernel.MAX_COMB == 4096
+    assert backend.KERNEL_MAX_COMB_STEP == _kernel.MAX_COMB_STEP == 2**63 - 1
+    # a step the kernel refuses goes to the twin
+    assert backend.head_block_comb(PI_BBP, 0, 2**63, 2, 0, 3, 2) == head_sum_comb_py(
+        *comb_args(PI_BBP, 0, 2**63, 2, 0, 3, 2)
+    )
     # the largest comb and the last D below 2^64 are accepted
     assert len(_kernel.head_sum_comb(*comb_args(PI_BBP, 100, 4, 4096, 0, 3, 2))) == 4096
     args = comb_args(PI_BBP, 2**64 - 1 - 2 * 7, 7, 3, 0, 3, 2)

@@ -1575,9 +1575,12 @@ static void run_path(int path, const job_t *jb, uint64_t *acc)
  * = 2^(step + 32) or 2^step mod n (comb_windows_avx2, its bounds beside it);
  * the AVX-512 paths use the scalar mont_mul with their own ladders and
  * digits (correct by the same argument; not yet tuned, and not run on the
- * machines this was written on).  Limits (checked in the glue and in backend.py):
- * those of head_sum with D = D_0 + (count - 1) step, 1 <= count <= MAX_COMB,
- * step < 2^63; the block's k range is clipped to the deepest window's head. */
+ * machines this was written on).
+ *
+ * Limits (checked in the glue and in backend.py): those of head_sum with
+ * D = D_0 + (count - 1) step, 1 <= count <= MAX_COMB, step < 2^63
+ * (MAX_COMB_STEP = 2^63 - 1 in Python); the block's k range is clipped to
+ * the deepest window's head. */
 
 #define MAX_COMB 4096
 
@@ -1727,6 +1730,59 @@ TARGET_AVX2 __attribute__((always_inline)) static inline void comb_mont32_avx2(c
     }
 }
 
+/* COMB_FMA with the words computed from the residues in registers, for 1
+ * or 2 words (3 measured slower than comb_windows_avx2's separate passes): the residues stay doubles, each window's digits come from
+ * their integer form by DIGIT_AVX2 (DIGIT32 when every n < 2^32, else
+ * DIGIT64), the column sums go into acc as in comb_mont32_avx2. */
+TARGET_AVX2 __attribute__((always_inline)) static inline void comb_fma_avx2(comb_batch_t *cb, const int words,
+                                                                          const comb_t *cm, const int digit)
+{
+    batch_t *bt = &cb->bt;
+    const __m256i zero = _mm256_setzero_si256(), lo32 = _mm256_set1_epi64x(0xffffffff);
+    __m256d XD[16], TD[16], ND[16], NI[16];
+    uint64_t np[BATCH];
+    for (int h = 0; h < 16; h++) {
+        ND[h] = u52_to_pd_avx2(_mm256_loadu_si256((const __m256i *)(bt->n + 4 * h)));
+        NI[h] = _mm256_div_pd(_mm256_set1_pd(1.0), ND[h]);
+        XD[h] = u52_to_pd_avx2(_mm256_loadu_si256((const __m256i *)(cb->xs + 4 * h)));
+        TD[h] = u52_to_pd_avx2(_mm256_loadu_si256((const __m256i *)(cb->T + 4 * h)));
+        _mm256_storeu_si256((__m256i *)(np + 4 * h),
+                            _mm256_sub_epi64(zero, _mm256_loadu_si256((const __m256i *)(bt->ninv + 4 * h))));
+    }
+    for (uint32_t w = cb->wmin; w < cb->wmax; w++) {
+        const int all = w >= cb->first_max && w + 1 < cb->stop_min; /* every lane on: no masks */
+        const __m256i W = _mm256_set1_epi64x((int64_t)w), W1 = _mm256_set1_epi64x((int64_t)w + 1);
+        __m256i S[2 * MAX_WORDS];
+        for (int i = 0; i < 2 * words; i++)
+            S[i] = zero;
+        for (int h = 0; h < 16; h++) {
+            const __m256i n = _mm256_loadu_si256((const __m256i *)(bt->n + 4 * h)), nh = _mm256_srli_epi64(n, 32);
+            const __m256i NP = _mm256_loadu_si256((const __m256i *)(np + 4 * h));
+            __m256i on = zero, next = zero;
+            if (!all) {
+                const __m256i first = _mm256_loadu_si256((const __m256i *)(cb->first + 4 * h));
+                const __m256i stop = _mm256_loadu_si256((const __m256i *)(cb->stop + 4 * h));
+                on = _mm256_andnot_si256(_mm256_cmpgt_epi64(first, W), _mm256_cmpgt_epi64(stop, W));
+                next = _mm256_and_si256(on, _mm256_cmpgt_epi64(stop, W1));
+            }
+            __m256i t = pd_to_u52_avx2(XD[h]), d;
+            t = all ? t : _mm256_and_si256(t, on);
+            for (int idx = 0; idx < words; idx++) {
+                DIGIT_AVX2(t, d, n, nh, NP, digit);
+                S[2 * idx] = _mm256_add_epi64(S[2 * idx], _mm256_and_si256(d, lo32));
+                DIGIT_AVX2(t, d, n, nh, NP, digit);
+                S[2 * idx + 1] = _mm256_add_epi64(S[2 * idx + 1], _mm256_and_si256(d, lo32));
+            }
+            __m256d r = mulmod_avx2(XD[h], TD[h], ND[h], NI[h]); /* x 2^step mod n: see comb_windows_avx2 */
+            r = _mm256_add_pd(r, _mm256_and_pd(_mm256_cmp_pd(r, _mm256_setzero_pd(), _CMP_LT_OQ), ND[h]));
+            XD[h] = all ? r : _mm256_blendv_pd(XD[h], r, _mm256_castsi256_pd(next));
+        }
+        uint64_t *acc = cm->acc + (size_t)w * (size_t)words, carry = 0;
+        for (int idx = 0; idx < words; idx++)
+            add_column(acc + idx, hsum_avx2(S[2 * idx]), hsum_avx2(S[2 * idx + 1]), &carry);
+    }
+}
+
 TARGET_AVX2 static void comb_windows_avx2(comb_batch_t *cb, int words, const comb_t *cm, int kind)
 {
     if (kind == COMB_MONT32) { /* words known at compile time for the common precisions */
@@ -1738,6 +1794,18 @@ TARGET_AVX2 static void comb_windows_avx2(comb_batch_t *cb, int words, const com
             comb_mont32_avx2(cb, 3, cm);
         if (words <= 3)
             return;
+    }
+    if (kind == COMB_FMA && words <= 2) { /* the digits by the largest modulus, as batch_fractions */
+        const int digit = cb->bt.nmax < ((uint64_t)1 << 32) ? DIGIT32 : DIGIT64;
+        if (words == 1 && digit == DIGIT32)
+            comb_fma_avx2(cb, 1, cm, DIGIT32);
+        else if (words == 1)
+            comb_fma_avx2(cb, 1, cm, DIGIT64);
+        else if (digit == DIGIT32)
+            comb_fma_avx2(cb, 2, cm, DIGIT32);
+        else
+            comb_fma_avx2(cb, 2, cm, DIGIT64);
+        return;
     }
     batch_t *bt = &cb->bt;
     const int Hc = 16;
@@ -2444,6 +2512,15 @@ static struct PyModuleDef kernel_module = {
     -1, kernel_methods, NULL, NULL, NULL, NULL,
 };
 
+/* A module constant from an unsigned 64-bit value; -1 with an exception set on failure. */
+static int add_u64(PyObject *mod, const char *name, uint64_t value)
+{
+    PyObject *obj = PyLong_FromUnsignedLongLong(value);
+    int rc = obj ? PyModule_AddObjectRef(mod, name, obj) : -1;
+    Py_XDECREF(obj);
+    return rc;
+}
+
 PyMODINIT_FUNC PyInit__kernel(void)
 {
     PyObject *mod = PyModule_Create(&kernel_module);
@@ -2459,6 +2536,7 @@ PyMODINIT_FUNC PyInit__kernel(void)
     PyObject *coeff = PyLong_FromLongLong(COEFF_LIMIT);
     if (PyModule_AddStringConstant(mod, "ARITHMETIC", KERNEL_ARITH) ||
         PyModule_AddIntConstant(mod, "MAX_WORDS", MAX_WORDS) || PyModule_AddIntConstant(mod, "MAX_COMB", MAX_COMB) ||
+        add_u64(mod, "MAX_COMB_STEP", ((uint64_t)1 << 63) - 1) ||
         PyModule_AddIntConstant(mod, "LANES", BEST_LANES) || PyModule_AddIntConstant(mod, "STEP", BEST_STEP) ||
         limit == NULL || exponent == NULL || coeff == NULL) {
         Py_XDECREF(limit);

@@ -48,6 +48,7 @@ __all__ = [
     "KERNEL_MAX_COEFFICIENT",
     "KERNEL_MAX_WORDS",
     "KERNEL_MAX_COMB",
+    "KERNEL_MAX_COMB_STEP",
     "Split",
     "head_block",
     "head_block_comb",
@@ -145,8 +146,10 @@ KERNEL_MAX_MODULUS: int = int(getattr(_extension, "MAX_MODULUS", 0))
 KERNEL_MAX_EXPONENT: int = int(getattr(_extension, "MAX_EXPONENT", 0))
 KERNEL_MAX_COEFFICIENT: int = int(getattr(_extension, "MAX_COEFFICIENT", 0))
 KERNEL_MAX_WORDS: int = int(getattr(_extension, "MAX_WORDS", 0))
-# Windows of one call of the kernel's comb entry (longer combs are cut).
+# Windows of one call of the kernel's comb entry (longer combs are cut), and
+# the largest step D_(i+1) - D_i it takes (a longer step goes to the twin).
 KERNEL_MAX_COMB: int = int(getattr(_extension, "MAX_COMB", 0))
+KERNEL_MAX_COMB_STEP: int = int(getattr(_extension, "MAX_COMB_STEP", 0))
 
 
 @functools.lru_cache(maxsize=256)
@@ -286,7 +289,7 @@ def head_block_comb(
         out[start] = head_block(series, big_d0, k0, end, words) if end > k0 else (0, 0)
         return out
     last = big_d0 + (live - 1) * step
-    split = min(max(kernel_split(series, last, words).k_split, k0), k1)
+    split = min(max(kernel_split(series, last, words).k_split, k0), k1) if step <= KERNEL_MAX_COMB_STEP else k0
     args = (series.m, series.s, series.e, series.q, series.alternating, series.js, series.cs)
     sums = [(0, 0)] * live
     if split > k0:
