@@ -289,7 +289,9 @@ def head_block_comb(
         out[start] = head_block(series, big_d0, k0, end, words) if end > k0 else (0, 0)
         return out
     last = big_d0 + (live - 1) * step
-    split = min(max(kernel_split(series, last, words).k_split, k0), k1) if step <= KERNEL_MAX_COMB_STEP else k0
+    split = (
+        min(max(kernel_split(series, last, words).k_split, k0), k1) if step <= KERNEL_MAX_COMB_STEP else k0
+    )
     args = (series.m, series.s, series.e, series.q, series.alternating, series.js, series.cs)
     sums = [(0, 0)] * live
     if split > k0:
