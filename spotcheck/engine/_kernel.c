@@ -2380,6 +2380,7 @@ static PyObject *head_sum_comb_common(PyObject *const *args, int path)
             PyErr_NoMemory();
             goto done;
         }
+        memset(cb->T, 0, sizeof cb->T); /* read (and discarded) by batches that need no T */
         const comb_t cm = {D0, step, (uint32_t)count, acc};
         Py_BEGIN_ALLOW_THREADS
         run_comb_path(path, &jb, &cm, cb);
