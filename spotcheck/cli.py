@@ -352,7 +352,8 @@ def digits(
 
     def per_formula(key: str) -> dict[str, Any]:
         current["checkpoint"] = str(paths[key]) if paths[key] is not None else None
-        return {"checkpoint": paths[key], "block_progress": bar, "estimate": estimates[key]}
+        journal = True if checkpoint == "auto" else paths[key]  # True: the cache folder may be made
+        return {"checkpoint": journal, "block_progress": bar, "estimate": estimates[key]}
 
     def on_term(signum: int, frame: Any) -> None:
         raise KeyboardInterrupt
@@ -506,7 +507,7 @@ def _as_typed(message: str) -> str:
     """Name the file as the user typed it where a library message names it otherwise."""
     names = [os.path.basename(t) for t in _typed_path]
     for typed in reversed(_typed_path):  # compare has two files: the message names one of them
-        others = [str(Path(typed)), str(Path(typed).resolve())]
+        others = [str(Path(typed)), os.path.realpath(typed)]  # realpath: a symlink loop stays unresolved
         if names.count(os.path.basename(typed)) == 1:  # a base name shared by both copies names neither
             others.append(os.path.basename(typed))
         for other in others:

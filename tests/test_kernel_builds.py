@@ -8,8 +8,8 @@ offer what such a machine would get, whatever this machine has.
 
 The other builds are compiled here with the C compiler of this Python (the one
 the install used), and with clang where it is installed, into a temporary
-folder, loaded under their own file name (their static state is their own,
-the installed kernel is untouched), and each path they offer is compared with
+folder, loaded under a module name of their own (their static state is their
+own; the installed kernel stays the one in ``sys.modules``), and each path they offer is compared with
 the twin bit for bit on the same generated calls as `test_kernel.py`. Without the compiler a build is skipped with the
 reason; the dispatch tests need only the installed kernel.
 """
@@ -134,15 +134,33 @@ def other_build(request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPat
     ]
     done = subprocess.run(command, capture_output=True, text=True, check=False)
     assert done.returncode == 0, f"{' '.join(command)}\n{done.stderr}"
-    spec = importlib.util.spec_from_file_location("spotcheck.engine._kernel", target)
-    assert spec is not None and spec.loader is not None
-    module = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(module)
+    module = load_build(target, f"{compiler}-{flags}")
     module.build_name = flags  # type: ignore[attr-defined]
     return module
 
 
+def load_build(target: Path, build: str) -> ModuleType:
+    """The extension at `target`, loaded as a module of its own beside the installed kernel.
+
+    The loader calls the init function named after the last part of the module
+    name (``PyInit__kernel``), so the name ends in ``._kernel``; its first part
+    is the build's own, so no loaded module is replaced (a single-phase
+    extension's init puts the module in ``sys.modules`` under the name it was
+    loaded as).  That entry is removed again: the fixture holds the module."""
+    name = f"_spotcheck_other_build_{build.replace('-', '_')}._kernel"
+    spec = importlib.util.spec_from_file_location(name, target)
+    assert spec is not None and spec.loader is not None
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    sys.modules.pop(name, None)
+    return module
+
+
 def test_other_build_offers_what_its_flags_say(other_build: ModuleType) -> None:
+    # loaded beside the installed kernel, which stays the one every import gets
+    assert other_build is not _kernel and Path(other_build.__file__) != Path(_kernel.__file__)
+    assert sys.modules["spotcheck.engine._kernel"] is _kernel
+    assert importlib.import_module("spotcheck.engine")._kernel is _kernel
     name = other_build.build_name
     assert other_build.ARITHMETIC == ("portable" if "int128" in name else _kernel.ARITHMETIC)
     if "no-simd" in name:

@@ -198,7 +198,7 @@ def open_run(
         if checkpoint and get_constant(facts.constant).evaluation is None:
             request = check_checkpoint_request(facts)  # reads the file's ends once
             path = check_checkpoint_path(facts, request) if checkpoint is True else str(checkpoint)
-            journal = check_journal(path, facts, request)
+            journal = check_journal(path, facts, request, create_folder=checkpoint is True)
     except BaseException:
         df.close()
         raise
@@ -286,15 +286,18 @@ def _legacy_auto_path(facts: FileFacts) -> Path:
     return request_path(label, _legacy_request(facts))
 
 
-def check_journal(path: str, facts: FileFacts, request: dict[str, Any] | None = None) -> Journal:
+def check_journal(
+    path: str, facts: FileFacts, request: dict[str, Any] | None = None, *, create_folder: bool = False
+) -> Journal:
     """The one journal of a check's engine windows (opened, or refused before any work); a journal
-    written by an earlier version for this same file, under its path, is taken too."""
+    written by an earlier version for this same file, under its path, is taken too.  ``create_folder``:
+    make a missing folder (the cache folder of ``checkpoint=True``); else a missing folder is refused."""
     from spotcheck.engine.series import series_of
 
     _, f = resolve_formula(facts.constant, facts.formula)
     if request is None:
         request = check_checkpoint_request(facts)
-    return Journal(path, series_of(f), request, also=(_legacy_request(facts),))
+    return Journal(path, series_of(f), request, also=(_legacy_request(facts),), create_folder=create_folder)
 
 
 ResultT = TypeVar("ResultT", VerifyResult, LocateResult)

@@ -307,11 +307,29 @@ class Utf16Source:
 
 
 def _check_same(path: str, st: os.stat_result, size: int, mtime: int) -> None:
-    if st.st_size != size or st.st_mtime_ns != mtime:
+    """DigitFileError saying what changed (size, modification time) if the file is not as it was opened."""
+    if st.st_size != size:
         raise DigitFileError(
-            f"{path} changed while being read (size {size} -> {st.st_size} bytes); "
-            "is it still being written? Try again once it is complete"
+            f"{path} changed while being read: its size went from {size:,} to {st.st_size:,} bytes "
+            f"(modified at {_clock(st.st_mtime_ns, mtime)}); is it still being written? "
+            "Check it again once it is complete"
         )
+    if st.st_mtime_ns != mtime:
+        raise DigitFileError(
+            f"{path} changed while being read: it was modified again at {_clock(st.st_mtime_ns, mtime)} "
+            f"(before: {_clock(mtime, st.st_mtime_ns)}), its size unchanged at {size:,} bytes, so digits "
+            "may have been changed in place; check it again once nothing writes to it"
+        )
+
+
+def _clock(ns: int, other: int) -> str:
+    """A modification time as local date and time, to the millisecond where ``other`` is in the same second."""
+    import time
+
+    text = time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(ns // 10**9))
+    if ns // 10**9 == other // 10**9:
+        text += f".{ns // 10**6 % 1000:03d}"
+    return text
 
 
 # --- standard input: "-" as the file --------------------------------------------

@@ -266,8 +266,8 @@ def extract(
     elif checkpoint not in (None, False):
         assert not isinstance(checkpoint, bool)
         path = Path(checkpoint)
-    if path is not None and not shared:
-        plan.journal = Journal(path, series, checkpoint_request(name, f, p, n))
+    if path is not None and not shared:  # only the cache folder of checkpoint=True is made when missing
+        plan.journal = Journal(path, series, checkpoint_request(name, f, p, n), create_folder=checkpoint is True)
     client, owned = None, False
     finished = False
     try:

@@ -55,10 +55,11 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import stat
 import tempfile
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from pathlib import Path
-from typing import Any
+from typing import Any, BinaryIO
 
 from spotcheck.engine.blocks import BlockRecord, BlockRequest, block_problem
 from spotcheck.engine.series import Series
@@ -82,6 +83,12 @@ __all__ = [
 JOURNAL_FORMAT = "spotcheck-journal"
 JOURNAL_VERSION = 2
 _CHECKSUM_HEX = 32
+# The longest line a journal holds: a line longer than this is no record of any request, and is
+# read past, never held (a first line: the file is refused; a later one: a damaged record).  The
+# longest true line is a block of a window of MAX_COUNT = 100,000 hex digits: its value has about
+# 6,300 words, 16 hex digits each, about 100 KB (tests/test_journal.py checks the margin); a
+# formula file's first line with a request of thousands of coefficients also fits.
+MAX_LINE_BYTES = 1 << 20
 
 
 def default_checkpoint_dir() -> Path:
@@ -153,8 +160,12 @@ class Journal:
         series: Series,
         request: dict[str, Any],
         also: Sequence[dict[str, Any]] = (),
+        *,
+        create_folder: bool = False,
     ) -> None:
         self.path = Path(path)
+        self.create_folder = create_folder
+        """Whether a missing folder is made (the cache folder of ``auto``); else a missing folder is refused."""
         self.series = series
         self.request = json.loads(json.dumps(request))  # a plain JSON copy
         self.also = [json.loads(json.dumps(r)) for r in also]
@@ -169,12 +180,11 @@ class Journal:
         self._records: dict[tuple[int, int], dict[int, BlockRecord]] = {}
         self._fd: int | None = None
         self._lock_fd: int | None = None
-        if self.path.is_dir():
-            raise self._refuse("it is a directory")
+        exists = self._examine()
         try:
-            if self.path.exists():
+            if exists:
                 self._take_lock()  # before reading: no other run is writing it meanwhile
-            valid_length = self._load() if self.path.exists() else None
+            valid_length = self._load() if exists else None
             self._open_for_append(valid_length)
             if self._lock_fd is None:
                 self._take_lock()  # a file this run made
@@ -183,6 +193,46 @@ class Journal:
             raise
         self.loaded = self.blocks_kept
 
+    def _examine(self) -> bool:
+        """Whether the file exists; CheckpointError unless it is a regular file, or a new file whose
+        folder exists (or may be made: ``create_folder``).  Nothing is read or made here."""
+        try:
+            st = os.stat(self.path)
+        except FileNotFoundError:
+            st = None
+        except NotADirectoryError:
+            raise self._unwritable(f"{self._blocker()} is not a folder") from None
+        except OSError as exc:  # no permission to look in a folder on the way, a symbolic-link loop
+            raise self._refuse(f"it cannot be reached ({exc.strerror or exc})") from None
+        if st is not None:
+            if stat.S_ISDIR(st.st_mode):
+                raise self._refuse("it is a directory")
+            if not stat.S_ISREG(st.st_mode):
+                raise self._refuse(f"it is {_kind(st.st_mode)}, not a regular file")
+            return True
+        folder = self.path.parent
+        try:
+            folder_is_dir = stat.S_ISDIR(os.stat(folder).st_mode)
+        except FileNotFoundError:
+            if self.create_folder:
+                return False
+            raise self._unwritable(f"its folder {folder} does not exist") from None
+        except OSError as exc:
+            raise self._refuse(f"its folder {folder} cannot be reached ({exc.strerror or exc})") from None
+        if not folder_is_dir:
+            raise self._unwritable(f"{folder} is not a folder")
+        return False
+
+    def _blocker(self) -> Path:
+        """The first folder on the way to the file that is not a folder (the path's own folder if none is found)."""
+        for p in reversed(self.path.parents):
+            try:
+                if not stat.S_ISDIR(os.stat(p).st_mode):
+                    return p
+            except OSError:
+                break
+        return self.path.parent
+
     def _take_lock(self) -> None:
         """Hold an exclusive lock on the journal file until :meth:`close` (CheckpointError if another
         run holds one).  A file replaced meanwhile (another run's compaction) is locked afresh."""
@@ -190,9 +240,13 @@ class Journal:
             return
         for _ in range(8):
             try:
-                fd = os.open(self.path, os.O_RDONLY)
+                fd = os.open(self.path, os.O_RDONLY | os.O_NONBLOCK)  # a FIFO put there meanwhile: no wait
             except OSError as exc:
                 raise self._refuse(f"it cannot be read ({exc.strerror or exc})") from None
+            mode = os.fstat(fd).st_mode
+            if not stat.S_ISREG(mode):
+                os.close(fd)
+                raise self._refuse(f"it is {_kind(mode)}, not a regular file")
             try:
                 fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
             except BlockingIOError:
@@ -218,19 +272,36 @@ class Journal:
     def _refuse(self, why: str) -> CheckpointError:
         return CheckpointError(f"checkpoint {self.path} refused: {why}")
 
+    def _unwritable(self, why: str) -> CheckpointError:
+        return CheckpointError(f"checkpoint {self.path} cannot be written: {why}")
+
     def _load(self) -> int:
-        """Read the file; return the length of its complete lines (a torn tail excluded)."""
+        """Read the file; return the length of its complete lines (a torn tail excluded).
+
+        Reading is bounded: no more bytes than the file's size when opened (a file that goes on
+        giving bytes is refused), and no line longer than :data:`MAX_LINE_BYTES` is held."""
         try:
-            data = self.path.read_bytes()
+            with open(self.path, "rb", opener=_nonblocking) as fh:
+                st = os.fstat(fh.fileno())
+                if not stat.S_ISREG(st.st_mode):
+                    raise self._refuse(f"it is {_kind(st.st_mode)}, not a regular file")
+                lines, cut = _complete_lines(fh, st.st_size)
+                valid_length = self._take_lines(lines, cut)
+                if fh.read(1):
+                    raise self._refuse(
+                        f"it holds more than the {st.st_size:,} bytes its size says (not an ordinary file)"
+                    )
+                return valid_length
         except OSError as exc:
             raise self._refuse(f"it cannot be read ({exc.strerror or exc})") from None
-        cut = data.rfind(b"\n") + 1
-        lines = data[:cut].split(b"\n")[:-1]
-        if not lines:
-            if data:
+
+    def _take_lines(self, lines: Iterator[bytes | None], cut: list[int]) -> int:
+        first = next(lines, False)
+        if first is False:
+            if cut[1]:
                 raise self._refuse("not a spotcheck checkpoint file (no complete first line)")
             return 0
-        header = parse_line(lines[0])
+        header = parse_line(first) if isinstance(first, bytes) else None
         if header is None or header.get("format") != JOURNAL_FORMAT:
             raise self._refuse("not a spotcheck checkpoint file, or its first line is damaged")
         if header.get("version") != JOURNAL_VERSION:
@@ -244,8 +315,8 @@ class Journal:
             raise self._refuse(
                 f"it belongs to another request ({theirs}, not {ours}); use another file or delete it"
             )
-        for number, raw in enumerate(lines[1:], start=2):
-            obj = parse_line(raw)
+        for number, raw in enumerate(lines, start=2):
+            obj = parse_line(raw) if raw is not None else None  # None: a line too long to be a record
             if obj is None:
                 self.damaged += 1
                 continue
@@ -260,7 +331,7 @@ class Journal:
                 if isinstance(exc, CheckpointError):
                     raise
                 raise self._refuse(f"line {number} is malformed ({exc!r})") from None
-        return cut
+        return cut[0]
 
     def _load_section(self, section: Any) -> None:
         d, words, block_k = (
@@ -328,7 +399,8 @@ class Journal:
                 {"format": JOURNAL_FORMAT, "version": JOURNAL_VERSION, "request": self.request}
             )
             if valid_length is None:  # a new file, made whole with its first line, durable before any work
-                self.path.parent.mkdir(parents=True, exist_ok=True)
+                if self.create_folder:
+                    self.path.parent.mkdir(parents=True, exist_ok=True)
                 if not _write_new(self.path, header):
                     raise self._refuse(
                         "another spotcheck run created it at the same moment; let that run end"
@@ -342,10 +414,9 @@ class Journal:
         except OSError as exc:
             self._fd = None
             why = exc.strerror or str(exc)
-            blocker = next((p for p in self.path.parents if p.exists() and not p.is_dir()), None)
-            if blocker is not None:
-                why = f"{blocker} is not a folder"
-            raise CheckpointError(f"checkpoint {self.path} cannot be written: {why}") from None
+            if isinstance(exc, NotADirectoryError):
+                why = f"{self._blocker()} is not a folder"
+            raise self._unwritable(why) from None
 
     def _append(self, text: str) -> None:
         if self._fd is None:
@@ -428,6 +499,52 @@ class Journal:
     def _stop_quietly(self) -> None:
         self._stop_fd()
         self._unlock()
+
+
+def _kind(mode: int) -> str:
+    """What a file that is not a regular file is, in words."""
+    if stat.S_ISCHR(mode) or stat.S_ISBLK(mode):
+        return "a device"
+    if stat.S_ISFIFO(mode):
+        return "a pipe"
+    if stat.S_ISSOCK(mode):
+        return "a socket"
+    return "not a file of data"
+
+
+def _nonblocking(path: str, flags: int) -> int:
+    return os.open(path, flags | os.O_NONBLOCK)
+
+
+def _complete_lines(fh: BinaryIO, size: int) -> tuple[Iterator[bytes | None], list[int]]:
+    """The complete lines of the first ``size`` bytes of ``fh`` (without their newlines), one at a
+    time; a line longer than :data:`MAX_LINE_BYTES` is read past and given as ``None``.  The list
+    holds, once the lines are consumed, the length of the complete lines and the length of a torn
+    tail (bytes after the last newline)."""
+    cut = [0, 0]
+
+    def lines() -> Iterator[bytes | None]:
+        left = size
+        while left > 0:
+            raw = fh.readline(min(left, MAX_LINE_BYTES + 1))
+            if not raw:
+                break
+            left -= len(raw)
+            length, whole = len(raw), raw.endswith(b"\n")
+            while not whole and left > 0:  # no newline within MAX_LINE_BYTES: read past the line
+                more = fh.readline(min(left, 1 << 16))
+                if not more:
+                    break
+                left -= len(more)
+                length += len(more)
+                whole = more.endswith(b"\n")
+            if not whole:  # the file ends inside this line: a torn tail
+                cut[1] = length
+                return
+            cut[0] += length
+            yield raw[:-1] if length <= MAX_LINE_BYTES else None
+
+    return lines(), cut
 
 
 def _synced_temp(path: Path, text: str) -> str:
