@@ -267,7 +267,9 @@ def extract(
         assert not isinstance(checkpoint, bool)
         path = Path(checkpoint)
     if path is not None and not shared:  # only the cache folder of checkpoint=True is made when missing
-        plan.journal = Journal(path, series, checkpoint_request(name, f, p, n), create_folder=checkpoint is True)
+        plan.journal = Journal(
+            path, series, checkpoint_request(name, f, p, n), create_folder=checkpoint is True
+        )
     client, owned = None, False
     finished = False
     try:

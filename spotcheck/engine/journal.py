@@ -83,11 +83,11 @@ __all__ = [
 JOURNAL_FORMAT = "spotcheck-journal"
 JOURNAL_VERSION = 2
 _CHECKSUM_HEX = 32
-# The longest line a journal holds: a line longer than this is no record of any request, and is
-# read past, never held (a first line: the file is refused; a later one: a damaged record).  The
-# longest true line is a block of a window of MAX_COUNT = 100,000 hex digits: its value has about
-# 6,300 words, 16 hex digits each, about 100 KB (tests/test_journal.py checks the margin); a
-# formula file's first line with a request of thousands of coefficients also fits.
+# The longest line a journal holds: a line longer than this is no record of any request, so the
+# file is refused there (nothing more is read, nothing longer is held).  A block line is about
+# 1.1 KB at most (its value is below 2^(64 words), words at most evaluate.MAX_WORDS = 64: 1,024
+# hex digits); the first line names the request, which a formula file's formula with thousands of
+# coefficients makes long.  1 MiB holds both with a wide margin (tests/test_cli_bad_input.py).
 MAX_LINE_BYTES = 1 << 20
 
 
@@ -279,7 +279,8 @@ class Journal:
         """Read the file; return the length of its complete lines (a torn tail excluded).
 
         Reading is bounded: no more bytes than the file's size when opened (a file that goes on
-        giving bytes is refused), and no line longer than :data:`MAX_LINE_BYTES` is held."""
+        giving bytes is refused), and no line longer than :data:`MAX_LINE_BYTES` (the file is
+        refused there)."""
         try:
             with open(self.path, "rb", opener=_nonblocking) as fh:
                 st = os.fstat(fh.fileno())
@@ -301,7 +302,11 @@ class Journal:
             if cut[1]:
                 raise self._refuse("not a spotcheck checkpoint file (no complete first line)")
             return 0
-        header = parse_line(first) if isinstance(first, bytes) else None
+        if first is None:
+            raise self._refuse(
+                "not a spotcheck checkpoint file (its first line is longer than any checkpoint line)"
+            )
+        header = parse_line(first)
         if header is None or header.get("format") != JOURNAL_FORMAT:
             raise self._refuse("not a spotcheck checkpoint file, or its first line is damaged")
         if header.get("version") != JOURNAL_VERSION:
@@ -316,7 +321,11 @@ class Journal:
                 f"it belongs to another request ({theirs}, not {ours}); use another file or delete it"
             )
         for number, raw in enumerate(lines, start=2):
-            obj = parse_line(raw) if raw is not None else None  # None: a line too long to be a record
+            if raw is None:
+                raise self._refuse(
+                    f"line {number} is longer than any checkpoint record; not a checkpoint file"
+                )
+            obj = parse_line(raw)
             if obj is None:
                 self.damaged += 1
                 continue
@@ -518,9 +527,9 @@ def _nonblocking(path: str, flags: int) -> int:
 
 def _complete_lines(fh: BinaryIO, size: int) -> tuple[Iterator[bytes | None], list[int]]:
     """The complete lines of the first ``size`` bytes of ``fh`` (without their newlines), one at a
-    time; a line longer than :data:`MAX_LINE_BYTES` is read past and given as ``None``.  The list
-    holds, once the lines are consumed, the length of the complete lines and the length of a torn
-    tail (bytes after the last newline)."""
+    time; a line longer than :data:`MAX_LINE_BYTES` is given as ``None``, and nothing after it is
+    read.  The list holds, once the lines are consumed, the length of the complete lines and the
+    length of a torn tail (bytes after the last newline)."""
     cut = [0, 0]
 
     def lines() -> Iterator[bytes | None]:
@@ -528,21 +537,16 @@ def _complete_lines(fh: BinaryIO, size: int) -> tuple[Iterator[bytes | None], li
         while left > 0:
             raw = fh.readline(min(left, MAX_LINE_BYTES + 1))
             if not raw:
-                break
-            left -= len(raw)
-            length, whole = len(raw), raw.endswith(b"\n")
-            while not whole and left > 0:  # no newline within MAX_LINE_BYTES: read past the line
-                more = fh.readline(min(left, 1 << 16))
-                if not more:
-                    break
-                left -= len(more)
-                length += len(more)
-                whole = more.endswith(b"\n")
-            if not whole:  # the file ends inside this line: a torn tail
-                cut[1] = length
                 return
-            cut[0] += length
-            yield raw[:-1] if length <= MAX_LINE_BYTES else None
+            left -= len(raw)
+            if not raw.endswith(b"\n"):
+                if len(raw) > MAX_LINE_BYTES:
+                    yield None
+                else:  # the file ends inside this line: a torn tail
+                    cut[1] = len(raw)
+                return
+            cut[0] += len(raw)
+            yield raw[:-1]
 
     return lines(), cut
 
