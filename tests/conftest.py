@@ -6,7 +6,8 @@
   nothing is set up twice); ``random`` or ``random:SEED``, shuffled (the files,
   the tests and classes in each file, the tests in each class), then regrouped
   by pytest for its parametrized module fixtures.  The header names the
-  order and the seed; ``SPOTCHECK_TEST_ORDER=random:SEED`` repeats a run.
+  order and the seed (so does the end of the run, for ``-q``);
+  ``SPOTCHECK_TEST_ORDER=random:SEED`` repeats a run.
   ``.ci/run`` runs the fast suite once in reverse and once shuffled, so a test
   that works only after (or before) another fails there.
 * After every test, each ``spotcheck`` module loaded when collection ended must
@@ -58,10 +59,8 @@ def pytest_report_header(config):  # noqa: ARG001 - pytest hook signature
         f"spotcheck head-sum kernel: {backend.BACKEND_NOTE}",
         f"spotcheck digit-file loops: {backend.digitfile_loops().note}",
     ]
-    if ORDER == "reverse":
-        lines.append("test order: reversed (SPOTCHECK_TEST_ORDER=reverse)")
-    elif ORDER == "random":
-        lines.append(f"test order: shuffled with seed {SEED} (SPOTCHECK_TEST_ORDER=random:{SEED} repeats it)")
+    if ORDER:
+        lines.append(f"test order: {_order_words()}")
     try:
         from spotcheck.engine import _kernel  # type: ignore[attr-defined]
     except ImportError:
@@ -72,6 +71,18 @@ def pytest_report_header(config):  # noqa: ARG001 - pytest hook signature
     for name, why in _kernel.unavailable_paths().items():
         lines.append(f"kernel path {name} skipped: {why}")
     return lines
+
+
+def pytest_terminal_summary(terminalreporter) -> None:
+    """The order again at the end (``-q`` prints no header)."""
+    if ORDER:
+        terminalreporter.write_line(f"test order: {_order_words()}")
+
+
+def _order_words() -> str:
+    if ORDER == "reverse":
+        return "reversed (SPOTCHECK_TEST_ORDER=reverse)"
+    return f"shuffled with seed {SEED} (SPOTCHECK_TEST_ORDER=random:{SEED} repeats it)"
 
 
 @pytest.hookimpl(tryfirst=True)
