@@ -34,6 +34,7 @@ from __future__ import annotations
 
 import os
 import re
+import stat
 import tomllib
 from collections.abc import Mapping
 from fractions import Fraction
@@ -61,6 +62,9 @@ MAX_SCALE_EXPONENT = 4096  # largest |n| in a scale written with 2^n
 MAX_LEADING_DIGITS = 256  # longest leading_digits string (hex digits after the point)
 AGREEMENT_DIGITS = 32  # hex digits every formula of one constant must share
 SIGN_BITS = 256  # fixed-point bits of the first evaluation, which settles the sign
+MAX_FORMULA_FILE_BYTES = (
+    4 << 20
+)  # a file of a few constants, even with thousands of coefficients, is far smaller
 # -----------------------------------------------------------------------------
 
 _CONSTANT_KEYS = {"name", "title", "aliases", "source", "leading_digits", "formula"}
@@ -69,6 +73,10 @@ _NAME = re.compile(r"[a-z][a-z0-9_-]{0,63}")
 _FACTOR = r"(\d+)(?:\s*\^\s*([+-]?\d+))?"
 _SCALE = re.compile(rf"\s*([+-])?\s*{_FACTOR}\s*(?:/\s*{_FACTOR})?\s*")
 _LEADING = re.compile(r"(?:([0-9A-Fa-f]+)\.)?([0-9A-Fa-f]+)")
+
+
+def _nonblocking(path: str, flags: int) -> int:
+    return os.open(path, flags | os.O_NONBLOCK)  # a pipe given as the file: no wait for a writer
 
 
 def load_formula_file(path: str | Path) -> list[Constant]:
@@ -80,11 +88,21 @@ def load_formula_file(path: str | Path) -> list[Constant]:
     """
     p = Path(path)
     try:
-        raw = p.read_bytes()
+        with open(p, "rb", opener=_nonblocking) as f:
+            st = os.fstat(f.fileno())
+            if stat.S_ISDIR(st.st_mode):
+                raise IsADirectoryError
+            if not stat.S_ISREG(st.st_mode):
+                raise FileAccessError(f"{p}: not a regular file, not a formula file")
+            raw = f.read(MAX_FORMULA_FILE_BYTES + 1)
     except IsADirectoryError:
         raise FileAccessError(f"{p}: is a directory, not a formula file") from None
     except OSError as exc:
+        if isinstance(exc, FileAccessError):
+            raise
         raise FileAccessError(f"{p}: cannot read formula file ({exc.strerror or exc})") from None
+    if len(raw) > MAX_FORMULA_FILE_BYTES:
+        raise FormulaError(f"{p}: longer than any formula file (more than {MAX_FORMULA_FILE_BYTES:,} bytes)")
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:

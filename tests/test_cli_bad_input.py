@@ -8,7 +8,9 @@ line and exit 2, with its exact words.
   under a regular file);
 * a checkpoint in a folder that does not exist (it was made silently; only ``auto`` makes
   its cache folder);
-* a digit file changed while a check reads it: the message says what changed.
+* a digit file changed while a check reads it: the message says what changed;
+* a formula file that is a device, a pipe or larger than any formula file (read until memory
+  ran out before).
 """
 
 from __future__ import annotations
@@ -26,6 +28,7 @@ from spotcheck.digitfile import source
 from spotcheck.engine.api import checkpoint_request
 from spotcheck.engine.evaluate import MAX_WORDS
 from spotcheck.engine.journal import MAX_LINE_BYTES, journal_line
+from spotcheck.formula_file import MAX_FORMULA_FILE_BYTES
 from spotcheck.formulas import BUILTIN_CONSTANTS
 
 SAMPLES = Path(__file__).resolve().parents[1] / "samples"
@@ -321,3 +324,26 @@ def test_a_file_growing_during_a_check(capsys, edited_during_the_check) -> None:
         f"error: pi.txt changed while being read: its size went from {size:,} to {size + 17:,} bytes "
         "(modified at 2026-12-05 10:00:07); is it still being written? Check it again once it is complete"
     )
+
+
+# --- a formula file that is not one --------------------------------------------------------
+
+
+@pytest.mark.parametrize("kind", ["device", "pipe", "huge"])
+def test_a_formula_file_that_is_no_file_of_text_is_refused_at_once(capsys, tmp_path: Path, kind: str) -> None:
+    """/dev/zero as a formula file was read until memory ran out."""
+    if kind == "device":
+        path = Path("/dev/zero")
+        if not path.exists():
+            pytest.skip("no /dev/zero here")
+        want = f"error: {path}: not a regular file, not a formula file"
+    elif kind == "pipe":
+        path = tmp_path / "fifo"
+        os.mkfifo(path)
+        want = f"error: {path}: not a regular file, not a formula file"
+    else:
+        path = sparse(tmp_path / "huge.toml", 1 << 40)
+        want = f"error: {path}: longer than any formula file (more than {MAX_FORMULA_FILE_BYTES:,} bytes)"
+    code, line = cli(capsys, "constants", "--formula-file", path)
+    assert code == 2
+    assert line == want

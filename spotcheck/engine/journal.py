@@ -302,7 +302,7 @@ class Journal:
             if cut[1]:
                 raise self._refuse("not a spotcheck checkpoint file (no complete first line)")
             return 0
-        if first is None:
+        if not isinstance(first, bytes):  # None: longer than MAX_LINE_BYTES
             raise self._refuse(
                 "not a spotcheck checkpoint file (its first line is longer than any checkpoint line)"
             )
