@@ -76,7 +76,9 @@ _LEADING = re.compile(r"(?:([0-9A-Fa-f]+)\.)?([0-9A-Fa-f]+)")
 
 
 def _nonblocking(path: str, flags: int) -> int:
-    return os.open(path, flags | os.O_NONBLOCK)  # a pipe given as the file: no wait for a writer
+    return os.open(
+        path, flags | getattr(os, "O_NONBLOCK", 0)
+    )  # a pipe given as the file: no wait for a writer
 
 
 def load_formula_file(path: str | Path) -> list[Constant]:

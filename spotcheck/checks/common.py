@@ -273,9 +273,9 @@ def check_checkpoint_path(facts: FileFacts, request: dict[str, Any] | None = Non
     :func:`check_checkpoint_request`, when the caller has it."""
     label = f"{facts.constant}-{facts.formula}-n{facts.checked}"
     path = request_path(label, request if request is not None else check_checkpoint_request(facts))
-    if not path.exists():
+    if not os.path.exists(path):  # never raises: a path that cannot be looked at is the journal's to refuse
         old = _legacy_auto_path(facts)
-        if old.exists():
+        if os.path.exists(old):
             return str(old)
     return str(path)
 

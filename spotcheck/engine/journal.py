@@ -240,7 +240,7 @@ class Journal:
             return
         for _ in range(8):
             try:
-                fd = os.open(self.path, os.O_RDONLY | os.O_NONBLOCK)  # a FIFO put there meanwhile: no wait
+                fd = os.open(self.path, os.O_RDONLY | _O_NONBLOCK)  # a FIFO put there meanwhile: no wait
             except OSError as exc:
                 raise self._refuse(f"it cannot be read ({exc.strerror or exc})") from None
             mode = os.fstat(fd).st_mode
@@ -518,11 +518,14 @@ def _kind(mode: int) -> str:
         return "a pipe"
     if stat.S_ISSOCK(mode):
         return "a socket"
-    return "not a file of data"
+    return "a special file"
+
+
+_O_NONBLOCK = getattr(os, "O_NONBLOCK", 0)
 
 
 def _nonblocking(path: str, flags: int) -> int:
-    return os.open(path, flags | os.O_NONBLOCK)
+    return os.open(path, flags | _O_NONBLOCK)
 
 
 def _complete_lines(fh: BinaryIO, size: int) -> tuple[Iterator[bytes | None], list[int]]:
