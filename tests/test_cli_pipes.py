@@ -141,6 +141,7 @@ def test_a_truncated_labelled_file_is_reported_by_verify_and_inspect_shows_its_e
 @pytest.mark.parametrize("command", ["verify", "locate"])
 def test_checkpoint_takes_a_file_or_auto(capsys, tmp_path, command: str) -> None:
     where = tmp_path / "ck" / "journal"
+    where.parent.mkdir()  # a named checkpoint's folder must exist (only auto makes its own)
     args = [command, str(SAMPLES / "pi-hex-astray.txt"), "--budget", "0", "--checkpoint", str(where)]
     assert run(args) == 1
     capsys.readouterr()
