@@ -173,6 +173,17 @@ def test_a_symlink_loop_as_checkpoint(capsys, tmp_path: Path) -> None:
     assert line == f"error: checkpoint {loop} refused: it cannot be reached ({os.strerror(errno.ELOOP)})"
 
 
+def test_a_dangling_symlink_as_checkpoint(capsys, tmp_path: Path) -> None:
+    dangling = tmp_path / "dangling"
+    os.symlink(tmp_path / "nothing", dangling)
+    code, line = cli(capsys, *COMMANDS["digits"], "--checkpoint", dangling)
+    assert code == 2
+    assert (
+        line == f"error: checkpoint {dangling} refused: it is a symbolic link to a file that does not exist"
+    )
+    assert not (tmp_path / "nothing").exists()
+
+
 # --- a checkpoint path that cannot be looked at --------------------------------------------
 
 

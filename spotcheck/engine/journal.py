@@ -199,6 +199,8 @@ class Journal:
         try:
             st = os.stat(self.path)
         except FileNotFoundError:
+            if os.path.lexists(self.path):  # a symbolic link to nothing: a new file cannot take its name
+                raise self._refuse("it is a symbolic link to a file that does not exist") from None
             st = None
         except NotADirectoryError:
             raise self._unwritable(f"{self._blocker()} is not a folder") from None
