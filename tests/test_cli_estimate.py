@@ -32,7 +32,7 @@ def test_the_tail_window_estimate_is_said_and_in_json(
     err = capsys.readouterr().err
     line = next(ln for ln in err.splitlines() if ln.startswith("deepest window"))
     assert f"position {N - 15:,}" in line and "head terms" in line
-    assert "path: compiled kernel" in line or "path: pure twin" in line
+    assert "path: compiled kernel" in line or "path: pure-Python path" in line
     assert run([command, pi_file, "--budget", "0", "--json"]) in (0, 3)
     est = json.loads(capsys.readouterr().out)["tail_estimate"]
     assert est["position"] == N - 15 and est["count"] == 16 and est["terms"] > 0 and est["feasible"]
