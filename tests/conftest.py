@@ -96,7 +96,7 @@ def pytest_collection_modifyitems(items: list[pytest.Item]) -> None:
     rng = random.Random(SEED)
     files: dict[object, dict[object, list[pytest.Item]]] = {}
     for item in items:
-        files.setdefault(item.path, {}).setdefault(item.cls or item, []).append(item)
+        files.setdefault(item.path, {}).setdefault(getattr(item, "cls", None) or item, []).append(item)
     blocks = [list(groups.values()) for groups in files.values()]
     rng.shuffle(blocks)
     items[:] = []
