@@ -481,13 +481,6 @@ def _base(base: int | None) -> int | None:
     return base
 
 
-def _check_checkpoint(value: str | None) -> bool | str:
-    """``--checkpoint`` of a check: ``auto`` -> True (the cache-directory rule), else the journal file."""
-    if value is None:
-        return False
-    return True if value == "auto" else value
-
-
 def _checkpoint_printer(silent: bool) -> Callable[[str], None]:
     """Say which checkpoint file a check keeps (as ``digits`` does)."""
 
@@ -619,6 +612,43 @@ def _silence_stdout() -> None:
         pass
 
 
+def _run_check(ctx: Any, command: str, file: str, given: dict[str, Any], **only: Any) -> None:
+    """What ``verify``, ``locate`` and ``scan`` share: one request from the options, one library
+    call under a progress bar, the report and the exit code.  ``given`` holds the command's
+    parameters; ``only`` the fields of this command alone (the seed it chose among them)."""
+    from spotcheck.checks import CheckRequest, locate_file, scan_file, verify_file
+    from spotcheck.report.console import progress_bar
+
+    _typed_path.append(file)
+    _load_formula_files(given.get("formula_file"))
+    silent = bool(given.get("quiet") or given.get("as_json"))
+    checkpoint = given.get("checkpoint")
+    with progress_bar(command, enabled=not silent) as cb:
+        request = CheckRequest(
+            base=_base(given.get("base")),
+            constant=given.get("constant"),
+            formula=given.get("formula"),
+            labels=given.get("labels"),
+            ignore_labels=bool(given.get("ignore_labels")),
+            limit=given.get("limit"),
+            window=given.get("window", 16),
+            full_seconds=given.get("budget"),
+            reference=given.get("reference", "arb"),
+            workers=_workers(given.get("workers")),
+            cluster=given.get("cluster"),
+            checkpoint=False if checkpoint is None else True if checkpoint == "auto" else checkpoint,
+            progress=cb,
+            on_estimate=_estimate_printer(silent),
+            on_checkpoint=_checkpoint_printer(silent),
+            **only,
+        )
+        check = {"verify": verify_file, "locate": locate_file, "scan": scan_file}[command]
+        result = check(str(file), request)
+    chosen = {"seed": only["seed"]} if "seed" in only else {}
+    repeat = _repeat_from(ctx, command, file, **chosen)
+    _finish(result, repeat, bool(given.get("as_json")), bool(given.get("quiet")))
+
+
 @app.command()
 def verify(
     ctx: typer.Context,
@@ -677,39 +707,19 @@ def verify(
     quiet: QuietOpt = False,
 ) -> None:
     """Check FILE: every digit when a full comparison fits --budget, else tail, head and random windows."""
-    _typed_path.append(file)
     import secrets
 
-    from spotcheck.checks import verify_file
-    from spotcheck.report.console import progress_bar
-
-    _load_formula_files(formula_file)
     seed = secrets.randbits(32) if seed is None else seed
-    with progress_bar("verify", enabled=not (quiet or as_json)) as cb:
-        result = verify_file(
-            str(file),
-            on_estimate=_estimate_printer(quiet or as_json),
-            base=_base(base),
-            constant=constant,
-            formula=formula,
-            samples=samples,
-            seed=seed,
-            at=at or (),
-            window=window,
-            budget=budget,
-            sample_seconds=sample_seconds,
-            reference=reference,
-            workers=_workers(workers),
-            limit=limit,
-            ignore_labels=ignore_labels,
-            labels=labels,
-            cluster=cluster,
-            checkpoint=_check_checkpoint(checkpoint),
-            on_checkpoint=_checkpoint_printer(quiet or as_json),
-            progress=cb,
-        )
-    repeat = _repeat_from(ctx, "verify", file, seed=seed)
-    _finish(result, repeat, as_json, quiet)
+    _run_check(
+        ctx,
+        "verify",
+        file,
+        locals(),
+        samples=samples,
+        seed=seed,
+        at=tuple(at or ()),
+        sample_seconds=sample_seconds,
+    )
 
 
 @app.command()
@@ -740,33 +750,8 @@ def locate(
     as_json: JsonOpt = False,
     quiet: QuietOpt = False,
 ) -> None:
-    """Find the first wrong digit of FILE (1-based position), with expected and found digits."""
-    _typed_path.append(file)
-    from spotcheck.checks import locate_file
-    from spotcheck.report.console import progress_bar
-
-    _load_formula_files(formula_file)
-    with progress_bar("locate", enabled=not (quiet or as_json)) as cb:
-        result = locate_file(
-            str(file),
-            on_estimate=_estimate_printer(quiet or as_json),
-            base=_base(base),
-            constant=constant,
-            formula=formula,
-            window=window,
-            budget=budget,
-            reference=reference,
-            workers=_workers(workers),
-            limit=limit,
-            ignore_labels=ignore_labels,
-            labels=labels,
-            cluster=cluster,
-            checkpoint=_check_checkpoint(checkpoint),
-            on_checkpoint=_checkpoint_printer(quiet or as_json),
-            progress=cb,
-        )
-    repeat = _repeat_from(ctx, "locate", file)
-    _finish(result, repeat, as_json, quiet)
+    """Find the first wrong digit of FILE (its position), with expected and found digits."""
+    _run_check(ctx, "locate", file, locals())
 
 
 @app.command()
@@ -785,25 +770,7 @@ def scan(
     quiet: QuietOpt = False,
 ) -> None:
     """Compare every digit of FILE with an independent full computation."""
-    _typed_path.append(file)
-    from spotcheck.checks import scan_file
-    from spotcheck.report.console import progress_bar
-
-    _load_formula_files(formula_file)
-    with progress_bar("scan", enabled=not (quiet or as_json)) as cb:
-        result = scan_file(
-            str(file),
-            base=_base(base),
-            constant=constant,
-            reference=reference,
-            limit=limit,
-            ignore_labels=ignore_labels,
-            labels=labels,
-            workers=_workers(workers),
-            progress=cb,
-        )
-    repeat = _repeat_from(ctx, "scan", file)
-    _finish(result, repeat, as_json, quiet)
+    _run_check(ctx, "scan", file, locals())
 
 
 @app.command()

@@ -66,13 +66,13 @@ def test_clean_file_passes_all_three(clean) -> None:
     full = verify_file(str(clean), samples=6, seed=11)  # a full comparison fits the default budget
     assert full.exit_code == 0 and full.exhaustive and full.reference == "arb"
     assert full.covered == [(1, N)] and full.scattered_bound is None
-    v = verify_file(str(clean), samples=6, seed=11, budget=0)  # windows only
+    v = verify_file(str(clean), samples=6, seed=11, full_seconds=0)  # windows only
     assert v.exit_code == 0 and v.verdict == "match" and not v.exhaustive
     assert {c.kind for c in v.checks} >= {"head", "tail", "sample", "integer-part"}
     assert v.file.constant == "pi" and v.file.count == N
     assert v.tail_position == N - 15
     assert v.scattered_bound == pytest.approx(scattered_damage_bound(6))
-    loc = locate_file(str(clean), budget=600)
+    loc = locate_file(str(clean), full_seconds=600)
     assert loc.exit_code == 0 and loc.first_mismatch is None
     assert loc.how == "scan"  # the tail matched, so a full comparison ran within the budget
     s = scan_file(str(clean))
@@ -144,7 +144,7 @@ def test_isolated_damage_scan_lists_exact_runs(workdir, positions, shift) -> Non
     assert s.wrong_digits == len(positions)
     for r in s.runs:
         assert r.expected[0] == truth[r.start - 1] and r.found[0] != r.expected[0]
-    loc = locate_file(str(path), budget=600, constant="pi")
+    loc = locate_file(str(path), full_seconds=600, constant="pi")
     assert loc.first_mismatch == positions[0]
     assert loc.first_is_certain
     if positions[0] <= 16:
@@ -163,7 +163,7 @@ def test_scan_with_mpfr_reference(workdir, truth) -> None:
 
 def test_named_positions_and_budget(workdir, truth) -> None:
     small = write_hex(workdir, truth[:3000])  # cheap windows, so the budget surely draws some
-    v = verify_file(str(small), samples=0, seed=1, at=[5, 777, 2985, 777], budget=0, sample_seconds=0.5)
+    v = verify_file(str(small), samples=0, seed=1, at=[5, 777, 2985, 777], full_seconds=0, sample_seconds=0.5)
     # each window once: 2985 is the tail's window, and 777 was asked twice
     assert [c.position for c in v.checks if c.kind == "user"] == [5, 777]
     assert [c.position for c in v.checks if c.kind == "tail"] == [2985]
@@ -243,7 +243,7 @@ def test_locate_within_a_zero_budget_explains_the_cost(workdir, truth) -> None:
     digits = list(truth[:20_000])
     digits[777] = "0" if digits[777] != "0" else "1"
     path = write_hex(workdir, "".join(digits))
-    loc = locate_file(str(path), budget=0)
+    loc = locate_file(str(path), full_seconds=0)
     assert loc.first_mismatch is None
     assert loc.verdict == "unconfirmed" and loc.exit_code == 3  # isolated damage is not ruled out
     assert not loc.exhaustive and loc.covered_digits < 20_000
@@ -261,7 +261,7 @@ def test_locate_interrupted_keeps_what_bisection_found(workdir, truth, monkeypat
         raise KeyboardInterrupt
 
     monkeypatch.setattr(locate_mod, "scan_open", ctrl_c)
-    loc = locate_file(str(path), budget=600)
+    loc = locate_file(str(path), full_seconds=600)
     assert loc.interrupted and loc.first_mismatch == first + 1
     assert loc.verdict == "mismatch" and loc.exit_code == 1
     assert not loc.first_is_certain  # not confirmed as the first

@@ -79,7 +79,7 @@ def test_a_decimal_file_covered_by_radix_conversion_is_checked_on_the_whole_map(
 @pytest.mark.parametrize("width", [20, 77, 200])
 def test_each_map_cell_is_checked_exactly_when_covered_reaches_into_it(tmp_path, width) -> None:
     path = write(tmp_path / "pi.txt", "3." + pi_hex(5000) + "\n")
-    result = verify_file(str(path), budget=0, samples=30, seed=3)
+    result = verify_file(str(path), full_seconds=0, samples=30, seed=3)
     line, _ = file_map(result, width)
     n = result.file.checked
     for i, char in enumerate(line):

@@ -207,11 +207,12 @@ def _decimal_file(tmp_path: Path, name: str, digits: str, whole: int) -> str:
 def test_full_verify_and_locate_find_every_wrong_digit(tmp_path: Path) -> None:
     from spotcheck.checks import full as checks_full
     from spotcheck.checks.common import open_checked
+    from spotcheck.checks.request import CheckRequest
 
     whole, dec = mpfr_digits("euler-gamma", 10, 5000)
     bad = dec[:2999] + ("0" if dec[2999] != "0" else "1") + dec[3000:]
     path = _decimal_file(tmp_path, "gamma", bad, whole)
-    df, facts = open_checked(path, base=None, constant=None, formula=None)
+    df, facts = open_checked(path, CheckRequest())
     with df:
         assert checks_full.is_full(facts.constant)
         v = checks_full.verify_full(df, facts)
@@ -224,11 +225,12 @@ def test_full_verify_and_locate_find_every_wrong_digit(tmp_path: Path) -> None:
 def test_full_verify_truncated_inside_nines_matches(tmp_path: Path) -> None:
     from spotcheck.checks import full as checks_full
     from spotcheck.checks.common import open_checked
+    from spotcheck.checks.request import CheckRequest
 
     whole, dec = mpfr_digits("sqrt2", 10, 20000)
     start, length = _run_of(dec, "9")
     path = _decimal_file(tmp_path, "sqrt2-cut", dec[: start + length - 2], whole)  # ends inside the 9s
-    df, facts = open_checked(path, base=None, constant=None, formula=None)
+    df, facts = open_checked(path, CheckRequest())
     with df:
         assert checks_full.verify_full(df, facts).exit_code == 0
 
@@ -236,9 +238,10 @@ def test_full_verify_truncated_inside_nines_matches(tmp_path: Path) -> None:
 def test_full_comparison_refused_above_the_estimate(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     from spotcheck.checks import full as checks_full
     from spotcheck.checks.common import open_checked
+    from spotcheck.checks.request import CheckRequest
 
     whole, dec = mpfr_digits("e", 10, 3000)
-    df, facts = open_checked(_decimal_file(tmp_path, "e", dec, whole), base=None, constant=None, formula=None)
+    df, facts = open_checked(_decimal_file(tmp_path, "e", dec, whole), CheckRequest())
     monkeypatch.setattr(checks_full, "memory_budget", lambda: 1000)
     with df, pytest.raises(UsageError, match=r"evaluating it in full: about .* GiB .*check a prefix") as info:
         checks_full.verify_full(df, facts)

@@ -637,7 +637,7 @@ def test_check_journal_resumes_across_windows_after_an_interruption(tmp_path: Pa
         return r
 
     monkeypatch.setattr(common, "extract", stop_at_third)
-    args = dict(samples=3, seed=9, budget=0.0, checkpoint=str(journal))
+    args = dict(samples=3, seed=9, full_seconds=0.0, checkpoint=str(journal))
     first = verify_file(str(path), **args)
     assert first.interrupted and len(calls) == 3 and all(loaded == 0 for _, loaded, _ in calls)
     lines, torn = read_lines(journal)
@@ -700,7 +700,7 @@ def _verify_blocks(path: Path, checkpoint: str | bool) -> tuple[int, int, str]:
         mp.setattr(common, "extract", lambda *a, **kw: _record(real, calls, *a, **kw))
         seen: list[str] = []
         result = verify_file(
-            str(path), samples=2, seed=4, budget=0.0, checkpoint=checkpoint, on_checkpoint=seen.append
+            str(path), samples=2, seed=4, full_seconds=0.0, checkpoint=checkpoint, on_checkpoint=seen.append
         )
     assert result.exit_code == 0
     return sum(c[1] for c in calls), sum(c[2] for c in calls), seen[0]

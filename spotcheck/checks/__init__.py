@@ -12,6 +12,7 @@ from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
     from .locate import locate_file
+    from .request import CheckRequest
     from .results import LocateResult, MismatchRun, ScanResult, VerifyResult, WindowCheck
     from .scan import scan_file
     from .verify import verify_file
@@ -22,6 +23,7 @@ _HOME = {
     "verify_file": "verify",
     "locate_file": "locate",
     "scan_file": "scan",
+    "CheckRequest": "request",
     "VerifyResult": "results",
     "LocateResult": "results",
     "ScanResult": "results",
@@ -43,6 +45,7 @@ __all__ = [
     "verify_file",
     "locate_file",
     "scan_file",
+    "CheckRequest",
     "VerifyResult",
     "LocateResult",
     "ScanResult",

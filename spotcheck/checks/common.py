@@ -24,39 +24,32 @@ from spotcheck.engine.plan import CostEstimate
 from spotcheck.errors import UsageError
 from spotcheck.formulas import get_constant
 
+from .request import DEFAULT_WINDOW as DEFAULT_WINDOW
+from .request import CheckRequest
 from .results import FileFacts, LabelFinding, LocateResult, Note, VerifyResult, WindowCheck
 
 Progress = Callable[[int, int], None]
 Plan = list[tuple[str, int]]
 
 # --- tuning -----------------------------------------------------------------
-DEFAULT_WINDOW = 16  # digits compared per check
 MAX_WINDOW = 64
 FINGERPRINT_BYTES = 1 << 20  # stored bytes hashed at each end of a file to name it in a journal
 # ---------------------------------------------------------------------------
 
 
-def open_checked(
-    path: str,
-    *,
-    base: int | None,
-    constant: str | None,
-    formula: str | None,
-    limit: int | None = None,
-    ignore_labels: bool = False,
-    labels: str | None = None,
-) -> tuple[DigitFile, FileFacts]:
+def open_checked(path: str, request: CheckRequest) -> tuple[DigitFile, FileFacts]:
     """Open a digit file and settle the constant, or raise :class:`UsageError`.
 
-    ``limit`` restricts every check to the first ``limit`` digits.  Position
+    ``request.limit`` restricts every check to the first ``limit`` digits.  Position
     labels that disagree with the real digit count are damage (digits were
     lost or gained, or a label was changed): the digits are read and checked
     all the same, and the first such label becomes ``FileFacts.label_finding``
     unless ``ignore_labels``.
     """
-    if limit is not None and limit < 1:
-        raise UsageError(f"limit must be at least 1, got {limit}")
-    df = open_digit_file(path, base=base, constant=constant, strict_labels=False, labels=labels)
+    limit = request.limit
+    df = open_digit_file(
+        path, base=request.base, constant=request.constant, strict_labels=False, labels=request.labels
+    )
     if df.constant is None:
         df.close()
         raise needs(f"{path}: {df.constant_how}", "constant")
@@ -72,10 +65,10 @@ def open_checked(
         checked=min(df.count, limit) if limit else df.count,
         constant=const.name,
         constant_how=df.constant_how,
-        formula=const.method_key(formula),
+        formula=const.method_key(request.formula),
         compression=df.compression,
         integer_part=df.integer_part,
-        label_finding=None if ignore_labels else first_label_finding(df),
+        label_finding=None if request.ignore_labels else first_label_finding(df),
     )
     return df, facts
 
@@ -156,57 +149,36 @@ class CheckRun:
             self.oracle.journal.close(compact=kind is None)
 
 
-def open_run(
-    path: str,
-    *,
-    base: int | None,
-    constant: str | None,
-    formula: str | None,
-    limit: int | None = None,
-    ignore_labels: bool = False,
-    labels: str | None = None,
-    workers: int = 1,
-    cluster: Any = None,
-    checkpoint: bool | str = False,
-    on_estimate: Callable[[CostEstimate], None] | None = None,
-    on_checkpoint: Callable[[str], None] | None = None,
-) -> CheckRun:
+def open_run(path: str, request: CheckRequest) -> CheckRun:
     """Open a file for a check (:func:`open_checked`) with an oracle for its constant and formula.
 
     For a hex file the cost of its deepest window (the tail's) is estimated
     before any work and handed to ``on_estimate``; a file whose tail cannot
     be evaluated in any reasonable time is refused (:class:`InfeasibleError`).
-    ``checkpoint`` (a file path, or True for :func:`check_checkpoint_path`)
+    ``request.checkpoint`` (a file path, or True for :func:`check_checkpoint_path`)
     is one journal for every engine window of the check, opened (or refused,
     :class:`CheckpointError`) here, before any work; its path goes to
-    ``on_checkpoint``.
+    ``request.on_checkpoint``.
     """
-    df, facts = open_checked(
-        path,
-        base=base,
-        constant=constant,
-        formula=formula,
-        limit=limit,
-        ignore_labels=ignore_labels,
-        labels=labels,
-    )
+    df, facts = open_checked(path, request)
+    workers, cluster, checkpoint = request.workers, request.cluster, request.checkpoint
     journal: Journal | None = None
     try:
         estimate = tail_estimate(
             facts, workers=workers, cluster=cluster is not None, checkpoint=bool(checkpoint)
         )
         if checkpoint and get_constant(facts.constant).evaluation is None:
-            request = check_checkpoint_request(facts)  # reads the file's ends once
-            path = check_checkpoint_path(facts, request) if checkpoint is True else str(checkpoint)
-            journal = check_journal(path, facts, request, create_folder=checkpoint is True)
+            keyed = check_checkpoint_request(facts)  # reads the file's ends once
+            path = check_checkpoint_path(facts, keyed) if checkpoint is True else str(checkpoint)
+            journal = check_journal(path, facts, keyed, create_folder=checkpoint is True)
     except BaseException:
         df.close()
         raise
     oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, journal=journal)
-    if estimate is not None and on_estimate is not None:
-        on_estimate(estimate)
-    if journal is not None and on_checkpoint is not None:
-        on_checkpoint(str(journal.path))
+    if estimate is not None and request.on_estimate is not None:
+        request.on_estimate(estimate)
+    if journal is not None and request.on_checkpoint is not None:
+        request.on_checkpoint(str(journal.path))
     return CheckRun(df, facts, oracle, estimate)
 
 
@@ -508,12 +480,12 @@ def run_plan(
     plan: Plan,
     check: Callable[[str, int], None],
     draw: Callable[[], int | None],
-    budget: float | None,
+    sample_seconds: float | None,
     progress: Progress | None,
     *,
     within: list[Callable[[float], None] | None] | None = None,
 ) -> tuple[int, bool]:
-    """Run ``check(kind, where)`` for each planned check, then random draws while ``budget`` allows.
+    """Run ``check(kind, where)`` for each planned check, then random draws while ``sample_seconds`` allow.
 
     Ctrl-C stops cleanly.  Returns ``(random windows checked, interrupted)``.
     ``within``, if given, is a one-item list that holds, during each planned
@@ -537,10 +509,10 @@ def run_plan(
             done += weight
             if progress:
                 progress(done, total)
-        if budget is not None:
+        if sample_seconds is not None:
             # Keep drawing while the next check is expected to fit.
             per = (time.perf_counter() - t0) / max(1, len(plan))
-            while time.perf_counter() - t0 + per < budget:
+            while time.perf_counter() - t0 + per < sample_seconds:
                 t1 = time.perf_counter()
                 drawn = draw()
                 if drawn is None:  # every position was drawn

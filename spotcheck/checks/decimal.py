@@ -122,7 +122,7 @@ def verify_decimal(
     at: Sequence[int],
     asked: int | None = None,
     window: int = DEFAULT_WINDOW,
-    budget: float | None = None,
+    sample_seconds: float | None = None,
     oracle: HexOracle,
     progress: Progress | None = None,
 ) -> VerifyResult:
@@ -150,7 +150,9 @@ def verify_decimal(
         checks.extend(out.rows)
 
     try:
-        random_windows, interrupted = run_plan(plan, check, sampler.draw, budget, progress, within=within)
+        random_windows, interrupted = run_plan(
+            plan, check, sampler.draw, sample_seconds, progress, within=within
+        )
         bracket = decimal_bracket(checks, n)
         rounded = None
         if bracket is not None and not interrupted and _may_be_rounded(checks, n, w):
@@ -262,7 +264,7 @@ def locate_decimal(
     facts: FileFacts,
     *,
     window: int = DEFAULT_WINDOW,
-    budget: float = 0.0,
+    full_seconds: float = 0.0,
     reference: str = "arb",
     oracle: HexOracle,
     progress: Progress | None = None,
@@ -273,7 +275,7 @@ def locate_decimal(
     passes only when every one of its digits is right.  So the passing prefixes
     are exactly those shorter than the first wrong digit, and bisection finds it.
     """
-    del budget, reference  # a decimal file needs no full scan: prefixes are checked whole
+    del full_seconds, reference  # a decimal file needs no full scan: prefixes are checked whole
     t0 = time.perf_counter()
     n = facts.checked
     _check_memory(n)

@@ -3,15 +3,12 @@
 from __future__ import annotations
 
 import time
-from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
 from spotcheck.digitfile import DigitFile
-from spotcheck.engine.plan import CostEstimate
 
 from .common import (
-    DEFAULT_WINDOW,
     HexOracle,
     Progress,
     clamp_window,
@@ -21,6 +18,7 @@ from .common import (
     with_run_facts,
 )
 from .full import is_full, locate_full
+from .request import CheckRequest, make_request
 from .results import FileFacts, LocateResult, Note, WindowCheck
 from .scan import estimate_scan, scan_open
 
@@ -32,48 +30,20 @@ AFTER_SAMPLES = 4  # windows checked after the first wrong digit
 # ---------------------------------------------------------------------------
 
 
-def locate_file(
-    path: str,
-    *,
-    base: int | None = None,
-    constant: str | None = None,
-    formula: str | None = None,
-    window: int = DEFAULT_WINDOW,
-    budget: float = DEFAULT_BUDGET,
-    reference: str = "arb",
-    workers: int = 1,
-    limit: int | None = None,
-    ignore_labels: bool = False,
-    labels: str | None = None,
-    cluster: Any = None,
-    checkpoint: bool | str = False,
-    progress: Progress | None = None,
-    on_estimate: Callable[[CostEstimate], None] | None = None,
-    on_checkpoint: Callable[[str], None] | None = None,
-) -> LocateResult:
-    """Find the first wrong digit of a digit file (1-based position), or say what was ruled out.
+def locate_file(path: str, request: CheckRequest | None = None, **options: Any) -> LocateResult:
+    """Find the first wrong digit of a digit file (its position), or say what was ruled out.
 
-    ``checkpoint``: one journal file for every engine window, as in
-    :func:`spotcheck.checks.verify.verify_file`.
+    ``request`` (or ``options``, its fields) as for :func:`spotcheck.checks.verify.verify_file`;
+    ``full_seconds`` (:data:`DEFAULT_BUDGET` when None) is what a full comparison may take.
     """
-    run = open_run(
-        path,
-        base=base,
-        constant=constant,
-        formula=formula,
-        limit=limit,
-        ignore_labels=ignore_labels,
-        labels=labels,
-        workers=workers,
-        cluster=cluster,
-        checkpoint=checkpoint,
-        on_estimate=on_estimate,
-        on_checkpoint=on_checkpoint,
-    )
+    request = make_request(request, **options)
+    run = open_run(path, request)
     df, facts, oracle = run.df, run.facts, run.oracle
+    progress = request.progress
     with run:
         if is_full(facts.constant):  # no digit-extraction formula: every digit against Arb
             return locate_full(df, facts, progress=progress)
+        full_seconds = request.full_seconds_or(DEFAULT_BUDGET)
         if facts.base == 10:
             from .decimal import locate_decimal
 
@@ -82,14 +52,15 @@ def locate_file(
                 locate_decimal(
                     df,
                     facts,
-                    window=window,
-                    budget=budget,
-                    reference=reference,
+                    window=request.window,
+                    full_seconds=full_seconds,
+                    reference=request.reference,
                     oracle=oracle,
                     progress=progress,
                 ),
             )
-        return with_run_facts(run, _HexLocator(df, facts, window, budget, reference, oracle, progress).run())
+        locator = _HexLocator(df, facts, request.window, full_seconds, request.reference, oracle, progress)
+        return with_run_facts(run, locator.run())
 
 
 def rest_after(checks: list[WindowCheck]) -> str | None:
@@ -107,7 +78,7 @@ class _HexLocator:
     df: DigitFile
     facts: FileFacts
     window: int
-    budget: float
+    full_seconds: float
     reference: str
     oracle: HexOracle
     progress: Progress | None
@@ -199,7 +170,7 @@ class _HexLocator:
         what = f"the first {upto:,} digits" if upto else "the whole file"
         return (
             f"comparing {what} with a full computation would take "
-            f"{'under 1 s' if seconds < 1 else f'about {seconds:.0f} s'}, beyond the budget of {self.budget:g} s"
+            f"{'under 1 s' if seconds < 1 else f'about {seconds:.0f} s'}, beyond the budget of {self.full_seconds:g} s"
         )
 
     # -- the search -----------------------------------------------------------
@@ -284,7 +255,7 @@ class _HexLocator:
         # Bisection assumes an error, once made, persists.  Where a full
         # comparison of the digits before it is affordable, settle it.
         seconds, _ = estimate_scan(self.facts, self.reference, upto=first - 1)
-        if first > 1 and seconds <= self.budget:
+        if first > 1 and seconds <= self.full_seconds:
             earlier = self.scan_before(first - 1)
             if earlier is not None:
                 self.step("confirm", earlier, min(w, n - earlier + 1))
@@ -330,7 +301,7 @@ class _HexLocator:
                 head.first_difference, "head", f"the first window differs; {ruled_out}", certain=True
             )
         seconds, _ = estimate_scan(self.facts, self.reference)
-        if seconds > self.budget:
+        if seconds > self.full_seconds:
             return self.result(
                 None,
                 "none",

@@ -4,12 +4,14 @@ from __future__ import annotations
 
 import time
 from collections.abc import Iterator
+from typing import Any
 
 from spotcheck.digitfile import DigitFile
 from spotcheck.errors import UsageError
 
 from .common import Progress, common_rows, needs, open_checked
 from .reference import REFERENCES, estimate_reference, memory_budget, reference_digits, require_supported
+from .request import CheckRequest, make_request
 from .results import FileFacts, MismatchRun, ScanResult, WindowCheck
 
 __all__ = ["scan_file", "scan_open", "estimate_scan", "diff_runs", "merge_runs", "rounded_up_from"]
@@ -187,41 +189,26 @@ def rounded_up_from(found: str, ref: str, first: int, base: int) -> int | None:
     return None
 
 
-def scan_file(
-    path: str,
-    *,
-    base: int | None = None,
-    constant: str | None = None,
-    reference: str = "arb",
-    limit: int | None = None,
-    ignore_labels: bool = False,
-    labels: str | None = None,
-    workers: int = 1,
-    progress: Progress | None = None,
-) -> ScanResult:
+def scan_file(path: str, request: CheckRequest | None = None, **options: Any) -> ScanResult:
     """Compare every digit of the file with a full computation (Arb by default, or MPFR).
 
-    ``workers``: threads the Arb computation may use.
+    ``request`` (or ``options``, its fields): ``reference``, ``workers`` (threads
+    the Arb computation may use) and what the file is.
     """
     import os
 
     from .reference import CHILD_DIGITS, warm_children
 
+    request = make_request(request, **options)
     try:
         if os.path.getsize(path) >= CHILD_DIGITS // 4:  # a child will compute: let it start meanwhile
             warm_children()
     except OSError:
         pass  # open_checked says what is wrong with the path
-    df, facts = open_checked(
-        path,
-        base=base,
-        constant=constant,
-        formula=None,
-        limit=limit,
-        ignore_labels=ignore_labels,
-        labels=labels,
-    )
+    df, facts = open_checked(path, make_request(request, formula=None))
     try:
-        return scan_open(df, facts, reference=reference, progress=progress, threads=workers)
+        return scan_open(
+            df, facts, reference=request.reference, progress=request.progress, threads=request.workers
+        )
     finally:
         df.close()

@@ -5,17 +5,13 @@ from __future__ import annotations
 import random
 import secrets
 import time
-from collections.abc import Callable, Sequence
 from typing import Any
 
 from spotcheck.digitfile import DigitFile
-from spotcheck.engine.plan import CostEstimate
 from spotcheck.errors import UsageError
 
 from .common import (
-    DEFAULT_WINDOW,
     HexOracle,
-    Progress,
     Sampler,
     clamp_window,
     common_rows,
@@ -26,6 +22,7 @@ from .common import (
     with_run_facts,
 )
 from .full import is_full, verify_full
+from .request import CheckRequest, make_request
 from .results import FileFacts, Note, VerifyResult, WindowCheck
 
 __all__ = ["verify_file", "MAX_SAMPLES", "DEFAULT_SAMPLES", "DEFAULT_FULL_BUDGET"]
@@ -43,74 +40,38 @@ def _seed(seed: int | None) -> int:
     return secrets.randbits(32) if seed is None else seed
 
 
-def verify_file(
-    path: str,
-    *,
-    base: int | None = None,
-    constant: str | None = None,
-    formula: str | None = None,
-    samples: int | None = None,
-    seed: int | None = None,
-    at: Sequence[int] = (),
-    window: int = DEFAULT_WINDOW,
-    budget: float = DEFAULT_FULL_BUDGET,
-    sample_seconds: float | None = None,
-    reference: str = "arb",
-    workers: int = 1,
-    limit: int | None = None,
-    ignore_labels: bool = False,
-    labels: str | None = None,
-    cluster: Any = None,
-    checkpoint: bool | str = False,
-    progress: Progress | None = None,
-    on_estimate: Callable[[CostEstimate], None] | None = None,
-    on_checkpoint: Callable[[str], None] | None = None,
-) -> VerifyResult:
-    """Check a digit file: every digit when a full comparison fits ``budget`` seconds, else windows.
+def verify_file(path: str, request: CheckRequest | None = None, **options: Any) -> VerifyResult:
+    """Check a digit file: every digit when a full comparison fits ``full_seconds``, else windows.
 
+    ``request`` (a :class:`~spotcheck.checks.request.CheckRequest`) says what to
+    check; ``options`` are its fields, for callers who would rather pass keywords.
     Hexadecimal files: the tail, the head and the positions ``at`` are
     compared with certified engine digits; then, when the estimated time of a
-    full comparison with ``reference`` (Arb or MPFR) fits ``budget``, every
-    digit is compared with it (as ``scan`` does); otherwise ``samples`` random
-    windows are drawn (:data:`DEFAULT_SAMPLES` when None; distinct, fewer in a
-    short file), and more while ``sample_seconds`` allow.  The result records
-    ``samples`` as asked (None: the default), so a report can say when they
-    were not drawn.  Decimal
-    files go through radix conversion, which covers every digit
+    full comparison with ``reference`` (Arb or MPFR) fits ``full_seconds``
+    (:data:`DEFAULT_FULL_BUDGET` when None), every digit is compared with it (as
+    ``scan`` does); otherwise ``samples`` random windows are drawn
+    (:data:`DEFAULT_SAMPLES` when None; distinct, fewer in a short file), and
+    more while ``sample_seconds`` allow.  The result records ``samples`` as
+    asked (None: the default), so a report can say when they were not drawn.
+    Decimal files go through radix conversion, which covers every digit
     (:func:`spotcheck.checks.decimal.verify_decimal`).  ``cluster`` and
     ``checkpoint`` serve deep windows: ``checkpoint`` is one journal file for
     every engine window of the check (a path, or True for the cache-directory
     file of :func:`spotcheck.checks.common.check_checkpoint_path`), whose path
     goes to ``on_checkpoint`` once it is open.
     """
-    asked = samples
-    samples = DEFAULT_SAMPLES if samples is None else samples
+    request = make_request(request, **options)
+    samples = DEFAULT_SAMPLES if request.samples is None else request.samples
     if not 0 <= samples <= MAX_SAMPLES:
         raise UsageError(f"samples must be between 0 and {MAX_SAMPLES}, got {samples}")
-    if budget < 0:
-        raise UsageError(f"budget must be zero or more seconds, got {budget}")
-    if sample_seconds is not None and sample_seconds <= 0:
-        raise UsageError(f"sample time must be a positive number of seconds, got {sample_seconds}")
-    seed = _seed(seed)
-    run = open_run(
-        path,
-        base=base,
-        constant=constant,
-        formula=formula,
-        limit=limit,
-        ignore_labels=ignore_labels,
-        labels=labels,
-        workers=workers,
-        cluster=cluster,
-        checkpoint=checkpoint,
-        on_estimate=on_estimate,
-        on_checkpoint=on_checkpoint,
-    )
+    seed = _seed(request.seed)
+    request = make_request(request, seed=seed)
+    run = open_run(path, request)
     df, facts, oracle = run.df, run.facts, run.oracle
     with run:
         if is_full(facts.constant):  # no digit-extraction formula: every digit against Arb
-            return verify_full(df, facts, progress=progress)
-        for p in at:
+            return verify_full(df, facts, progress=request.progress)
+        for p in request.at:
             if not 1 <= p <= facts.checked:
                 raise needs(f"position {p} is outside the file (digits 1..{facts.checked})", "at", p)
         if facts.base == 10:
@@ -122,31 +83,18 @@ def verify_file(
                     df,
                     facts,
                     samples=samples,
-                    asked=asked,
+                    asked=request.samples,
                     seed=seed,
-                    at=at,
-                    window=window,
-                    budget=sample_seconds,
+                    at=request.at,
+                    window=request.window,
+                    sample_seconds=request.sample_seconds,
                     oracle=oracle,
-                    progress=progress,
+                    progress=request.progress,
                 ),
             )
-        full = _full_fits(facts, reference, budget)
+        full = _full_fits(facts, request.reference, request.full_seconds_or(DEFAULT_FULL_BUDGET))
         return with_run_facts(
-            run,
-            _verify_hex(
-                df,
-                facts,
-                samples,
-                asked,
-                seed,
-                at,
-                window,
-                sample_seconds,
-                oracle,
-                progress,
-                reference if full else None,
-            ),
+            run, _verify_hex(df, facts, request, samples, oracle, request.reference if full else None)
         )
 
 
@@ -166,23 +114,21 @@ def _full_fits(facts: FileFacts, reference: str, budget: float) -> bool:
 def _verify_hex(
     df: DigitFile,
     facts: FileFacts,
+    request: CheckRequest,
     samples: int,
-    asked: int | None,
-    seed: int,
-    at: Sequence[int],
-    window: int,
-    budget: float | None,
     oracle: HexOracle,
-    progress: Progress | None,
     full_reference: str | None,
 ) -> VerifyResult:
     t0 = time.perf_counter()
+    asked, at, progress = request.samples, request.at, request.progress
+    assert request.seed is not None
+    seed = request.seed
     if full_reference is not None:
         from .reference import CHILD_DIGITS, warm_children
 
         if facts.checked >= CHILD_DIGITS:
             warm_children()  # the full comparison's child: its start overlaps the windows
-    w = clamp_window(window, facts.checked)
+    w = clamp_window(request.window, facts.checked)
     rng = random.Random(seed)
     last_start = facts.checked - w + 1
     # A file no longer than the window has one window: the tail.
@@ -205,7 +151,7 @@ def _verify_hex(
         plan,
         check,
         sampler.draw,
-        budget if full_reference is None else None,
+        request.sample_seconds if full_reference is None else None,
         progress,
     )
     full_through, wrong, runs, evaluations = 0, None, None, oracle.evaluations
