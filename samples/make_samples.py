@@ -111,6 +111,19 @@ def files() -> dict[str, bytes]:
     text = ["# Ridgeview club card archive: e to 20,000 decimal places", f"{ipe}."] + lines(e_dec, 100, 10)
     out["e-decimal.txt"] = ("\n".join(text) + "\n").encode()
 
+    # A stretch from deep in pi: the club's 1,000,000-digit run was kept as parts, and a member
+    # kept the second one, digits 1,000,001 to 1,004,096, each line labelled with the position of
+    # its first digit.  A tape copy of the same part lost its labels and one digit was changed.
+    deep, length = 1_000_001, 4_096
+    _, pi_deep = fraction_digits(gmpy2.const_pi, 16, deep - 1 + length)
+    part = pi_deep[deep - 1 :]
+    text = ["# Ridgeview club run 'long-night-5', part 2 of pi in hexadecimal"]
+    text += [f"{deep + 64 * i}: {line}" for i, line in enumerate(lines(part, 64))]
+    out["pi-hex-part2.txt"] = ("\n".join(text) + "\n").encode()
+    hit = 2_500  # digit 1,002,500 of pi
+    copy = part[: hit - 1] + altered(part[hit - 1], 16, 4) + part[hit:]
+    out["pi-hex-part2-tapecopy.txt"] = ("\n".join(lines(copy, 64)) + "\n").encode()
+
     # Catalan's constant in hex, one damaged digit.
     ipc, cat_hex = fraction_digits(gmpy2.const_catalan, 16, 20_000)
     cat = cat_hex[:9_999] + altered(cat_hex[9_999], 16, 5) + cat_hex[10_000:]

@@ -465,6 +465,16 @@ LabelsOpt = Annotated[
         help="Where position labels are when the layout cannot tell: start, end, both (each end) or none.",
     ),
 ]
+BeginsAtOpt = Annotated[
+    int | None,
+    typer.Option(
+        "--begins-at",
+        metavar="POSITION",
+        click_type=_Whole(minimum=1),
+        help="Position in the expansion of the file's first digit, for a stretch that begins deeper "
+        "than digit 1 (default: the file's start labels say, else 1).",
+    ),
+]
 ReferenceOpt = Annotated[
     str,
     typer.Option(
@@ -543,6 +553,9 @@ def _hint(exc: Exception) -> str:
         "at": " (--at)",
         "verify_each": "; check each with `spotcheck verify`",
         "labels": " (--labels start|end|both|none)",
+        "first_position": " (--begins-at POSITION)",
+        "constant_or_first_position": " (--constant NAME; `spotcheck constants` lists them). If the file is a "
+        "stretch that begins deeper in the expansion, give its first digit's position with --begins-at POSITION",
     }
     if isinstance(exc, InfeasibleError):  # what would bring it within reach, if anything
         from spotcheck.report.digits import infeasible_hint
@@ -630,6 +643,7 @@ def _run_check(ctx: Any, command: str, file: str, given: dict[str, Any], **only:
             formula=given.get("formula"),
             labels=given.get("labels"),
             ignore_labels=bool(given.get("ignore_labels")),
+            first_position=given.get("begins_at"),
             limit=given.get("limit"),
             window=given.get("window", 16),
             full_seconds=given.get("budget"),
@@ -699,6 +713,7 @@ def verify(
     limit: LimitOpt = None,
     ignore_labels: IgnoreLabelsOpt = False,
     labels: LabelsOpt = None,
+    begins_at: BeginsAtOpt = None,
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
     cluster: ClusterOpt = None,
@@ -743,6 +758,7 @@ def locate(
     limit: LimitOpt = None,
     ignore_labels: IgnoreLabelsOpt = False,
     labels: LabelsOpt = None,
+    begins_at: BeginsAtOpt = None,
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
     cluster: ClusterOpt = None,
@@ -764,6 +780,7 @@ def scan(
     limit: LimitOpt = None,
     ignore_labels: IgnoreLabelsOpt = False,
     labels: LabelsOpt = None,
+    begins_at: BeginsAtOpt = None,
     formula_file: FormulaFileOpt = None,
     workers: WorkersOpt = None,
     as_json: JsonOpt = False,
@@ -779,6 +796,7 @@ def inspect(
     constant: ConstantOpt = None,
     base: BaseOpt = None,
     labels: LabelsOpt = None,
+    begins_at: BeginsAtOpt = None,
     formula_file: FormulaFileOpt = None,
     as_json: JsonOpt = False,
     quiet: QuietOpt = False,
@@ -791,7 +809,14 @@ def inspect(
 
     _load_formula_files(formula_file)
     with progress_bar("reading", enabled=not (as_json or quiet)) as cb:
-        result = inspect_file(str(file), base=_base(base), constant=constant, progress=cb, labels=labels)
+        result = inspect_file(
+            str(file),
+            base=_base(base),
+            constant=constant,
+            progress=cb,
+            labels=labels,
+            first_position=begins_at,
+        )
     if not quiet or as_json:
         show_inspect(result, as_json=as_json)  # findings are facts about the file: exit 0
 

@@ -44,19 +44,33 @@ def open_checked(path: str, request: CheckRequest) -> tuple[DigitFile, FileFacts
     labels that disagree with the real digit count are damage (digits were
     lost or gained, or a label was changed): the digits are read and checked
     all the same, and the first such label becomes ``FileFacts.label_finding``
-    unless ``ignore_labels``.
+    unless ``ignore_labels``.  The file may begin deeper in the expansion
+    (``request.first_position``, or its labels): :func:`spotcheck.checks.slices.settle`
+    places it, and ``FileFacts.first`` is its first digit's position.
     """
+    from .slices import settle
+
     limit = request.limit
     df = open_digit_file(
-        path, base=request.base, constant=request.constant, strict_labels=False, labels=request.labels
+        path,
+        base=request.base,
+        constant=request.constant,
+        strict_labels=False,
+        labels=request.labels,
+        first_position=request.first_position,
     )
-    if df.constant is None:
+    try:
+        if df.count < 1:
+            raise UsageError(f"{path}: no digits after the point")
+        placed = settle(df, request, str(path))
+        if placed.constant is None:
+            if placed.how == "start" and df.integer_part is None:  # it may be a stretch from deeper in
+                raise needs(f"{path}: {df.constant_how}", "constant_or_first_position")
+            raise needs(f"{path}: {df.constant_how}", "constant")
+    except BaseException:
         df.close()
-        raise needs(f"{path}: {df.constant_how}", "constant")
-    if df.count < 1:
-        df.close()
-        raise UsageError(f"{path}: no digits after the point")
-    const = get_constant(df.constant)
+        raise
+    const = get_constant(placed.constant)
     facts = FileFacts(
         path=str(path),
         size_bytes=df.size_bytes,
@@ -64,11 +78,13 @@ def open_checked(path: str, request: CheckRequest) -> tuple[DigitFile, FileFacts
         count=df.count,
         checked=min(df.count, limit) if limit else df.count,
         constant=const.name,
-        constant_how=df.constant_how,
+        constant_how=placed.constant_how or df.constant_how,
         formula=const.method_key(request.formula),
         compression=df.compression,
         integer_part=df.integer_part,
-        label_finding=None if request.ignore_labels else first_label_finding(df),
+        label_finding=None if request.ignore_labels else first_label_finding(df, placed.first),
+        first=placed.first,
+        first_how=placed.how,
     )
     return df, facts
 
@@ -76,21 +92,22 @@ def open_checked(path: str, request: CheckRequest) -> tuple[DigitFile, FileFacts
 LABEL_KINDS = ("label-mismatch", "label-missing")
 
 
-def first_label_finding(df: DigitFile) -> LabelFinding | None:
-    """The first label finding of an opened file (by line), with the count of all of them."""
+def first_label_finding(df: DigitFile, first: int = 1) -> LabelFinding | None:
+    """The first label finding of an opened file (by line), with the count of all of them; its
+    position counted from the expansion's start (the file's first digit is digit ``first``)."""
     found = [f for f in df.findings if f.kind in LABEL_KINDS and f.line is not None]
     if not found:
         return None
-    first = min(found, key=lambda f: f.line or 0)
+    found_at = min(found, key=lambda f: f.line or 0)
     return LabelFinding(
-        kind=first.kind,
-        line=first.line,
-        byte_offset=first.byte_offset,
-        position=first.position,
-        expected=getattr(first, "expected", None),
-        found=getattr(first, "found", None),
+        kind=found_at.kind,
+        line=found_at.line,
+        byte_offset=found_at.byte_offset,
+        position=None if found_at.position is None else found_at.position + first - 1,
+        expected=getattr(found_at, "expected", None),
+        found=getattr(found_at, "found", None),
         total=len(found),
-        end=getattr(first, "end", None),
+        end=getattr(found_at, "end", None),
     )
 
 
@@ -174,7 +191,14 @@ def open_run(path: str, request: CheckRequest) -> CheckRun:
     except BaseException:
         df.close()
         raise
-    oracle = HexOracle(facts.constant, facts.formula, workers=workers, cluster=cluster, journal=journal)
+    oracle = HexOracle(
+        facts.constant,
+        facts.formula,
+        workers=workers,
+        cluster=cluster,
+        journal=journal,
+        origin=facts.first - 1,
+    )
     if estimate is not None and request.on_estimate is not None:
         request.on_estimate(estimate)
     if journal is not None and request.on_checkpoint is not None:
@@ -280,6 +304,16 @@ def with_run_facts(run: CheckRun, result: ResultT) -> ResultT:
     JSON report) and the checkpoint journal's warnings (damaged records skipped, a failed write)."""
     if run.estimate is not None and hasattr(result, "tail_estimate"):
         result.tail_estimate = run.estimate.to_dict()
+    facts = run.facts
+    if (
+        facts.first_how == "start"
+        and facts.integer_part is None
+        and run.estimate is not None  # a hex file of a formula constant: the windows are engine windows
+        and result.checks
+        and not any(c.match for c in result.checks)
+        and any(c.first_difference == facts.first for c in result.checks)
+    ):  # nothing said where the file begins, and nothing agrees from its first digit on
+        result.warnings.append(Note("maybe-stretch", {"constant": facts.constant}))
     journal = run.oracle.journal
     if journal is not None:
         if journal.damaged:
@@ -301,7 +335,7 @@ def tail_estimate(facts: FileFacts, *, workers: int, cluster: bool, checkpoint: 
         return None
     est = estimate_cost(
         facts.constant,
-        max(1, facts.checked - 15),
+        max(facts.first, facts.last - 15),
         16,
         formula=facts.formula,
         workers=workers,
@@ -332,6 +366,9 @@ class HexOracle:
     """A Dask scheduler address (or Client) for the head sums of deep windows."""
     journal: Journal | None = None
     """The check's one checkpoint journal: every window's finished head-sum blocks."""
+    origin: int = 0
+    """Digits of the expansion before the file's first digit (``FileFacts.first - 1``): positions
+    here count from the expansion's start, the file's own from its first digit."""
     evaluations: int = 0
     engine_seconds: float = 0.0
     _cache: dict[tuple[int, int], str] = field(default_factory=dict)
@@ -359,14 +396,18 @@ class HexOracle:
             self._cache[key] = r.digits
         return self._cache[key]
 
+    def read(self, df: DigitFile, position: int, count: int) -> str:
+        """The file's digits at ``position ..`` (counted from the expansion's start)."""
+        return df.read(position - self.origin, count)
+
     def compare(
         self, df: DigitFile, kind: str, position: int, count: int, notes: tuple[Note, ...] = ()
     ) -> WindowCheck:
-        count = min(count, df.count - position + 1)
-        if count < 1:
+        count = min(count, df.count + self.origin - position + 1)
+        if count < 1 or position <= self.origin:
             raise ValueError(f"window at {position} lies outside the file")
         expected = self.digits(position, count)
-        found = df.read(position, count)
+        found = self.read(df, position, count)
         diff = first_difference(expected, found, position)
         return WindowCheck(
             kind=kind,

@@ -302,6 +302,7 @@ class _FileDigits:
     def __init__(self, df: DigitFile) -> None:
         self.df, self.path, self.base, self.size_bytes = df, df.path, df.base, df.size_bytes
         self.integer_part = df.integer_part
+        self.first_positions = df.first_positions
         self.digits_read = 0
 
     @property
@@ -436,6 +437,14 @@ def _compare(
     ignore_labels: bool = False,
 ) -> CompareResult:
     t0 = time.perf_counter()
+    for s in (sa, sb):
+        if s.first_positions != (1,):  # positions and arbitration count from digit 1 here
+            where = " or ".join(f"{p:,}" for p in s.first_positions)
+            raise needs(
+                f"{s.path}: the copy begins at digit {where} of the expansion; copies of a stretch from "
+                "deeper in the expansion are not compared yet",
+                "verify_each",
+            )
     if sa.base != sb.base:
         raise needs(
             f"the copies are in different bases ({sa.path}: base {sa.base}, {sb.path}: base {sb.base}), "

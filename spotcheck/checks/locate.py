@@ -90,6 +90,8 @@ class _HexLocator:
     """A wrong digit bisection found, before a full comparison confirmed it is the first."""
 
     def __post_init__(self) -> None:
+        # Positions count from the expansion's start: the file holds digits first..last.
+        self.first, self.last = self.facts.first, self.facts.last
         self.n = self.facts.checked
         self.w = clamp_window(self.window, self.n)
         self.steps_total = max(1, (self.n // self.w).bit_length() + 2 + AFTER_SAMPLES)
@@ -104,7 +106,7 @@ class _HexLocator:
         return c
 
     def scan_before(self, upto: int | None) -> int | None:
-        """First wrong digit among the first ``upto`` (all when None) by a full comparison."""
+        """First wrong digit up to position ``upto`` (the whole file when None) by a full comparison."""
         self.scans += 1
         scan = scan_open(
             self.df,
@@ -117,9 +119,7 @@ class _HexLocator:
         )
         if scan.interrupted:
             raise KeyboardInterrupt
-        self.full_through = max(
-            self.full_through, scan.runs[0].start - 1 if scan.runs else scan.digits_compared
-        )
+        self.full_through = max(self.full_through, scan.runs[0].start - 1 if scan.runs else scan.full_through)
         return scan.runs[0].start if scan.runs else None
 
     def result(
@@ -143,8 +143,8 @@ class _HexLocator:
             if known:  # certified digits already at hand (no engine call after Ctrl-C)
                 expected = max(known, key=len)[: self.w]
             else:
-                expected = self.oracle.digits(first, min(self.w, self.n - first + 1))
-            found = self.df.read(first, len(expected))
+                expected = self.oracle.digits(first, min(self.w, self.last - first + 1))
+            found = self.oracle.read(self.df, first, len(expected))
         return LocateResult(
             file=self.facts,
             checks=distinct_rows(self.checks),
@@ -167,7 +167,7 @@ class _HexLocator:
         """Why no full comparison ran, and what one would cost."""
         if seconds == float("inf"):
             return f"there is no independent full computation of {self.facts.constant} to compare with"
-        what = f"the first {upto:,} digits" if upto else "the whole file"
+        what = f"the {upto - self.first + 1:,} digits up to position {upto:,}" if upto else "the whole file"
         return (
             f"comparing {what} with a full computation would take "
             f"{'under 1 s' if seconds < 1 else f'about {seconds:.0f} s'}, beyond the budget of {self.full_seconds:g} s"
@@ -176,7 +176,7 @@ class _HexLocator:
     # -- the search -----------------------------------------------------------
     def run(self) -> LocateResult:
         try:
-            tail = self.step("tail", self.n - self.w + 1, self.w)
+            tail = self.step("tail", self.last - self.w + 1, self.w)
             if tail.match:
                 return self.tail_matches()
             assert tail.first_difference is not None
@@ -191,7 +191,7 @@ class _HexLocator:
                 first,
                 "bisection",
                 f"bisection found a wrong digit at position {first:,} (the window just before it matches); "
-                f"interrupted before a full comparison of the {first - 1:,} digits before it could confirm "
+                f"interrupted before a full comparison of the {first - self.first:,} digits before it could confirm "
                 "that it is the first: an earlier isolated wrong digit is not ruled out",
                 rest=rest_after(self.checks),
                 interrupted=True,
@@ -200,9 +200,9 @@ class _HexLocator:
     def bisect(self, hi: int) -> int:
         """First wrong digit, given digit ``hi`` is wrong and an error, once made, persists.
 
-        Invariant: digits ``1..lo`` are taken as right, digit ``hi`` is known wrong.
+        Invariant: digits ``first..lo`` are taken as right, digit ``hi`` is known wrong.
         """
-        lo, w = 0, self.w
+        lo, w = self.first - 1, self.w
         while hi - lo > w:
             a = max(lo + 1, min((lo + hi) // 2, hi - w))
             c = self.step("bisection", a, w)
@@ -216,21 +216,21 @@ class _HexLocator:
         return last.first_difference
 
     def tail_wrong(self, tail: WindowCheck) -> LocateResult:
-        w, n = self.w, self.n
+        w, last = self.w, self.last
         first: int | None = None
-        if tail.position > w:  # the head window costs one cheap evaluation
-            first = self.step("head", 1, w).first_difference
+        if tail.position - self.first >= w:  # the head window costs one cheap evaluation
+            first = self.step("head", self.first, w).first_difference
         by_bisection = first is None
         if first is None:
             assert tail.first_difference is not None
             first = self.bisect(tail.first_difference)
             self.found_by_bisection = first
-            if first > 1:
-                a = max(1, first - w)
+            if first > self.first:
+                a = max(self.first, first - w)
                 self.step("confirm", a, first - a, notes=(Note("window-before-first-wrong"),))
         for i in range(1, AFTER_SAMPLES + 1):
-            p = first + 1 + (n - first - w) * i // AFTER_SAMPLES
-            if first < p <= n - w + 1 and not any(c.position == p for c in self.checks):
+            p = first + 1 + (last - first - w) * i // AFTER_SAMPLES
+            if first < p <= last - w + 1 and not any(c.position == p for c in self.checks):
                 self.step("after", p, w)
         rest = rest_after(self.checks)
         after_text = {
@@ -255,10 +255,10 @@ class _HexLocator:
         # Bisection assumes an error, once made, persists.  Where a full
         # comparison of the digits before it is affordable, settle it.
         seconds, _ = estimate_scan(self.facts, self.reference, upto=first - 1)
-        if first > 1 and seconds <= self.full_seconds:
+        if first > self.first and seconds <= self.full_seconds:
             earlier = self.scan_before(first - 1)
             if earlier is not None:
-                self.step("confirm", earlier, min(w, n - earlier + 1))
+                self.step("confirm", earlier, min(w, last - earlier + 1))
                 return self.result(
                     earlier,
                     "scan",
@@ -272,7 +272,7 @@ class _HexLocator:
                 first,
                 "bisection",
                 f"first wrong digit at position {first:,}: {found_by}; the window just before it matches, "
-                f"and a full comparison with {self.reference} of the {first - 1:,} digits before it found "
+                f"and a full comparison with {self.reference} of the {first - self.first:,} digits before it found "
                 "no wrong digit",
                 rest=rest,
                 certain=True,
@@ -285,17 +285,17 @@ class _HexLocator:
             f"computation that went astray): {found_by}; the window just before it matches. Earlier "
             f"isolated damage is not ruled out: {self.scan_cost(seconds, first - 1)}",
             rest=rest,
-            certain=first == 1,
+            certain=first == self.first,
             scan_estimate=seconds,
         )
 
     def tail_matches(self) -> LocateResult:
-        w, n = self.w, self.n
+        w, last = self.w, self.last
         ruled_out = (
             f"the last {w} digits match, so no error persists to the end of the file "
             f"(false-match chance 16^-{w}); any damage is isolated, which bisection cannot find"
         )
-        head = self.step("head", 1, w)
+        head = self.step("head", self.first, w)
         if not head.match:
             return self.result(
                 head.first_difference, "head", f"the first window differs; {ruled_out}", certain=True
@@ -316,9 +316,9 @@ class _HexLocator:
                 f"no wrong digit: {ruled_out}, and a full comparison with {self.reference} found none",
                 scan_estimate=seconds,
             )
-        self.step("confirm", first, min(w, n - first + 1))
+        self.step("confirm", first, min(w, last - first + 1))
         rest = None
-        if first + w <= n - w + 1:
+        if first + w <= last - w + 1:
             rest = "right-again" if self.step("after", first + w, w).match else "mixed"
         return self.result(
             first,

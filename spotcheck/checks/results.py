@@ -87,6 +87,16 @@ class FileFacts:
     integer_part: str | None
     label_finding: LabelFinding | None = None
     """The first label that disagrees with the digits (None: labels consistent, absent or ignored)."""
+    first: int = 1
+    """Position in the expansion of the file's first digit: 1, or ``P`` for a slice that begins
+    deeper in it.  Every position a result gives counts from the expansion's start."""
+    first_how: str = "start"
+    """How ``first`` was learnt: ``start``, ``given``, ``labels`` or ``labels and engine digits``."""
+
+    @property
+    def last(self) -> int:
+        """Position of the last digit under check."""
+        return self.first + self.checked - 1
 
 
 @dataclass(frozen=True)
@@ -133,11 +143,11 @@ class _Common:
     def any_mismatch(self) -> bool:
         return any(not c.match for c in self.checks)
 
-    full_through_value = 0  # overridden by results that ran a full comparison from digit 1
+    full_through_value = 0  # overridden by results that ran a full comparison from the first digit
 
     @property
     def full_through(self) -> int:
-        """Digits 1..N compared with a full computation (0: none)."""
+        """Digits ``file.first..N`` compared with a full computation (0: none)."""
         return self.full_through_value
 
     @property
@@ -145,7 +155,7 @@ class _Common:
         """Merged ``(first, last)`` ranges of digits (in the file's base) that were compared."""
         spans: list[tuple[int, int]] = []
         if self.full_through:
-            spans.append((1, self.full_through))
+            spans.append((self.file.first, self.full_through))
         for c in self.checks:
             if c.position < 1:
                 continue
@@ -170,7 +180,7 @@ class _Common:
     @property
     def exhaustive(self) -> bool:
         """True when every digit under check was compared."""
-        return self.covered == [(1, self.file.checked)]
+        return self.covered == [(self.file.first, self.file.last)]
 
     @property
     def labels_consistent(self) -> bool:
@@ -362,7 +372,7 @@ class ScanResult(_Common):
 
     @property
     def full_through(self) -> int:
-        return self.digits_compared
+        return self.file.first - 1 + self.digits_compared if self.digits_compared else 0
 
     def to_dict(self) -> dict[str, Any]:
         out = self._base_dict("scan")

@@ -25,12 +25,13 @@ RUN_SAMPLE = 16  # expected/found digits kept per run
 
 
 def estimate_scan(facts: FileFacts, reference: str = "arb", upto: int | None = None) -> tuple[float, int]:
-    """``(seconds, bytes)`` a full scan of this file (or its first ``upto`` digits) is expected to need."""
-    n = facts.checked if upto is None else min(upto, facts.checked)
+    """``(seconds, bytes)`` a full scan of this file (or of its digits up to position ``upto``) is
+    expected to need.  The full computation runs from digit 1, whatever the file's first position."""
+    n = facts.last if upto is None else min(upto, facts.last)
     seconds, memory = estimate_reference(facts.constant, facts.base, max(n, 1), reference)
     # Reading and comparing: about 1 s per 50 M digits on a slow disk, and the
     # file's digits held one chunk at a time.
-    return seconds + n / 50e6, memory + 2 * CHUNK_DIGITS
+    return seconds + max(n - facts.first + 1, 0) / 50e6, memory + 2 * CHUNK_DIGITS
 
 
 def _differences(a: str, b: str, offset: int) -> Iterator[int]:
@@ -88,12 +89,17 @@ def scan_open(
     upto: int | None = None,
     threads: int = 1,
 ) -> ScanResult:
-    """Scan an already opened file, or its first ``upto`` digits (``locate`` reuses this)."""
+    """Scan an already opened file, or its digits up to position ``upto`` (``locate`` reuses this).
+
+    Positions count from the expansion's start (the file's first digit is ``facts.first``); the
+    full computation runs to the last position compared.
+    """
     if reference not in REFERENCES:
         raise UsageError(f"unknown reference {reference!r} (choose from {', '.join(REFERENCES)})")
     require_supported(facts.constant)
     t0 = time.perf_counter()
-    n = facts.checked if upto is None else min(upto, facts.checked)
+    n = facts.last if upto is None else min(upto, facts.last)
+    origin = facts.first - 1
     seconds, memory = estimate_scan(facts, reference, upto=n)
     budget = memory_budget()
     if memory > budget:
@@ -104,7 +110,7 @@ def scan_open(
         )
     checks: list[WindowCheck] = []
     checks.extend(common_rows(facts))
-    share = seconds / (seconds + n / 50e6) if seconds > 0 else 0.0
+    share = seconds / (seconds + (n - origin) / 50e6) if seconds > 0 else 0.0
 
     def tick(elapsed: float) -> None:
         # the computation's share of the bar, from its estimate; then the comparison's
@@ -116,13 +122,14 @@ def scan_open(
     raw: list[tuple[int, int, int]] = []
     compared = 0
     interrupted = False
-    whole = n == facts.checked  # then one digit more: was the last digit rounded up?
+    whole = n == facts.last  # then one digit more: was the last digit rounded up?
     try:
         _, ref = reference_digits(facts.constant, facts.base, n + whole, reference, threads, tick)
     except KeyboardInterrupt:
         interrupted, ref = True, ""
     try:
-        for pos, chunk in df.iter_chunks(CHUNK_DIGITS) if not interrupted else ():
+        for at, chunk in df.iter_chunks(CHUNK_DIGITS) if not interrupted else ():
+            pos = at + origin  # the chunk's position in the expansion
             if pos > n:
                 break
             chunk = chunk[: n - pos + 1]
@@ -132,9 +139,9 @@ def scan_open(
                     raw[-1] = (raw[-1][0], last, raw[-1][2] + last - first + 1)
                 else:
                     raw.append((first, last, last - first + 1))
-            compared = pos - 1 + len(chunk)
+            compared = pos - 1 + len(chunk) - origin
             if progress:
-                progress(int(1000 * (share + (1 - share) * compared / n)), 1000)
+                progress(int(1000 * (share + (1 - share) * compared / (n - origin))), 1000)
             if stop_at_first and raw:
                 break
     except KeyboardInterrupt:
@@ -146,13 +153,15 @@ def scan_open(
             length=last - first + 1,
             wrong=wrong,
             expected=ref[first - 1 : first - 1 + min(RUN_SAMPLE, last - first + 1)],
-            found=df.read(first, min(RUN_SAMPLE, last - first + 1)),
+            found=df.read(first - origin, min(RUN_SAMPLE, last - first + 1)),
         )
         for first, last, wrong in merged[:MAX_RUNS_REPORTED]
     ]
     rounded = None
-    if whole and not interrupted and compared == n and len(merged) == 1 and merged[0][1] == n:
-        rounded = rounded_up_from(df.read(merged[0][0], n - merged[0][0] + 1), ref, merged[0][0], facts.base)
+    if whole and not interrupted and compared == n - origin and len(merged) == 1 and merged[0][1] == n:
+        rounded = rounded_up_from(
+            df.read(merged[0][0] - origin, n - merged[0][0] + 1), ref, merged[0][0], facts.base
+        )
     return ScanResult(
         file=facts,
         checks=checks,

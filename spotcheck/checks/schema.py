@@ -32,6 +32,17 @@ _FILE = {
         "base": {"enum": [10, 16]},
         "count": {"type": "integer", "minimum": 0, "description": "digits after the point"},
         "checked": {"type": "integer", "minimum": 0, "description": "digits under check (--limit)"},
+        "first": {
+            "type": "integer",
+            "minimum": 1,
+            "description": "position in the expansion of the file's first digit (1 unless the file is a "
+            "stretch from deeper in it); every position in the report counts from the expansion's start",
+        },
+        "first_how": {
+            "enum": ["start", "given", "labels", "labels and engine digits"],
+            "description": "how `first` was learnt: the file's start, stated, its labels, or its labels "
+            "with certified digits settling whether they count from 0 or 1",
+        },
         "constant": {"type": "string"},
         "constant_how": {"type": "string", "description": "how the constant was decided"},
         "formula": {"type": "string", "description": "engine formula key"},

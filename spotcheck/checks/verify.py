@@ -72,8 +72,8 @@ def verify_file(path: str, request: CheckRequest | None = None, **options: Any) 
         if is_full(facts.constant):  # no digit-extraction formula: every digit against Arb
             return verify_full(df, facts, progress=request.progress)
         for p in request.at:
-            if not 1 <= p <= facts.checked:
-                raise needs(f"position {p} is outside the file (digits 1..{facts.checked})", "at", p)
+            if not facts.first <= p <= facts.last:
+                raise needs(f"position {p} is outside the file (digits {facts.first}..{facts.last})", "at", p)
         if facts.base == 10:
             from .decimal import verify_decimal
 
@@ -130,13 +130,13 @@ def _verify_hex(
             warm_children()  # the full comparison's child: its start overlaps the windows
     w = clamp_window(request.window, facts.checked)
     rng = random.Random(seed)
-    last_start = facts.checked - w + 1
+    first, last_start = facts.first, facts.last - w + 1
     # A file no longer than the window has one window: the tail.
-    plan: list[tuple[str, int]] = [("head", 1)] if last_start > 1 else []
+    plan: list[tuple[str, int]] = [("head", first)] if last_start > first else []
     plan.append(("tail", last_start))
-    plan += [("user", p) for p in dict.fromkeys(at) if p not in (1, last_start)]
+    plan += [("user", p) for p in dict.fromkeys(at) if p not in (first, last_start)]
     # Random windows: distinct, and none where a window is checked anyway.
-    sampler = Sampler(rng, 1, last_start, fixed=[where for _, where in plan])
+    sampler = Sampler(rng, first, last_start, fixed=[where for _, where in plan])
     room: int | None = None
     if full_reference is None:
         room = sampler.room
@@ -162,7 +162,7 @@ def _verify_hex(
 
         scan = scan_open(df, facts, reference=full_reference, progress=progress, threads=oracle.workers)
         interrupted = scan.interrupted
-        full_through, wrong, evaluations = scan.digits_compared, scan.wrong_digits, evaluations + 1
+        full_through, wrong, evaluations = scan.full_through, scan.wrong_digits, evaluations + 1
         runs, rounded = scan.runs_total, scan.rounded_from
         spans = [(r.start, r.start + r.length - 1) for r in scan.runs]
         for run in scan.runs[:1]:

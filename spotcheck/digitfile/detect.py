@@ -30,7 +30,8 @@ from dataclasses import dataclass, field
 
 from spotcheck.digitfile.charsets import DEC, HEX, HEX_LETTERS, class_table
 from spotcheck.digitfile.content import newline_of
-from spotcheck.digitfile.readings import choose_reading
+from spotcheck.digitfile.readings import Reading, choose_reading
+from spotcheck.digitfile.slices import place
 from spotcheck.digitfile.syntax import BOTH_SYNTAXES, SYNTAXES, LabelMeaning, LabelSyntax
 from spotcheck.errors import DigitFileError, UsageError
 
@@ -105,6 +106,11 @@ class Detection:
     first_end_label_text: str | None = None
     """For ``"both"``: the first digit line's end label as written."""
     notes: list[str] = field(default_factory=list)
+    first_positions: tuple[int, ...] = (1,)
+    """Where the file's first digit may lie in the expansion: one position, or the two a start
+    label leaves open (0- or 1-based); see ``slices.py``."""
+    first_how: str = "start"
+    """How: ``start`` (the file's start is digit 1), ``given`` (the caller said) or ``labels``."""
 
 
 def _is_header(text: bytes) -> bool:
@@ -118,13 +124,22 @@ def _is_header(text: bytes) -> bool:
     return share < (DIGIT_LINE_SHARE if len(s) >= 8 else 0.5)
 
 
-def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str | None = None) -> Detection:
+def detect_text(
+    head: bytes,
+    eof: bool,
+    path: str,
+    base: int | None,
+    labels: str | None = None,
+    *,
+    first_position: int | None = None,
+) -> Detection:
     """Decide the layout of a text digit file from its first bytes.
 
     ``head`` is the start of the (decompressed) content, ``eof`` says whether
     it is the whole content.  ``base`` is the caller's explicit base or None;
     ``labels`` (``"start"``, ``"end"``, ``"both"``, ``"none"`` or None)
     restricts the readings tried.  A CR-only file must be given with CR already turned into LF.
+    ``first_position`` is the caller's word on where the file begins (``slices.place``).
     """
     name = os.path.basename(path)
     check_labels(labels)
@@ -259,6 +274,15 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
     if syntax is not None:
         label_where = "first-line" if chosen.first_only else syntax.where
         pass_syntax = None if chosen.first_only else syntax
+    rows = _label_rows(chosen) if pass_syntax is not None else []
+    placed = place(
+        None if pass_syntax is None else pass_syntax.where,
+        chosen.meaning if syntax is not None else None,
+        chosen.end_meaning if pass_syntax is not None else None,
+        rows,
+        chosen.steps_ok,
+        first_position,
+    )
     template = None
     if pass_syntax is None:
         template = _template(head, seg_end, digits_offset, eof, base or 16, newline)
@@ -271,7 +295,7 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
         first_line_no=first + 1,
         labels=label_where,
         syntax=pass_syntax,
-        meaning=chosen.meaning if syntax is not None else None,
+        meaning=placed.meaning,
         first_label=first_label,
         first_label_text=first_label_text,
         digits_offset=digits_offset,
@@ -284,9 +308,29 @@ def detect_text(head: bytes, eof: bool, path: str, base: int | None, labels: str
         newline=newline,
         letter_case=letter_case,
         whole_file_in_head=eof,
-        end_meaning=chosen.end_meaning if pass_syntax is not None else None,
+        end_meaning=placed.end_meaning,
+        first_positions=placed.positions,
+        first_how=placed.how,
         first_end_label_text=first_end_label_text,
     )
+
+
+def _label_rows(chosen: Reading) -> list[tuple[int | None, int | None, int, int]]:
+    """``(label, end label, digits before, digits on the line)`` per examined digit line of a labelled
+    reading, the labels' values (the start label of labels at both ends first)."""
+    syntax = chosen.syntax
+    assert syntax is not None
+    first, end = syntax.ends if syntax.where == "both" else (syntax, None)
+    ends = chosen.end_labels or [None] * len(chosen.labels)
+    return [
+        (
+            None if lab is None else first.value(lab),
+            None if end is None or end_lab is None else end.value(end_lab),
+            before,
+            nd,
+        )
+        for (_, lab, before, nd), end_lab in zip(chosen.labels, ends, strict=True)
+    ]
 
 
 _TRAILING_DIGITS = re.compile(rb"[0-9A-Fa-f \t.]*\Z")

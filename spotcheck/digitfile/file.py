@@ -73,6 +73,10 @@ class DigitFile:
         self._first = first  # leading and trailing digits seen by the pass (inspect needs no re-read)
         self._last = last
         self.constant, self.constant_how, self.constant_match = None, "", None
+        self.first_positions: tuple[int, ...] = (1,) if detection is None else detection.first_positions
+        """Where the first digit may lie in the expansion (two positions when a start label leaves
+        0- or 1-based open); ``first_how``: ``start``, ``given`` or ``labels`` (``slices.py``)."""
+        self.first_how = "start" if detection is None else detection.first_how
 
     # -- reading -------------------------------------------------------------
     def read(self, position: int, count: int) -> str:
@@ -245,6 +249,8 @@ class DigitFile:
             last_digits=self._last[-EDGE_DIGITS:]
             or self.read(max(1, self.count - EDGE_DIGITS + 1), EDGE_DIGITS),
             findings=list(self.findings),
+            first_positions=self.first_positions,
+            first_how=self.first_how,
         )
 
 

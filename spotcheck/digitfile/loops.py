@@ -138,6 +138,7 @@ class LoopLayout:
                 or type(meaning) is not LabelMeaning
                 or meaning.kind not in KIND_CODES
                 or meaning.unit not in (1, 2)
+                or meaning.origin  # a slice's labels: the loops count from the file's start
             ):
                 return None
             columns.append(LoopColumn(end.sep, end.radix, end.most, meaning))
@@ -147,7 +148,8 @@ class LoopLayout:
 PLAN_FIELDS = frozenset(
     "base base_how explicit_base integer_part header_lines first_line_no labels syntax meaning "
     "end_meaning first_label first_label_text first_end_label_text digits_offset seg_end seg_cols "
-    "seg_digits head_digits sample_digits template newline letter_case whole_file_in_head notes".split()
+    "seg_digits head_digits sample_digits template newline letter_case whole_file_in_head notes "
+    "first_positions first_how".split()
 )
 """The ``Detection`` fields the loops and the passes around them are written against (read, or
 known not to bear on where the digits are).  A field added later for a new layout is not here:

@@ -88,9 +88,15 @@ class InspectResult:
     first_digits: str
     last_digits: str
     findings: list[Finding] = field(default_factory=list)
+    first_positions: tuple[int, ...] = (1,)
+    """Where the file's first digit may lie in the expansion (two when a start label may count from
+    0 or from 1: ``verify`` and ``locate`` settle that with certified digits)."""
+    first_how: str = "start"
+    """``start`` (the file's start is digit 1), ``given`` or ``labels``."""
 
     def to_dict(self) -> dict[str, Any]:
         out = asdict(self)
+        out["first_positions"] = list(self.first_positions)
         out["layout"] = self.layout.to_dict()
         out["findings"] = [f.to_dict() for f in self.findings]
         return out

@@ -56,9 +56,14 @@ class CarriageReturns:
 
 
 def detect_source(
-    src: ByteSource, base: int | None, packed: bool | None, labels: str | None
+    src: ByteSource,
+    base: int | None,
+    packed: bool | None,
+    labels: str | None,
+    first_position: int | None = None,
 ) -> tuple[ByteSource, Detection | None, bytes]:
     """Detection alone: ``(source, detection, head)``; the detection is None for packed hex.
+    ``first_position``: the caller's word on the position of the file's first digit (``slices.py``).
 
     The source returned is the one every later read must use (a CR-only file is
     seen with LF line breaks).  The read-and-check stream (``stream.py``) starts here too.
@@ -88,7 +93,7 @@ def detect_source(
     if cr_only:
         src = CarriageReturns(src)  # type: ignore[assignment]
         head = head.replace(b"\r", b"\n")
-    plan = detect_text(head, eof, src.path, base, labels)
+    plan = detect_text(head, eof, src.path, base, labels, first_position=first_position)
     if cr_only:
         plan.newline = "\r"
     if plan.base is None:

@@ -133,7 +133,7 @@ class LabelCheck:
         want = self.meaning.expect(before, nd)
         text = label.decode("ascii")
         if want is None:
-            n = before + nd if self.meaning.kind == "through" else before
+            n = self.meaning.raw(before, nd)
             msg = f"{self.what} {text} disagrees with the digits: {n} digits are not a whole number of bytes"
             want = -1
         else:

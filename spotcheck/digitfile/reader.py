@@ -45,6 +45,7 @@ def open_digit_file(
     strict_labels: bool = False,
     progress: Progress | None = None,
     labels: str | None = None,
+    first_position: int | None = None,
 ) -> DigitFile:
     """Open a digit file read-only, detect its layout and run the one pass over it.
 
@@ -56,12 +57,13 @@ def open_digit_file(
     :class:`DigitFileError` instead of a finding.  ``labels`` (``"start"``,
     ``"end"``, ``"both"`` or ``"none"``) says where position labels are when
     the layout alone cannot tell.  ``progress(done, total)`` is called after each chunk of
-    the pass.
+    the pass.  ``first_position`` states the position in the expansion of the file's first
+    digit (default: its labels say, else 1; ``DigitFile.first_positions``, ``slices.py``).
     """
     check_open_arguments(base, labels)
     src = open_source(path)
     try:
-        return _open(src, base, constant, packed, strict_labels, progress, labels)
+        return _open(src, base, constant, packed, strict_labels, progress, labels, first_position)
     except BaseException:
         src.close()
         raise
@@ -75,10 +77,11 @@ def _open(
     strict_labels: bool,
     progress: Progress | None,
     labels: str | None = None,
+    first_position: int | None = None,
 ) -> DigitFile:
-    src, plan, head = detect_source(src, base, packed, labels)
+    src, plan, head = detect_source(src, base, packed, labels, first_position)
     if plan is None:
-        return open_packed(src, head, base, constant, progress)
+        return open_packed(src, head, base, constant, progress, first_position)
     assert plan.base is not None
     scan = build_index(src, plan, plan.base, strict_labels=strict_labels, progress=progress)
     return text_digit_file(src, plan, scan, constant)
@@ -109,6 +112,14 @@ def text_digit_file(src: ByteSource, plan: Detection, scan: IndexResult, constan
 
 
 def _decide_constant(df: DigitFile, head: str, constant: str | None) -> None:
+    if df.first_positions != (1,):
+        # A stretch from deeper in the expansion: its leading digits are not the constant's first
+        # ones, so neither the guess nor the comparison applies here (the checks make both at P).
+        if constant is not None:
+            df.constant, df.constant_how = explicit_constant(constant, "", None, df.base, df.count)[:2]
+        else:
+            df.constant_how = "not guessed from the leading digits: the file begins deeper in the expansion"
+        return
     if constant is not None:
         name, how, matched, agrees = explicit_constant(constant, head, df.integer_part, df.base, df.count)
         df.constant, df.constant_how = name, how
@@ -189,6 +200,7 @@ def open_packed(
     base: int | None,
     constant: str | None,
     progress: Progress | None,
+    first_position: int | None = None,
 ) -> DigitFile:
     """Packed binary hex: every byte holds two hex digits, high nibble first; no byte is anything else."""
     name = os.path.basename(src.path)
@@ -217,6 +229,8 @@ def open_packed(
         first=head[:EDGE_DIGITS].hex().upper(),
         last=last,
     )
+    if first_position is not None:
+        df.first_positions, df.first_how = (first_position,), "given"
     _decide_constant(df, head[:32].hex().upper(), constant)
     return df
 
@@ -229,7 +243,10 @@ def inspect_file(
     packed: bool | None = None,
     progress: Progress | None = None,
     labels: str | None = None,
+    first_position: int | None = None,
 ) -> InspectResult:
     """Open, pass over and summarise a digit file (what ``spotcheck inspect`` prints)."""
-    with open_digit_file(path, base, constant, packed=packed, progress=progress, labels=labels) as df:
+    with open_digit_file(
+        path, base, constant, packed=packed, progress=progress, labels=labels, first_position=first_position
+    ) as df:
         return df.inspect()

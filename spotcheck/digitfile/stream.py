@@ -68,6 +68,7 @@ class DigitStream:
         packed: bool | None = None,
         strict_labels: bool = False,
         labels: str | None = None,
+        first_position: int | None = None,
     ) -> None:
         self._src: ByteSource | None = src
         self.path, self.size_bytes, self.compression = src.path, src.size_bytes, src.compression
@@ -77,10 +78,10 @@ class DigitStream:
         self._buf, self._at = b"", 0
         self.digits_read = 0
         self._stored = 0
-        src, plan, head = detect_source(src, base, packed, labels)
+        src, plan, head = detect_source(src, base, packed, labels, first_position)
         self._src, self._plan = src, plan
         if plan is None:  # packed hex: two digits per byte, nothing to validate
-            self._df = open_packed(src, head, base, constant, None)
+            self._df = open_packed(src, head, base, constant, None, first_position)
             self.base, self.base_how, self.integer_part = 16, self._df.base_how, None
             self.head_digits = head[:32].hex().upper()
             self.how = "packed"
@@ -199,6 +200,13 @@ class DigitStream:
     ) -> None:
         self.close()  # after finish() the DigitFile owns the file: nothing left to close here
 
+    @property
+    def first_positions(self) -> tuple[int, ...]:
+        """Where the file's first digit may lie in the expansion (``DigitFile.first_positions``)."""
+        if self._plan is not None:
+            return self._plan.first_positions
+        return (1,) if self._df is None else self._df.first_positions
+
     def __repr__(self) -> str:
         return f"DigitStream({self.path!r}, base={self.base}, digits_read={self.digits_read})"
 
@@ -211,6 +219,7 @@ def open_stream(
     packed: bool | None = None,
     strict_labels: bool = False,
     labels: str | None = None,
+    first_position: int | None = None,
 ) -> DigitStream:
     """Open a digit file read-only for one sequential read (detection only; no pass yet).
 
@@ -222,7 +231,13 @@ def open_stream(
     src = open_source(path)
     try:
         return DigitStream(
-            src, base=base, constant=constant, packed=packed, strict_labels=strict_labels, labels=labels
+            src,
+            base=base,
+            constant=constant,
+            packed=packed,
+            strict_labels=strict_labels,
+            labels=labels,
+            first_position=first_position,
         )
     except BaseException:
         src.close()

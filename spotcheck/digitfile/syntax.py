@@ -76,10 +76,18 @@ class LabelMeaning:
 
     This is the one label rule: every pass asks :meth:`expect` (one line),
     :meth:`expect_all` (a chunk of lines) or :meth:`step_ok` (two neighbouring lines).
+
+    ``origin`` is the count of digits of the expansion before the file's first
+    digit: 0 for a file that starts at digit 1, ``P - 1`` for a slice whose first
+    digit is digit ``P``; labels count from the expansion's start, not the file's.
+
+    >>> LabelMeaning("first", 1, origin=999_999).expect(100, 64)  # the second line of a slice from 10^6
+    1000100
     """
 
     kind: str
     unit: int = 1
+    origin: int = 0
 
     @property
     def name(self) -> str:
@@ -92,11 +100,11 @@ class LabelMeaning:
 
     def raw(self, before: int, nd: int) -> int:
         """The count (in digits) a label of this meaning reports."""
-        return before + nd if self.kind == "through" else before
+        return self.origin + (before + nd if self.kind == "through" else before)
 
     def expect(self, before: int, nd: int) -> int | None:
         """The label a line holding ``nd`` digits after ``before`` digits must carry (None: none can)."""
-        n = before + nd if self.kind == "through" else before
+        n = self.origin + (before + nd if self.kind == "through" else before)
         if n % self.unit:
             return None
         return n // self.unit + (1 if self.kind == "first" else 0)
@@ -111,6 +119,8 @@ class LabelMeaning:
         line followed by the count after each line (so line i holds ``ends[i+1] - ends[i]``
         digits).  None when a count a label would report is not a whole number of units."""
         counts = ends[1:] if self.kind == "through" else ends[:-1]
+        if self.origin:
+            counts = [c + self.origin for c in counts]
         unit = self.unit
         if unit == 1:
             return [c + 1 for c in counts] if self.kind == "first" else list(counts)
@@ -124,6 +134,17 @@ class LabelMeaning:
         ``bc``) differ by what the digit counts between them imply, and grow."""
         ra, rc = self.raw(ba, na), self.raw(bc, nc)
         return (rc - ra) % self.unit == 0 and vc - va == (rc - ra) // self.unit and vc > va
+
+    def origin_from(self, value: int, before: int, nd: int) -> int | None:
+        """The ``origin`` under which a label ``value`` on a line of ``nd`` digits after ``before``
+        agrees with this meaning (None: under none, or before the expansion's start).
+
+        >>> LabelMeaning("first").origin_from(1_000_001, 0, 64), LabelMeaning("before").origin_from(1_000_001, 0, 64)
+        (1000000, 1000001)
+        """
+        n = (value - (1 if self.kind == "first" else 0)) * self.unit
+        origin = n - (before + nd if self.kind == "through" else before)
+        return origin if origin >= 0 else None
 
     def explain(self) -> str:
         what = "digits" if self.unit == 1 else "bytes (two hex digits each)"

@@ -101,7 +101,9 @@ def established_phrase(result: CheckResult) -> str:
     windows = sum(c.position >= 1 for c in result.checks)
     agree = "matches" if windows == 1 else "match"
     if result.full_through:
-        done = f"the first {result.full_through:,} digits agree with a full computation"
+        done = (
+            f"the first {result.full_through - result.file.first + 1:,} digits agree with a full computation"
+        )
         if windows:
             done += f", and {plural(windows, 'window')} {agree}"
     else:
@@ -114,7 +116,7 @@ def _rounded_phrase(result: CheckResult) -> str | None:
     first = getattr(result, "rounded_from", None)
     if first is None:
         return None
-    last = result.file.checked
+    last = result.file.last
     if first == last:
         return f"the last digit is the true expansion rounded up (digit {last:,}), not a truncation"
     return f"digits {first:,} to {last:,} are the true ones rounded up at the last digit, not a truncation"
@@ -125,6 +127,8 @@ def _verdict_line(result: CheckResult) -> tuple[str, str]:
     what = f"{f.constant} in base {f.base}, {f.checked:,} digits"
     if f.checked != f.count:
         what += f" of {f.count:,}"
+    if f.first != 1:
+        what += f" from position {f.first:,}"
     stop = "; interrupted" if result.interrupted else ""
     if result.verdict == "mismatch":
         if isinstance(result, LocateResult) and result.first_mismatch is not None:
@@ -238,14 +242,15 @@ def file_map(result: CheckResult, width: int) -> tuple[str, list[tuple[int, int,
     spans for colouring.
     """
     n = max(result.file.checked, 1)
+    shift = result.file.first - 1  # positions count from the expansion's start; cells from the file's
     cells = [MAP_UNCHECKED] * width
     styles = [STYLE_DIM] * width
 
     def first_cell(position: int) -> int:
-        return min(width - 1, max(0, (position - 1) * width // n))
+        return min(width - 1, max(0, (position - shift - 1) * width // n))
 
     def last_cell(position: int) -> int:  # a digit of a short file spans several cells
-        return max(first_cell(position), min(width - 1, position * width // n - 1))
+        return max(first_cell(position), min(width - 1, (position - shift) * width // n - 1))
 
     def paint(first: int, last: int, char: str, style: str) -> None:
         for i in range(first_cell(first), last_cell(last) + 1):
@@ -254,7 +259,7 @@ def file_map(result: CheckResult, width: int) -> tuple[str, list[tuple[int, int,
     for first, last in result.covered:
         paint(first, last, MAP_MATCH, STYLE_OK)
     damage_from: int | None = None
-    damage_to = n
+    damage_to = result.file.last
     if isinstance(result, LocateResult) and result.first_mismatch is not None:
         damage_from = result.first_mismatch
         if result.rest != "wrong":
@@ -316,13 +321,13 @@ def _meaning(result: CheckResult) -> list[str]:
         if by_evaluation:
             lines.append(
                 f"Full evaluation: {result.file.constant} has no digit-extraction formula, so all "
-                f"{result.full_through:,} digits were compared, in the file's own base, with certified digits "
+                f"{result.full_through - result.file.first + 1:,} digits were compared, in the file's own base, with certified digits "
                 f"of a full evaluation ({result.reference}); `spotcheck scan --reference mpfr` checks them "
                 "against a second, independent library."
             )
         elif result.reference is not None and result.full_through:
             lines.append(
-                f"Full comparison: {result.full_through:,} digits compared with an independent computation "
+                f"Full comparison: {result.full_through - result.file.first + 1:,} digits compared with an independent computation "
                 f"({result.reference}), which shares nothing with the digit-extraction engine."
             )
         if result.scattered_bound is not None:
@@ -430,10 +435,11 @@ def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool)
     text = Text(cells)
     for a, b, st in spans:
         text.stylize(st, a, b)
+    left, right = f"{f.first:,}", f"{f.last:,}"
     con.print(
-        Text("1", style=STYLE_DIM)
-        + Text(" " * (width - 1 - len(f"{f.checked:,}")))
-        + Text(f"{f.checked:,}", style=STYLE_DIM)
+        Text(left, style=STYLE_DIM)
+        + Text(" " * max(1, width - len(left) - len(right)))
+        + Text(right, style=STYLE_DIM)
     )
     con.print(text)
     con.print(
@@ -445,6 +451,21 @@ def show_result(result: CheckResult, repeat: str, *, as_json: bool, quiet: bool)
         con.print(m)
     con.print(f"{plural(result.evaluations, 'evaluation')} in {result.seconds:.2f} s", style=STYLE_DIM)
     con.print(f"repeat: {repeat}", style=STYLE_DIM)
+
+
+def _first_position_text(result: InspectResult) -> str:
+    """Where the file begins in the expansion, and how that was learnt."""
+    positions = result.first_positions
+    if result.first_how == "start":
+        return "1 (nothing in the file says otherwise)"
+    if result.first_how == "given":
+        return f"{positions[0]:,} (given)"
+    if len(positions) == 1:
+        return f"{positions[0]:,} (from the position labels)"
+    return (
+        f"{positions[0]:,} or {positions[1]:,} (from the position labels, counted from 1 or from 0; "
+        "verify and locate settle it with certified digits)"
+    )
 
 
 def show_inspect(result: InspectResult, *, as_json: bool) -> None:
@@ -480,6 +501,7 @@ def show_inspect(result: InspectResult, *, as_json: bool) -> None:
         ("constant", f"{result.constant or 'unknown'} ({result.constant_how})"),
         ("integer part", result.integer_part if result.integer_part is not None else "none"),
         ("digits after the point", f"{result.count:,}"),
+        ("first digit's position", _first_position_text(result)),
         ("layout", ", ".join(layout_bits)),
         ("first digits", result.first_digits),
         ("last digits", result.last_digits),

@@ -95,6 +95,10 @@ _SENTENCES: dict[str, Callable[[dict[str, Any], str], str]] = {
     "extra-all-checked": _all_extra,
     "checkpoint-damaged": _damaged,
     "checkpoint-failed": lambda d, s: f"{d['reason']}; the check went on without it",
+    "maybe-stretch": lambda d, s: (
+        f"every window differs, from the file's first digit on: if the file is a stretch that begins "
+        f"deeper in the expansion of {d['constant']}, give its first digit's position (--begins-at POSITION)"
+    ),
     # rows of the checks table (JSON ``checks[].note``)
     "integer-part": lambda d, s: "digits before the point",
     "window-before-first-wrong": lambda d, s: "the window just before the first wrong digit",
