@@ -268,18 +268,8 @@ def digits(
     ] = False,
 ) -> None:
     """Print certified hexadecimal digits of constant NAME from position --at."""
-    import signal
-    import threading
-
-    from spotcheck.engine.api import (
-        check_request,
-        cross_check,
-        default_checkpoint_path,
-        estimate_cost,
-        extract,
-    )
+    from spotcheck.engine.digits import plan_digits, run_digits
     from spotcheck.errors import UsageError
-    from spotcheck.formulas import get_constant
     from spotcheck.report.console import info_line, warning_line
     from spotcheck.report.digits import (
         ESTIMATE_SHOWN_SECONDS,
@@ -293,103 +283,60 @@ def digits(
     )
 
     _load_formula_files(formula_file)
-    check_request(at, count)
-    const = get_constant(constant)
-    if const.evaluation is not None:  # no digit-extraction formula: evaluated in full
-        if cross_check_ or checkpoint is not None or cluster is not None:
-            raise UsageError(
-                f"{const.name} is evaluated in full, not by digit extraction: "
-                "--cross-check, --checkpoint and --cluster do not apply"
-            )
-        result = extract(const.name, at, count)
-        if not (quiet or as_json):
+    plan = plan_digits(
+        constant,
+        at,
+        count,
+        formula=formula,
+        cross_check=cross_check_,
+        checkpoint=checkpoint,
+        workers=_workers(workers),
+        cluster=cluster,
+    )
+    talk = not (quiet or as_json)
+    if plan.full:
+        result = run_digits(plan).main
+        if talk:
             info_line(full_evaluation_line(result))
         show_digits(result, None, as_json=as_json, quiet=quiet)
         return
-    keys = [f.key for f in const.formulas] if cross_check_ else [const.formula(formula).key]
-    if cross_check_ and len(keys) < 2:
-        raise typer.BadParameter(
-            f"{const.name} has only one formula; nothing to cross-check", param_hint="--cross-check"
-        )
-    if checkpoint is not None and checkpoint != "auto" and len(keys) > 1:
-        raise typer.BadParameter(
-            "one checkpoint file serves one formula; use --checkpoint auto with --cross-check",
-            param_hint="--checkpoint",
-        )
-    talk = not (quiet or as_json)
-    n_workers = _workers(workers)
-    paths: dict[str, Path | None] = {}
-    estimates = {}
-    for key in keys:
-        path: Path | None = None
-        if checkpoint == "auto":
-            path = default_checkpoint_path(const.name, at, count, formula=key)
-        elif checkpoint is not None:
-            path = Path(checkpoint)
-        paths[key] = path
-        est = estimate_cost(
-            const.name,
-            at,
-            count,
-            formula=key,
-            workers=n_workers,
-            cluster=cluster is not None,
-            checkpoint=path is not None,
-        )
-        estimates[key] = est
+    for key, est in plan.estimates.items():
         if talk and (est.cpu_seconds >= ESTIMATE_SHOWN_SECONDS or not est.feasible):
             info_line(estimate_line(est, key))
             longer = long_run_line(est)
             if longer is not None:
                 info_line(longer)
         if not est.feasible:
-            raise UsageError(infeasible_line(_refusal(const.name, est), est))
-    for path in paths.values():
+            raise UsageError(infeasible_line(_refusal(plan.constant, est), est))
+    for path in plan.checkpoints.values():
         if path is not None and talk:
             info_line(f"checkpoint: {path}")
-    bar = TermProgress(f"{const.name} head sum", enabled=talk)
+    bar = TermProgress(f"{plan.constant} head sum", enabled=talk)
     current: dict[str, str | None] = {"checkpoint": None}
 
-    def per_formula(key: str) -> dict[str, Any]:
-        current["checkpoint"] = str(paths[key]) if paths[key] is not None else None
-        journal = True if checkpoint == "auto" else paths[key]  # True: the cache folder may be made
-        return {"checkpoint": journal, "block_progress": bar, "estimate": estimates[key]}
+    def on_formula(key: str, path: Path | None) -> None:
+        current["checkpoint"] = None if path is None else str(path)
 
-    def on_term(signum: int, frame: Any) -> None:
-        raise KeyboardInterrupt
-
-    previous = None
-    if threading.current_thread() is threading.main_thread():
-        previous = signal.signal(signal.SIGTERM, on_term)
-    options: dict[str, Any] = {"workers": n_workers, "cluster": cluster}
     try:
-        if cross_check_:
-            checked = cross_check(const.name, at, count, formula=formula, each=per_formula, **options)
-            main_result, results = checked.main, list(checked.results)
-            code = checked.exit_code
-        else:
-            main_result = extract(const.name, at, count, formula=keys[0], **options, **per_formula(keys[0]))
-            results, code = [main_result], EXIT_OK
+        done = run_digits(plan, block_progress=bar, on_formula=on_formula)
     except KeyboardInterrupt:
         bar.close()
         info_line(interrupted_line(bar.last, current["checkpoint"]))
         raise typer.Exit(130) from None
     finally:
         bar.close()
-        if previous is not None:
-            signal.signal(signal.SIGTERM, previous)
-    for r in results:
+    for r in done.results:
         for w in r.warnings:
             warning_line(w)
     show_digits(
-        main_result,
-        results if cross_check_ else None,
+        done.main,
+        done.results if plan.cross_check else None,
         as_json=as_json,
         quiet=quiet,
-        estimate=estimates[main_result.formula],
+        estimate=plan.estimates[done.main.formula],
     )
-    if code:
-        raise typer.Exit(code)
+    if done.exit_code:
+        raise typer.Exit(done.exit_code)
 
 
 def _refusal(name: str, est: Any) -> str:
@@ -553,6 +500,9 @@ def _hint(exc: Exception) -> str:
         "at": " (--at)",
         "verify_each": "; check each with `spotcheck verify`",
         "labels": " (--labels start|end|both|none)",
+        "cross_check": " (--cross-check)",
+        "checkpoint": " (--checkpoint auto)",
+        "full_evaluation": " (leave out --cross-check, --checkpoint and --cluster)",
         "first_position": " (--begins-at POSITION)",
         "constant_or_first_position": " (--constant NAME; `spotcheck constants` lists them). If the file is a "
         "stretch that begins deeper in the expansion, give its first digit's position with --begins-at POSITION",
