@@ -27,6 +27,7 @@ from spotcheck.formulas import get_constant
 from .request import DEFAULT_WINDOW as DEFAULT_WINDOW
 from .request import CheckRequest
 from .results import FileFacts, LabelFinding, LocateResult, Note, VerifyResult, WindowCheck
+from .slices import Placed, settle
 
 Progress = Callable[[int, int], None]
 Plan = list[tuple[str, int]]
@@ -38,6 +39,12 @@ FINGERPRINT_BYTES = 1 << 20  # stored bytes hashed at each end of a file to name
 
 
 def open_checked(path: str, request: CheckRequest) -> tuple[DigitFile, FileFacts]:
+    """Open a digit file and settle the constant and the first position (:func:`open_placed`)."""
+    df, facts, _ = open_placed(path, request)
+    return df, facts
+
+
+def open_placed(path: str, request: CheckRequest) -> tuple[DigitFile, FileFacts, Placed]:
     """Open a digit file and settle the constant, or raise :class:`UsageError`.
 
     ``request.limit`` restricts every check to the first ``limit`` digits.  Position
@@ -48,8 +55,6 @@ def open_checked(path: str, request: CheckRequest) -> tuple[DigitFile, FileFacts
     (``request.first_position``, or its labels): :func:`spotcheck.checks.slices.settle`
     places it, and ``FileFacts.first`` is its first digit's position.
     """
-    from .slices import settle
-
     limit = request.limit
     df = open_digit_file(
         path,
@@ -86,7 +91,7 @@ def open_checked(path: str, request: CheckRequest) -> tuple[DigitFile, FileFacts
         first=placed.first,
         first_how=placed.how,
     )
-    return df, facts
+    return df, facts, placed
 
 
 LABEL_KINDS = ("label-mismatch", "label-missing")
@@ -177,7 +182,7 @@ def open_run(path: str, request: CheckRequest) -> CheckRun:
     :class:`CheckpointError`) here, before any work; its path goes to
     ``request.on_checkpoint``.
     """
-    df, facts = open_checked(path, request)
+    df, facts, placed = open_placed(path, request)
     workers, cluster, checkpoint = request.workers, request.cluster, request.checkpoint
     journal: Journal | None = None
     try:
@@ -199,6 +204,8 @@ def open_run(path: str, request: CheckRequest) -> CheckRun:
         journal=journal,
         origin=facts.first - 1,
     )
+    if placed.engine_digits:  # certified digits at the first position, computed to place the file
+        oracle.held(facts.first, placed.engine_digits)
     if estimate is not None and request.on_estimate is not None:
         request.on_estimate(estimate)
     if journal is not None and request.on_checkpoint is not None:
@@ -395,6 +402,10 @@ class HexOracle:
             self.evaluations += 1
             self._cache[key] = r.digits
         return self._cache[key]
+
+    def held(self, position: int, digits: str) -> None:
+        """Keep certified ``digits`` from ``position`` (computed elsewhere) to serve windows inside them."""
+        self._cache[position, len(digits)] = digits
 
     def read(self, df: DigitFile, position: int, count: int) -> str:
         """The file's digits at ``position ..`` (counted from the expansion's start)."""

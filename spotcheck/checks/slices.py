@@ -46,6 +46,9 @@ class Placed:
     how: str
     constant_how: str | None = None
     """How the constant was recognised at ``first`` (None: as the digit-file layer says)."""
+    engine_digits: str = ""
+    """Certified digits of the constant from ``first`` computed to settle it (the check's head
+    window is served from them instead of being computed again)."""
 
 
 def agrees(head: str, digits: str) -> bool:
@@ -101,11 +104,10 @@ def settle(df: DigitFile, request: CheckRequest, name: str) -> Placed:
         return Placed(names[0], positions[0], how)
     if request.constant is None:
         return _guess(df, head, names, positions, how, request, name, shown)
-    agree = [
-        p for p in positions if agrees(head, extract(names[0], p, len(head), workers=request.workers).digits)
-    ]
+    computed = {p: extract(names[0], p, len(head), workers=request.workers).digits for p in positions}
+    agree = [p for p in positions if agrees(head, computed[p])]
     if len(agree) == 1:
-        return Placed(names[0], agree[0], "labels and engine digits")
+        return Placed(names[0], agree[0], "labels and engine digits", engine_digits=computed[agree[0]])
     # A named constant, two candidate positions, and the engine's digits settle neither.
     raise _needs(
         f"{name}: the labels say the file begins at digit {positions[0]:,} (counted from 1) or "
@@ -137,12 +139,14 @@ def _guess(
     )
     spent, skipped = 0.0, []
     agree: list[tuple[str, int]] = []
+    computed: dict[tuple[str, int], str] = {}
     for seconds, n, p in costs:
         if spent + seconds > GUESS_SECONDS:
             skipped.append((seconds, n))
             continue
         spent += seconds
-        if agrees(head, extract(n, p, len(head), workers=request.workers).digits):
+        computed[n, p] = extract(n, p, len(head), workers=request.workers).digits
+        if agrees(head, computed[n, p]):
             agree.append((n, p))
     if len(agree) == 1:
         const_name, first = agree[0]
@@ -151,6 +155,7 @@ def _guess(
             first,
             how if len(positions) == 1 else "labels and engine digits",
             f"recognised: its first digits agree with certified digits of {const_name} at {first:,}",
+            computed[const_name, first],
         )
     if agree:
         raise _needs(
