@@ -132,15 +132,16 @@ def _guess(
     the cheapest candidates first, within :data:`GUESS_SECONDS` of estimated engine time."""
     if len(head) < MIN_GUESS_DIGITS:
         raise _needs(f"{name}: too few digits ({len(head)}) to tell the constant of a stretch", "constant")
+    order = {n: i for i, n in enumerate(names)}
     costs = sorted(
-        (estimate_cost(n, p, len(head), workers=request.workers).cpu_seconds, n, p)
+        (estimate_cost(n, p, len(head), workers=request.workers).cpu_seconds, order[n], n, p)
         for n in names
         for p in positions
     )
     spent, skipped = 0.0, []
     agree: list[tuple[str, int]] = []
     computed: dict[tuple[str, int], str] = {}
-    for seconds, n, p in costs:
+    for seconds, _, n, p in costs:
         if spent + seconds > GUESS_SECONDS:
             skipped.append((seconds, n))
             continue
@@ -148,7 +149,10 @@ def _guess(
         computed[n, p] = extract(n, p, len(head), workers=request.workers).digits
         if agrees(head, computed[n, p]):
             agree.append((n, p))
-    if len(agree) == 1:
+    agree.sort(key=lambda np: order[np[0]])
+    if len({p for _, p in agree}) == 1:
+        # One place; several names only for one expansion (a formula file's copy of a built-in
+        # constant): the first registered, built-ins first, is checked.
         const_name, first = agree[0]
         return Placed(
             const_name,
