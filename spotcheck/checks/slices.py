@@ -104,7 +104,7 @@ def settle(df: DigitFile, request: CheckRequest, name: str) -> Placed:
         return Placed(names[0], positions[0], how)
     if request.constant is None:
         return _guess(df, head, names, positions, how, request, name, shown)
-    computed = {p: extract(names[0], p, len(head), workers=request.workers).digits for p in positions}
+    computed = _windows(names[0], positions, len(head), request.workers)
     agree = [p for p in positions if agrees(head, computed[p])]
     if len(agree) == 1:
         return Placed(names[0], agree[0], "labels and engine digits", engine_digits=computed[agree[0]])
@@ -133,22 +133,23 @@ def _guess(
     if len(head) < MIN_GUESS_DIGITS:
         raise _needs(f"{name}: too few digits ({len(head)}) to tell the constant of a stretch", "constant")
     order = {n: i for i, n in enumerate(names)}
+    span = len(head) + positions[-1] - positions[0]  # one window covers every candidate position
     costs = sorted(
-        (estimate_cost(n, p, len(head), workers=request.workers).cpu_seconds, order[n], n, p)
+        (estimate_cost(n, positions[0], span, workers=request.workers).cpu_seconds, order[n], n)
         for n in names
-        for p in positions
     )
     spent, skipped = 0.0, []
     agree: list[tuple[str, int]] = []
     computed: dict[tuple[str, int], str] = {}
-    for seconds, _, n, p in costs:
+    for seconds, _, n in costs:
         if spent + seconds > GUESS_SECONDS:
             skipped.append((seconds, n))
             continue
         spent += seconds
-        computed[n, p] = extract(n, p, len(head), workers=request.workers).digits
-        if agrees(head, computed[n, p]):
-            agree.append((n, p))
+        for p, digits in _windows(n, positions, len(head), request.workers).items():
+            computed[n, p] = digits
+            if agrees(head, digits):
+                agree.append((n, p))
     agree.sort(key=lambda np: order[np[0]])
     if len({p for _, p in agree}) == 1:
         # One place; several names only for one expansion (a formula file's copy of a built-in
@@ -182,3 +183,11 @@ def _guess(
         f"with its first {len(head)} digits",
         "constant",
     )
+
+
+def _windows(constant: str, positions: tuple[int, ...], count: int, workers: int) -> dict[int, str]:
+    """Certified digits ``count`` long from each candidate position, from one engine window
+    (the candidates lie a digit or two apart)."""
+    low = positions[0]
+    window = extract(constant, low, count + positions[-1] - low, workers=workers).digits
+    return {p: window[p - low : p - low + count] for p in positions}
