@@ -249,3 +249,17 @@ def test_random_slices_match_and_one_damaged_digit_is_located_exactly(
     assert (v.verdict == "match") == all(c.match for c in v.checks)
     if where is None:
         assert v.verdict == "match"
+
+
+@pytest.mark.parametrize("constant", [None, "pi"])
+def test_labels_off_on_a_file_from_digit_one_stay_findings(tmp_path, constant) -> None:
+    # End labels that count one digit too many on every line place the file at digit 2; its digits
+    # are pi's from digit 1 (gmpy2/MPFR), so it is read from there and the labels are findings:
+    # the digits match, never a mismatch on every window.
+    digits = pi_hex(4_000)
+    path = write_slice(tmp_path, digits, 2, "end")
+    assert path.read_text().startswith(digits[:64] + " : 65\n")
+    given = {} if constant is None else {"constant": constant}
+    v = verify_file(str(path), full_seconds=0, samples=4, seed=1, **given)
+    assert v.file.first == 1 and v.file.constant == "pi" and all(c.match for c in v.checks)
+    assert v.file.label_finding is not None and v.file.label_finding.expected == 64 and v.exit_code == 1

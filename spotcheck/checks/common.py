@@ -27,7 +27,7 @@ from spotcheck.formulas import get_constant
 from .request import DEFAULT_WINDOW as DEFAULT_WINDOW
 from .request import CheckRequest
 from .results import FileFacts, LabelFinding, LocateResult, Note, VerifyResult, WindowCheck
-from .slices import Placed, settle
+from .slices import START_AGAIN, Placed, settle
 
 Progress = Callable[[int, int], None]
 Plan = list[tuple[str, int]]
@@ -68,6 +68,17 @@ def open_placed(path: str, request: CheckRequest) -> tuple[DigitFile, FileFacts,
         if df.count < 1:
             raise UsageError(f"{path}: no digits after the point")
         placed = settle(df, request, str(path))
+        if placed.how == START_AGAIN:
+            df.close()
+            df = open_digit_file(
+                path,
+                base=request.base,
+                constant=request.constant,
+                strict_labels=False,
+                labels=request.labels,
+                first_position=1,
+            )
+            placed = Placed(placed.constant, 1, "start")
         if placed.constant is None:
             if placed.how == "start" and df.integer_part is None:  # it may be a stretch from deeper in
                 raise needs(f"{path}: {df.constant_how}", "constant_or_first_position")

@@ -37,6 +37,10 @@ GUESS_SECONDS = 5.0  # estimated engine CPU seconds the guess (every candidate t
 # ---------------------------------------------------------------------------
 
 
+START_AGAIN = "start-again"
+"""``Placed.how`` when labels placed a file deeper but its digits are the constant's from digit 1."""
+
+
 @dataclass(frozen=True)
 class Placed:
     """A file's constant (None when not settled here) and its first digit's position, with how."""
@@ -100,14 +104,21 @@ def settle(df: DigitFile, request: CheckRequest, name: str) -> Placed:
     else:
         names = [c.name for c in all_constants() if c.evaluation is None]
     head = df.read(1, min(GUESS_DIGITS, df.count))
-    if len(positions) == 1 and request.constant is not None:
-        return Placed(names[0], positions[0], how)
+    if how == "given" and request.constant is not None:
+        return Placed(names[0], positions[0], how)  # the caller's word; the check compares the digits
     if request.constant is None:
         return _guess(df, head, names, positions, how, request, name, shown)
     computed = _windows(names[0], positions, len(head), request.workers)
     agree = [p for p in positions if agrees(head, computed[p])]
     if len(agree) == 1:
-        return Placed(names[0], agree[0], "labels and engine digits", engine_digits=computed[agree[0]])
+        settled = how if len(positions) == 1 else "labels and engine digits"
+        return Placed(names[0], agree[0], settled, engine_digits=computed[agree[0]])
+    if not agree and agrees(head, extract(names[0], 1, len(head), workers=request.workers).digits):
+        # The digits are the constant's from digit 1: the labels are off, not the file's place
+        # (read again from digit 1, where they are findings, as in any file).
+        return Placed(names[0], 1, START_AGAIN)
+    if len(positions) == 1:
+        return Placed(names[0], positions[0], how)  # the labels' word; the check compares the digits
     # A named constant, two candidate positions, and the engine's digits settle neither.
     raise _needs(
         f"{name}: the labels say the file begins at digit {positions[0]:,} (counted from 1) or "
@@ -169,6 +180,12 @@ def _guess(
             + "; name the constant or the first digit's position",
             "constant",
         )
+    if how == "labels":
+        from spotcheck.digitfile.guess import match_constant
+
+        at_start = match_constant(df.read(1, 64), None, df.base, df.count)
+        if at_start.name is not None:  # the constant's digits from digit 1: the labels are off
+            return Placed(at_start.name, 1, START_AGAIN)
     if skipped:
         dearest = max(skipped)
         raise _needs(
