@@ -49,6 +49,8 @@ class DigitsPlan:
     full: bool = False
     """The constant has no digit-extraction formula: its digits come from a full evaluation."""
     checkpoints: dict[str, Path | None] = field(default_factory=dict)
+    auto_checkpoint: bool = False
+    """The journals are the cache directory's (their folder may be made), not files the caller named."""
     estimates: dict[str, CostEstimate] = field(default_factory=dict)
     workers: int = 1
     cluster: Any = None
@@ -103,7 +105,17 @@ def plan_digits(
             "one checkpoint file serves one formula; use the automatic one with a cross-check", "checkpoint"
         )
     main = const.formula(formula).key
-    plan = DigitsPlan(const.name, position, count, keys, cross_check, main, workers=workers, cluster=cluster)
+    plan = DigitsPlan(
+        const.name,
+        position,
+        count,
+        keys,
+        cross_check,
+        main,
+        workers=workers,
+        cluster=cluster,
+        auto_checkpoint=checkpoint == "auto",
+    )
     for key in keys:
         path: Path | None = None
         if checkpoint == "auto":
@@ -141,7 +153,9 @@ def run_digits(
         if on_formula is not None:
             on_formula(key, plan.checkpoints[key])
         return {
-            "checkpoint": plan.checkpoints[key],
+            "checkpoint": True
+            if plan.auto_checkpoint
+            else plan.checkpoints[key],  # True: the folder may be made
             "block_progress": block_progress,
             "estimate": plan.estimates[key],
         }
