@@ -34,7 +34,9 @@ __all__ = [
     "MAX_COUNT",
     "check_request",
     "checkpoint_request",
+    "comb_checkpoint_request",
     "default_checkpoint_path",
+    "default_comb_checkpoint_path",
 ]
 
 # A request for more digits than this is refused as a usage error: each window
@@ -136,6 +138,46 @@ def default_checkpoint_path(
     p, n = check_request(position, count)
     name, f = resolve_formula(constant, formula)
     return request_path(f"{name}-{f.key}-at{p}-n{n}", checkpoint_request(name, f, p, n))
+
+
+def comb_checkpoint_request(
+    name: str, f: Formula, position: int, gap: int, count: int, digits: int
+) -> dict[str, Any]:
+    """What a comb's checkpoint file is keyed by: a :func:`checkpoint_request` naming the comb
+    (first position, gap, number of windows, digits a window)."""
+    return {**checkpoint_request(name, f, position, digits), "gap": gap, "windows": count}
+
+
+def default_comb_checkpoint_path(
+    constant: str | Formula,
+    position: int,
+    gap: int,
+    count: int,
+    digits: int = 16,
+    *,
+    formula: str | None = None,
+) -> Path:
+    """The checkpoint file :func:`extract_comb` uses for ``checkpoint=True`` (as
+    :func:`default_checkpoint_path`, the comb's gap and windows in the name)."""
+    p, n = check_request(position, digits)
+    name, f = resolve_formula(constant, formula)
+    return request_path(
+        f"{name}-{f.key}-comb-at{p}-gap{gap}-w{count}-n{n}",
+        comb_checkpoint_request(name, f, p, gap, count, n),
+    )
+
+
+def _journal_warnings(journal: Journal, path: Path | None) -> list[str]:
+    """The run's own journal's problems that did not stop it."""
+    warnings: list[str] = []
+    if journal.damaged:
+        warnings.append(
+            f"{journal.damaged} damaged record(s) in the checkpoint {path} were skipped "
+            "and their blocks computed again"
+        )
+    if journal.failure:
+        warnings.append(f"{journal.failure}; the run went on without it")
+    return warnings
 
 
 def _check_block_k(block_k: object) -> int | None:
@@ -287,13 +329,7 @@ def extract(
             client.close()
     warnings: list[str] = []
     if plan.journal is not None and not shared:
-        if plan.journal.damaged:
-            warnings.append(
-                f"{plan.journal.damaged} damaged record(s) in the checkpoint {path} were skipped "
-                "and their blocks computed again"
-            )
-        if plan.journal.failure:
-            warnings.append(f"{plan.journal.failure}; the run went on without it")
+        warnings = _journal_warnings(plan.journal, path)
     widest = max(intervals, key=lambda iv: iv.width_log2)
     return DigitResult(
         constant=name,
@@ -334,6 +370,16 @@ class CombResult:
     """Windows the shared precision did not certify, evaluated again alone."""
     seconds: float
     backend: str
+    terms_loaded: int = 0
+    """Of ``terms``, those whose blocks came from the checkpoint, not computed in this run."""
+    blocks_loaded: int = 0
+    """Blocks taken from the checkpoint: the comb's (each serving every window) and those of
+    windows evaluated alone."""
+    blocks_computed: int = 0
+    checkpoint: str | None = None
+    """The checkpoint file used, if any."""
+    warnings: tuple[str, ...] = ()
+    """Problems that did not stop the run (a damaged record recomputed, a checkpoint that could not be written...)."""
 
 
 def extract_comb(
@@ -345,12 +391,20 @@ def extract_comb(
     *,
     formula: str | None = None,
     workers: int = 1,
+    checkpoint: str | os.PathLike[str] | bool | Journal | None = None,
+    cluster: Any = None,
+    block_k: int | None = None,
+    block_progress: Callable[[BlockProgress], None] | None = None,
 ) -> CombResult:
     """``digits`` certified hex digits at each of ``count`` positions ``position + i * gap``.
 
     One pass over the head terms serves every window (the comb,
     :mod:`spotcheck.engine.comb`); the digits are those of each window
-    evaluated alone.
+    evaluated alone.  ``workers``, ``checkpoint``, ``cluster``, ``block_k``
+    and ``block_progress`` run it as they run :func:`extract`: comb blocks
+    (every window's sums of one range of k) on threads or a Dask cluster,
+    journaled in the checkpoint (``True``: :func:`default_comb_checkpoint_path`;
+    an open :class:`Journal`, a check's, holds the comb beside its windows).
 
     >>> extract_comb("pi", 1, 8, 2, 8).digits
     ('243F6A88', '85A308D3')
@@ -365,13 +419,42 @@ def extract_comb(
 
     name, f = resolve_formula(constant, formula)
     series = series_of(f)
+    block_k = _check_block_k(block_k)
+    deep = checkpoint not in (None, False) or cluster is not None
+    plan = RunPlan(series, p, n, thread_runner(workers), block_k=block_k, on_block=block_progress, deep=deep)
+    path: Path | None = None
+    shared = isinstance(checkpoint, Journal)  # the caller's journal: it opens and closes it
+    if isinstance(checkpoint, Journal):
+        plan.journal, path = checkpoint, checkpoint.path
+    elif checkpoint is True:
+        path = default_comb_checkpoint_path(constant, p, gap, count, n, formula=formula)
+    elif checkpoint not in (None, False):
+        assert not isinstance(checkpoint, bool)
+        path = Path(checkpoint)
+    if path is not None and not shared:
+        plan.journal = Journal(path, series, comb_checkpoint_request(name, f, p, gap, count, n))
+    client, owned = None, False
+    finished = False
     t0 = time.perf_counter()
     try:
-        windows = comb_window_digits(series, p, gap, count, n, workers=workers)
+        if cluster is not None:
+            from spotcheck.engine.cluster import connect, dask_runner
+
+            client, owned = connect(cluster)
+            plan.runner = dask_runner(client)
+        windows = comb_window_digits(series, p, gap, count, n, plan)
+        finished = True
     except ValueError as exc:
         raise UsageError(str(exc)) from exc
+    finally:
+        if plan.journal is not None and not shared:
+            plan.journal.close(compact=finished)
+        if owned and client is not None:
+            client.close()
     seconds = time.perf_counter() - t0
-    widest = max((w.interval for w in windows), key=lambda iv: iv.width_log2)
+    warnings = _journal_warnings(plan.journal, path) if plan.journal is not None and not shared else []
+    intervals = [w.interval for w in windows]
+    widest = max(intervals, key=lambda iv: iv.width_log2)
     return CombResult(
         constant=name,
         formula=f.key,
@@ -379,10 +462,16 @@ def extract_comb(
         digits=tuple(w.digits for w in windows),
         width_log2=round(widest.width_log2, 2),
         fraction_bits=widest.bits,
-        terms=sum(w.interval.terms for w in windows),
+        terms=sum(iv.terms for iv in intervals),
         alone=sum(w.alone for w in windows),
         seconds=seconds,
         backend=backend.BACKEND,
+        terms_loaded=sum(iv.terms_loaded for iv in intervals),
+        blocks_loaded=windows[0].comb_blocks[0] + sum(w.interval.blocks_loaded for w in windows if w.alone),
+        blocks_computed=windows[0].comb_blocks[1]
+        + sum(w.interval.blocks_computed for w in windows if w.alone),
+        checkpoint=str(path) if path is not None else None,
+        warnings=tuple(warnings),
     )
 
 

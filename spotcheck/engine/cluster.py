@@ -1,10 +1,12 @@
 """Head-sum blocks on a Dask cluster (the optional ``cluster`` extra).
 
 The scheduler and workers are ordinary ``dask.distributed`` processes; the
-workers need only spotcheck installed.  Each block is one task calling
-:func:`spotcheck.engine.blocks.compute_block`; its :class:`BlockRecord` comes
-back to the caller, which checks it before adding it (see
-:func:`spotcheck.engine.blocks.sum_blocks`).  A worker lost mid-task has its
+workers need only spotcheck installed.  Each block is one task calling the
+request's own function (:meth:`~spotcheck.engine.blocks.BlockRequest.task`:
+:func:`~spotcheck.engine.blocks.compute_block` for a window,
+:func:`~spotcheck.engine.blocks.compute_comb_block` for a comb, all its windows
+in one task); its record comes back to the caller, which checks it before
+adding it (see :func:`spotcheck.engine.blocks.sum_blocks`).  A worker lost mid-task has its
 blocks rerun by Dask itself (``retries``).
 
 ``dask.distributed`` is imported only when a cluster is asked for.
@@ -15,7 +17,7 @@ from __future__ import annotations
 from collections.abc import Callable, Iterable, Iterator
 from typing import Any
 
-from spotcheck.engine.blocks import BlockRequest, BlockRunner, compute_block
+from spotcheck.engine.blocks import BlockRunner, Request
 from spotcheck.errors import ClusterError, UsageError
 
 __all__ = ["connect", "dask_runner", "INSTALL_HINT", "DASK_RETRIES"]
@@ -76,17 +78,20 @@ def _disown(client: Any) -> None:
 
 
 def dask_runner(
-    client: Any, *, compute: Callable[..., Any] = compute_block, retries: int = DASK_RETRIES
+    client: Any, *, compute: Callable[..., Any] | None = None, retries: int = DASK_RETRIES
 ) -> BlockRunner:
     """A block runner sending each block to ``client``'s cluster as one task.
 
-    ``compute`` is the task function (a top-level function, so workers import
-    it by name); records are yielded as they complete, in any order.
+    The task function is the request's own (``request.task()``); ``compute``,
+    if given, replaces it with the same arguments (a top-level function, so
+    workers import it by name).  Records are yielded as they complete, in any
+    order.
     """
     distributed = _distributed()
 
-    def run(request: BlockRequest, blocks: Iterable[tuple[int, int]]) -> Iterator[object]:
-        s, d, w = request.series, request.d, request.words
+    def run(request: Request, blocks: Iterable[tuple[int, int]]) -> Iterator[object]:
+        fn, args = request.task()
+        fn = compute or fn
         todo = iter(blocks)  # lazy: at most MAX_IN_FLIGHT tasks exist at once
         pending: set[Any] = set()
 
@@ -94,7 +99,7 @@ def dask_runner(
             nxt = next(todo, None)
             if nxt is None:
                 return None
-            future = client.submit(compute, s, d, w, *nxt, pure=False, retries=retries)
+            future = client.submit(fn, *args, *nxt, pure=False, retries=retries)
             pending.add(future)
             return future
 

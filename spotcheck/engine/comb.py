@@ -24,12 +24,9 @@ and the digits are always those of the window evaluated alone.
 
 from __future__ import annotations
 
-from collections.abc import Iterator
-from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
-from spotcheck.engine import backend
-from spotcheck.engine.blocks import HeadSum
+from spotcheck.engine.blocks import CombRequest, HeadSum, sum_comb_blocks
 from spotcheck.engine.evaluate import (
     Interval,
     certified_hex_prefix,
@@ -38,7 +35,7 @@ from spotcheck.engine.evaluate import (
     window_digits,
     words_for,
 )
-from spotcheck.engine.plan import BLOCK_K
+from spotcheck.engine.plan import RunPlan
 from spotcheck.engine.series import Series
 
 __all__ = ["CombWindow", "comb_heads_fixed", "comb_window_digits"]
@@ -53,47 +50,54 @@ class CombWindow:
     interval: Interval
     alone: bool = False
     """True when the comb's precision did not certify it and it was evaluated alone."""
+    comb_blocks: tuple[int, int] = (0, 0)
+    """The comb pass's blocks ``(loaded from a checkpoint, computed)``, shared by every window
+    (a window evaluated alone has its own besides, in ``interval``)."""
 
 
 def comb_heads_fixed(
-    series: Series, d0: int, step: int, count: int, words: int, *, workers: int = 1, block_k: int = BLOCK_K
+    series: Series,
+    d0: int,
+    step: int,
+    count: int,
+    words: int,
+    plan: RunPlan | None = None,
+    *,
+    workers: int = 1,
+    block_k: int | None = None,
 ) -> list[HeadSum]:
     """The head sums of the windows at bit offsets ``d0 + i * step`` with ``64 * words`` bits.
 
-    Blocks of ``block_k`` values of k over the deepest window's head, on
-    ``workers`` threads (the kernel releases the GIL); each block's sums go to
-    the windows whose heads hold its k (``backend.head_block_comb``).
+    Comb blocks (:class:`~spotcheck.engine.blocks.CombRequest`) over the
+    deepest window's head, run as ``plan`` runs a window's blocks: its runner
+    (threads, a Dask cluster), its journal, its progress callback, its block
+    size (for the deepest window; ``block_k`` overrides it).  Without a plan:
+    ``workers`` threads, nothing else.  Every comb block's record is checked
+    before its sums go to the windows whose heads hold its k.
     """
-    big_d0 = d0 - series.shift
-    k_total = series.head_length(d0 + (count - 1) * step)
-    blocks = [(k, min(k + block_k, k_total)) for k in range(0, k_total, block_k)]
-    mask = (1 << (64 * words)) - 1
-    values, terms = [0] * count, [0] * count
-
-    def one(block: tuple[int, int]) -> list[tuple[int, int]]:
-        return backend.head_block_comb(series, big_d0, step, count, block[0], block[1], words)
-
-    results: Iterator[list[tuple[int, int]]]
-    if workers > 1 and len(blocks) > 1:
-        with ThreadPoolExecutor(max_workers=workers) as pool:
-            results = iter(list(pool.map(one, blocks)))
-    else:
-        results = map(one, blocks)
-    for sums in results:
-        for i, (v, t) in enumerate(sums):
-            values[i] = (values[i] + v) & mask
-            terms[i] += t
-    return [HeadSum(v, t, 0, 0, len(blocks)) for v, t in zip(values, terms, strict=True)]
+    plan = plan or RunPlan.local(series, workers=workers)
+    size = block_k or plan.block_size(d0 + (count - 1) * step)
+    request = CombRequest(series, d0, step, count, words, size)
+    return sum_comb_blocks(request, runner=plan.runner, journal=plan.journal, on_block=plan.on_block)
 
 
 def comb_window_digits(
-    series: Series, position: int, gap: int, count: int, digits: int, *, workers: int = 1
+    series: Series,
+    position: int,
+    gap: int,
+    count: int,
+    digits: int,
+    plan: RunPlan | None = None,
+    *,
+    workers: int = 1,
 ) -> list[CombWindow]:
     """``digits`` certified hex digits at each of the positions ``position + i * gap``, ``i < count``.
 
     One pass over the head terms serves every window (see the module
     docstring); each window is certified by its own interval, and evaluated
-    alone if the shared precision does not settle it.  Raises ``ValueError``
+    alone if the shared precision does not settle it.  ``plan`` runs the
+    comb's blocks and any window evaluated alone (runner, journal, progress,
+    block size); without one, ``workers`` threads.  Raises ``ValueError``
     when ``digits`` exceeds one window's capacity at the deepest position.
     """
     if position < 1 or gap < 1 or count < 1 or digits < 1:
@@ -105,7 +109,8 @@ def comb_window_digits(
             f"{digits} digits exceed one window's {window_capacity(series, d_last)} at that depth"
         )
     words = words_for(series, d_last, digits)
-    heads = comb_heads_fixed(series, d0, step, count, words, workers=workers)
+    plan = plan or RunPlan.local(series, position, digits, workers)
+    heads = comb_heads_fixed(series, d0, step, count, words, plan)
     out = []
     for i, head in enumerate(heads):
         d = d0 + i * step
@@ -113,6 +118,8 @@ def comb_window_digits(
         found = certified_hex_prefix(interval, digits)
         alone = len(found) < digits
         if alone:  # never guessed: this window alone, with more bits
-            found, interval = window_digits(series, d, digits, words=words + 1)
-        out.append(CombWindow(position + i * gap, found, interval, alone))
+            found, interval = window_digits(series, d, digits, plan, words=words + 1)
+        out.append(
+            CombWindow(position + i * gap, found, interval, alone, (head.blocks_loaded, head.blocks_computed))
+        )
     return out

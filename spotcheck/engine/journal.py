@@ -19,6 +19,18 @@ check evaluates.  A *section* line opens one evaluated window and precision
 head sum depends only on the series, ``d``, ``words`` and the block size, so
 two windows that meet at the same ``(d, words)`` share their section.
 
+A comb of windows (:mod:`spotcheck.engine.comb`) has sections of its own,
+named by the comb, and comb blocks, each holding every window's sum of its
+range of k::
+
+    {"comb":{"d0":...,"step":...,"count":...,"words":...,"block_k":...,"k_total":...,"series":"..."}}<TAB>checksum
+    {"combblock":[d0,step,count,words,k0,k1,["hex",...],[terms,...]]}<TAB>checksum
+
+They are read, checked (the same :func:`~spotcheck.engine.blocks.block_problem`)
+and refused exactly as a window's are, and sit in the same file beside window
+sections (a check's windows evaluated alone, say).  ``k_total`` is the deepest
+window's head.
+
 Reading:
 
 * a last line without its newline is a write torn by a crash: ignored (and cut
@@ -61,7 +73,7 @@ from collections.abc import Iterator, Sequence
 from pathlib import Path
 from typing import Any, BinaryIO
 
-from spotcheck.engine.blocks import BlockRecord, BlockRequest, block_problem
+from spotcheck.engine.blocks import BlockRecord, BlockRequest, CombRecord, CombRequest, Request, block_problem
 from spotcheck.engine.series import Series
 from spotcheck.errors import CheckpointError
 
@@ -178,6 +190,9 @@ class Journal:
         """Blocks read from the file when it was opened."""
         self._sections: dict[tuple[int, int], dict[str, Any]] = {}
         self._records: dict[tuple[int, int], dict[int, BlockRecord]] = {}
+        # Combs, keyed by (d0, step, count, words): their sections and records.
+        self._combs: dict[tuple[int, int, int, int], dict[str, Any]] = {}
+        self._comb_records: dict[tuple[int, int, int, int], dict[int, CombRecord]] = {}
         self._fd: int | None = None
         self._lock_fd: int | None = None
         exists = self._examine()
@@ -336,6 +351,10 @@ class Journal:
                     self._load_section(obj["section"])
                 elif "block" in obj:
                     self._load_block(obj["block"])
+                elif "comb" in obj:
+                    self._load_comb(obj["comb"])
+                elif "combblock" in obj:
+                    self._load_comb_block(obj["combblock"])
                 else:
                     raise self._refuse(f"line {number} is neither a section nor a block")
             except (KeyError, TypeError, ValueError) as exc:
@@ -386,8 +405,63 @@ class Journal:
             raise self._refuse(f"a block of bit offset {d} failed its check: {problem}")
         self._records[key][record.k0] = record
 
-    def records(self, request: BlockRequest) -> list[BlockRecord]:
+    def _load_comb(self, section: Any) -> None:
+        d0, step, count, words, block_k = (
+            _exact_int(section[name]) for name in ("d0", "step", "count", "words", "block_k")
+        )
+        if (
+            min(d0, step) < 0
+            or min(count, words, block_k) < 1
+            or section.get("k_total") != self.series.head_length(d0 + (count - 1) * step)
+        ):
+            raise self._refuse(f"comb section at bit offset {d0} does not match this series")
+        key = (d0, step, count, words)
+        if key in self._combs:
+            raise self._refuse(f"two sections for the comb at bit offset {d0}, step {step}, count {count}")
+        self._combs[key] = {
+            "d0": d0,
+            "step": step,
+            "count": count,
+            "words": words,
+            "block_k": block_k,
+            "k_total": section["k_total"],
+            "series": section.get("series"),
+        }
+        self._comb_records[key] = {}
+
+    def _load_comb_block(self, fields: Any) -> None:
+        d0, step, count, words, k0, k1, vs, ts = fields
+        key = (_exact_int(d0), _exact_int(step), _exact_int(count), _exact_int(words))
+        section = self._combs.get(key)
+        if section is None:
+            if self.damaged:  # its section line was the damaged one: this record goes with it
+                self.damaged += 1
+                return
+            raise self._refuse(f"a block of the comb at bit offset {d0} comes before its section")
+        if not isinstance(vs, list) or not all(isinstance(v, str) for v in vs):
+            raise TypeError(f"expected a list of hex strings, got {vs!r}")
+        if not isinstance(ts, list):
+            raise TypeError(f"expected a list of term counts, got {ts!r}")
+        record = CombRecord(
+            section["series"],
+            *key,
+            _exact_int(k0),
+            _exact_int(k1),
+            tuple(int(v, 16) for v in vs),
+            tuple(ts),
+        )
+        request = CombRequest(self.series, *key, section["block_k"])
+        problem = block_problem(request, record)
+        if problem is None and record.k0 in self._comb_records[key]:
+            problem = "a block appears twice"
+        if problem is not None:
+            raise self._refuse(f"a block of the comb at bit offset {d0} failed its check: {problem}")
+        self._comb_records[key][record.k0] = record
+
+    def records(self, request: Request) -> list[BlockRecord] | list[CombRecord]:
         """The finished blocks of ``request`` (empty if none); refuses a different block size."""
+        if isinstance(request, CombRequest):
+            return self._comb_records_of(request)
         key = (request.d, request.words)
         section = self._sections.get(key)
         if section is None:
@@ -399,9 +473,21 @@ class Journal:
             )
         return list(self._records[key].values())
 
+    def _comb_records_of(self, request: CombRequest) -> list[CombRecord]:
+        key = (request.d0, request.step, request.count, request.words)
+        section = self._combs.get(key)
+        if section is None:
+            return []
+        if section["block_k"] != request.block_k or section["series"] != request.fingerprint:
+            raise self._refuse(
+                f"the comb at bit offset {request.d0} was cut into blocks of {section['block_k']} "
+                f"values of k, this run uses {request.block_k}"
+            )
+        return list(self._comb_records[key].values())
+
     @property
     def blocks_kept(self) -> int:
-        return sum(len(r) for r in self._records.values())
+        return sum(len(r) for r in self._records.values()) + sum(len(r) for r in self._comb_records.values())
 
     # -- writing ------------------------------------------------------------
     def _open_for_append(self, valid_length: int | None) -> None:
@@ -450,8 +536,13 @@ class Journal:
                 pass
             self._fd = None
 
-    def add(self, request: BlockRequest, record: BlockRecord) -> None:
+    def add(self, request: Request, record: BlockRecord | CombRecord) -> None:
         """Keep a checked record and append it to the file (written and fsync'd on return)."""
+        if isinstance(request, CombRequest):
+            assert isinstance(record, CombRecord)
+            self._add_comb(request, record)
+            return
+        assert isinstance(record, BlockRecord)
         key = (request.d, request.words)
         if key not in self._sections:
             section = {
@@ -466,6 +557,24 @@ class Journal:
             self._append(journal_line({"section": section}))
         self._records[key][record.k0] = record
         self._append(journal_line({"block": [record.d, record.words, *record.to_list()]}))
+
+    def _add_comb(self, request: CombRequest, record: CombRecord) -> None:
+        key = (request.d0, request.step, request.count, request.words)
+        if key not in self._combs:
+            section = {
+                "d0": request.d0,
+                "step": request.step,
+                "count": request.count,
+                "words": request.words,
+                "block_k": request.block_k,
+                "k_total": request.k_total,
+                "series": request.fingerprint,
+            }
+            self._combs[key] = section
+            self._comb_records[key] = {}
+            self._append(journal_line({"comb": section}))
+        self._comb_records[key][record.k0] = record
+        self._append(journal_line({"combblock": [*key, *record.to_list()]}))
 
     def close(self, *, compact: bool = True) -> None:
         """Stop appending; with ``compact``, rewrite the file in order without damaged lines.  The
@@ -484,6 +593,10 @@ class Journal:
             lines.append(journal_line({"section": self._sections[key]}))
             for _, r in sorted(self._records[key].items()):
                 lines.append(journal_line({"block": [r.d, r.words, *r.to_list()]}))
+        for ckey in sorted(self._combs):
+            lines.append(journal_line({"comb": self._combs[ckey]}))
+            for _, c in sorted(self._comb_records[ckey].items()):
+                lines.append(journal_line({"combblock": [*ckey, *c.to_list()]}))
         try:
             _write_atomic(self.path, "".join(lines))
         except OSError as exc:  # the journal as appended stays valid
