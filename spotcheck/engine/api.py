@@ -13,7 +13,7 @@ from typing import Any
 
 from spotcheck.engine import backend
 from spotcheck.engine.blocks import BlockProgress, series_fingerprint, thread_runner
-from spotcheck.engine.evaluate import extract_hex, value_bounds
+from spotcheck.engine.evaluate import extract_hex, value_bounds, window_capacity
 from spotcheck.engine.journal import Journal, request_path
 from spotcheck.engine.plan import CostEstimate, RunPlan, estimate_series_cost
 from spotcheck.engine.series import series_of
@@ -419,6 +419,9 @@ def extract_comb(
 
     name, f = resolve_formula(constant, formula)
     series = series_of(f)
+    capacity = window_capacity(series, 4 * (p - 1 + (count - 1) * gap))
+    if n > capacity:  # before any file is opened
+        raise UsageError(f"{n} digits exceed one window's {capacity} at that depth")
     block_k = _check_block_k(block_k)
     deep = checkpoint not in (None, False) or cluster is not None
     plan = RunPlan(series, p, n, thread_runner(workers), block_k=block_k, on_block=block_progress, deep=deep)
@@ -444,8 +447,6 @@ def extract_comb(
             plan.runner = dask_runner(client)
         windows = comb_window_digits(series, p, gap, count, n, plan)
         finished = True
-    except ValueError as exc:
-        raise UsageError(str(exc)) from exc
     finally:
         if plan.journal is not None and not shared:
             plan.journal.close(compact=finished)
