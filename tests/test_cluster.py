@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import os
 import signal
 from pathlib import Path
@@ -11,8 +12,8 @@ import pytest
 distributed = pytest.importorskip("distributed")
 
 from spotcheck.engine import backend, blocks  # noqa: E402
-from spotcheck.engine.api import extract  # noqa: E402
-from spotcheck.engine.blocks import BlockRecord, compute_block  # noqa: E402
+from spotcheck.engine.api import extract, extract_comb  # noqa: E402
+from spotcheck.engine.blocks import BlockRecord, compute_block, compute_comb_block  # noqa: E402
 from spotcheck.engine.cluster import connect, dask_runner  # noqa: E402
 from spotcheck.errors import CertificationError, UsageError  # noqa: E402
 
@@ -94,6 +95,37 @@ def test_bad_worker_result_is_rejected(client, task, monkeypatch: pytest.MonkeyP
     monkeypatch.setattr("spotcheck.engine.cluster.dask_runner", runner_with_bad_task)
     with pytest.raises(CertificationError, match="rejected"):
         extract("pi", POSITION, 14, block_k=BLOCK_K, cluster=client)
+
+
+# A comb of 5 windows 997 positions apart from POSITION: 85 comb blocks, each one task for all windows.
+COMB = {"gap": 997, "count": 5, "digits": 12, "formula": "bellard", "block_k": BLOCK_K}
+COMB_EXPECTED = tuple(
+    pi_hex(POSITION + 4 * 997 + 12)[p - 1 : p + 11] for p in range(POSITION, POSITION + 5 * 997, 997)
+)
+
+
+def test_comb_blocks_on_the_cluster_with_a_checkpoint(client, tmp_path: Path) -> None:
+    path = tmp_path / "comb.json"
+    result = extract_comb("pi", POSITION, cluster=client, checkpoint=path, **COMB)
+    assert result.digits == COMB_EXPECTED and result.blocks_computed > 80
+    tasks = client.run(lambda dask_worker: sum("compute_comb_block" in str(k) for k in dask_worker.state.log))
+    assert sum(tasks.values()) > 0
+    again = extract_comb("pi", POSITION, checkpoint=path, **COMB)  # the cluster's journal serves a local run
+    assert again.digits == COMB_EXPECTED and again.blocks_computed == 0
+
+
+def shifted_comb_block(series, d0, step, count, words, k0, k1):
+    """A faulty worker: reports another range than it was given."""
+    record = compute_comb_block(series, d0, step, count, words, k0, k1)
+    return dataclasses.replace(record, k0=k0 + 1)
+
+
+def test_bad_comb_worker_result_is_rejected(client, monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setattr(
+        "spotcheck.engine.cluster.dask_runner", lambda c: dask_runner(c, compute=shifted_comb_block)
+    )
+    with pytest.raises(CertificationError, match="rejected"):
+        extract_comb("pi", POSITION, cluster=client, **COMB)
 
 
 def test_unreachable_scheduler_is_a_usage_error(monkeypatch: pytest.MonkeyPatch) -> None:
