@@ -20,6 +20,11 @@ deepest (``words_for`` grows with the offset); a window whose interval does
 not certify its digits at that precision is evaluated again alone by
 :func:`~spotcheck.engine.evaluate.window_digits`, so a digit is never guessed
 and the digits are always those of the window evaluated alone.
+
+The pass is cut into comb blocks (:class:`~spotcheck.engine.blocks.CombRequest`)
+run as a window's blocks are: by the plan's runner (threads, a Dask cluster),
+each record checked by :func:`~spotcheck.engine.blocks.block_problem`, journaled
+in the plan's checkpoint under a section naming the comb.
 """
 
 from __future__ import annotations
