@@ -127,6 +127,32 @@ def test_extract_comb_with_workers_and_progress() -> None:
     assert result.blocks_computed == last.total and result.blocks_loaded == 0
 
 
+def test_deep_comb_blocks_are_shorter_by_the_comb_s_cost(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    monkeypatch.setattr(blocks, "DEEP_BLOCK_K_MIN", BLOCK_K)  # so that this short head has deep blocks of 256
+    k_total = 10**9
+    window = blocks.deep_block_k(SERIES, k_total)
+    assert blocks.deep_comb_block_k(SERIES, k_total, 1) < window  # two ladders a term
+    assert blocks.deep_comb_block_k(SERIES, k_total, 64) == window * 8 // 80
+    seen = []
+    result = extract_comb(
+        "pi",
+        POSITION,
+        GAP,
+        COUNT,
+        DIGITS,
+        formula="bellard",
+        checkpoint=tmp_path / "j",
+        block_progress=seen.append,
+    )
+    assert result.digits == EXPECTED
+    deep = blocks.deep_comb_block_k(SERIES, SERIES.head_length(D0 + (COUNT - 1) * STEP), COUNT)
+    assert deep == BLOCK_K * 8 // 21 and seen[-1].total == -(
+        -SERIES.head_length(D0 + (COUNT - 1) * STEP) // deep
+    )
+
+
 # --- one gate for both kinds of record ------------------------------------------------
 
 

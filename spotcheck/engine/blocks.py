@@ -61,6 +61,7 @@ __all__ = [
     "sum_blocks",
     "thread_runner",
     "deep_block_k",
+    "deep_comb_block_k",
     "series_fingerprint",
 ]
 
@@ -74,6 +75,11 @@ DEEP_BLOCK_TERMS = 1 << 27
 # parallelism), with blocks of no fewer than DEEP_BLOCK_K_MIN values of k.
 DEEP_MIN_BLOCKS = 256
 DEEP_BLOCK_K_MIN = 1 << 16
+# A comb block's value of k costs about 2 + count / COMB_WINDOWS_PER_LADDER
+# times a window's (two ladders, then a product and the words per window at
+# about 1/8 of a ladder: DEVELOPERS.md's comb figures, 0.8 against 6.5 ns a
+# term), so deep comb blocks are that much shorter and last as long.
+COMB_WINDOWS_PER_LADDER = 8
 # ---------------------------------------------------------------------------
 
 
@@ -88,6 +94,13 @@ def deep_block_k(series: Series, k_total: int) -> int:
     most = max(1, DEEP_BLOCK_TERMS // len(series.js))
     wanted = -(-k_total // DEEP_MIN_BLOCKS)
     return max(1, min(most, max(DEEP_BLOCK_K_MIN, wanted)))
+
+
+def deep_comb_block_k(series: Series, k_total: int, count: int) -> int:
+    """Values of k per comb block of ``count`` windows for checkpointed and cluster runs: a window's
+    :func:`deep_block_k` over the comb's cost per value of k (see the tuning block)."""
+    per_ladder = COMB_WINDOWS_PER_LADDER
+    return max(1, deep_block_k(series, k_total) * per_ladder // (2 * per_ladder + count))
 
 
 @dataclass(frozen=True)

@@ -31,7 +31,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from spotcheck.engine.blocks import CombRequest, HeadSum, sum_comb_blocks
+from spotcheck.engine.blocks import CombRequest, HeadSum, deep_comb_block_k, sum_comb_blocks
 from spotcheck.engine.evaluate import (
     Interval,
     certified_hex_prefix,
@@ -76,12 +76,17 @@ def comb_heads_fixed(
     Comb blocks (:class:`~spotcheck.engine.blocks.CombRequest`) over the
     deepest window's head, run as ``plan`` runs a window's blocks: its runner
     (threads, a Dask cluster), its journal, its progress callback, its block
-    size (for the deepest window; ``block_k`` overrides it).  Without a plan:
+    size (the deepest window's; for a checkpointed or cluster run, shorter by
+    the comb's cost per value of k, :func:`~spotcheck.engine.blocks.deep_comb_block_k`;
+    ``block_k`` overrides it).  Without a plan:
     ``workers`` threads, nothing else.  Every comb block's record is checked
     before its sums go to the windows whose heads hold its k.
     """
     plan = plan or RunPlan.local(series, workers=workers)
-    size = block_k or plan.block_size(d0 + (count - 1) * step)
+    d_last = d0 + (count - 1) * step
+    if block_k is None and plan.block_k is None and plan.deep:
+        block_k = deep_comb_block_k(series, series.head_length(d_last), count)
+    size = block_k or plan.block_size(d_last)
     request = CombRequest(series, d0, step, count, words, size)
     return sum_comb_blocks(request, runner=plan.runner, journal=plan.journal, on_block=plan.on_block)
 
