@@ -35,7 +35,7 @@ from spotcheck.engine.comb import comb_heads_fixed, comb_window_digits
 from spotcheck.engine.journal import Journal
 from spotcheck.engine.plan import RunPlan
 from spotcheck.engine.series import Series, series_of
-from spotcheck.errors import CertificationError, CheckpointError
+from spotcheck.errors import CertificationError, CheckpointError, UsageError
 from spotcheck.formulas import BUILTIN_CONSTANTS, PI_BBP, PI_BELLARD
 
 from .reference import pi_hex
@@ -444,6 +444,23 @@ def test_journal_of_another_comb_is_refused(finished: Path, other: dict) -> None
     with pytest.raises(CheckpointError, match="another request"):  # nor is a window's run served by it
         extract("pi", POSITION, DIGITS, formula="bellard", block_k=BLOCK_K, checkpoint=finished)
     assert finished.read_bytes() == before
+
+
+def test_a_comb_too_wide_for_a_journal_line(tmp_path: Path) -> None:
+    with pytest.raises(UsageError, match="at most 4,096 windows"):
+        extract_comb("pi", 1, 1, 4097, 8, checkpoint=tmp_path / "never")
+    assert not (tmp_path / "never").exists()
+    # a record too long for a line is never written (the reader would refuse the file there)
+    journal = Journal(tmp_path / "long", SERIES, {"test": "long lines"})
+    request = CombRequest(SERIES, 0, 4, 10_000, 8, 1)
+    wide = CombRecord(request.fingerprint, 0, 4, 10_000, 8, 0, 1, (1 << 500,) * 10_000, (7,) * 10_000)
+    journal.add(request, wide)
+    assert journal.failure is not None and "longer than a checkpoint line" in journal.failure
+    journal.close()
+    assert b"combblock" not in (tmp_path / "long").read_bytes()
+    reread = Journal(tmp_path / "long", SERIES, {"test": "long lines"})
+    assert reread.blocks_kept == 0
+    reread.close()
 
 
 def test_other_comb_block_size_is_refused(finished: Path) -> None:

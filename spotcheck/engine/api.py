@@ -415,7 +415,10 @@ def extract_comb(
     for name_, value in (("gap", gap), ("count", count)):
         if isinstance(value, bool) or not isinstance(value, int) or value < 1:
             raise UsageError(f"the comb's {name_} must be a positive integer, not {value!r}")
-    from spotcheck.engine.comb import comb_window_digits
+    from spotcheck.engine.comb import MAX_WINDOWS, comb_window_digits
+
+    if count > MAX_WINDOWS:
+        raise UsageError(f"a comb has at most {MAX_WINDOWS:,} windows, not {count:,}: split it into several")
 
     name, f = resolve_formula(constant, formula)
     series = series_of(f)

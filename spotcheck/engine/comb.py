@@ -43,7 +43,15 @@ from spotcheck.engine.evaluate import (
 from spotcheck.engine.plan import RunPlan
 from spotcheck.engine.series import Series
 
-__all__ = ["CombWindow", "comb_heads_fixed", "comb_window_digits"]
+__all__ = ["CombWindow", "comb_heads_fixed", "comb_window_digits", "MAX_WINDOWS"]
+
+# --- tuning -----------------------------------------------------------------
+# Windows of one comb, at most: a comb block's journal line holds every
+# window's value (at most evaluate.WINDOW_MAX_WORDS = 8 words, 128 hex digits)
+# and term count, about 150 bytes a window, so 4,096 windows (about 600 KB)
+# stay within journal.MAX_LINE_BYTES (1 MiB).  Also the kernel's MAX_COMB.
+MAX_WINDOWS = 4096
+# ---------------------------------------------------------------------------
 
 
 @dataclass(frozen=True)

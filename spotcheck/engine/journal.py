@@ -574,7 +574,13 @@ class Journal:
             self._comb_records[key] = {}
             self._append(journal_line({"comb": section}))
         self._comb_records[key][record.k0] = record
-        self._append(journal_line({"combblock": [*key, *record.to_list()]}))
+        line = journal_line({"combblock": [*key, *record.to_list()]})
+        if len(line.encode("utf-8")) > MAX_LINE_BYTES:  # the reader would refuse the file there
+            self._stop(
+                f"a block of the comb of {request.count} windows is longer than a checkpoint line "
+                f"({MAX_LINE_BYTES:,} bytes), so the checkpoint {self.path} was not written"
+            )
+        self._append(line)
 
     def close(self, *, compact: bool = True) -> None:
         """Stop appending; with ``compact``, rewrite the file in order without damaged lines.  The
