@@ -463,6 +463,17 @@ def test_a_comb_too_wide_for_a_journal_line(tmp_path: Path) -> None:
     reread.close()
 
 
+def test_comb_checkpoint_auto_and_a_missing_folder(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "cache"))
+    result = run_comb(True)
+    assert result.digits == EXPECTED and result.checkpoint is not None
+    auto = Path(result.checkpoint)
+    assert auto.parent == tmp_path / "cache" / "spotcheck" and f"gap{GAP}-w{COUNT}" in auto.name
+    assert read_lines(auto)[0]["request"]["windows"] == COUNT
+    with pytest.raises(CheckpointError):  # a named checkpoint's folder must exist
+        run_comb(tmp_path / "missing" / "comb.journal")
+
+
 def test_other_comb_block_size_is_refused(finished: Path) -> None:
     with pytest.raises(CheckpointError, match="blocks of"):
         run_comb(finished, block_k=2 * BLOCK_K)

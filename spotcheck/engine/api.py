@@ -437,8 +437,10 @@ def extract_comb(
     elif checkpoint not in (None, False):
         assert not isinstance(checkpoint, bool)
         path = Path(checkpoint)
-    if path is not None and not shared:
-        plan.journal = Journal(path, series, comb_checkpoint_request(name, f, p, gap, count, n))
+    if path is not None and not shared:  # only the cache folder of checkpoint=True is made when missing
+        plan.journal = Journal(
+            path, series, comb_checkpoint_request(name, f, p, gap, count, n), create_folder=checkpoint is True
+        )
     client, owned = None, False
     finished = False
     t0 = time.perf_counter()
