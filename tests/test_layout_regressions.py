@@ -321,3 +321,65 @@ def test_blank_after_the_cr_of_a_crlf_line_keeps_its_end_label(labels: str, tmp_
     assert code == 1, err
     lf = json.loads(out)["file"]["label_finding"]
     assert (lf["line"], lf["end"], lf["expected"], lf["found"]) == (4, "end", 128, "127")
+
+
+# --- false verdicts of issue 25: each now read or refused with both readings named -------------
+
+
+def test_running_count_with_the_integer_digit_is_refused_never_a_mismatch(tmp_path: Path, capsys) -> None:
+    """``3141592653\\t:10``: ten digits a line, the count running through the integer digit.
+
+    Read as end labels with the 3 as digit 1, every digit is one place off; the
+    refusal names both readings (the 3 as pi's integer part, or as digit 1).
+    """
+    full = "3" + DEC[:1000]
+    path = tmp_path / "tab-colon.txt"
+    path.write_text(
+        "".join(f"{full[i : i + 10]}\t:{min(i + 10, len(full))}\n" for i in range(0, len(full), 10))
+    )
+    code, _, err = cli(capsys, "verify", path, "--labels", "end", "--constant", "pi")
+    assert code == 2 and err.startswith("error:") and "ambiguous" in err
+    assert "the first digit 3 could be pi's integer part written without a point" in err
+    assert "differ from pi's from position 1" in err
+    code, _, err = cli(capsys, "verify", path)
+    assert code == 2 and "ambiguous" in err
+
+
+def test_one_digit_a_line_with_the_integer_part_as_position_1_is_refused(tmp_path: Path, capsys) -> None:
+    """``1 3`` / ``2 1`` / ``3 4``: a position table whose row 1 is the integer part."""
+    full = "3" + DEC[:199]
+    path = tmp_path / "table.txt"
+    path.write_text("".join(f"{i + 1} {c}\n" for i, c in enumerate(full)))
+    for extra in ([], ["--constant", "pi"]):
+        code, out, err = cli(capsys, "verify", path, *extra)
+        assert code == 2 and out == "", out
+        assert "the first digit 3 could be pi's integer part written without a point" in err
+
+
+@pytest.mark.parametrize("lines", [1, 2])
+def test_one_or_two_lines_with_blank_start_labels_are_refused(lines: int, tmp_path: Path, capsys) -> None:
+    """``       1  243F6A88...`` / ``      73  ...``: the label 1 read as digit 1 made every digit wrong."""
+    path = tmp_path / "two.txt"
+    path.write_text("".join(f"{72 * i + 1:>8}  {HEX[72 * i : 72 * i + 72]}\n" for i in range(lines)))
+    code, out, err = cli(capsys, "verify", path, "--constant", "pi")
+    assert code == 2 and out == ""
+    assert "the first digit 1 could be a label" in err and "--labels start|end|both|none" in err
+    code, out, err = cli(capsys, "verify", path, "--labels", "start", "--json")
+    assert code == 0, err
+    assert json.loads(out)["file"]["count"] == 72 * lines
+
+
+def test_three_lines_with_blank_start_labels_stay_ambiguous(tmp_path: Path, capsys) -> None:
+    path = tmp_path / "three.txt"
+    path.write_text("".join(f"{72 * i + 1:>8}  {HEX[72 * i : 72 * i + 72]}\n" for i in range(3)))
+    code, _, err = cli(capsys, "verify", path, "--constant", "pi")
+    assert code == 2 and "ambiguous" in err and "--labels start|end|both|none" in err
+
+
+@pytest.mark.parametrize("text", ["0\n", "2\n", "1415\n"])
+def test_a_constant_is_never_named_from_a_few_digits(text: str, tmp_path: Path, capsys) -> None:
+    """``0`` agreed with log3 and ``2`` with zeta3: one digit is chance, never a constant."""
+    path = tmp_path / "short.txt"
+    path.write_text(text)
+    code, out, err = cli(capsys, "verify", path)
+    assert code == 2 and out == "" and "no known constant agrees beyond chance" in err

@@ -7,10 +7,18 @@ per constant and base), position by position, not only the common prefix; a
 constant whose leading digits cannot be had is skipped.  A constant is named
 when its integer part (if the file has one) agrees and either
 
-* the first ``min(MIN_MATCH, count)`` digits agree (a short file agrees in full), or
+* the first ``MIN_MATCH`` digits agree, or a shorter file agrees in full and
+  the chance of that, ``base ** -(digits + integer digits)`` times the
+  constants tried, is at most ``SHORT_CHANCE`` (one digit, ``0`` or ``2``,
+  agrees with some constant by chance and names none), or
 * the agreement cannot be chance: the binomial chance of as many agreeing
   digits, times the number of constants tried, is below ``MAX_CHANCE``
   (so a file whose first digit is damaged is still recognised).
+
+Before a file's digits are said to differ from a constant's from position 1,
+:func:`shifted_reading` asks whether dropping a few leading digits (an integer
+part written without a point, a label column read as digits) makes them agree
+beyond chance; the reader then refuses the file as ambiguous, naming both readings.
 """
 
 from __future__ import annotations
@@ -31,12 +39,17 @@ __all__ = [
     "MIN_MATCH",
     "GUESS_DIGITS",
     "reference_digits",
+    "ShiftedReading",
+    "shifted_reading",
 ]
 
 # --- tuning -----------------------------------------------------------------
 GUESS_DIGITS = 64  # leading digits compared
 MIN_MATCH = 12  # a common prefix this long names a constant
 MAX_CHANCE = 1e-12  # largest chance of a coincidental agreement that still names a constant
+SHORT_CHANCE = 1e-6  # largest chance of a short file agreeing in full that still names a constant
+MAX_SHIFT = 8  # leading digits a shifted reading may drop (an integer part, a short label)
+SHIFT_CHANCE = 1e-4  # a reading this likely or less by chance is one the file may mean
 
 
 @dataclass(frozen=True)
@@ -87,7 +100,7 @@ def compare_with(name: str, base: int, head: str, integer_part: str | None) -> t
 def match_constant(head: str, integer_part: str | None, base: int, count: int) -> ConstantMatch:
     """Score every known constant against the file's leading digits; name one only beyond chance."""
     head = head.upper()[:GUESS_DIGITS]
-    need = max(1, min(MIN_MATCH, count, len(head)))
+    need = MIN_MATCH
     tried = 0
     best: tuple[int, int, str] | None = None
     for const in all_constants():
@@ -103,7 +116,9 @@ def match_constant(head: str, integer_part: str | None, base: int, count: int) -
             best = (agreed, prefix, const.name)
     if best is not None:
         agreed, prefix, name = best
-        named = prefix >= need or chance(agreed, len(head), base) * max(1, tried) <= MAX_CHANCE
+        evidence = prefix + (len(integer_part) if integer_part is not None else 0)
+        short = prefix == len(head) == count and float(base) ** -evidence * max(1, tried) <= SHORT_CHANCE
+        named = prefix >= need or short or chance(agreed, len(head), base) * max(1, tried) <= MAX_CHANCE
         if named:
             ipn = f"; integer part {integer_part} agrees" if integer_part is not None else ""
             if agreed == len(head) == count:
@@ -138,3 +153,46 @@ def explicit_constant(
     agrees = ip_ok and matched >= need
     how = f"given explicitly ({canonical})"
     return canonical, how, matched, agrees
+
+
+@dataclass(frozen=True)
+class ShiftedReading:
+    """The file's digits agree with ``name``'s once its first ``dropped`` digits are set aside."""
+
+    name: str
+    dropped: str
+    agreed: int
+    """Digits after the dropped ones that agree with the constant's, position by position."""
+    examined: int
+    integer_part: bool
+    """The dropped digits are the constant's integer part (written without a point)."""
+
+
+def shifted_reading(
+    head: str, integer_part: str | None, base: int, names: list[str]
+) -> ShiftedReading | None:
+    """A reading that drops up to ``MAX_SHIFT`` leading digits and then agrees with one of ``names``
+    beyond chance, where the file's digits as read do not; None when there is none.
+
+    >>> shifted_reading("31415926535897932384", None, 10, ["pi"]).integer_part
+    True
+    >>> shifted_reading("14159265358979323846", None, 10, ["pi"]) is None
+    True
+    """
+    head = head.upper()[:GUESS_DIGITS]
+    tries = max(1, len(names)) * MAX_SHIFT
+    for name in names:
+        try:
+            ip, ref = reference_digits(name, base)
+        except Exception:  # a constant whose leading digits the engine cannot give: skip it
+            continue
+        if integer_part is not None and integer_part != ip:
+            continue
+        if chance(_agreed(head, ref), len(head), base) <= SHIFT_CHANCE:
+            continue  # the digits as read explain the file: a damaged digit is damage
+        for k in range(1, min(MAX_SHIFT, len(head) - 1) + 1):
+            rest = head[k:]
+            agreed = _agreed(rest, ref)
+            if chance(agreed, len(rest), base) * tries <= SHIFT_CHANCE:
+                return ShiftedReading(name, head[:k], agreed, len(rest), head[:k] == ip.upper())
+    return None

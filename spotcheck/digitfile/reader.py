@@ -25,13 +25,15 @@ import re
 from spotcheck.digitfile.charsets import WS, class_table
 from spotcheck.digitfile.detect import Detection
 from spotcheck.digitfile.file import EDGE_DIGITS, DigitFile
-from spotcheck.digitfile.guess import explicit_constant, match_constant
+from spotcheck.digitfile.guess import explicit_constant, match_constant, shifted_reading
 from spotcheck.digitfile.index import build_index
 from spotcheck.digitfile.model import Finding, InspectResult, Layout
 from spotcheck.digitfile.opening import check_open_arguments, detect_source
 from spotcheck.digitfile.passrules import CHUNK_BYTES, IndexResult, Progress
+from spotcheck.digitfile.readings import AmbiguousLayoutError
 from spotcheck.digitfile.source import ByteSource, open_source
 from spotcheck.errors import DigitFileError
+from spotcheck.formulas import all_constants
 
 __all__ = ["open_digit_file", "inspect_file", "text_digit_file", "open_packed"]
 
@@ -84,11 +86,14 @@ def _open(
         return open_packed(src, head, base, constant, progress, first_position)
     assert plan.base is not None
     scan = build_index(src, plan, plan.base, strict_labels=strict_labels, progress=progress)
-    return text_digit_file(src, plan, scan, constant)
+    return text_digit_file(src, plan, scan, constant, labels)
 
 
-def text_digit_file(src: ByteSource, plan: Detection, scan: IndexResult, constant: str | None) -> DigitFile:
-    """The :class:`DigitFile` of a text file once its pass (``scan``) is done."""
+def text_digit_file(
+    src: ByteSource, plan: Detection, scan: IndexResult, constant: str | None, labels: str | None = None
+) -> DigitFile:
+    """The :class:`DigitFile` of a text file once its pass (``scan``) is done (``labels``: the
+    caller's word on the labels, which settles a label column read as digits)."""
     assert plan.base is not None
     name = os.path.basename(src.path)
     src.check_unchanged()
@@ -108,7 +113,40 @@ def text_digit_file(src: ByteSource, plan: Detection, scan: IndexResult, constan
         last=scan.last_digits.decode("ascii").upper(),
     )
     _decide_constant(df, plan.head_digits.decode("ascii"), constant)
+    _refuse_shifted_reading(df, plan, name, labels)
     return df
+
+
+def _refuse_shifted_reading(df: DigitFile, plan: Detection, name: str, labels: str | None) -> None:
+    """Refuse a file whose digits differ from the constant's from position 1 when dropping a few
+    leading digits (an integer part without a point, a label column) makes them agree."""
+    if df.constant_match is not None and df.constant_match.name is not None:
+        return  # named from its digits as read: they agree beyond chance
+    if df.constant is None:
+        names = [c.name for c in all_constants()]
+    else:
+        names = [df.constant]
+    assert df.base is not None
+    shift = shifted_reading(plan.head_digits.decode("ascii"), df.integer_part, df.base, names)
+    if shift is None or (labels is not None and not shift.integer_part):
+        return  # the caller said where the labels are
+    k = len(shift.dropped)
+    first = f"the first digit {shift.dropped}" if k == 1 else f"the first {k} digits {shift.dropped}"
+    then = f"the next {shift.agreed} of {shift.examined} digits agree with {shift.name}"
+    if shift.integer_part:
+        raise AmbiguousLayoutError(
+            f"{name}: the reading is ambiguous: {first} could be {shift.name}'s integer part written "
+            f"without a point ({then}) or digits after the point (which differ from {shift.name}'s from "
+            f"position 1); a point after the integer part ({shift.dropped}.) says which",
+            "integer-part",
+            ("integer part", "digits"),
+        )
+    raise AmbiguousLayoutError(
+        f"{name}: the reading is ambiguous: {first} could be a label or other text before the digits "
+        f"({then}) or digits (which differ from {shift.name}'s from position 1); say where the labels are",
+        "labels",
+        ("label", "digits"),
+    )
 
 
 def _decide_constant(df: DigitFile, head: str, constant: str | None) -> None:

@@ -72,7 +72,7 @@ class DigitStream:
     ) -> None:
         self._src: ByteSource | None = src
         self.path, self.size_bytes, self.compression = src.path, src.size_bytes, src.compression
-        self._constant = constant
+        self._constant, self._labels = constant, labels
         self._df: DigitFile | None = None
         self._pass: ReadPass | None = None
         self._buf, self._at = b"", 0
@@ -92,7 +92,7 @@ class DigitStream:
         self.head_digits = plan.head_digits.decode("ascii").upper()
         if not reads(plan):
             scan = build_index(src, plan, plan.base, strict_labels=strict_labels)
-            self._df = text_digit_file(src, plan, scan, constant)
+            self._df = text_digit_file(src, plan, scan, constant, labels)
             self.how = "index pass, then read"
             self._gen = self._from_file()
         else:
@@ -166,7 +166,7 @@ class DigitStream:
         if self._df is None:
             assert self._plan is not None and self._pass is not None and self._src is not None
             assert self._pass.scan is not None
-            self._df = text_digit_file(self._src, self._plan, self._pass.scan, self._constant)
+            self._df = text_digit_file(self._src, self._plan, self._pass.scan, self._constant, self._labels)
         df, self._df, self._src = self._df, None, None
         if df is None:
             raise UsageError(f"{self.path}: finish() was already called")
