@@ -383,3 +383,54 @@ def test_a_constant_is_never_named_from_a_few_digits(text: str, tmp_path: Path, 
     path.write_text(text)
     code, out, err = cli(capsys, "verify", path)
     assert code == 2 and out == "" and "no known constant agrees beyond chance" in err
+
+
+def single_byte_dump(d: str, *, final_offset: bool = True) -> str:
+    """``0000010 85 a3 08 d3 ...``: a dump of bytes one by one, its last line the final offset alone."""
+    data = bytes.fromhex(d)
+    rows = [f"{o:07x} " + " ".join(f"{b:02x}" for b in data[o : o + 16]) for o in range(0, len(data), 16)]
+    if final_offset:
+        rows.append(f"{len(data):07x}")
+    return "\n".join(rows) + "\n"
+
+
+@pytest.mark.parametrize("position", [None, 1, 3999])
+def test_single_byte_dump_ending_in_its_final_offset(position: int | None, tmp_path: Path, capsys) -> None:
+    """The final offset line was read as six more digits (``MISMATCH ... at position 40,001``)."""
+    digits = HEX if position is None else damage(HEX, position)
+    path = tmp_path / "dump.txt"
+    path.write_text(single_byte_dump(digits))
+    code, out, err = cli(capsys, "locate", path, "--json")
+    assert code == (0 if position is None else 1), err
+    payload = json.loads(out)
+    assert payload["first_mismatch"] == position and payload["file"]["count"] == len(HEX)
+    code, out, err = cli(capsys, "inspect", path, "--json")
+    assert (
+        code == 0
+        and json.loads(out)["last_digits"].endswith(digits[-16:])
+        and not json.loads(out)["findings"]
+    )
+
+
+@pytest.mark.parametrize("line", [2, 4, 30])
+def test_end_label_that_lost_its_colon_is_a_label_finding_only(line: int, tmp_path: Path, capsys) -> None:
+    """``...20899 80`` for ``...20899 : 80``: the label was read as digits (``MISMATCH`` at 21)."""
+    rows = [f"{DEC[i : i + 20]} : {i + 20}" for i in range(0, 1000, 20)]
+    rows[line - 1] = rows[line - 1].replace(" : ", " ")
+    path = tmp_path / "lost-colon.txt"
+    path.write_text("\n".join(rows) + "\n")
+    for command, at in (("verify", ["--at", 20 * line - 5]), ("locate", [])):
+        code, out, err = cli(capsys, command, path, "--json", *at)
+        assert code == 1, err
+        payload = json.loads(out)
+        lf = payload["file"]["label_finding"]
+        assert (lf["kind"], lf["line"], lf["found"]) == ("label-missing", line, str(20 * line))
+        assert payload["file"]["count"] == 1000
+        if command == "locate":
+            assert payload["first_mismatch"] is None
+        else:
+            assert all(c["match"] for c in payload["checks"])
+    code, out, _ = cli(capsys, "verify", path)
+    assert code == 1 and f"line {line}: the position label {20 * line} has lost its separator" in out
+    code, _, _ = cli(capsys, "verify", path, "--ignore-labels")
+    assert code == 0

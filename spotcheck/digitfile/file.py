@@ -17,11 +17,11 @@ import operator
 from collections.abc import Iterator
 from types import TracebackType
 
-from spotcheck.digitfile.charsets import WS
+from spotcheck.digitfile.charsets import WS, digit_set
 from spotcheck.digitfile.detect import Detection
 from spotcheck.digitfile.guess import ConstantMatch
 from spotcheck.digitfile.model import Finding, InspectResult, Layout
-from spotcheck.digitfile.passrules import INDEX_STEP, IndexResult
+from spotcheck.digitfile.passrules import INDEX_STEP, IndexResult, split_for_pass
 from spotcheck.digitfile.source import ByteSource
 from spotcheck.errors import DigitFileError, UsageError
 
@@ -138,11 +138,11 @@ class DigitFile:
             # Blank out everything outside each line's body, as the pass split it (index entries of
             # a labelled file sit at line starts).
             lo = 0
-            for text in data.split(b"\n"):
-                _, b0, b1 = plan.syntax.split_labels(text[:-1] if text.endswith(b"\r") else text)
+            for lo, b0, b1 in self._line_bodies(data, pos - 1):
+                end = data.find(b"\n", lo)
+                end = len(data) if end < 0 else end
                 mask[lo : lo + b0] = b" " * b0
-                mask[lo + b1 : lo + len(text)] = b" " * (len(text) - b1)
-                lo += len(text) + 1
+                mask[lo + b1 : end] = b" " * (end - lo - b1)
         digits = b"0123456789ABCDEFabcdef" if self.base == 16 else b"0123456789"
         for i, c in enumerate(mask):
             if c in digits:
@@ -200,7 +200,10 @@ class DigitFile:
             if plan.syntax is not None and len(data) == ask:
                 cut = data.rfind(b"\n") + 1
                 data = data[:cut] if cut else data
-            if plan.syntax is not None:
+            if plan.syntax is not None and self._holds_recovered(off, len(data)):
+                before = scan.index_pos[i] - 1 + have
+                data_digits = b"".join(data[a + b0 : a + b1] for a, b0, b1 in self._line_bodies(data, before))
+            elif plan.syntax is not None:
                 data_digits = plan.syntax.strip(data)
             else:
                 data_digits = data
@@ -209,6 +212,28 @@ class DigitFile:
             have += len(digits)
             off += len(data)
         return b"".join(got)[skip : skip + n]
+
+    def _holds_recovered(self, off: int, size: int) -> bool:
+        """True when a line whose label the pass recovered (``passrules.recover_label``) starts
+        in ``[off, off + size)``."""
+        rec = self._scan.recovered if self._scan is not None else []
+        i = bisect.bisect_left(rec, off)
+        return i < len(rec) and rec[i] < off + size
+
+    def _line_bodies(self, data: bytes, before: int) -> Iterator[tuple[int, int, int]]:
+        """``(line start, body start, body end)`` of each line of ``data`` (read from a line start
+        after ``before`` digits), split by the pass's own line rule (``split_for_pass``)."""
+        plan = self._plan
+        assert plan is not None and plan.syntax is not None and self.base is not None
+        digits = digit_set(self.base)
+        lo = 0
+        for text in data.split(b"\n"):
+            line = text[:-1] if text.endswith(b"\r") else text
+            _, b0, b1, _ = split_for_pass(plan.syntax, plan.meaning, line, before, digits)
+            body = text[b0:b1]
+            before += len(body) - len(body.translate(None, digits))
+            yield lo, b0, b1
+            lo += len(text) + 1
 
     # -- life cycle ------------------------------------------------------------
     def _source(self) -> ByteSource:

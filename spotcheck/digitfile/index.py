@@ -48,6 +48,7 @@ from spotcheck.digitfile.passrules import (
     label_checks,
     new_result,
     read_whole_lines,
+    split_for_pass,
     stray_error,
 )
 from spotcheck.digitfile.source import ByteSource
@@ -199,14 +200,20 @@ def _scan_labelled(
             last_index = res.index_off[-1] if res.index_off else last_index
         else:
             lo = 0
+            bodies: list[bytes] = []
             pieces = data.split(b"\n")
             if data.endswith(b"\n"):
                 pieces.pop()
             for text in pieces:
-                found, b0, b1 = syntax.split_labels(text[:-1] if text.endswith(b"\r") else text)
+                found, b0, b1, how = split_for_pass(
+                    syntax, meaning, text[:-1] if text.endswith(b"\r") else text, pos, digit_bytes
+                )
                 body = text[b0:b1]
+                bodies.append(body)
                 nd = len(body) - len(body.translate(None, digit_bytes))
-                check_line(checks, found, pos, nd, line, off + lo)
+                check_line(checks, found, pos, nd, line, off + lo, how)
+                if how is not None:
+                    res.recovered.append(off + lo)
                 if nd:
                     if off + lo - last_index >= step:
                         res.index_pos.append(pos + 1)
@@ -218,6 +225,7 @@ def _scan_labelled(
                 line += 1
             if not data.endswith(b"\n"):
                 line -= 1  # the piece after the chunk's last line break is not a line
+            cleaned = b"".join(bodies)  # the lines as the line rule read them
         tail = (tail + cleaned.translate(None, WS)[-TAIL_DIGITS:])[-TAIL_DIGITS:]
         off += len(data)
         if progress:

@@ -23,7 +23,7 @@ from collections.abc import Iterator
 
 from spotcheck.digitfile import loops
 from spotcheck.digitfile import passrules as rules
-from spotcheck.digitfile.charsets import WS, allowed_set, class_table, norm_table
+from spotcheck.digitfile.charsets import WS, allowed_set, class_table, digit_set, norm_table
 from spotcheck.digitfile.detect import Detection
 from spotcheck.digitfile.loops import LoopLayout
 from spotcheck.digitfile.passrules import (
@@ -35,6 +35,7 @@ from spotcheck.digitfile.passrules import (
     label_checks,
     new_result,
     read_whole_lines,
+    split_for_pass,
     stray_error,
 )
 from spotcheck.digitfile.source import ByteSource
@@ -207,6 +208,7 @@ class ReadPass:
         assert record is not None and len(checks) == len(syntax.ends)
         layout = record.codes()
         table, norm, allowed = class_table(base), norm_table(base), allowed_set(base)
+        digit_bytes = digit_set(base)
         off, pos, line = plan.seg_end, d1, plan.first_line_no + 1
         last_index = -step
         size = rules.LABELLED_CHUNK_BYTES  # the index pass's own limit on a line, too
@@ -232,14 +234,18 @@ class ReadPass:
                 nl = data.find(b"\n", lo)
                 end = nl if nl >= 0 else len(data)
                 raw = data[lo:end]
-                found, b0, b1 = syntax.split_labels(raw[:-1] if raw.endswith(b"\r") else raw)
+                found, b0, b1, how = split_for_pass(
+                    syntax, meaning, raw[:-1] if raw.endswith(b"\r") else raw, pos, digit_bytes
+                )
                 body = raw[b0:b1]
                 bad = body.translate(None, allowed)
                 if bad:
                     at = lo + b0 + body.find(bad[:1])
                     raise stray_error(src, plan, base, off + at, data[at])
                 digits = body.translate(norm, WS)
-                check_line(checks, found, pos, len(digits), line, off + lo)
+                check_line(checks, found, pos, len(digits), line, off + lo, how)
+                if how is not None:
+                    res.recovered.append(off + lo)
                 if digits:
                     if off + lo - last_index >= step:
                         res.index_pos.append(pos + 1)

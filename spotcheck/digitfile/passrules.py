@@ -39,6 +39,8 @@ __all__ = [
     "line_of",
     "new_result",
     "read_whole_lines",
+    "recover_label",
+    "split_for_pass",
     "stray_error",
 ]
 
@@ -72,6 +74,9 @@ class IndexResult:
     end_label_meaning: str | None = None
     """For labels at both ends: what the end labels count (``label_meaning``: the start labels)."""
     content_bytes: int = 0
+    recovered: list[int] = field(default_factory=list)
+    """Byte offsets of the lines whose label ``recover_label`` found (the random-access read
+    reads the stretches holding them line by line, by the same rule)."""
 
 
 def line_of(src: ByteSource, offset: int) -> tuple[int, int]:
@@ -170,6 +175,26 @@ class LabelCheck:
                 )
             )
 
+    def separator_lost(self, label: bytes, line: int, offset: int, before: int) -> None:
+        """A line whose label lost its separator: read as the label (it says what the label must)."""
+        self.missing += 1
+        text = label.decode("ascii")
+        msg = f"the {self.what} {text} has lost its separator (read as the label, not as digits)"
+        if self.strict:
+            raise LabelError(f"{self.name}: line {line}: {msg}")
+        if self.missing <= MAX_FINDINGS:
+            self.findings.append(
+                Finding(
+                    "label-missing",
+                    msg,
+                    line=line,
+                    byte_offset=offset,
+                    position=before + 1,
+                    found=text,
+                    end=self.side,
+                )
+            )
+
     def finish(self) -> list[Finding]:
         out = list(self.findings)
         if self.mismatches > MAX_FINDINGS:
@@ -233,13 +258,65 @@ def label_checks(plan: Detection, strict: bool, name: str) -> list[LabelCheck]:
     return checks
 
 
+def recover_label(
+    syntax: LabelSyntax, meaning: LabelMeaning, text: bytes, before: int, digit_bytes: bytes
+) -> tuple[bytes, int, int, bool] | None:
+    """A label on a line where the syntax finds none, or None.
+
+    The line's outermost number at the label's side (``LabelSyntax.outer_token``)
+    is its label when it says exactly what a label there must say, counting the
+    digits of the rest of the line: a label whose separator was lost (``:`` or
+    ``|`` gone, a blank left), or, for start labels, a line holding nothing but
+    a label (a dump's last line, the final offset).  Returns ``(label, body
+    start, body end, separator lost)``.  Every pass and the random-access read
+    ask this one rule, so they read the line alike.
+    """
+    if syntax.where == "both":
+        return None
+    got = syntax.outer_token(text)
+    if got is None:
+        return None
+    label, b0, b1 = got
+    body = text[b0:b1]
+    nd = len(body) - len(body.translate(None, digit_bytes))
+    if nd == 0 and syntax.where != "start":
+        return None
+    if not meaning.agrees(syntax.value(label), before, nd):
+        return None
+    return label, b0, b1, nd > 0
+
+
+def split_for_pass(
+    syntax: LabelSyntax, meaning: LabelMeaning | None, text: bytes, before: int, digit_bytes: bytes
+) -> tuple[tuple[bytes | None, ...], int, int, str | None]:
+    """``(labels, body start, body end, how)`` of one line (no line break) after ``before``
+    digits: ``split_labels``, then :func:`recover_label` where it finds no label (``how`` is
+    ``"lost"`` for a label whose separator was lost, ``"only"`` for a line holding only its
+    label, None when ``split_labels`` read the line)."""
+    found, b0, b1 = syntax.split_labels(text)
+    if found[0] is None and meaning is not None and syntax.where != "both":
+        got = recover_label(syntax, meaning, text, before, digit_bytes)
+        if got is not None:
+            return (got[0],), got[1], got[2], "lost" if got[3] else "only"
+    return found, b0, b1, None
+
+
 def check_line(
-    checks: list[LabelCheck], found: tuple[bytes | None, ...], before: int, nd: int, line: int, offset: int
+    checks: list[LabelCheck],
+    found: tuple[bytes | None, ...],
+    before: int,
+    nd: int,
+    line: int,
+    offset: int,
+    how: str | None = None,
 ) -> None:
     """The labels ``found`` on one line (one per column, None where a column has none) checked
-    against a line of ``nd`` digits after ``before``; a digit line without a label is recorded."""
+    against a line of ``nd`` digits after ``before``; a digit line without a label is recorded,
+    and so is a label whose separator was ``lost``."""
     for check, label in zip(checks, found, strict=True):
-        if label is not None:
+        if label is not None and how == "lost":
+            check.separator_lost(label, line, offset, before)
+        elif label is not None:
             check.feed(label, before, nd, line, offset)
         elif nd:
             check.no_label(line, offset, before)

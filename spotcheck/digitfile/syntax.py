@@ -186,7 +186,9 @@ class LabelSyntax:
         if self.where == "start":
             line = rb"[ \t]*(" + lab + rb")" + sep
             bulk = rb"\n[ \t]*(" + lab + rb")" + sep
+            token = rb"[ \t]*(" + lab + rb")(?=[ \t]|\Z)[ \t]*"
         else:
+            token = rb"(?:\A|[ \t]+)(" + lab + rb")[ \t]*\Z"
             line = sep + rb"(" + lab + rb")[ \t\r]*\Z"
             # Matched on the reversed chunk, where an end label starts its line: the pattern then
             # begins with a line break, which Python's re scans for fast (forwards, a pattern that
@@ -198,6 +200,7 @@ class LabelSyntax:
             bulk = rb"(\n\r*)[\r \t]*(" + lab + rb")" + sep
         object.__setattr__(self, "_line", re.compile(line))
         object.__setattr__(self, "_bulk", re.compile(bulk))
+        object.__setattr__(self, "_token", re.compile(token))
 
     @property
     def ends(self) -> tuple[LabelSyntax, ...]:
@@ -244,6 +247,20 @@ class LabelSyntax:
         le, _, b1 = end.split_line(text)
         ls, b0, _ = start.split_line(text[:b1])
         return (ls, le), b0, b1
+
+    def outer_token(self, text: bytes) -> tuple[bytes, int, int] | None:
+        """``(token, body start, body end)`` for a line :meth:`split_line` finds no label on: its
+        outermost blank-separated number at the label's side (first for start labels, last for end
+        labels), short enough to be a label, and the rest of the line as the body; None when there
+        is none.  Whether the token *is* the label (its separator lost, or a line holding only a
+        label) is for the label's meaning to say (``passrules.recover_label``)."""
+        assert self.where != "both", "a line labelled at both ends has no outer token"
+        rx: re.Pattern[bytes] = self._token  # type: ignore[attr-defined]
+        if self.where == "start":
+            m = rx.match(text)
+            return (m.group(1), m.end(), len(text)) if m else None
+        m = rx.search(text)
+        return (m.group(1), 0, m.start()) if m else None
 
     def split_first(self, text: bytes) -> tuple[bytes | None, int, int]:
         """Like :meth:`split_line` for the first digit line, whose label may use any separator."""

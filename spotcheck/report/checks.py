@@ -213,7 +213,10 @@ def label_finding_sentence(lf: LabelFinding | None, copy: str = "") -> str | Non
     where = f"line {lf.line:,}" if lf.line is not None else "a line"
     if copy:
         where = f"copy {copy}, {where}"
-    if lf.kind == "label-missing":
+    lost = lf.kind == "label-missing" and lf.found is not None
+    if lost:
+        what = f"{where}: the position label {lf.found} has lost its separator (read as the label, not as digits)"
+    elif lf.kind == "label-missing":
         what = f"{where}: no position label, unlike the lines around it"
     elif lf.found is not None and lf.expected is not None and lf.end == "end":
         what = f"{where}: its end label says {lf.found}, but the digits through it imply {lf.expected:,}"
@@ -225,7 +228,9 @@ def label_finding_sentence(lf: LabelFinding | None, copy: str = "") -> str | Non
         what += f" (its first digit is digit {lf.position:,})"
     more = f"; {lf.total:,} label findings in all" if lf.total > 1 else ""
     cause = (
-        "the file may have been cut short there, or the label removed"
+        "a character was lost there"
+        if lost
+        else "the file may have been cut short there, or the label removed"
         if lf.kind == "label-missing"
         else "digits were lost or gained before it, or a label was changed"
     )
