@@ -140,7 +140,9 @@ def test_stray_character_far_into_a_long_line_has_its_true_column(tmp_path, suff
 
 def test_stray_character_in_regular_file_late(tmp_path):
     # A regular file broken only in its last line: the fast loop falls back and reports it.
-    text = "3." + rows(PI16) + "# end of digits\n"
+    # (A footer line of text, "# end of digits", is read as text since issue 25: writers.py.)
+    body = rows(PI16)
+    text = "3." + body[:-5] + "#" + body[-4:]
     path = tmp_path / "footer.txt"
     path.write_text(text)
     expect_error(path, DigitFileError, "stray character '#'", f"at byte {text.index('#')}")

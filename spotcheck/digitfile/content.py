@@ -13,6 +13,7 @@ from __future__ import annotations
 import os
 
 from spotcheck.digitfile.guess import match_constant
+from spotcheck.digitfile.writers import TYPESET_SEPARATORS
 from spotcheck.errors import DigitFileError
 
 __all__ = [
@@ -30,7 +31,7 @@ _TEXT_BYTES = bytes(range(0x20, 0x7F)) + b"\t\n\r\f\v"
 
 def looks_binary(head: bytes) -> bool:
     """True for content that is not text: control bytes or mostly non-ASCII."""
-    sample = head[:4096]
+    sample = TYPESET_SEPARATORS.sub(b" ", head[:4096])  # typeset blanks between groups are text
     if not sample:
         return False
     odd = sample.translate(None, _TEXT_BYTES)

@@ -53,7 +53,7 @@ MIN_HEX_EVIDENCE = 200  # decimal-only digits this many long cannot be hex by ch
 DIGIT_LINE_SHARE = 0.8  # a line of 8+ bytes is a digit line when this share of its non-blank bytes are digits
 LABEL_CHOICES = (None, "start", "end", "both", "none")  # what a caller may say about the labels
 
-_DIGITISH = bytes(HEX + b".:|")
+_DIGITISH = bytes(HEX + b".:|\\")  # a backslash: a continuation mark a damaged line may keep (writers.py)
 
 
 def check_labels(labels: object) -> None:

@@ -5,7 +5,9 @@ check their arguments with :func:`check_open_arguments` (so both accept the
 same ``labels``), open the source read-only (``source.open_source``) and call
 :func:`detect_source`: the head of the content, the packed-binary rule
 (``content.packed_reading``), text stored as UTF-16 (``source.Utf16Source``),
-CR-only line breaks (:class:`CarriageReturns`), then ``detect.detect_text`` and,
+CR-only line breaks (:class:`CarriageReturns`), what general-purpose software
+writes around the digits (``writers.Rewritten``: continuation backslashes,
+typeset separators, marks, footer lines, page breaks, all seen as blanks), then ``detect.detect_text`` and,
 when the digits alone cannot tell, the base the constant decides.
 """
 
@@ -23,6 +25,7 @@ from spotcheck.digitfile.content import (
 from spotcheck.digitfile.detect import HEAD_BYTES, Detection, check_labels, detect_text
 from spotcheck.digitfile.guess import guess_constant
 from spotcheck.digitfile.source import ByteSource, Utf16Source
+from spotcheck.digitfile.writers import Rewritten, writer_rules
 from spotcheck.errors import DigitFileError, UsageError
 
 __all__ = ["CarriageReturns", "check_open_arguments", "detect_source"]
@@ -93,6 +96,10 @@ def detect_source(
     if cr_only:
         src = CarriageReturns(src)  # type: ignore[assignment]
         head = head.replace(b"\r", b"\n")
+    rules = writer_rules(src, head, eof)
+    if rules is not None:  # bytes general-purpose software writes around the digits, seen as blanks
+        src = Rewritten(src, rules)  # type: ignore[assignment]
+        head = src.read_at(0, HEAD_BYTES)
     plan = detect_text(head, eof, src.path, base, labels, first_position=first_position)
     if cr_only:
         plan.newline = "\r"

@@ -19,7 +19,19 @@ from tests.fuzz.oracle import (
     truth_labels,
     widen,
 )
-from tests.fuzz.writer import BLANK_SEPS, HEADERS, LONE_SEPS, MARK_SEPS, Label, Spec, write
+from tests.fuzz.writer import (
+    BLANK_SEPS,
+    FOOTERS,
+    HEADERS,
+    LONE_SEPS,
+    MARK_SEPS,
+    MARKS,
+    PAIRS,
+    TYPESET_SEPS,
+    Label,
+    Spec,
+    write,
+)
 
 HANG_SECONDS = 5.0
 
@@ -52,20 +64,37 @@ def random_spec(rng: random.Random, max_digits: int = 400) -> Spec:
             rng.choice((0, 0, 6, 8)) if where == "both" else 0,
         )
     compression = rng.choice((None,) * 8 + ("gzip", "bzip2", "xz"))
+    header = tuple(rng.choice(HEADERS) for _ in range(rng.choice((0, 0, 1, 2))))
+    group = rng.choice((None, rng.randint(1, 12)))
+    # What general-purpose software writes around the digits (spotcheck/digitfile/writers.py).
+    plain_end = label is None or label.where == "start"
+    mark, opening = "", ""
+    if plain_end and rng.random() < 0.15:
+        if rng.random() < 0.5 and not header and label is None:
+            opening, mark = rng.choice(PAIRS)
+        else:
+            mark = rng.choice(MARKS if base == 10 else MARKS[:2])
     return Spec(
         digits=digits,
         base=base,
         integer_part=rng.choice((None, None, "3", "0", "12")),
         width=width,
-        group=rng.choice((None, rng.randint(1, 12))),
-        group_sep=rng.choice((" ", " ", "\t", "  ")),
+        group=group,
+        group_sep=rng.choice(TYPESET_SEPS)
+        if group and rng.random() < 0.15
+        else rng.choice((" ", " ", "\t", "  ")),
         label=label,
-        header=tuple(rng.choice(HEADERS) for _ in range(rng.choice((0, 0, 1, 2)))),
+        header=header,
         newline=rng.choice(("\n", "\n", "\r\n", "\r")),
         lower=base == 16 and rng.random() < 0.3,
         final_newline=rng.random() < 0.8,
         compression=compression,
         indent=rng.choice(("", "", " ")),
+        continuation=plain_end and lines > 1 and rng.random() < 0.15,
+        opening=opening,
+        mark=mark,
+        footer=tuple(rng.choice(FOOTERS) for _ in range(rng.choice((1, 2)))) if rng.random() < 0.15 else (),
+        page=rng.randint(1, 6) if lines > 2 and rng.random() < 0.15 else None,
     )
 
 

@@ -5,7 +5,18 @@ from __future__ import annotations
 from hypothesis import assume
 from hypothesis import strategies as st
 
-from tests.fuzz.writer import BLANK_SEPS, HEADERS, LONE_SEPS, MARK_SEPS, Label, Spec
+from tests.fuzz.writer import (
+    BLANK_SEPS,
+    FOOTERS,
+    HEADERS,
+    LONE_SEPS,
+    MARK_SEPS,
+    MARKS,
+    PAIRS,
+    TYPESET_SEPS,
+    Label,
+    Spec,
+)
 
 
 @st.composite
@@ -51,18 +62,37 @@ def specs(draw, max_digits: int = 700, min_digits: int = 1, where: str | None = 
     )
     if label is not None and label.blank:
         assume(width is None or width >= 2)
+    header = tuple(draw(st.lists(st.sampled_from(HEADERS), max_size=3)))
+    # What general-purpose software writes around the digits (writers.py), each now and then.
+    plain_end = label is None or label.where == "start"  # nothing after an end label
+    typeset = group is not None and draw(st.integers(0, 5)) == 0
+    mark, opening = "", ""
+    if plain_end and draw(st.integers(0, 4)) == 0:
+        if draw(st.booleans()) and not header and label is None:
+            opening, mark = draw(st.sampled_from(PAIRS))
+        else:
+            mark = draw(st.sampled_from(MARKS if base == 10 else MARKS[:2]))
     return Spec(
         digits=digits,
         base=base,
         integer_part=draw(st.sampled_from((None, None, "3", "0", "12"))),
         width=width,
         group=group,
-        group_sep=draw(st.sampled_from((" ", " ", "\t", "  "))),
+        group_sep=draw(st.sampled_from(TYPESET_SEPS))
+        if typeset
+        else draw(st.sampled_from((" ", " ", "\t", "  "))),
         label=label,
-        header=tuple(draw(st.lists(st.sampled_from(HEADERS), max_size=3))),
+        header=header,
         newline=draw(st.sampled_from(("\n", "\r\n", "\r"))),
         lower=base == 16 and draw(st.booleans()),
         final_newline=draw(st.booleans()),
         compression=draw(st.sampled_from((None, None, None, "gzip", "bzip2", "xz"))),
         indent=draw(st.sampled_from(("", "", " "))),
+        continuation=plain_end and lines > 1 and draw(st.integers(0, 4)) == 0,
+        opening=opening,
+        mark=mark,
+        footer=tuple(draw(st.lists(st.sampled_from(FOOTERS), max_size=2)))
+        if draw(st.integers(0, 4)) == 0
+        else (),
+        page=draw(st.integers(1, 6)) if lines > 2 and draw(st.integers(0, 5)) == 0 else None,
     )

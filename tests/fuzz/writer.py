@@ -24,6 +24,10 @@ HEADERS = (
 MARK_SEPS = (":", ": ", " : ", "|", " | ", "\t|\t")
 LONE_SEPS = (" : ", " | ", "\t|\t")  # a label on a line alone has a blank beside its mark
 BLANK_SEPS = (" ", "  ", "\t")
+TYPESET_SEPS = ("\u00a0", "\u2009", "\u202f", "\u2007")  # no-break, thin, narrow no-break, figure space
+MARKS = ("`50.", "`1001.", "e0", "E+00", "b0", "*^0")  # after the last digit
+PAIRS = (("[", "]"), ("mpf('", "')"), ('"', '"'), ("'", "'"), ("(", ")"))  # around the number
+FOOTERS = ("-- end --", "Total: 20000 digits", "Ridgeview mathematics club, page 1 of 1")
 
 
 @dataclass(frozen=True)
@@ -77,6 +81,12 @@ class Spec:
     final_newline: bool = True
     compression: str | None = None
     indent: str = ""
+    # What general-purpose software writes around the digits (spotcheck/digitfile/writers.py):
+    continuation: bool = False  # a backslash before every line break between digit lines
+    opening: str = ""  # before the first digit line's number: "[", "mpf('", '"'
+    mark: str = ""  # after the last digit: "`50.", "e0", "b0", "]", "')", '"'
+    footer: tuple[str, ...] = ()  # text lines after the digits
+    page: int | None = None  # digit lines a page: a form feed and a page header line between pages
 
 
 @dataclass
@@ -89,6 +99,11 @@ class Written:
     label_spans: list[tuple[int, int]] = field(default_factory=list)
 
 
+def _b(s: str) -> int:
+    """Bytes of ``s`` in UTF-8 (typeset separators are several bytes)."""
+    return len(s.encode("utf-8"))
+
+
 def write(spec: Spec) -> Written:
     digits = spec.digits.lower() if spec.lower else spec.digits
     width = spec.width or max(1, len(digits))
@@ -99,18 +114,24 @@ def write(spec: Spec) -> Written:
     pos = 0
     for h in spec.header:
         out.append(h + spec.newline)
-        pos += len(out[-1])
+        pos += _b(out[-1])
     before = 0
     full = ""
     for n, line in enumerate(lines):
         row = spec.indent
+        if spec.page and n and n % spec.page == 0:
+            page = f"\fPage {n // spec.page + 1} of the Ridgeview club's run{spec.newline}"
+            out.append(page)
+            pos += _b(page)
         lab = spec.label.text(before, len(line)) if spec.label else ""
         if spec.label and spec.label.where in ("start", "both"):
-            spans.append((pos + len(row), pos + len(row) + len(lab)))
+            spans.append((pos + _b(row), pos + _b(row) + len(lab)))
             row += lab + spec.label.sep
+        if n == 0:
+            row += spec.opening
         if n == 0 and spec.integer_part is not None:
             for c in spec.integer_part + ".":
-                offsets.append(pos + len(row))
+                offsets.append(pos + _b(row))
                 full += c
                 row += c
         g = spec.group or len(line) or 1
@@ -118,24 +139,29 @@ def write(spec: Spec) -> Written:
             if k:
                 row += spec.group_sep
             for c in line[k : k + g]:
-                offsets.append(pos + len(row))
+                offsets.append(pos + _b(row))
                 full += c.upper()
                 row += c
         if spec.label and spec.label.where == "end":
             row += spec.label.sep
-            spans.append((pos + len(row), pos + len(row) + len(lab)))
+            spans.append((pos + _b(row), pos + _b(row) + len(lab)))
             row += lab
         elif spec.label and spec.label.where == "both":
             row += spec.label.end_sep
             end = spec.label.end_text(before, len(line))
-            spans.append((pos + len(row), pos + len(row) + len(end)))
+            spans.append((pos + _b(row), pos + _b(row) + len(end)))
             row += end
-        if n < len(lines) - 1 or spec.final_newline:
+        if n == len(lines) - 1:
+            row += spec.mark
+        if spec.continuation and n < len(lines) - 1:
+            row += "\\"
+        if n < len(lines) - 1 or spec.final_newline or spec.footer:
             row += spec.newline
         out.append(row)
-        pos += len(row)
+        pos += _b(row)
         before += len(line)
-    content = "".join(out).encode("ascii")
+    out.extend(f + spec.newline for f in spec.footer)
+    content = "".join(out).encode("utf-8")
     stored = content
     if spec.compression == "gzip":
         stored = gzip.compress(content, mtime=0)
