@@ -120,6 +120,30 @@ BOTH_EXAMPLES = {
 }
 EXAMPLES.update(BOTH_EXAMPLES)
 
+# What general-purpose software writes around the digits (spotcheck/digitfile/writers.py).
+WRITER_EXAMPLES = {
+    "continuation lines, decimal": Spec(D, 10, "3", width=69, continuation=True),
+    "continuation lines, hex, CRLF": Spec(H, 16, "3", width=69, continuation=True, newline="\r\n"),
+    "continuation lines, no point": Spec(D, 10, None, width=70, continuation=True),
+    "precision suffix": Spec(D, 10, "3", mark="`1201."),
+    "exponent zero": Spec(D, 10, "3", width=64, mark="e0"),
+    "binary exponent zero": Spec(D, 10, "3", mark="b0"),
+    "quoted number": Spec(D, 10, "3", opening="mpf('", mark="')"),
+    "bracketed hex": Spec(H, 16, "3", width=60, opening="[", mark="]"),
+    "footer lines": Spec(D, 10, "3", width=50, footer=("-- end --", "Total: 1200 digits")),
+    "page breaks": Spec(D, 10, "3", width=50, group=10, page=6),
+    "page breaks, start labels": Spec(
+        H, 16, None, width=32, page=4, label=Label("start", 10, ": ", "first", pad=6)
+    ),
+    "no-break spaces": Spec(D, 10, "3", width=50, group=10, group_sep="\u00a0"),
+    "thin spaces, hex": Spec(H, 16, "3", width=60, group=5, group_sep="\u2009"),
+    "narrow no-break spaces, end labels": Spec(
+        D, 10, None, width=40, group=4, group_sep="\u202f", label=Label("end", 10, " : ", "through")
+    ),
+    "figure spaces, gzip": Spec(D, 10, "3", width=60, group=3, group_sep="\u2007", compression="gzip"),
+}
+EXAMPLES.update(WRITER_EXAMPLES)
+
 
 def check(spec: Spec) -> None:
     w = write(spec)
@@ -218,3 +242,12 @@ def test_bulk_and_line_patterns_read_the_same_labels(text: str) -> None:
         assert cleaned.translate(None, blanks).split(b"\n")[: len(lines)] == [
             b.translate(None, blanks) for b in bodies
         ]
+
+
+def test_examples_cover_the_writer_families() -> None:
+    """Every family writers.py reads has an example (issue 25)."""
+    specs_ = list(WRITER_EXAMPLES.values())
+    assert any(s.continuation and s.base == 16 for s in specs_) and any(s.continuation for s in specs_)
+    assert {s.mark for s in specs_} >= {"`1201.", "e0", "b0", "')", "]"}
+    assert any(s.footer for s in specs_) and any(s.page for s in specs_)
+    assert {s.group_sep for s in specs_} >= {"\u00a0", "\u2009", "\u202f", "\u2007"}

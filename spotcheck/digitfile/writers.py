@@ -15,14 +15,14 @@ byte is still judged by the layout model:
 * **marks after the digits**: at the end of the last digit line, a precision
   suffix (a backtick and a number, ```50.``), an exponent of zero (``e0``,
   ``E+00``, ``b0``, ``*^0``; another exponent moves the point and is refused as
-  a stray byte; a letter exponent only in a file whose head has no hex letter,
-  where it cannot be digits), closing brackets and quotes, and with a closing
+  a stray byte; a letter exponent only after ``MIN_DECIMAL_EVIDENCE`` decimal
+  digits and no hex letter in the head, where it cannot be hex digits by chance), closing brackets and quotes, and with a closing
   mark the matching opening at the start of the first line (``mpf('`` or ``[``);
 * **footer lines**: text lines after the last digit line (``-- end --``,
   ``Total: 20000 digits``), each with at least ``MIN_FOOTER_MARKS`` letters that
   are no hex digit or punctuation no digit line holds (``-``, ``=``, ``#``, ...),
-  so a digit line with a stray byte, or two digit lines run together, is never
-  taken for text;
+  the first of them its first byte, so a digit line with a stray byte, or run
+  together with the footer, is never taken for text;
 * **page breaks**: a form feed, and a text line (the same footer rule) on the
   line a form feed starts or right after a line holding only form feeds.
 
@@ -43,6 +43,7 @@ __all__ = ["Rewritten", "WriterRules", "writer_rules", "TAIL_BYTES", "TYPESET_SE
 
 # --- tuning -----------------------------------------------------------------
 TAIL_BYTES = 64 * 1024  # bytes at the end of the content examined for marks and footer lines
+MIN_DECIMAL_EVIDENCE = 64  # decimal digits without a hex letter before 'e0' or 'b0' is read as a mark
 MIN_FOOTER_MARKS = 3  # bytes a footer or page header line holds that cannot be digits
 CONTEXT = 512  # bytes read on either side of a window so a rule sees its whole line
 MAX_PAGE_HEADER = 200  # longest footer or page header line (a line the window may cut is never one)
@@ -58,6 +59,9 @@ _TEXT_MARKS = bytes(sorted(set(b"GHIJKLMNOPQRSTUVWXYZghijklmnopqrstuvwxyz-=*#_~/
 _MARK = re.compile(
     rb"(?<=[0-9A-Fa-f.])((?:`[0-9]*\.?[0-9]*)?(?:(?:[eEbB]|\*\^)[+-]?0+)?[\])}'\"]*)[ \t\r]*\Z"
 )
+_MARK_NO_LETTER_EXPONENT = re.compile(
+    rb"(?<=[0-9A-Fa-f.])((?:`[0-9]*\.?[0-9]*)?(?:\*\^[+-]?0+)?[\])}'\"]*)[ \t\r]*\Z"
+)
 _LETTER_EXPONENT = re.compile(rb"[eEbB][+-]?0+")
 _OPENING = re.compile(rb"\A[ \t]*((?:[A-Za-z_][A-Za-z0-9_.]*\()?[\[({'\"]+)(?=[0-9A-Fa-f])")
 _HEX_LETTER = re.compile(rb"[A-Fa-f]")
@@ -68,6 +72,8 @@ def _is_text_line(line: bytes) -> bool:
     s = line.lstrip(b"\f").strip(b" \t\r")
     if len(s) > MAX_PAGE_HEADER or s.translate(None, _CONTROLS) != s:
         return False  # a long line, or one with line breaks or feeds inside, is no text line
+    if s[:1].translate(None, _TEXT_MARKS):
+        return False  # text starts as text: a digit line run together with a footer is no footer
     return len(s) - len(s.translate(None, _TEXT_MARKS)) >= MIN_FOOTER_MARKS
 
 
@@ -145,8 +151,13 @@ def _tail_spans(tail: bytes, tail_at: int, head: bytes, spans: list[tuple[int, i
     if _LETTER_EXPONENT.search(mark):
         lines = [ln for ln in head.split(b"\n") if not _is_text_line(ln)]
         digit_lines = [ln[: ln.rfind(mark)] if mark in ln else ln for ln in lines]
-        if any(_HEX_LETTER.search(ln) for ln in digit_lines):
-            return False  # a hex file: 'e0' or 'b0' there may be digits
+        decimal_digits = sum(len(ln) - len(ln.translate(None, b"0123456789")) for ln in digit_lines)
+        if any(_HEX_LETTER.search(ln) for ln in digit_lines) or decimal_digits < MIN_DECIMAL_EVIDENCE:
+            # A hex file, or too few digits to tell: 'e0' or 'b0' there may be digits.
+            m = _MARK_NO_LETTER_EXPONENT.search(last)
+            if not m or not m.group(1):
+                return False
+            mark = m.group(1)
     start = tail_at + starts[i] + m.start(1)
     spans.append((start, start + len(mark)))
     return any(c in mark for c in b"])}'\"")

@@ -26,6 +26,7 @@ from tests.fuzz.writer import (
     LONE_SEPS,
     MARK_SEPS,
     MARKS,
+    NO_LETTER_MARKS,
     PAIRS,
     TYPESET_SEPS,
     Label,
@@ -73,7 +74,7 @@ def random_spec(rng: random.Random, max_digits: int = 400) -> Spec:
         if rng.random() < 0.5 and not header and label is None:
             opening, mark = rng.choice(PAIRS)
         else:
-            mark = rng.choice(MARKS if base == 10 else MARKS[:2])
+            mark = rng.choice(MARKS if base == 10 and n >= 64 else NO_LETTER_MARKS)
     return Spec(
         digits=digits,
         base=base,

@@ -12,6 +12,7 @@ from tests.fuzz.writer import (
     LONE_SEPS,
     MARK_SEPS,
     MARKS,
+    NO_LETTER_MARKS,
     PAIRS,
     TYPESET_SEPS,
     Label,
@@ -71,7 +72,7 @@ def specs(draw, max_digits: int = 700, min_digits: int = 1, where: str | None = 
         if draw(st.booleans()) and not header and label is None:
             opening, mark = draw(st.sampled_from(PAIRS))
         else:
-            mark = draw(st.sampled_from(MARKS if base == 10 else MARKS[:2]))
+            mark = draw(st.sampled_from(MARKS if base == 10 and n >= 64 else NO_LETTER_MARKS))
     return Spec(
         digits=digits,
         base=base,

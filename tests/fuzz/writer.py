@@ -26,6 +26,7 @@ LONE_SEPS = (" : ", " | ", "\t|\t")  # a label on a line alone has a blank besid
 BLANK_SEPS = (" ", "  ", "\t")
 TYPESET_SEPS = ("\u00a0", "\u2009", "\u202f", "\u2007")  # no-break, thin, narrow no-break, figure space
 MARKS = ("`50.", "`1001.", "e0", "E+00", "b0", "*^0")  # after the last digit
+NO_LETTER_MARKS = ("`50.", "`1001.", "*^0")  # letter exponents only after 64 decimal digits (writers.py)
 PAIRS = (("[", "]"), ("mpf('", "')"), ('"', '"'), ("'", "'"), ("(", ")"))  # around the number
 FOOTERS = ("-- end --", "Total: 20000 digits", "Ridgeview mathematics club, page 1 of 1")
 
