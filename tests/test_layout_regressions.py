@@ -434,3 +434,23 @@ def test_end_label_that_lost_its_colon_is_a_label_finding_only(line: int, tmp_pa
     assert code == 1 and f"line {line}: the position label {20 * line} has lost its separator" in out
     code, _, _ = cli(capsys, "verify", path, "--ignore-labels")
     assert code == 0
+
+
+@pytest.mark.parametrize("word", [2, 4])
+@pytest.mark.parametrize("given", [False, True])
+def test_dump_of_words_in_machine_order_is_never_read_in_the_wrong_order(
+    word: int, given: bool, tmp_path: Path, capsys
+) -> None:
+    """``0000000 3f24 886a ...``: 2-byte words printed little-endian; read as written every digit
+    is out of place, so the reading is refused naming machine order."""
+    data = bytes.fromhex(HEX[:4000])
+    rows = []
+    for o in range(0, len(data), 16):
+        words = [data[o + i : o + i + word][::-1].hex() for i in range(0, 16, word)]
+        rows.append(f"{o:07x} " + " ".join(words))
+    rows.append(f"{len(data):07x}")
+    path = tmp_path / "words.txt"
+    path.write_text("\n".join(rows) + "\n")
+    code, out, err = cli(capsys, "verify", path, *(["--constant", "pi"] if given else []))
+    assert code == 2 and out == ""
+    assert f"printed in {word}-byte words in machine order" in err

@@ -49,6 +49,7 @@ MIN_MATCH = 12  # a common prefix this long names a constant
 MAX_CHANCE = 1e-12  # largest chance of a coincidental agreement that still names a constant
 SHORT_CHANCE = 1e-6  # largest chance of a short file agreeing in full that still names a constant
 MAX_SHIFT = 8  # leading digits a shifted reading may drop (an integer part, a short label)
+WORD_BYTES = (2, 4, 8)  # word sizes a dump may print in machine (little-endian) order
 SHIFT_CHANCE = 1e-4  # a reading this likely or less by chance is one the file may mean
 
 
@@ -166,6 +167,9 @@ class ShiftedReading:
     examined: int
     integer_part: bool
     """The dropped digits are the constant's integer part (written without a point)."""
+    word: int = 0
+    """Bytes a word, when the digits agree once each word's bytes are reversed (a dump that
+    prints words in machine order); then nothing is dropped."""
 
 
 def shifted_reading(
@@ -180,7 +184,8 @@ def shifted_reading(
     True
     """
     head = head.upper()[:GUESS_DIGITS]
-    tries = max(1, len(names)) * MAX_SHIFT
+    tries = max(1, len(names)) * (MAX_SHIFT + len(WORD_BYTES))
+    best: tuple[float, ShiftedReading] | None = None
     for name in names:
         try:
             ip, ref = reference_digits(name, base)
@@ -190,9 +195,29 @@ def shifted_reading(
             continue
         if chance(_agreed(head, ref), len(head), base) <= SHIFT_CHANCE:
             continue  # the digits as read explain the file: a damaged digit is damage
+        found: list[tuple[float, ShiftedReading]] = []
         for k in range(1, min(MAX_SHIFT, len(head) - 1) + 1):
             rest = head[k:]
             agreed = _agreed(rest, ref)
-            if chance(agreed, len(rest), base) * tries <= SHIFT_CHANCE:
-                return ShiftedReading(name, head[:k], agreed, len(rest), head[:k] == ip.upper())
-    return None
+            p = chance(agreed, len(rest), base)
+            found.append((p, ShiftedReading(name, head[:k], agreed, len(rest), head[:k] == ip.upper())))
+        for word in WORD_BYTES if base == 16 else ():
+            swapped = _machine_order(head, word)
+            if len(swapped) >= 2 * word:
+                agreed = _agreed(swapped, ref)
+                p = chance(agreed, len(swapped), base)
+                found.append((p, ShiftedReading(name, "", agreed, len(swapped), False, word)))
+        for p, reading in found:
+            if p * tries <= SHIFT_CHANCE and (best is None or p < best[0]):
+                best = (p, reading)
+    return best[1] if best else None
+
+
+def _machine_order(head: str, word: int) -> str:
+    """``head`` (hex digits) with the bytes of each ``word``-byte word reversed; a partial word dropped."""
+    n = 2 * word
+    out = []
+    for i in range(0, len(head) - n + 1, n):
+        w = head[i : i + n]
+        out.append("".join(w[j : j + 2] for j in range(n - 2, -1, -2)))
+    return "".join(out)

@@ -128,8 +128,17 @@ def _refuse_shifted_reading(df: DigitFile, plan: Detection, name: str, labels: s
         names = [df.constant]
     assert df.base is not None
     shift = shifted_reading(plan.head_digits.decode("ascii"), df.integer_part, df.base, names)
-    if shift is None or (labels is not None and not shift.integer_part):
+    if shift is None or (labels is not None and not shift.integer_part and not shift.word):
         return  # the caller said where the labels are
+    if shift.word:
+        raise AmbiguousLayoutError(
+            f"{name}: the reading is ambiguous: the digits could be {shift.name}'s printed in "
+            f"{shift.word}-byte words in machine order (read so, {shift.agreed} of the first {shift.examined} "
+            f"agree with {shift.name}) or digits in the order written (which differ from position 1); "
+            "a dump of single bytes says which",
+            "word-order",
+            ("machine order", "as written"),
+        )
     k = len(shift.dropped)
     first = f"the first digit {shift.dropped}" if k == 1 else f"the first {k} digits {shift.dropped}"
     then = f"the next {shift.agreed} of {shift.examined} digits agree with {shift.name}"
