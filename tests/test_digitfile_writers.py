@@ -164,7 +164,8 @@ def test_page_breaks_with_page_headers(damaged: int | None, tmp_path: Path, caps
     rows = [digits[i : i + 50] for i in range(0, 2000, 50)]
     pages = ["\n".join(rows[k : k + 10]) for k in range(0, 40, 10)]
     text = "3." + "".join(
-        page + f"\n\fRidgeview club, page {k + 2}\n" if k < 3 else page + "\n" for k, page in enumerate(pages)
+        page + f"\n\fPage {k + 2} of the Ridgeview club's listing\n" if k < 3 else page + "\n"
+        for k, page in enumerate(pages)
     )
     path = tmp_path / "pages.txt"
     path.write_text(text)
@@ -181,3 +182,68 @@ def test_typeset_separators_between_groups(sep: str, tmp_path: Path, capsys) -> 
     assert code == 0 and payload["file"]["count"] == 2000
     code, out, err = cli(capsys, "verify", path, "--at", 1234)
     assert code == 0, err
+
+
+@pytest.mark.parametrize(("sep", "header"), [(",", "position,digit\n"), (";", ""), (", ", "n, digit\n")])
+def test_tables_of_positions_and_digits(sep: str, header: str, tmp_path: Path, capsys) -> None:
+    """One digit a row with its position (1-based), as spreadsheets export them."""
+    path = tmp_path / "table.csv"
+    path.write_text(header + "".join(f"{i + 1}{sep}{c}\n" for i, c in enumerate(DEC[:500])))
+    code, payload = digits_of(path, capsys)
+    assert code == 0 and payload["file"]["count"] == 500
+    rows = path.read_text().splitlines(keepends=True)
+    k = 1 if header else 0
+    rows[k + 99] = rows[k + 99].replace(f"{sep}{DEC[99]}", f"{sep}{(int(DEC[99]) + 1) % 10}")
+    path.write_text("".join(rows))
+    code, payload = digits_of(path, capsys)
+    assert code == 1 and payload["first_mismatch"] == 100
+
+
+def test_table_with_the_integer_part_as_row_1_is_refused_naming_both_readings(tmp_path: Path, capsys) -> None:
+    path = tmp_path / "table.csv"
+    path.write_text("position,digit\n" + "".join(f"{i + 1},{c}\n" for i, c in enumerate("3" + DEC[:300])))
+    code, _, err = cli(capsys, "verify", path, "--constant", "pi")
+    assert code == 2 and "the first digit 3 could be pi's integer part written without a point" in err
+
+
+def canonical_dump(data: bytes, *, text: bool = True) -> str:
+    """``00000000  24 3f 6a 88 85 a3 08 d3  13 19 8a 2e 03 70 73 44  |$?j..........psD|``."""
+    rows = []
+    for o in range(0, len(data), 16):
+        c = data[o : o + 16]
+        hexes = " ".join(f"{x:02x}" for x in c[:8]) + "  " + " ".join(f"{x:02x}" for x in c[8:])
+        shown = "".join(chr(x) if 32 <= x < 127 else "." for x in c)
+        rows.append(f"{o:08x}  {hexes:<49}" + (f" |{shown}|" if text else ""))
+    rows.append(f"{len(data):08x}")
+    return "\n".join(rows) + "\n"
+
+
+@pytest.mark.parametrize("text", [True, False])
+def test_dump_of_a_packed_binary_file(text: bool, tmp_path: Path, capsys) -> None:
+    """A packed binary file of pi's hex digits dumped with offsets, hex pairs and a text column."""
+    path = tmp_path / "dump.txt"
+    path.write_text(canonical_dump(bytes.fromhex(HEX[:3000]), text=text))
+    code, payload = digits_of(path, capsys)
+    assert code == 0 and payload["file"]["count"] == 3000 and payload["file"]["base"] == 16
+
+
+def test_a_text_column_that_does_not_render_its_bytes_is_refused(tmp_path: Path, capsys) -> None:
+    dump = canonical_dump(bytes.fromhex(HEX[:3000]))
+    rows = dump.splitlines(keepends=True)
+    rows[5] = (
+        rows[5][:-3] + ("Z" if rows[5][-3] != "Z" else "Y") + rows[5][-2:]
+    )  # one character of line 6's column
+    path = tmp_path / "dump.txt"
+    path.write_text("".join(rows))
+    code, _, err = cli(capsys, "verify", path)
+    assert code == 2 and "line 6" in err
+
+
+def test_a_page_header_ending_in_digits_is_refused(tmp_path: Path, capsys) -> None:
+    """``Page 2`` could be a header run together with the next digit line: never dropped as text."""
+    rows = [DEC[i : i + 50] for i in range(0, 1000, 50)]
+    text = "3." + "\n".join(rows[:10]) + "\n\fPage 2\n" + "\n".join(rows[10:]) + "\n"
+    path = tmp_path / "pages.txt"
+    path.write_text(text)
+    code, _, err = cli(capsys, "verify", path)
+    assert code == 2 and "line 11" in err

@@ -140,6 +140,10 @@ WRITER_EXAMPLES = {
     "narrow no-break spaces, end labels": Spec(
         D, 10, None, width=40, group=4, group_sep="\u202f", label=Label("end", 10, " : ", "through")
     ),
+    "table, comma, header row": Spec(
+        D[:400], 10, None, width=1, header=("position,digit",), label=Label("start", 10, ",", "first")
+    ),
+    "table, semicolon, groups of 10": Spec(D, 10, None, width=10, label=Label("start", 10, ";", "before")),
     "figure spaces, gzip": Spec(D, 10, "3", width=60, group=3, group_sep="\u2007", compression="gzip"),
 }
 EXAMPLES.update(WRITER_EXAMPLES)

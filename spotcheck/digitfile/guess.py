@@ -50,6 +50,7 @@ MAX_CHANCE = 1e-12  # largest chance of a coincidental agreement that still name
 SHORT_CHANCE = 1e-6  # largest chance of a short file agreeing in full that still names a constant
 MAX_SHIFT = 8  # leading digits a shifted reading may drop (an integer part, a short label)
 WORD_BYTES = (2, 4, 8)  # word sizes a dump may print in machine (little-endian) order
+SHIFT_SHARE = 0.9  # and it agrees on this share of the digits examined
 SHIFT_CHANCE = 1e-4  # a reading this likely or less by chance is one the file may mean
 
 
@@ -208,7 +209,10 @@ def shifted_reading(
                 p = chance(agreed, len(swapped), base)
                 found.append((p, ShiftedReading(name, "", agreed, len(swapped), False, word)))
         for p, reading in found:
-            if p * tries <= SHIFT_CHANCE and (best is None or p < best[0]):
+            # A reading the file means agrees all but for damage (a swapped reading of a file that
+            # lost one byte agrees on every other byte: beyond chance, yet not what it means).
+            nearly = reading.agreed >= SHIFT_SHARE * reading.examined
+            if nearly and p * tries <= SHIFT_CHANCE and (best is None or p < best[0]):
                 best = (p, reading)
     return best[1] if best else None
 

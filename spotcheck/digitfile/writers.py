@@ -4,7 +4,8 @@ Calculators, computer-algebra systems, word processors and printers put bytes
 among the digits that are neither digits nor the model's separators.  Each rule
 here names such bytes exactly and :class:`Rewritten` shows them to every later
 reader (detection, both passes, the random-access read) as blanks, one byte
-for one, so byte offsets, lines and columns stay the file's own and every other
+for one (the mark after the last digit and footer lines end the content
+instead), so byte offsets, lines and columns stay the file's own and every other
 byte is still judged by the layout model:
 
 * **continuation lines**: a backslash right before a line break (``...5923\\``),
@@ -21,10 +22,20 @@ byte is still judged by the layout model:
 * **footer lines**: text lines after the last digit line (``-- end --``,
   ``Total: 20000 digits``), each with at least ``MIN_FOOTER_MARKS`` letters that
   are no hex digit or punctuation no digit line holds (``-``, ``=``, ``#``, ...),
-  the first of them its first byte, so a digit line with a stray byte, or run
-  together with the footer, is never taken for text;
-* **page breaks**: a form feed, and a text line (the same footer rule) on the
-  line a form feed starts or right after a line holding only form feeds.
+  the first of them its first byte, printable ASCII only, so a digit line with a
+  stray byte, or run together with the footer, is never taken for text;
+* **page breaks**: a form feed, and a text line (the same footer rule, and
+  ending as text: ``Page 2 of the club's run``, not ``Page 2``, so a page header
+  run together with the next digit line is never one) on the line a form feed
+  starts or right after a line holding only form feeds;
+* **tables**: rows ``position,digits`` or ``position;digits`` (every row of the
+  head, at least ``MIN_ROWS``, a header row such as ``position,digit`` allowed):
+  the one ``,`` or ``;`` after the position, read as the label separator ``:``
+  (it explains a byte digits cannot, as ``:`` does), so the rows are start labels
+  by the layout model's own evidence rule;
+* **a dump's text column**: ``|$?j......|`` at the end of each line of a dump of
+  bytes as hex pairs, blanked only where it renders exactly that line's bytes
+  (printable ASCII as itself, any other byte as ``.``).
 
 :func:`writer_rules` reads the head (and, for an uncompressed file or one whose
 content the head holds, the tail) and returns the rules that apply, or None
@@ -52,7 +63,7 @@ TYPESET_SEPARATORS = re.compile(rb"\xc2\xa0|\xe2\x80[\x87\x89\xaf]")
 _TYPESET = TYPESET_SEPARATORS
 _CONTINUATION = re.compile(rb"\\(?=\r?\n)")
 _DIGIT_BYTES = b"0123456789ABCDEFabcdef"
-_CONTROLS = bytes(b for b in range(32) if b != 9)
+_NOT_PRINTABLE = bytes(b for b in range(256) if b != 9 and not 0x20 <= b < 0x7F)
 # Bytes that make a line text: letters that are no hex digit, and punctuation no digit line holds.
 _TEXT_MARKS = bytes(sorted(set(b"GHIJKLMNOPQRSTUVWXYZghijklmnopqrstuvwxyz-=*#_~/,;!?()[]<>@%&+")))
 # A mark after the last digit: precision suffix, exponent zero, closing brackets and quotes.
@@ -65,16 +76,29 @@ _MARK_NO_LETTER_EXPONENT = re.compile(
 _LETTER_EXPONENT = re.compile(rb"[eEbB][+-]?0+")
 _OPENING = re.compile(rb"\A[ \t]*((?:[A-Za-z_][A-Za-z0-9_.]*\()?[\[({'\"]+)(?=[0-9A-Fa-f])")
 _HEX_LETTER = re.compile(rb"[A-Fa-f]")
+MIN_ROWS = 3  # rows of a table or dump seen before its rule applies
+# A table row: a position, one ',' or ';' (blanks around it), the digits; short enough that a
+# window always sees its start.
+_TABLE_ROW = re.compile(rb"(?m)^([ \t]*[0-9]{1,18}[ \t]*)[,;]([ \t]*[0-9A-Fa-f]{1,64}[ \t\r]*)$")
+# A dump line: offset, bytes as hex pairs, a text column between bars (at most 16 bytes).
+_DUMP_ROW = re.compile(
+    rb"(?m)^([0-9a-fA-F]{4,16}:?[ \t]+)((?:[0-9a-fA-F]{2}[ \t]{1,2}){1,16})[ \t]*\|([\x20-\x7e]{1,16})\|[ \t\r]*$"
+)
 
 
 def _is_text_line(line: bytes) -> bool:
     """A footer or page header line: not empty, with ``MIN_FOOTER_MARKS`` bytes no digit can be."""
     s = line.lstrip(b"\f").strip(b" \t\r")
-    if len(s) > MAX_PAGE_HEADER or s.translate(None, _CONTROLS) != s:
+    if len(s) > MAX_PAGE_HEADER or s.translate(None, _NOT_PRINTABLE) != s:
         return False  # a long line, or one with line breaks or feeds inside, is no text line
     if s[:1].translate(None, _TEXT_MARKS):
         return False  # text starts as text: a digit line run together with a footer is no footer
-    return len(s) - len(s.translate(None, _TEXT_MARKS)) >= MIN_FOOTER_MARKS
+    return _text_marks(s) >= MIN_FOOTER_MARKS
+
+
+def _text_marks(line: bytes) -> int:
+    """Bytes of ``line`` that only text holds (letters that are no hex digit, punctuation)."""
+    return len(line) - len(line.translate(None, _TEXT_MARKS))
 
 
 @dataclass(frozen=True)
@@ -85,8 +109,14 @@ class WriterRules:
     typeset: bool
     page_breaks: bool
     blank_spans: tuple[tuple[int, int], ...]
+    table: bool = False
+    """Rows ``position,digits`` or ``position;digits``: the one separator after the position."""
+    dump_text: bool = False
+    """Dump lines ending in a text column between bars that renders the line's bytes."""
+    end: int | None = None
+    """The content ends here: the mark after the last digit and the footer lines are cut off."""
     """Byte ranges ``[start, end)`` of the content shown as blanks (line breaks kept):
-    the opening and closing marks and the footer lines."""
+    the opening mark."""
 
     def names(self) -> list[str]:
         """Short names of the rules in force (for ``inspect``'s notes)."""
@@ -97,8 +127,12 @@ class WriterRules:
             out.append("typeset separators")
         if self.page_breaks:
             out.append("page breaks")
-        if self.blank_spans:
+        if self.blank_spans or self.end is not None:
             out.append("marks or footer text around the digits")
+        if self.table:
+            out.append("a table of positions and digits")
+        if self.dump_text:
+            out.append("a dump's text column")
         return out
 
 
@@ -107,7 +141,10 @@ def writer_rules(src: ByteSource, head: bytes, eof: bool) -> WriterRules | None:
     continuation = bool(_CONTINUATION.search(head))
     typeset = bool(_TYPESET.search(head))
     page_breaks = b"\f" in head
+    table = _all_rows(head, eof, _TABLE_ROW)
+    dump_text = _all_rows(head, eof, _DUMP_ROW) and _DUMP_ROW.sub(_blank_text_column, head) != head
     spans: list[tuple[int, int]] = []
+    end: int | None = None
     if eof:
         tail, tail_at = head, 0
     elif src.compression is None:
@@ -117,18 +154,44 @@ def writer_rules(src: ByteSource, head: bytes, eof: bool) -> WriterRules | None:
         tail, tail_at = b"", 0
     if tail:
         seen = WriterRules(continuation, typeset, False, ())  # the tail as the passes will see it
-        closing = _tail_spans(Rewritten._apply(seen, tail, tail_at), tail_at, head, spans)
+        end, closing = _tail_end(Rewritten._apply(seen, tail, tail_at), tail_at, head)
         if closing:
             m = _OPENING.match(head[: head.find(b"\n") if b"\n" in head else len(head)])
             if m:
                 spans.append((m.start(1), m.end(1)))
-    if not (continuation or typeset or page_breaks or spans):
+    if not (continuation or typeset or page_breaks or spans or table or dump_text or end is not None):
         return None
-    return WriterRules(continuation, typeset, page_breaks, tuple(sorted(spans)))
+    return WriterRules(continuation, typeset, page_breaks, tuple(sorted(spans)), table, dump_text, end)
 
 
-def _tail_spans(tail: bytes, tail_at: int, head: bytes, spans: list[tuple[int, int]]) -> bool:
-    """Add the footer lines' and the closing mark's spans; True when the mark closes a bracket or quote."""
+def _all_rows(head: bytes, eof: bool, row: re.Pattern[bytes]) -> bool:
+    """True when every line of the head's body (after any text lines, the last line perhaps cut)
+    is a row of this form, and there are at least ``MIN_ROWS``."""
+    lines = [ln for ln in head.split(b"\n")[: None if eof else -1] if ln.strip(b" \t\r")]
+    while lines and not row.fullmatch(lines[0]) and _text_marks(lines[0]) >= MIN_FOOTER_MARKS:
+        lines.pop(0)  # header lines, a header row "position,digit"
+    while lines and not row.fullmatch(lines[-1]) and _text_marks(lines[-1]) >= MIN_FOOTER_MARKS:
+        lines.pop()  # footer lines
+    if lines and not row.fullmatch(lines[-1]):
+        lines.pop()  # the last line may differ: a dump's final offset, a row cut by the head
+    return len(lines) >= MIN_ROWS and all(row.fullmatch(ln) for ln in lines)
+
+
+def _blank_text_column(m: re.Match[bytes]) -> bytes:
+    """A dump line with its text column as blanks when the column renders the line's bytes."""
+    line, hexes, text = m.group(0), m.group(2), m.group(3)
+    data = bytes.fromhex(hexes.decode("ascii").replace(" ", ""))
+    shown = bytes(b if 0x20 <= b < 0x7F else 0x2E for b in data)
+    if shown != text:
+        return line
+    a, b = m.span(3)
+    a, b = a - m.start() - 1, b - m.start() + 1  # the bars too
+    return line[:a] + b" " * (b - a) + line[b:]
+
+
+def _tail_end(tail: bytes, tail_at: int, head: bytes) -> tuple[int | None, bool]:
+    """``(where the content ends, or None, whether a closing bracket or quote ends it)``: before
+    the mark after the last digit, else before the footer lines."""
     lines = tail.split(b"\n")
     starts = [0]
     for ln in lines[:-1]:
@@ -137,30 +200,26 @@ def _tail_spans(tail: bytes, tail_at: int, head: bytes, spans: list[tuple[int, i
     while i > 0 and (not lines[i].strip(b" \t\r") or _is_text_line(lines[i])):
         i -= 1  # footer text and blank lines, from the end
     if i == 0 and tail_at > 0:
-        return False  # the tail is all text: not a footer this rule can vouch for
-    if i < len(lines) - 1:
-        first_footer = tail_at + starts[i + 1]
-        end = tail_at + len(tail)
-        if any(_is_text_line(ln) for ln in lines[i + 1 :]):
-            spans.append((first_footer, end))
+        return None, False  # the tail is all text: not a footer this rule can vouch for
+    end = None
+    if i < len(lines) - 1 and any(_is_text_line(ln) for ln in lines[i + 1 :]):
+        end = tail_at + starts[i + 1]
     last = lines[i]
     m = _MARK.search(last)
     if not m or not m.group(1):
-        return False
+        return end, False
     mark = m.group(1)
     if _LETTER_EXPONENT.search(mark):
-        lines = [ln for ln in head.split(b"\n") if not _is_text_line(ln)]
+        lines = [ln for ln in head.split(b"\n") if _text_marks(ln) < MIN_FOOTER_MARKS]
         digit_lines = [ln[: ln.rfind(mark)] if mark in ln else ln for ln in lines]
         decimal_digits = sum(len(ln) - len(ln.translate(None, b"0123456789")) for ln in digit_lines)
         if any(_HEX_LETTER.search(ln) for ln in digit_lines) or decimal_digits < MIN_DECIMAL_EVIDENCE:
             # A hex file, or too few digits to tell: 'e0' or 'b0' there may be digits.
             m = _MARK_NO_LETTER_EXPONENT.search(last)
             if not m or not m.group(1):
-                return False
+                return end, False
             mark = m.group(1)
-    start = tail_at + starts[i] + m.start(1)
-    spans.append((start, start + len(mark)))
-    return any(c in mark for c in b"])}'\"")
+    return tail_at + starts[i] + m.start(1), any(c in mark for c in b"])}'\"")
 
 
 class Rewritten:
@@ -172,6 +231,10 @@ class Rewritten:
         self.path, self.size_bytes, self.compression = src.path, src.size_bytes, src.compression
 
     def read_at(self, offset: int, n: int) -> bytes:
+        if self.rules.end is not None:
+            n = max(0, min(n, self.rules.end - offset))
+            if n == 0:
+                return b""
         lo = max(0, offset - CONTEXT)
         data = self._inner.read_at(lo, offset - lo + n + CONTEXT)
         out = self._rewrite(data, lo)
@@ -188,6 +251,10 @@ class Rewritten:
             data = _TYPESET.sub(lambda m: b" " * len(m.group()), data)
         if r.page_breaks and b"\f" in data:
             data = _blank_page_headers(data, at > 0)
+        if r.table:
+            data = _TABLE_ROW.sub(lambda m: m.group(1) + b":" + m.group(2), data)
+        if r.dump_text:
+            data = _DUMP_ROW.sub(_blank_text_column, data)
         for a, b in r.blank_spans:
             if a < at + len(data) and b > at:
                 i, j = max(a, at) - at, min(b, at + len(data)) - at
@@ -218,7 +285,8 @@ def _blank_page_headers(data: bytes, cut_first: bool) -> bytes:
         has_feed = b"\f" in ln
         only_feeds = has_feed and not ln.replace(b"\f", b"").strip(b" \t\r")
         whole = not (k == 0 and cut_first) and k != last and len(ln) <= MAX_PAGE_HEADER
-        if (has_feed or after_feed) and whole and _is_text_line(ln):
+        ends_as_text = not ln.rstrip(b" \t\r")[-1:].translate(None, _TEXT_MARKS)
+        if (has_feed or after_feed) and whole and ends_as_text and _is_text_line(ln):
             lines[k] = re.sub(rb"[^\r]", b" ", ln)
         elif has_feed:
             lines[k] = ln.replace(b"\f", b" ")

@@ -28,9 +28,11 @@ from tests.fuzz.writer import (
     MARKS,
     NO_LETTER_MARKS,
     PAIRS,
+    TABLE_SEPS,
     TYPESET_SEPS,
     Label,
     Spec,
+    as_table,
     write,
 )
 
@@ -75,7 +77,7 @@ def random_spec(rng: random.Random, max_digits: int = 400) -> Spec:
             opening, mark = rng.choice(PAIRS)
         else:
             mark = rng.choice(MARKS if base == 10 and n >= 64 else NO_LETTER_MARKS)
-    return Spec(
+    spec = Spec(
         digits=digits,
         base=base,
         integer_part=rng.choice((None, None, "3", "0", "12")),
@@ -97,6 +99,10 @@ def random_spec(rng: random.Random, max_digits: int = 400) -> Spec:
         footer=tuple(rng.choice(FOOTERS) for _ in range(rng.choice((1, 2)))) if rng.random() < 0.15 else (),
         page=rng.randint(1, 6) if lines > 2 and rng.random() < 0.15 else None,
     )
+    if rng.random() < 0.08 and n >= 8:  # a table of positions and digits (writers.py)
+        w = rng.choice((1, 1, rng.randint(1, 64)))
+        spec = as_table(spec, rng.choice(TABLE_SEPS), rng.choice(("before", "first")), w)
+    return spec
 
 
 def compress(spec: Spec, content: bytes) -> bytes:

@@ -14,9 +14,11 @@ from tests.fuzz.writer import (
     MARKS,
     NO_LETTER_MARKS,
     PAIRS,
+    TABLE_SEPS,
     TYPESET_SEPS,
     Label,
     Spec,
+    as_table,
 )
 
 
@@ -73,7 +75,7 @@ def specs(draw, max_digits: int = 700, min_digits: int = 1, where: str | None = 
             opening, mark = draw(st.sampled_from(PAIRS))
         else:
             mark = draw(st.sampled_from(MARKS if base == 10 and n >= 64 else NO_LETTER_MARKS))
-    return Spec(
+    spec = Spec(
         digits=digits,
         base=base,
         integer_part=draw(st.sampled_from((None, None, "3", "0", "12"))),
@@ -97,3 +99,11 @@ def specs(draw, max_digits: int = 700, min_digits: int = 1, where: str | None = 
         else (),
         page=draw(st.integers(1, 6)) if lines > 2 and draw(st.integers(0, 5)) == 0 else None,
     )
+    if where is None and n >= 8 and draw(st.integers(0, 9)) == 0:  # a table (writers.py)
+        spec = as_table(
+            spec,
+            draw(st.sampled_from(TABLE_SEPS)),
+            draw(st.sampled_from(("before", "first"))),
+            draw(st.sampled_from((1, 1, 10, 64))),
+        )
+    return spec

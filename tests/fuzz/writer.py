@@ -26,6 +26,7 @@ LONE_SEPS = (" : ", " | ", "\t|\t")  # a label on a line alone has a blank besid
 BLANK_SEPS = (" ", "  ", "\t")
 TYPESET_SEPS = ("\u00a0", "\u2009", "\u202f", "\u2007")  # no-break, thin, narrow no-break, figure space
 MARKS = ("`50.", "`1001.", "e0", "E+00", "b0", "*^0")  # after the last digit
+TABLE_SEPS = (",", ";", ", ", " ; ")  # a table row's one separator after the position
 NO_LETTER_MARKS = ("`50.", "`1001.", "*^0")  # letter exponents only after 64 decimal digits (writers.py)
 PAIRS = (("[", "]"), ("mpf('", "')"), ('"', '"'), ("'", "'"), ("(", ")"))  # around the number
 FOOTERS = ("-- end --", "Total: 20000 digits", "Ridgeview mathematics club, page 1 of 1")
@@ -88,6 +89,27 @@ class Spec:
     mark: str = ""  # after the last digit: "`50.", "e0", "b0", "]", "')", '"'
     footer: tuple[str, ...] = ()  # text lines after the digits
     page: int | None = None  # digit lines a page: a form feed and a page header line between pages
+
+
+def as_table(spec: Spec, sep: str, kind: str, width: int) -> Spec:
+    """``spec`` written as a table: one row per ``width`` digits, its position before ``sep``
+    (at least 3 rows: fewer are never read as a table, writers.MIN_ROWS)."""
+    from dataclasses import replace
+
+    width = max(1, min(width, len(spec.digits) // 3))
+    label = Label("start", 10, sep, kind, pad=spec.label.pad if spec.label else 0)
+    return replace(
+        spec,
+        width=width,
+        group=None,
+        label=label,
+        integer_part=None,
+        continuation=False,
+        opening="",
+        mark="",
+        page=None,
+        header=("position,digits",) if kind == "first" else spec.header,
+    )
 
 
 @dataclass
