@@ -24,7 +24,7 @@ byte is still judged by the layout model:
   are no hex digit or punctuation no digit line holds (``-``, ``=``, ``#``, ...),
   the first of them its first byte, printable ASCII only, so a digit line with a
   stray byte, or run together with the footer, is never taken for text;
-* **page breaks**: a form feed, and a text line (the same footer rule, and
+* **page breaks**: form feeds at the start of a line, and a text line (the same footer rule, and
   ending as text: ``Page 2 of the club's run``, not ``Page 2``, so a page header
   run together with the next digit line is never one) on the line a form feed
   starts or right after a line holding only form feeds;
@@ -76,6 +76,7 @@ _MARK_NO_LETTER_EXPONENT = re.compile(
 _LETTER_EXPONENT = re.compile(rb"[eEbB][+-]?0+")
 _OPENING = re.compile(rb"\A[ \t]*((?:[A-Za-z_][A-Za-z0-9_.]*\()?[\[({'\"]+)(?=[0-9A-Fa-f])")
 _HEX_LETTER = re.compile(rb"[A-Fa-f]")
+MIN_PAGE_LINE = 8  # shortest digit line among which page breaks are read
 MIN_ROWS = 3  # rows of a table or dump seen before its rule applies
 # A table row: a position, one ',' or ';' (blanks around it), the digits; short enough that a
 # window always sees its start.
@@ -140,7 +141,7 @@ def writer_rules(src: ByteSource, head: bytes, eof: bool) -> WriterRules | None:
     """The rules the file needs, from its head and (when it can be read cheaply) its tail."""
     continuation = bool(_CONTINUATION.search(head))
     typeset = bool(_TYPESET.search(head))
-    page_breaks = b"\f" in head
+    page_breaks = b"\f" in head and _long_lines(head)
     table = _all_rows(head, eof, _TABLE_ROW)
     dump_text = _all_rows(head, eof, _DUMP_ROW) and _DUMP_ROW.sub(_blank_text_column, head) != head
     spans: list[tuple[int, int]] = []
@@ -162,6 +163,17 @@ def writer_rules(src: ByteSource, head: bytes, eof: bool) -> WriterRules | None:
     if not (continuation or typeset or page_breaks or spans or table or dump_text or end is not None):
         return None
     return WriterRules(continuation, typeset, page_breaks, tuple(sorted(spans)), table, dump_text, end)
+
+
+def _long_lines(head: bytes) -> bool:
+    """True when every digit line of the head but the last holds ``MIN_PAGE_LINE`` bytes or more:
+    page breaks are read only between such lines (among lines of a digit or two, a damaged
+    first line beside a blanked page header was once taken for header text)."""
+    lines = [ln.strip(b" \t\r") for ln in head.split(b"\n")[:-1]]
+    digit_lines = [
+        ln for ln in lines if ln and not ln.startswith(b"\f") and _text_marks(ln) < MIN_FOOTER_MARKS
+    ]
+    return all(len(ln) >= MIN_PAGE_LINE for ln in digit_lines[:-1])
 
 
 def _all_rows(head: bytes, eof: bool, row: re.Pattern[bytes]) -> bool:
@@ -282,13 +294,14 @@ def _blank_page_headers(data: bytes, cut_first: bool) -> bytes:
     after_feed = False
     last = len(lines) - 1
     for k, ln in enumerate(lines):
-        has_feed = b"\f" in ln
-        only_feeds = has_feed and not ln.replace(b"\f", b"").strip(b" \t\r")
+        has_feed = ln.startswith(b"\f")  # a form feed starts its line; anywhere else it is a stray byte
+        only_feeds = has_feed and not ln.lstrip(b"\f").strip(b" \t\r")
         whole = not (k == 0 and cut_first) and k != last and len(ln) <= MAX_PAGE_HEADER
         ends_as_text = not ln.rstrip(b" \t\r")[-1:].translate(None, _TEXT_MARKS)
         if (has_feed or after_feed) and whole and ends_as_text and _is_text_line(ln):
             lines[k] = re.sub(rb"[^\r]", b" ", ln)
         elif has_feed:
-            lines[k] = ln.replace(b"\f", b" ")
+            rest = ln.lstrip(b"\f")
+            lines[k] = b" " * (len(ln) - len(rest)) + rest
         after_feed = only_feeds
     return b"\n".join(lines)

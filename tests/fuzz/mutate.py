@@ -97,7 +97,7 @@ def random_spec(rng: random.Random, max_digits: int = 400) -> Spec:
         opening=opening,
         mark=mark,
         footer=tuple(rng.choice(FOOTERS) for _ in range(rng.choice((1, 2)))) if rng.random() < 0.15 else (),
-        page=rng.randint(1, 6) if lines > 2 and rng.random() < 0.15 else None,
+        page=rng.randint(1, 6) if lines > 2 and (width or 0) >= 8 and rng.random() < 0.15 else None,
     )
     if rng.random() < 0.08 and n >= 8:  # a table of positions and digits (writers.py)
         w = rng.choice((1, 1, rng.randint(1, 64)))

@@ -97,7 +97,9 @@ def specs(draw, max_digits: int = 700, min_digits: int = 1, where: str | None = 
         footer=tuple(draw(st.lists(st.sampled_from(FOOTERS), max_size=2)))
         if draw(st.integers(0, 4)) == 0
         else (),
-        page=draw(st.integers(1, 6)) if lines > 2 and draw(st.integers(0, 5)) == 0 else None,
+        page=draw(st.integers(1, 6))
+        if lines > 2 and (width or 0) >= 8 and draw(st.integers(0, 5)) == 0
+        else None,
     )
     if where is None and n >= 8 and draw(st.integers(0, 9)) == 0:  # a table (writers.py)
         spec = as_table(
