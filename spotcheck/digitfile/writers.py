@@ -74,7 +74,9 @@ _MARK_NO_LETTER_EXPONENT = re.compile(
     rb"(?<=[0-9A-Fa-f.])((?:`[0-9]*\.?[0-9]*)?(?:\*\^[+-]?0+)?[\])}'\"]*)[ \t\r]*\Z"
 )
 _LETTER_EXPONENT = re.compile(rb"[eEbB][+-]?0+")
-_OPENING = re.compile(rb"\A[ \t]*((?:[A-Za-z_][A-Za-z0-9_.]*\()?[\[({'\"]+)(?=[0-9A-Fa-f])")
+# An opening mark: a call's name and parenthesis (its quote may be missing: ``mpf(3.14...')``
+# still explains every byte), or brackets and quotes alone.
+_OPENING = re.compile(rb"\A[ \t]*([A-Za-z_][A-Za-z0-9_.]*\([\[({'\"]*|[\[({'\"]+)(?=[0-9A-Fa-f])")
 _HEX_LETTER = re.compile(rb"[A-Fa-f]")
 MIN_PAGE_LINE = 8  # shortest digit line among which page breaks are read
 MIN_ROWS = 3  # rows of a table or dump seen before its rule applies
