@@ -354,6 +354,12 @@ def _check_merged_header(lines: list[tuple[int, bytes]], first: int, name: str) 
             f"{name}: line {first} is a comment that holds only digits, just before the digits: "
             "a '#' may have been typed over a digit line"
         )
+    shape = _row_shape(lines[first][1])
+    if shape is not None and shape.search(last):
+        raise DigitFileError(
+            f"{name}: line {first} is header text that ends like the digit line after it "
+            "(digits and a position label): a line break may be missing, or a digit line damaged there"
+        )
     m = _TRAILING_DIGITS.search(last)
     run = len(m.group().translate(None, b" \t.")) if m else 0
     width = len(lines[first][1].translate(None, b" \t\r."))
@@ -362,6 +368,33 @@ def _check_merged_header(lines: list[tuple[int, bytes]], first: int, name: str) 
             f"{name}: line {first} is header text that ends in {run} digits, enough for a digit line: "
             "a line break may be missing, or a digit line damaged there"
         )
+
+
+_ROW_TOKEN = re.compile(rb"[0-9A-Fa-f]+|[ \t]+|.")
+_ROW_MARKS = b",;:|"
+
+
+def _row_shape(line: bytes) -> re.Pattern[bytes] | None:
+    """The shape of a digit line that carries a label or table separator (``1, 3``, ``...6B90:  40``),
+    as a pattern for the end of the header line before it; None for a line of digits alone.
+
+    A header line that ends in that shape is a digit line run into the header by a lost line
+    break.  Each run of digits must be at least as long as the line's own, up to 4 (so a time of
+    day ``10:00:07`` does not look like a row ``1415926535:10``).
+    """
+    body = line.strip(b" \t\r")
+    if not body or body.translate(None, _ROW_MARKS) == body:
+        return None
+    digits = rb"[0-9A-Fa-f]" if body.translate(None, HEX_LETTERS) != body else rb"[0-9]"
+    parts = []
+    for tok in _ROW_TOKEN.findall(body):
+        if tok[:1] in b" \t":
+            parts.append(rb"[ \t]*")
+        elif tok[:1].translate(None, HEX) == b"":
+            parts.append(digits + rb"{%d,}" % min(len(tok), 4))
+        else:
+            parts.append(re.escape(tok))
+    return re.compile(b"".join(parts) + rb"[ \t]*\Z")
 
 
 def _line_no(head: bytes, offset: int) -> int:

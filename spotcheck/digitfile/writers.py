@@ -49,6 +49,7 @@ import re
 from dataclasses import dataclass
 
 from spotcheck.digitfile.source import ByteSource
+from spotcheck.digitfile.syntax import SEPARATORS
 
 __all__ = ["Rewritten", "WriterRules", "writer_rules", "TAIL_BYTES", "TYPESET_SEPARATORS"]
 
@@ -78,6 +79,9 @@ _LETTER_EXPONENT = re.compile(rb"[eEbB][+-]?0+")
 # still explains every byte), or brackets and quotes alone.
 _OPENING = re.compile(rb"\A[ \t]*([A-Za-z_][A-Za-z0-9_.]*\([\[({'\"]*|[\[({'\"]+)(?=[0-9A-Fa-f])")
 _HEX_LETTER = re.compile(rb"[A-Fa-f]")
+_ENDS_AS_ROW = re.compile(rb"[0-9]{1,18}[ \t]*[,;][ \t]*[0-9A-Fa-f]{1,64}[ \t\r]*\Z")
+# The end of a text line run together with a digit line: 8 digits or more, perhaps an end label.
+_ENDS_AS_DIGITS = re.compile(rb"[0-9A-Fa-f]{8,}(?:%s[0-9A-Fa-f]+)?[ \t]*\Z" % SEPARATORS["mark"])
 MIN_PAGE_LINE = 8  # shortest digit line among which page breaks are read
 MIN_ROWS = 3  # rows of a table or dump seen before its rule applies
 # A table row: a position, one ',' or ';' (blanks around it), the digits; short enough that a
@@ -96,6 +100,8 @@ def _is_text_line(line: bytes) -> bool:
         return False  # a long line, or one with line breaks or feeds inside, is no text line
     if s[:1].translate(None, _TEXT_MARKS):
         return False  # text starts as text: a digit line run together with a footer is no footer
+    if _ENDS_AS_DIGITS.search(s):
+        return False  # a page header that ends in a digit line's worth of digits lost its line break
     return _text_marks(s) >= MIN_FOOTER_MARKS
 
 
@@ -182,7 +188,12 @@ def _all_rows(head: bytes, eof: bool, row: re.Pattern[bytes]) -> bool:
     """True when every line of the head's body (after any text lines, the last line perhaps cut)
     is a row of this form, and there are at least ``MIN_ROWS``."""
     lines = [ln for ln in head.split(b"\n")[: None if eof else -1] if ln.strip(b" \t\r")]
-    while lines and not row.fullmatch(lines[0]) and _text_marks(lines[0]) >= MIN_FOOTER_MARKS:
+    while (
+        lines
+        and not row.fullmatch(lines[0])
+        and _text_marks(lines[0]) >= MIN_FOOTER_MARKS
+        and not _ENDS_AS_ROW.search(lines[0])  # a header row that swallowed row 1 (lost line break)
+    ):
         lines.pop(0)  # header lines, a header row "position,digit"
     while lines and not row.fullmatch(lines[-1]) and _text_marks(lines[-1]) >= MIN_FOOTER_MARKS:
         lines.pop()  # footer lines
