@@ -1,8 +1,9 @@
 """Lines of text that swallowed a digit line (a lost line break) are refused, never read as header or
 footer text: each shape the fuzz found (seeds 27 and 28, 2026-12-06) once the table and page-break
-families came in.  Digits of pi from memory of the 1997 table; what is asserted is the refusal."""
+families came in.  The digits are pi's leading ones typed from memory; only the refusal is asserted."""
 
 import pytest
+
 from spotcheck.digitfile import open_digit_file
 from spotcheck.errors import DigitFileError
 
