@@ -25,8 +25,12 @@ PI_DEC = (
         "".join(PI_HEX[i : i + 20] + "\n" for i in range(0, 60, 20))
         + "\fPage 2 of the Ridgeview club's run"
         + "".join(PI_HEX[i : i + 20] + "\n" for i in range(60, 120, 20)),
+        # the first digit line run into the page header after it
+        PI_HEX[:19].lower()
+        + "z\fPage 2 of the Ridgeview club's run\n"
+        + "".join(PI_HEX[i : i + 19].lower() + "\n\fPage 3 of the club's run\n" for i in range(19, 95, 19)),
     ],
-    ids=["table-header", "comment-before-end-labels", "page-header"],
+    ids=["table-header", "comment-before-end-labels", "page-header", "digit-line-into-page-header"],
 )
 def test_a_text_line_that_swallowed_a_digit_line_is_refused(tmp_path, text) -> None:
     path = tmp_path / "merged.txt"

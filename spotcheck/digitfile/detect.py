@@ -334,6 +334,7 @@ def _label_rows(chosen: Reading) -> list[tuple[int | None, int | None, int, int]
 
 
 _TRAILING_DIGITS = re.compile(rb"[0-9A-Fa-f \t.]*\Z")
+_LEADING_DIGITS = re.compile(rb"[0-9A-Fa-f]+")
 
 
 def _check_merged_header(lines: list[tuple[int, bytes]], first: int, name: str) -> None:
@@ -363,6 +364,12 @@ def _check_merged_header(lines: list[tuple[int, bytes]], first: int, name: str) 
     m = _TRAILING_DIGITS.search(last)
     run = len(m.group().translate(None, b" \t.")) if m else 0
     width = len(lines[first][1].translate(None, b" \t\r."))
+    lead = _LEADING_DIGITS.match(body)
+    if lead and len(lead.group()) >= max(8, width // 2):
+        raise DigitFileError(
+            f"{name}: line {first} is header text that starts with {len(lead.group())} digits, enough for "
+            "a digit line: a line break may be missing after them"
+        )
     if run >= max(4, width // 2):
         raise DigitFileError(
             f"{name}: line {first} is header text that ends in {run} digits, enough for a digit line: "
